@@ -1,0 +1,1 @@
+"""Seeded generator of the demo study: apprentice electricians on a panel-wiring simulator."""

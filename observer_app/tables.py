@@ -1,0 +1,50 @@
+"""Column contracts of the tables the observation store returns.  One place, on purpose.
+
+All timestamps are pandas ``datetime64[ns, UTC]`` on the *device's* clock (the
+coder's laptop), not yet on the log's clock: sync/ maps them.
+
+OBSERVATIONS (``Store.observations()``) -- the current view: corrections applied,
+superseded rows hidden.  One row per coded window.
+    observation_id  string   UUID of the row as first written
+    session_id      string   UUID of the coding session
+    coder           string   who coded
+    device          string   device label (the clock it was coded on)
+    mode            string   "live" or "replay"
+    paired_start    datetime shared start time of a paired run (NaT when solo/replay)
+    learner         string   roster learner id
+    slot            Int64    schedule slot number (NA for replay)
+    clip            string   replay clip id ("" for live)
+    window_start    datetime start of the observed window
+    window_end      datetime end of the observed window
+    coded_at        datetime when the last code of the row was entered
+    <dimension>     string   one column per scheme dimension: the code name, NA if not coded
+    no_code         bool     the window ended with nothing coded (all dimensions NA)
+    note            string   free text ("" when none)
+    scheme_hash     string   content hash of the scheme the row was coded with
+    corrected       bool     the row is the result of a correction
+
+SESSIONS (``Store.sessions()``):
+    session_id, coder, device, mode, paired_start, started_at (datetime UTC),
+    monotonic_start (float, the device's monotonic clock at start, seconds),
+    window_seconds (float), order (string), seed (Int64), scheme_hash, ended_at (datetime, NaT open)
+
+SYNC MARKS (``Store.sync_marks()``):
+    mark_id, session_id, device, coder, learner (string, "" when none), marked_at (datetime), note
+
+ABSENCES (``Store.absences()``):
+    session_id, learner, state ("absent" | "returned"), at (datetime)
+
+ADJUDICATIONS (``Store.adjudications()``) -- append-only; the newest per (unit, dimension) wins:
+    adjudication_id, unit (string), dimension, code, adjudicator, at (datetime), reason
+"""
+from __future__ import annotations
+
+OBSERVATION_COLUMNS: tuple[str, ...] = (
+    "observation_id", "session_id", "coder", "device", "mode", "paired_start", "learner",
+    "slot", "clip", "window_start", "window_end", "coded_at",
+)
+OBSERVATION_TAIL_COLUMNS: tuple[str, ...] = ("no_code", "note", "scheme_hash", "corrected")
+RESERVED_COLUMNS: frozenset[str] = frozenset(
+    OBSERVATION_COLUMNS + OBSERVATION_TAIL_COLUMNS
+    + ("unit", "log_id", "start_ns", "end_ns", "coded_ns", "time", "label", "label_source", "group")
+)
