@@ -41,7 +41,7 @@ def read_parquet_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTime
     wanted = sorted(set(spec.columns.values()))
     text_columns = [spec.columns[role] for role in TEXT_ROLES
                     if role in spec.columns and _is_text(schema.field(spec.columns[role]).type)]
-    table = parquet.read(columns=wanted, read_dictionary=text_columns)
+    table = pq.read_table(path, columns=wanted, read_dictionary=text_columns)
     frame = pd.DataFrame({column: table.column(column).to_pandas() for column in wanted})
     del table
     rows = np.arange(1, len(frame) + 1, dtype=np.int64)
