@@ -20,6 +20,7 @@ from scipy.stats import theilslopes
 
 from sync.clock import ClockModel, MarkResidual
 from sync.event_table import learner_blocks
+from sync.time_column import datetime_column_ns
 
 SEARCH_RANGE_S = 300.0
 VOTE_BIN_S = 1.0
@@ -54,7 +55,7 @@ def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame) -> ClockModel:
                         f"({', '.join(skipped[:5])})")
     if usable.empty:
         raise ValueError("no sync mark names a learner with log events")
-    device_ns = pd.to_datetime(usable["marked_at"], utc=True).dt.as_unit("ns").array.asi8.astype(np.int64)
+    device_ns = datetime_column_ns(usable["marked_at"])
     learners = usable["log_id"].astype(str).to_numpy()
     mark_ids = usable["mark_id"].astype(str).to_numpy()
 

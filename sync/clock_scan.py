@@ -23,6 +23,7 @@ from scipy.stats import theilslopes
 
 from sync.clock import ClockModel
 from sync.event_table import learner_blocks
+from sync.time_column import datetime_column_ns
 
 DEFAULT_RANGE_S = 300.0
 DEFAULT_STEP_S = 0.5
@@ -32,6 +33,8 @@ CHUNKS = 12
 MIN_CHUNK_OBSERVATIONS = 100
 MIN_DRIFT_SPAN_S = 3600.0
 AMBIGUOUS_BELOW = 0.25
+CLEAR_PEAK_SPREADS = 20.0  # a peak this many noise spreads above the far level is clear
+SEPARATION_WINDOWS = 3.0  # rivals are offsets more than 3 window lengths beyond the peak
 PAIRS_PER_BLOCK = 4_000_000
 PEAK_REGION = 0.3  # the peak region: scores within 30% of the peak's height above the median
 
@@ -127,14 +130,20 @@ def likelihood_ratio_curve(totals: list[np.ndarray], exposures: list[np.ndarray]
 def locate_peak(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) -> tuple[float, float, list[str]]:
     """(estimate, confidence, warnings) from a score curve.
 
-    The estimate is the middle of the contiguous peak region (scores within 10% of the
-    peak's height above the median), which is the apex for a sharp peak and the centre
-    for a plateau.  Confidence compares the best score outside the peak region widened by
-    ``separation_s`` with the peak: 1 - (rival - median) / (peak - median).
+    Offsets more than ``separation_s`` beyond the peak are the "far" level: its median is
+    the baseline and its robust spread (1.4826 * MAD) the noise.  The estimate is the
+    middle of the contiguous peak region (scores within 30% of the peak's height above
+    the baseline): the apex of a sharp peak, the centre of a plateau.
+    confidence = separation * clearness, where separation = 1 - (best far score -
+    baseline) / (peak - baseline) (0 = a rival as good, 1 = none) and clearness =
+    min(1, (peak - baseline) / (CLEAR_PEAK_SPREADS * noise)).
     """
     warnings: list[str] = []
     best = int(np.argmax(scores))
-    top, base = float(scores[best]), float(np.median(scores))
+    top = float(scores[best])
+    far = np.abs(offsets_s - offsets_s[best]) > separation_s
+    level = scores[far] if far.sum() >= 10 else scores
+    base = float(np.median(level))
     height = top - base
     if not np.isfinite(height) or height <= 1e-12:
         return float(offsets_s[best]), 0.0, ["no offset explains the log activity better than the others"]
@@ -145,16 +154,21 @@ def locate_peak(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) 
     while right < len(scores) - 1 and inside[right + 1]:
         right += 1
     estimate = float((offsets_s[left] + offsets_s[right]) / 2)
-    far = (offsets_s < offsets_s[left] - separation_s) | (offsets_s > offsets_s[right] + separation_s)
-    rival = float(scores[far].max()) if far.any() else base
-    confidence = float(np.clip(1.0 - (rival - base) / height, 0.0, 1.0))
-    if confidence < AMBIGUOUS_BELOW:
-        rival_at = float(offsets_s[far][np.argmax(scores[far])])
+    rivals = (offsets_s < offsets_s[left] - separation_s) | (offsets_s > offsets_s[right] + separation_s)
+    rival = float(scores[rivals].max()) if rivals.any() else base
+    separation = float(np.clip(1.0 - (rival - base) / height, 0.0, 1.0))
+    noise = 1.4826 * float(np.median(np.abs(level - base)))
+    clearness = 1.0 if noise <= 0 else float(min(1.0, height / (CLEAR_PEAK_SPREADS * noise)))
+    if clearness < 0.5:
+        warnings.append("no clear best offset: the codes barely explain the log activity at any offset; "
+                        "add sync marks or set the offset by hand")
+    elif separation < AMBIGUOUS_BELOW:
+        rival_at = float(offsets_s[rivals][np.argmax(scores[rivals])])
         warnings.append(f"ambiguous: an offset of {rival_at:+.1f} s explains the log almost as well as "
                         f"{estimate:+.1f} s; add sync marks or check the result")
     if left == 0 or right == len(scores) - 1:
         warnings.append("the best offset is at the edge of the scanned range; widen the range")
-    return estimate, confidence, warnings
+    return estimate, separation * clearness, warnings
 
 
 def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: list[str],
@@ -174,8 +188,8 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
         raise ValueError("candidates must be an evenly spaced ascending grid")
     usable = observations.dropna(subset=["window_start", "window_end"])
     usable = usable[usable["log_id"].fillna("").astype(str) != ""]
-    start = _ns(usable["window_start"])
-    end = _ns(usable["window_end"])
+    start = datetime_column_ns(usable["window_start"])
+    end = datetime_column_ns(usable["window_end"])
     learners = usable["log_id"].astype(str).to_numpy()
     labels, sizes = _code_numbers(usable, dimensions)
     seconds = (end - start) / 1e9
@@ -193,7 +207,7 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
 
     everyone = np.arange(len(start))
     scores = curve(everyone, candidates)
-    estimate, confidence, warnings = locate_peak(candidates, scores, window_s)
+    estimate, confidence, warnings = locate_peak(candidates, scores, SEPARATION_WINDOWS * window_s)
     reference = int(np.median(start)) - int(round(estimate * 1e9)) if len(start) else 0
     offset, drift, residual, drift_warnings = _drift(curve, start, estimate, reference, window_s)
     if drift:
@@ -261,8 +275,3 @@ def _fine_grid(centre_s: float) -> np.ndarray:
     Wide enough that the curve's median is off the peak, which ``locate_peak`` needs."""
     return np.round(np.arange(centre_s - FINE_HALF_WIDTH_S, centre_s + FINE_HALF_WIDTH_S + FINE_STEP_S / 2,
                               FINE_STEP_S), 6)
-
-
-def _ns(values: pd.Series) -> np.ndarray:
-    """A datetime column (UTC) -> int64 ns."""
-    return pd.to_datetime(values, utc=True).dt.as_unit("ns").array.asi8.astype(np.int64)

@@ -56,18 +56,16 @@ def build(seed: int = 11, marks_every_s: float = 600.0, outlying_marks: int = 2)
         base = day_start.value
         for learner in log_ids:
             # Hidden state segments over the day, on the log clock.
-            edges, labels, t = [0.0], [], 0.0
-            while t < day_s + 120:
-                labels.append(STATES[rng.choice(len(STATES), p=STATE_SHARE)])
-                t += max(5.0, rng.exponential(MEAN_SEGMENT_S))
-                edges.append(t)
-            edges = np.array(edges)
+            lengths = np.maximum(5.0, rng.exponential(MEAN_SEGMENT_S, int(day_s / 5) + 10))
+            edges = np.concatenate(([0.0], np.cumsum(lengths)))
+            edges = edges[: int(np.searchsorted(edges, day_s + 120)) + 1]
+            labels = [STATES[i] for i in rng.choice(len(STATES), len(edges) - 1, p=STATE_SHARE)]
             states[(day, learner)] = (edges, labels)
-            times = []
-            for (a, b), label in zip(zip(edges[:-1], edges[1:]), labels):
-                n = rng.poisson(EVENTS_PER_SECOND[label] * (b - a))
-                times.append(rng.uniform(a, b, n))
-            seconds = np.sort(np.concatenate(times))
+            rates = np.array([EVENTS_PER_SECOND[label] for label in labels])
+            lengths = np.diff(edges)
+            per_segment = rng.poisson(rates * lengths)
+            seconds = np.sort(np.repeat(edges[:-1], per_segment)
+                              + rng.random(per_segment.sum()) * np.repeat(lengths, per_segment))
             event_parts.append(build_events(
                 learner=[learner] * len(seconds), time_ns=base + np.round(seconds * 1e9).astype(np.int64),
                 action=rng.choice(["place_wire", "test_circuit", "reset"], len(seconds)),
