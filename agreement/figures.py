@@ -180,3 +180,25 @@ def assess_agreement(units: pd.DataFrame, dimensions: list[Dimension], resamples
     coders = tuple(sorted(units["coder"].astype(str).unique()))
     return Agreement(dimensions=results, coders=coders, units=int(units["unit"].nunique()),
                      clusters=clusters, resamples=resamples, seed=seed)
+
+
+def dimension_json(result: DimensionAgreement) -> dict[str, object]:
+    """One entry of the --json "dimensions" object; keys: agreement.tables.JSON_DIMENSION_KEYS."""
+    entry: dict[str, object] = {"level": result.level, "codes": list(result.codes), "units": result.units,
+                                "coders": list(result.coders)}
+    entry.update({key: result.figures[key].as_dict() for key in FIGURE_KEYS})
+    entry["band"] = result.band
+    entry["per_code_kappa"] = {code: estimate.as_dict() for code, estimate in result.per_code_kappa.items()}
+    entry["confusion"] = {"rows": result.confusion.rows, "columns": result.confusion.columns,
+                          "codes": list(result.confusion.codes),
+                          "counts": result.confusion.counts.round(6).tolist()}
+    entry["could_not_observe"] = {"code": result.could_not_observe.code,
+                                  "included": result.could_not_observe.included,
+                                  "codes": result.could_not_observe.codes,
+                                  "units_one_coder_could_not": result.could_not_observe.units_one_coder_could_not}
+    return entry
+
+
+def agreement_json(agreement: Agreement) -> dict[str, object]:
+    """The per-dimension part of the --json object."""
+    return {name: dimension_json(result) for name, result in agreement.dimensions.items()}

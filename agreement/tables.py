@@ -29,8 +29,9 @@ dimension and pair of coders whose codes differ:
 ADJUDICATION INPUT -- the CSV ``fieldmark adjudicate`` reads:
     unit, dimension, code, adjudicator, reason
 
-ROLLING -- ``agreement.views.rolling_kappa``: time (of the last unit in the window),
-    units (in the window), kappa (float, NaN when undefined).
+ROLLING -- ``agreement.views.rolling_kappa``: position (1-based number of the window's
+    last unit in time order), time (of that unit), units (in the window), kappa (float,
+    NaN when undefined).
 
 JSON -- ``fieldmark agree --json`` prints one object; ``JSON_TOP_KEYS`` are its keys,
 ``JSON_DIMENSION_KEYS`` the keys of each entry of "dimensions".  Every figure is an
@@ -47,7 +48,7 @@ DISAGREEMENT_COLUMNS: tuple[str, ...] = (
     "adjudicated_code",
 )
 ADJUDICATION_INPUT_COLUMNS: tuple[str, ...] = ("unit", "dimension", "code", "adjudicator", "reason")
-ROLLING_COLUMNS: tuple[str, ...] = ("time", "units", "kappa")
+ROLLING_COLUMNS: tuple[str, ...] = ("position", "time", "units", "kappa")
 
 # Columns a long-format CSV may carry besides unit, coder and the dimensions.
 LONG_FORMAT_KEY_COLUMNS: tuple[str, ...] = ("unit", "coder")
