@@ -126,6 +126,12 @@ def _could_not_observe(units: pd.DataFrame, dimension: Dimension, included: bool
     return CouldNotObserve(code=code, included=included, codes=int(is_code.sum()), units_one_coder_could_not=mixed)
 
 
+def headline_kappa(figures: dict[str, Estimate]) -> Estimate:
+    """Cohen's kappa for two coders, else Fleiss' kappa: the kappa the band labels."""
+    cohen = figures["cohen_kappa"]
+    return cohen if cohen.value is not None else figures["fleiss_kappa"]
+
+
 def _optional(value: float) -> float | None:
     return float(value) if np.isfinite(value) else None
 
@@ -146,7 +152,7 @@ def assess_dimension(units: pd.DataFrame, dimension: Dimension, cluster_index: n
     figures = dict(zip(FIGURE_KEYS, estimates[: len(FIGURE_KEYS)]))
     per_code_estimates = dict(zip(counted.codes, estimates[len(FIGURE_KEYS):]))
     rows, columns = (counted.coders[0], counted.coders[1]) if two_coders else ("first coder", "second coder")
-    headline = figures["cohen_kappa"] if figures["cohen_kappa"].value is not None else figures["fleiss_kappa"]
+    headline = headline_kappa(figures)
     return DimensionAgreement(
         name=dimension.name, level=dimension.level, codes=counted.codes, units=counted.units,
         coders=counted.coders, figures=figures, band=coefficients.landis_koch_band(headline.value),
