@@ -126,6 +126,15 @@ def _could_not_observe(units: pd.DataFrame, dimension: Dimension, included: bool
     return CouldNotObserve(code=code, included=included, codes=int(is_code.sum()), units_one_coder_could_not=mixed)
 
 
+def estimate_text(estimate: Estimate) -> str:
+    """"0.712 [0.601, 0.803]", or "undefined"."""
+    if estimate.value is None:
+        return "undefined"
+    if estimate.low is None:
+        return f"{estimate.value:.3f}"
+    return f"{estimate.value:.3f} [{estimate.low:.3f}, {estimate.high:.3f}]"
+
+
 def headline_kappa(figures: dict[str, Estimate]) -> Estimate:
     """Cohen's kappa for two coders, else Fleiss' kappa: the kappa the band labels."""
     cohen = figures["cohen_kappa"]

@@ -16,23 +16,9 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
-from agreement.figures import Agreement, DimensionAgreement, Estimate, headline_kappa  # noqa: E402
-from agreement.tables import FIGURE_KEYS  # noqa: E402
+from agreement.figures import Agreement, DimensionAgreement, estimate_text, headline_kappa  # noqa: E402
+from agreement.tables import FIGURE_KEYS, FIGURE_LABELS  # noqa: E402
 
-FIGURE_LABELS: dict[str, str] = {
-    "percent_agreement": "Percent agreement",
-    "cohen_kappa": "Cohen's kappa",
-    "cohen_kappa_linear": "Cohen's kappa, linear weights",
-    "cohen_kappa_quadratic": "Cohen's kappa, quadratic weights",
-    "fleiss_kappa": "Fleiss' kappa",
-    "alpha": "Krippendorff's alpha (dimension's level)",
-    "alpha_nominal": "Krippendorff's alpha, nominal",
-    "alpha_ordinal": "Krippendorff's alpha, ordinal",
-    "alpha_interval": "Krippendorff's alpha, interval",
-    "alpha_ratio": "Krippendorff's alpha, ratio",
-    "pabak": "PABAK",
-    "max_kappa": "Maximum kappa under the marginals",
-}
 
 STYLE = """
 body { font-family: sans-serif; margin: 2em; color: #222; max-width: 60em; }
@@ -42,15 +28,6 @@ th:first-child, td:first-child { text-align: left; }
 caption { text-align: left; font-weight: bold; margin-bottom: 0.3em; }
 .note { color: #555; font-size: 0.9em; }
 """
-
-
-def format_estimate(estimate: Estimate) -> str:
-    """"0.712 [0.601, 0.803]", or "undefined"."""
-    if estimate.value is None:
-        return "undefined"
-    if estimate.low is None:
-        return f"{estimate.value:.3f}"
-    return f"{estimate.value:.3f} [{estimate.low:.3f}, {estimate.high:.3f}]"
 
 
 def png_base64(figure: plt.Figure) -> str:
@@ -98,11 +75,11 @@ def drift_plot(rolling: dict[str, pd.DataFrame], window: int) -> str | None:
 
 def _figure_table(result: DimensionAgreement) -> str:
     rows = "".join(
-        f"<tr><td>{html.escape(FIGURE_LABELS[key])}</td><td>{format_estimate(result.figures[key])}</td></tr>"
+        f"<tr><td>{html.escape(FIGURE_LABELS[key])}</td><td>{estimate_text(result.figures[key])}</td></tr>"
         for key in FIGURE_KEYS if result.figures[key].value is not None
     )
     per_code = "".join(
-        f"<tr><td>{html.escape(code)}</td><td>{format_estimate(estimate)}</td></tr>"
+        f"<tr><td>{html.escape(code)}</td><td>{estimate_text(estimate)}</td></tr>"
         for code, estimate in result.per_code_kappa.items()
     )
     could_not = result.could_not_observe
@@ -148,7 +125,7 @@ def render_report(title: str, agreement: Agreement, rolling: dict[str, pd.DataFr
         header = "".join(f"<th>{html.escape(name)}</th>" for name in agreement.dimensions)
         rows = "".join(
             f"<tr><td>{html.escape(label)}</td>" + "".join(
-                f"<td>{format_estimate(headline_kappa(view.dimensions[name].figures))}</td>" for name in agreement.dimensions)
+                f"<td>{estimate_text(headline_kappa(view.dimensions[name].figures))}</td>" for name in agreement.dimensions)
             + "</tr>" for label, view in views.items())
         parts.append(f"<table><caption>Kappa by view</caption><tr><th></th>{header}</tr>{rows}</table>")
     parts.append("</body></html>")

@@ -100,3 +100,19 @@ JSON_DIMENSION_KEYS: tuple[str, ...] = (
     "confusion",           # {"rows", "columns" (coder names), "codes", "counts" (rows x columns)}
     "could_not_observe",   # {"code", "included", "codes" (count), "units_one_coder_could_not"}
 )
+
+# How the human table and the HTML report name each figure.
+FIGURE_LABELS: dict[str, str] = {
+    "percent_agreement": "Percent agreement",
+    "cohen_kappa": "Cohen's kappa",
+    "cohen_kappa_linear": "Cohen's kappa, linear weights",
+    "cohen_kappa_quadratic": "Cohen's kappa, quadratic weights",
+    "fleiss_kappa": "Fleiss' kappa",
+    "alpha": "Krippendorff's alpha (dimension's level)",
+    "alpha_nominal": "Krippendorff's alpha, nominal",
+    "alpha_ordinal": "Krippendorff's alpha, ordinal",
+    "alpha_interval": "Krippendorff's alpha, interval",
+    "alpha_ratio": "Krippendorff's alpha, ratio",
+    "pabak": "PABAK",
+    "max_kappa": "Maximum kappa under the marginals",
+}

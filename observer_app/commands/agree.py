@@ -20,11 +20,10 @@ from tqdm import tqdm
 from agreement.bootstrap import DEFAULT_RESAMPLES
 from agreement.dimensions import LEVELS, Dimension
 from agreement.disagreements import list_disagreements
-from agreement.figures import Agreement, agreement_json, assess_agreement, headline_kappa
+from agreement.figures import Agreement, agreement_json, assess_agreement, estimate_text, headline_kappa
 from agreement.long_format import read_long_csv
 from agreement.pairing import pair_observations
-from agreement.report import FIGURE_LABELS, format_estimate, render_report
-from agreement.tables import FIGURE_KEYS
+from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
 from agreement.views import (
     CERTIFICATION_KAPPA, CERTIFICATION_PAIRS, ROLLING_WINDOW, by_pair, by_session, certify, rolling_kappa,
     units_of_coders,
@@ -154,12 +153,12 @@ def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: 
         width = max(len(label) for label in FIGURE_LABELS.values())
         for key in FIGURE_KEYS:
             if result.figures[key].value is not None or key in ("cohen_kappa", "fleiss_kappa", "alpha"):
-                shown = format_estimate(result.figures[key])
+                shown = estimate_text(result.figures[key])
                 if key == "cohen_kappa" and len(result.coders) != 2:
                     shown += " (needs exactly two coders: use --coders A,B or --by pair)"
                 out.write(f"  {FIGURE_LABELS[key]:<{width}}  {shown}\n")
         for code, estimate in result.per_code_kappa.items():
-            out.write(f"  {'kappa, ' + code + ' vs rest':<{width}}  {format_estimate(estimate)}\n")
+            out.write(f"  {'kappa, ' + code + ' vs rest':<{width}}  {estimate_text(estimate)}\n")
         could_not = result.could_not_observe
         if could_not.code:
             out.write(f"  could not observe ({could_not.code}): {could_not.codes} codes, "
@@ -168,14 +167,14 @@ def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: 
     if views:
         out.write("\nKappa by view\n")
         for label, view in views.items():
-            cells = ", ".join(f"{name} {format_estimate(headline_kappa(item.figures))}"
+            cells = ", ".join(f"{name} {estimate_text(headline_kappa(item.figures))}"
                               for name, item in view.dimensions.items())
             out.write(f"  {label}: {cells}\n")
     if certification is not None:
         out.write("\nCertification\n")
         for coder, checks in certification.items():
             verdict = "certified" if all(check.passes for check in checks) else "not certified"
-            details = ", ".join(f"{c.dimension} kappa {format_estimate(c.kappa)} on {c.pairs} pairs "
+            details = ", ".join(f"{c.dimension} kappa {estimate_text(c.kappa)} on {c.pairs} pairs "
                                 f"({'pass' if c.passes else 'fail'})" for c in checks)
             out.write(f"  {coder}: {verdict} -- {details}\n")
 
@@ -209,6 +208,8 @@ def run(args: argparse.Namespace) -> int:
         table = list_disagreements(units, dimensions, adjudications)
         write_atomically(args.disagreements, table.to_csv(index=False))
     if args.report:
+        from agreement.report import render_report  # matplotlib: only loaded when a report is asked for
+
         rolling = {d.name: rolling_kappa(units, d, args.rolling_window, include) for d in dimensions}
         write_atomically(args.report, render_report(f"Reliability report: {Path(args.source).name}", agreement,
                                                     rolling, args.rolling_window, pairing, views))
