@@ -44,8 +44,9 @@ class CountTables:
     def flat(self) -> np.ndarray:
         """(clusters, cells): every table side by side, for the bootstrap product."""
         c = self.clusters
+        square = len(self.codes) ** 2
         return np.hstack([
-            self.contingency.reshape(c, -1), self.coincidence.reshape(c, -1),
+            self.contingency.reshape(c, square), self.coincidence.reshape(c, square),
             self.fleiss_sum[:, None], self.fleiss_units[:, None], self.code_totals,
         ])
 
