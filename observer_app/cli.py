@@ -14,7 +14,13 @@ from observer_app import __version__
 from sync.errors import InputError
 
 # Verb modules in the order --help lists them.  Only verbs that work are listed.
-COMMANDS: tuple[str, ...] = ("agree", "adjudicate", "plan")
+COMMANDS: tuple[str, ...] = (
+    "init",
+    "import_observations",
+    "agree",
+    "adjudicate",
+    "plan",
+)
 
 
 class _Parser(argparse.ArgumentParser):
