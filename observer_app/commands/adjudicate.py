@@ -16,6 +16,7 @@ import pandas as pd
 
 from agreement.disagreements import read_adjudications
 from observer_app.commands.agree import load_study_units
+from observer_app.store import Store
 from sync.errors import InputError
 
 
@@ -32,11 +33,13 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     if not args.study.is_dir():
         raise InputError(args.study, None, "not a study folder")
-    units, dimensions, _, store = load_study_units(args.study)
+    units, dimensions, _, store_path = load_study_units(args.study)
     decisions = read_adjudications(args.file, dimensions, set(units["unit"].astype(str)))
-    at = pd.Timestamp.now(tz="UTC")
-    for row in decisions.itertuples(index=False):
-        store.record_adjudication(row.unit, row.dimension, row.code, row.adjudicator, at, row.reason)
+    at = pd.Timestamp.now(tz="UTC").to_pydatetime()
+    with Store(store_path) as store:
+        for row in decisions.itertuples(index=False):
+            store.record_adjudication(unit=row.unit, dimension=row.dimension, code=row.code,
+                                      adjudicator=row.adjudicator, at=at, reason=row.reason)
     if args.json:
         sys.stdout.write(json.dumps({"study": str(args.study), "recorded": len(decisions)}) + "\n")
     else:

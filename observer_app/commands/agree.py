@@ -28,6 +28,9 @@ from agreement.views import (
     CERTIFICATION_KAPPA, CERTIFICATION_PAIRS, ROLLING_WINDOW, by_pair, by_session, certify, rolling_kappa,
     units_of_coders,
 )
+from observer_app.scheme import Scheme
+from observer_app.store import Store
+from observer_app.study import load_study
 from sync.errors import InputError
 
 
@@ -58,32 +61,28 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.set_defaults(run=run)
 
 
-def scheme_dimensions(scheme: object) -> list[Dimension]:
+def scheme_dimensions(scheme: Scheme) -> list[Dimension]:
     """agreement's view of the study's code scheme."""
     dimensions = []
     for dimension in scheme.dimensions:
-        could_not = dimension.could_not_observe
-        could_not = getattr(could_not, "name", could_not)
         dimensions.append(Dimension(name=dimension.name, level=dimension.level,
                                     codes=tuple(code.name for code in dimension.codes),
-                                    could_not_observe=could_not or None))
+                                    could_not_observe=dimension.could_not_observe or None))
     return dimensions
 
 
-def load_study_units(path: Path) -> tuple[pd.DataFrame, list[Dimension], dict[str, object], object]:
-    """UNITS, dimensions, pairing report and the store of a study folder."""
-    from observer_app.store import Store
-    from observer_app.study import load_study
-
+def load_study_units(path: Path) -> tuple[pd.DataFrame, list[Dimension], dict[str, object], Path]:
+    """UNITS, dimensions and pairing report of a study folder, and its store's path."""
     study = load_study(path)
-    store = Store(study.dir)
     dimensions = scheme_dimensions(study.scheme)
-    units, report = pair_observations(store.observations(), [d.name for d in dimensions],
-                                      tolerance_s=study.window_seconds / 2.0)
-    return units, dimensions, report.as_dict(), store
+    names = [dimension.name for dimension in dimensions]
+    with Store(study.store_path) as store:
+        observations = store.observations(names)
+    units, report = pair_observations(observations, names, tolerance_s=study.window_seconds / 2.0)
+    return units, dimensions, report.as_dict(), study.store_path
 
 
-def load_units(args: argparse.Namespace) -> tuple[pd.DataFrame, list[Dimension], dict[str, object] | None, object]:
+def load_units(args: argparse.Namespace) -> tuple[pd.DataFrame, list[Dimension], dict[str, object] | None, Path | None]:
     """Units from a study folder or a CSV, with the boundary checks of the options."""
     source = Path(args.source)
     if source.is_dir():
@@ -184,7 +183,7 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(None, "--resamples", "must be at least 1 (1000 or more for a reported interval)")
     if args.rolling_window < 2:
         raise InputError(None, "--rolling-window", "must be at least 2")
-    units, dimensions, pairing, store = load_units(args)
+    units, dimensions, pairing, store_path = load_units(args)
     units = select_coders(units, args.coders)
     include = args.include_could_not_observe
     if args.certify and args.certify not in set(units["coder"].astype(str)):
@@ -204,7 +203,10 @@ def run(args: argparse.Namespace) -> int:
                              args.certify_pairs, include) if args.certify else None)
 
     if args.disagreements:
-        adjudications = store.adjudications() if store is not None else None
+        adjudications = None
+        if store_path is not None:
+            with Store(store_path) as store:
+                adjudications = store.adjudications()
         table = list_disagreements(units, dimensions, adjudications)
         write_atomically(args.disagreements, table.to_csv(index=False))
     if args.report:

@@ -8,7 +8,7 @@ import pandas as pd
 from agreement.dimensions import Dimension
 from agreement.figures import assess_agreement
 from agreement.pairing import pair_observations
-from tests.conftest import run_cli
+from tests.conftest import call_cli, run_cli
 
 ACTIVITY = Dimension("activity", "nominal", ("on_task", "off_task", "not_visible"), could_not_observe="not_visible")
 
@@ -29,7 +29,7 @@ def test_single_category_kappa_is_undefined_via_cli(tmp_path):
     for key in ("cohen_kappa", "fleiss_kappa", "alpha", "max_kappa"):
         assert entry[key] == {"value": None, "low": None, "high": None}, key
     assert entry["band"] == "undefined"
-    human = run_cli("agree", str(csv), "--resamples", "50")
+    human = call_cli("agree", str(csv), "--resamples", "50")
     assert human.returncode == 0 and "undefined" in human.stdout
 
 

@@ -10,7 +10,7 @@ import pytest
 
 from agreement.dimensions import Dimension
 from agreement.figures import assess_agreement
-from tests.conftest import run_cli
+from tests.conftest import call_cli, run_cli
 
 # Krippendorff, K. (2011). "Computing Krippendorff's Alpha-Reliability", Annenberg
 # School for Communication, University of Pennsylvania: the example with four observers
@@ -86,8 +86,9 @@ def write_cohen_csv(path: Path) -> Path:
     return path
 
 
-def agree_json(*args: str) -> dict:
-    result = run_cli("agree", *args, "--json", "--resamples", "200")
+def agree_json(*args: str, subprocess: bool = False) -> dict:
+    """`fieldmark agree ARGS --json`; in a subprocess exactly as a user runs it when asked."""
+    result = (run_cli if subprocess else call_cli)("agree", *args, "--json", "--resamples", "200")
     assert result.returncode == 0, result.stderr
     return json.loads(result.stdout)
 
@@ -96,7 +97,7 @@ def agree_json(*args: str) -> dict:
 def test_krippendorff_2011_alpha_at_each_level_via_cli(tmp_path, level):
     # Source: Krippendorff (2011), see KRIPPENDORFF_2011_ALPHA.
     csv = write_krippendorff_csv(tmp_path / "krippendorff.csv")
-    document = agree_json(str(csv), "--level", level)
+    document = agree_json(str(csv), "--level", level, subprocess=level == "nominal")
     figure = document["dimensions"]["value"]["alpha"]
     assert round(figure["value"], 3) == KRIPPENDORFF_2011_ALPHA[level]
     assert figure["low"] <= figure["value"] <= figure["high"]
@@ -146,7 +147,7 @@ def test_fleiss_worked_example_subject_agreement(tmp_path):
 def test_cohen_two_by_two_worked_example_via_cli(tmp_path):
     # Source: Wikipedia "Cohen's kappa", simple example (COHEN_KAPPA; from memory).
     csv = write_cohen_csv(tmp_path / "cohen.csv")
-    entry = agree_json(str(csv))["dimensions"]["decision"]
+    entry = agree_json(str(csv), subprocess=True)["dimensions"]["decision"]
     assert round(entry["cohen_kappa"]["value"], 3) == COHEN_KAPPA
     assert round(entry["percent_agreement"]["value"], 3) == 0.70
     # PABAK for two categories = 2 p_o - 1 (Byrt, Bishop & Carlin 1993): 2 * 0.70 - 1 = 0.40.
