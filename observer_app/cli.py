@@ -17,6 +17,9 @@ from sync.errors import InputError
 COMMANDS: tuple[str, ...] = (
     "init",
     "import_observations",
+    "agree",
+    "adjudicate",
+    "plan",
 )
 
 
