@@ -25,6 +25,8 @@ from functools import cached_property
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from export.spans import NS_PER_SECOND, SpanSettings, feature_spans
 
@@ -48,29 +50,43 @@ class CodedColumn:
     codes: np.ndarray
     names: np.ndarray
 
-    def codes_of(self, wanted: tuple[str, ...]) -> np.ndarray:
-        """Codes of the wanted names that occur (unknown names are simply absent)."""
-        return np.flatnonzero(np.isin(self.names, np.asarray(wanted, dtype=object)))
-
-    def mask(self, wanted: tuple[str, ...]) -> np.ndarray:
-        """Boolean per row: the row's value is one of ``wanted``."""
-        lookup = np.zeros(len(self.names) + 1, dtype=bool)
-        lookup[self.codes_of(wanted)] = True
-        return lookup[self.codes]  # code -1 reads the trailing False
+    def mask(self, wanted: tuple[str, ...], rows: np.ndarray | None = None) -> np.ndarray:
+        """Boolean per row (all rows, or just ``rows``): the value is one of ``wanted``."""
+        lookup = np.zeros(len(self.names) + 1, dtype=bool)  # code -1 reads the trailing False
+        lookup[np.flatnonzero(np.isin(self.names, np.asarray(wanted, dtype=object)))] = True
+        return lookup[self.codes if rows is None else self.codes[rows]]
 
 
-def code_column(values: pd.Series) -> CodedColumn:
-    """Codes without re-hashing when the column is already dictionary-encoded."""
-    if isinstance(values.dtype, pd.CategoricalDtype):
-        codes = values.cat.codes.to_numpy().astype(np.int32)
+def code_column(values: pd.Series | pa.ChunkedArray) -> CodedColumn:
+    """Codes without re-hashing when the column is already dictionary-encoded.
+
+    Accepts a pandas column or an Arrow column (Arrow dictionary chunks are unified, which
+    is far cheaper than converting them to a pandas categorical first).
+    """
+    if isinstance(values, pa.ChunkedArray):
+        if not pa.types.is_dictionary(values.type):
+            values = pc.dictionary_encode(values)
+        values = pa.table({"column": values}).unify_dictionaries().column("column")
+        chunks = [
+            (pc.fill_null(chunk.indices, -1) if chunk.null_count else chunk.indices).to_numpy(zero_copy_only=False)
+            for chunk in values.chunks
+        ]
+        codes = np.concatenate(chunks).astype(np.int32, copy=False) if chunks else np.zeros(0, np.int32)
+        names = values.chunk(0).dictionary.to_numpy(zero_copy_only=False) if values.num_chunks else np.zeros(0, object)
+        names = np.asarray(names, dtype=object)
+    elif isinstance(values.dtype, pd.CategoricalDtype):
+        codes = values.cat.codes.to_numpy().astype(np.int32, copy=False)
         names = values.cat.categories.to_numpy(dtype=object)
     else:
         factorized, uniques = pd.factorize(values)
-        codes = factorized.astype(np.int32)
+        codes = factorized.astype(np.int32, copy=False)
         names = np.asarray(uniques, dtype=object)
     empty = np.flatnonzero(names == "")
     if len(empty):
-        codes = np.where(np.isin(codes, empty), -1, codes).astype(np.int32)
+        remap = np.arange(len(names) + 1, dtype=np.int32)
+        remap[empty] = -1
+        remap[-1] = -1
+        codes = remap[codes]
     return CodedColumn(codes, names)
 
 
@@ -78,6 +94,8 @@ def code_column(values: pd.Series) -> CodedColumn:
 class WindowEvents:
     """The sorted log and, per window, where its learner's rows and its span's rows lie.
 
+    Windows are held in log order (``window_order`` maps back to the caller's order:
+    position i here is the caller's window ``window_order[i]``).
     Per window (arrays of length W): ``learner_start`` (first row of the learner, or 0
     when the learner has no events), ``first`` (first row at or after span start),
     ``stop`` (first row at or after span end: the span's rows are ``first:stop``),
@@ -92,6 +110,7 @@ class WindowEvents:
     item: CodedColumn
     skill: CodedColumn
     learner_codes: np.ndarray
+    window_order: np.ndarray
     learner_start: np.ndarray
     first: np.ndarray
     stop: np.ndarray
@@ -136,14 +155,8 @@ class WindowEvents:
         return gaps
 
     @cached_property
-    def attempt_mask(self) -> np.ndarray:
-        """Per log row: an attempt (error or success outcome)."""
-        settings = self.settings
-        return self.outcome.mask(settings.error_outcomes + settings.success_outcomes)
-
-    @cached_property
-    def error_mask(self) -> np.ndarray:
-        return self.outcome.mask(self.settings.error_outcomes)
+    def attempt_outcomes(self) -> tuple[str, ...]:
+        return self.settings.error_outcomes + self.settings.success_outcomes
 
     def reduce_members(self, ufunc: np.ufunc, values: np.ndarray, empty: float) -> np.ndarray:
         """``ufunc`` over each window's member values; ``empty`` for windows without rows."""
@@ -161,15 +174,18 @@ class WindowEvents:
         """How many of each window's member rows satisfy a per-member condition."""
         return self.reduce_members(np.add, member_mask, 0.0)
 
-    def count_in_spans(self, row_mask: np.ndarray) -> np.ndarray:
-        """How many rows of each span satisfy a per-log-row condition."""
-        return self.count_members(row_mask[self.member])
+    def count_in_spans(self, column: CodedColumn, wanted: tuple[str, ...]) -> np.ndarray:
+        """How many rows of each span have one of the ``wanted`` values in ``column``."""
+        return self.count_members(column.mask(wanted, self.member))
 
-    def count_before_span_end(self, row_mask: np.ndarray) -> np.ndarray:
-        """The learner's rows before span end satisfying the condition (prefix sums)."""
-        prefix = np.zeros(len(row_mask) + 1, dtype=np.int64)
-        np.cumsum(row_mask, out=prefix[1:])
-        return (prefix[self.stop] - prefix[self.learner_start]).astype(np.float64)
+    def count_before_span_end(self, column: CodedColumn, wanted: tuple[str, ...]) -> np.ndarray:
+        """The learner's rows before span end with one of the ``wanted`` values.
+
+        A prefix count: the rows that qualify, in log order, searched at the learner's
+        first row and at span end (cheaper than a cumulative sum over the whole log).
+        """
+        rows = np.flatnonzero(column.mask(wanted))
+        return (np.searchsorted(rows, self.stop) - np.searchsorted(rows, self.learner_start)).astype(np.float64)
 
 
 FeatureFunction = Callable[[WindowEvents], Mapping[str, np.ndarray]]
@@ -227,7 +243,7 @@ def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
 def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
     """outcome_<name>: events with each (non-empty) outcome in the span."""
     outcome = view.outcome
-    present = np.unique(outcome.codes[outcome.codes >= 0])
+    present = np.flatnonzero(np.bincount(outcome.codes + 1, minlength=len(outcome.names) + 1)[1:])
     present = present[np.argsort(outcome.names[present].astype(str), kind="stable")]
     table = _counts_by_code(view, outcome, present)
     return {f"outcome_{outcome.names[code]}": table[:, column] for column, code in enumerate(present)}
@@ -236,9 +252,9 @@ def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
 @feature
 def errors_and_help(view: WindowEvents) -> dict[str, np.ndarray]:
     """error_rate (errors / attempts) and help_requests (help actions) in the span."""
-    attempts = view.count_in_spans(view.attempt_mask)
-    errors = view.count_in_spans(view.error_mask)
-    help_requests = view.count_in_spans(view.action.mask(view.settings.help_actions))
+    attempts = view.count_in_spans(view.outcome, view.attempt_outcomes)
+    errors = view.count_in_spans(view.outcome, view.settings.error_outcomes)
+    help_requests = view.count_in_spans(view.action, view.settings.help_actions)
     return {"error_rate": _ratio(errors, attempts), "help_requests": help_requests}
 
 
@@ -301,82 +317,86 @@ def distinct_items(view: WindowEvents) -> dict[str, np.ndarray]:
 @feature
 def persistence(view: WindowEvents) -> dict[str, np.ndarray]:
     """attempts_without_success on the current skill at span end, and the wheel_spinning flag."""
-    attempts = np.flatnonzero(view.attempt_mask & (view.skill.codes >= 0))
-    streak = _attempts_since_success(view, attempts)
-    latest = np.searchsorted(attempts, view.stop) - 1
-    valid = latest >= 0
-    valid[valid] = attempts[latest[valid]] >= view.learner_start[valid]
-    counter = np.where(valid, streak[np.maximum(latest, 0)] if len(streak) else 0, 0).astype(np.float64)
+    counter = np.zeros(len(view.counts))
+    attempts = np.flatnonzero(view.outcome.mask(view.attempt_outcomes) & (view.skill.codes >= 0))
+    latest = np.searchsorted(attempts, view.stop) - 1  # the learner's latest attempt before span end
+    learner_first = np.searchsorted(attempts, view.learner_start)
+    valid = latest >= learner_first
+    if valid.any():
+        counter[valid] = _attempts_since_success(view, attempts, latest[valid], learner_first[valid])
     return {
         "attempts_without_success": counter,
         "wheel_spinning": (counter >= view.settings.wheel_spinning_attempts).astype(np.float64),
     }
 
 
-def _attempts_since_success(view: WindowEvents, attempts: np.ndarray) -> np.ndarray:
-    """Per attempt row: attempts in a row on its skill by its learner since their last success.
+def _attempts_since_success(
+    view: WindowEvents, attempts: np.ndarray, latest: np.ndarray, learner_first: np.ndarray,
+) -> np.ndarray:
+    """Attempts in a row on the skill of attempt ``latest`` since the learner's last success on it.
 
-    A stable sort by skill keeps (learner, time) order inside each skill, so every
-    (skill, learner) pair is one contiguous run; inside a run the counter restarts after
-    each success (the success itself reads 0).
+    ``attempts`` are log rows; ``latest`` and ``learner_first`` index into it.  A stable
+    sort by skill keeps log order inside each skill, so one learner's attempts on one
+    skill are a contiguous stretch of the sorted order; the answer is the distance from
+    the latest attempt back to the last success (or to the stretch's start).
     """
-    if len(attempts) == 0:
-        return np.zeros(0, dtype=np.int64)
     skill = view.skill.codes[attempts]
-    skill = skill.astype(np.int16) if len(view.skill.names) < np.iinfo(np.int16).max else skill
+    if len(view.skill.names) < np.iinfo(np.int16).max:
+        skill = skill.astype(np.int16)  # numpy sorts 16-bit keys by radix: linear time
     order = np.argsort(skill, kind="stable")
-    rows = attempts[order]
-    success = view.outcome.mask(view.settings.success_outcomes)[rows]
-    learner = view.learner_codes[rows]
-    run_start = np.ones(len(rows), dtype=bool)
-    run_start[1:] = (skill[order][1:] != skill[order][:-1]) | (learner[1:] != learner[:-1])
-    restart = run_start | success
-    position = np.arange(len(rows))
-    last_restart = np.maximum.accumulate(np.where(restart, position, 0))
-    streak_sorted = position - last_restart + (~success[last_restart])
-    streak = np.empty_like(streak_sorted)
-    streak[order] = streak_sorted
-    return streak
+    bounds = np.zeros(len(view.skill.names) + 1, dtype=np.int64)
+    np.cumsum(np.bincount(skill, minlength=len(view.skill.names)), out=bounds[1:])
+    current = skill[latest]
+    low, high = bounds[current], bounds[current.astype(np.int64) + 1]
+    position = _search_runs(order, low, high, latest)
+    stretch_start = _search_runs(order, low, high, learner_first)
+    success = view.outcome.mask(view.settings.success_outcomes, attempts)
+    successes = np.flatnonzero(success[order])
+    before = np.searchsorted(successes, position, side="right") - 1
+    last_success = np.where(before >= 0, successes[np.maximum(before, 0)] if len(successes) else -1, -1)
+    return (position - np.maximum(last_success, stretch_start - 1)).astype(np.float64)
 
 
 @feature
 def history(view: WindowEvents) -> dict[str, np.ndarray]:
     """history_attempts and history_error_rate over the learner's log before span end."""
-    attempts = view.count_before_span_end(view.attempt_mask)
-    errors = view.count_before_span_end(view.error_mask)
+    attempts = view.count_before_span_end(view.outcome, view.attempt_outcomes)
+    errors = view.count_before_span_end(view.outcome, view.settings.error_outcomes)
     return {"history_attempts": attempts, "history_error_rate": _ratio(errors, attempts)}
 
 
-def _search_runs(time_ns: np.ndarray, low: np.ndarray, high: np.ndarray, target: np.ndarray) -> np.ndarray:
-    """First row in [low, high) whose time >= target (``high`` when none): vectorised bisection.
+def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: np.ndarray) -> np.ndarray:
+    """First index in [low, high) whose value >= target (``high`` when none).
 
-    One binary search per window inside its learner's run, all windows at once.  (A single
+    ``values`` is sorted inside each [low, high) run (a learner's times, a skill's rows);
+    one vectorised bisection searches every run at once.  (A single
     ``searchsorted`` on a combined learner*span+time int64 key would overflow once the
     learners' log spans add up to ~292 years of nanoseconds, which a large study reaches.)
     """
     low = low.copy()
     high = high.copy()
-    last = max(len(time_ns) - 1, 0)
+    last = max(len(values) - 1, 0)
     while True:
         active = low < high
         if not active.any():
             return low
         middle = (low + high) // 2
-        before = active & (time_ns[np.minimum(middle, last)] < target)
+        before = active & (values[np.minimum(middle, last)] < target)
         low = np.where(before, middle + 1, low)
         high = np.where(active & ~before, middle, high)
 
 
 def index_windows(
-    events: pd.DataFrame, windows: pd.DataFrame, spans: SpanSettings, settings: FeatureSettings,
+    events: pd.DataFrame | pa.Table, windows: pd.DataFrame, spans: SpanSettings, settings: FeatureSettings,
 ) -> WindowEvents:
     """Sort the log once (if it is not already) and locate every window's rows.
 
-    ``events``: EVENTS columns learner, time_ns, action, outcome, item, skill.
+    ``events``: EVENTS columns learner, time_ns, action, outcome, item, skill (pandas or
+    Arrow; Arrow dictionary columns are the cheapest input).
     ``windows``: log_id, start_ns, end_ns, coded_ns (see export/tables.py).
     """
     learner = code_column(events["learner"])
-    time_ns = events["time_ns"].to_numpy(dtype=np.int64)
+    time_ns = np.asarray(events["time_ns"], dtype=np.int64)
     columns = {name: code_column(events[name]) for name in ("action", "outcome", "item", "skill")}
     order = _sort_order(learner.codes, time_ns)
     if order is not None:
@@ -393,11 +413,16 @@ def index_windows(
     learner_start = run_start[window_learner]  # -1 (unknown learner) reads the empty last run
     learner_stop = run_stop[window_learner]
     span_start, span_end = feature_spans(windows, spans)
+    # Windows in log order, so that every search below walks memory forwards.
+    window_order = np.lexsort((span_start, learner_start))
+    learner_start, learner_stop = learner_start[window_order], learner_stop[window_order]
+    span_start, span_end = span_start[window_order], span_end[window_order]
     first = _search_runs(time_ns, learner_start, learner_stop, span_start)
     stop = _search_runs(time_ns, first, learner_stop, span_end)
     return WindowEvents(
-        settings=settings, time_ns=time_ns, learner_codes=learner.codes, learner_start=learner_start,
-        first=first, stop=stop, span_start_ns=span_start, span_end_ns=span_end, **columns,
+        settings=settings, time_ns=time_ns, learner_codes=learner.codes, window_order=window_order,
+        learner_start=learner_start, first=first, stop=stop, span_start_ns=span_start, span_end_ns=span_end,
+        **columns,
     )
 
 
@@ -413,7 +438,7 @@ def _sort_order(learner_codes: np.ndarray, time_ns: np.ndarray) -> np.ndarray | 
 
 
 def compute_features(
-    events: pd.DataFrame,
+    events: pd.DataFrame | pa.Table,
     windows: pd.DataFrame,
     spans: SpanSettings = SpanSettings(),
     settings: FeatureSettings = FeatureSettings(),
@@ -424,4 +449,8 @@ def compute_features(
     columns: dict[str, np.ndarray] = {"span_start_ns": view.span_start_ns, "span_end_ns": view.span_end_ns}
     for function in features.values():
         columns.update(function(view))
-    return pd.DataFrame(columns, index=windows.index)
+    restored = {}
+    for name, values in columns.items():
+        restored[name] = np.empty_like(values)
+        restored[name][view.window_order] = values
+    return pd.DataFrame(restored, index=windows.index)
