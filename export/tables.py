@@ -67,7 +67,7 @@ EXPORTED WINDOWS -- one row per unit (or per observation when there is no unit):
     <dimension>      string   the resolved label, one column per scheme dimension (NA when
                               unresolved or could-not-observe)
     label_source_<dimension>  string  "adjudicated" | "agreed" | "single" | "first-coder" |
-                              "majority" | "unresolved"
+                              "majority" | "unresolved" | "could-not-observe" (export/labels.py)
     <feature columns>         as above
   Never exported: roster labels, notes, observation and session ids, device names, clip
   ids, raw learner ids (unless keep_ids).
@@ -88,7 +88,7 @@ LABEL_SOURCE_PREFIX = "label_source_"
 ROSTER_PRIVATE_COLUMNS: tuple[str, ...] = ("learner", "label", "log_id")
 
 LABEL_SOURCES: tuple[str, ...] = (
-    "adjudicated", "agreed", "single", "first-coder", "majority", "unresolved",
+    "adjudicated", "agreed", "single", "first-coder", "majority", "unresolved", "could-not-observe",
 )
 LABEL_POLICIES: tuple[str, ...] = ("first-coder", "agreed-only", "majority")
 ANCHORS: tuple[str, ...] = ("start", "coded")
