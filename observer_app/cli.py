@@ -20,6 +20,7 @@ COMMANDS: tuple[str, ...] = (
     "agree",
     "adjudicate",
     "plan",
+    "check",
 )
 
 
