@@ -48,6 +48,7 @@ from observer_app.schedule import RoundRobin, Turn
 from observer_app.session_clock import Clock
 from observer_app.store import Store, new_id
 from observer_app.study import Study
+from observer_app.study_overview import code_counts, window_counts
 
 CHANGED = "changed"  # anything a listener should redraw
 TICK = "tick"  # only the time moved
@@ -96,6 +97,7 @@ class SessionState:
     missing: tuple[str, ...]  # dimensions not coded yet in this window, scheme order
     saved_count: int  # code rows this session has made durable (corrections included)
     last_saved_at: datetime | None
+    last_code_id: str | None  # the newest code row made durable (its id in the store)
     absent: tuple[str, ...]  # learner ids currently marked absent
     message: str  # what the last action did, for the status line
     error: str | None  # a failed write: shown until the next successful one
@@ -194,6 +196,7 @@ class LiveSession:
         self._ended = False
         self._saved_count = 0
         self._last_saved_at: datetime | None = None
+        self._last_code_id: str | None = None
         self._message = ""
         self._error: str | None = None
 
@@ -223,7 +226,7 @@ class LiveSession:
         return session
 
     @classmethod
-    def resume(cls, study: Study, store: Store, clock: Clock, session_id: str) -> LiveSession:
+    def reopen(cls, study: Study, store: Store, clock: Clock, session_id: str) -> LiveSession:
         """Continue an interrupted session on its own grid (see the module docstring)."""
         sessions = store.sessions()
         row = sessions[sessions["session_id"] == session_id].iloc[0]
@@ -434,6 +437,7 @@ class LiveSession:
         self._error = None
         self._saved_count += 1
         self._last_saved_at = entered_at
+        self._last_code_id = code_id
         return code_id
 
     def undo(self) -> bool:
@@ -591,7 +595,7 @@ class LiveSession:
             window_seconds=self.schedule.window, time_left=time_left, waiting=waiting, paused=self._paused,
             ended=self._ended, paired=self.schedule.paired,
             coded={d: code for d, (code, _) in self._window.coded.items()}, missing=self.missing,
-            saved_count=self._saved_count, last_saved_at=self._last_saved_at,
+            saved_count=self._saved_count, last_saved_at=self._last_saved_at, last_code_id=self._last_code_id,
             absent=tuple(learner for learner in self.schedule.learners if learner not in self.schedule.present),
             message=self._message, error=self._error,
         )
@@ -605,16 +609,10 @@ def summarise_session(store: Store, session_id: str, dimensions: Iterable[str]) 
     dimensions = list(dimensions)
     frame = store.observations(dimensions)
     frame = frame[frame["session_id"] == session_id]
-    long = frame.melt(id_vars=["learner"], value_vars=dimensions, var_name="dimension", value_name="code").dropna()
-    counts = (long.groupby(["learner", "dimension", "code"], observed=True).size().rename("count").reset_index()
-              if len(long) else pd.DataFrame({"learner": [], "dimension": [], "code": [], "count": []}))
-    per_learner = frame.groupby("learner", observed=True).agg(
-        windows=("observation_id", "size"), missed_windows=("no_code", "sum")).reset_index()
-    per_learner["coded_windows"] = per_learner["windows"] - per_learner["missed_windows"]
     marks = store.sync_marks()
     missed = int(frame["no_code"].sum())
     return SessionSummary(
         session_id=session_id, windows=len(frame), coded_windows=len(frame) - missed, missed_windows=missed,
-        sync_marks=int((marks["session_id"] == session_id).sum()), counts=counts,
-        per_learner=per_learner[["learner", "windows", "coded_windows", "missed_windows"]],
+        sync_marks=int((marks["session_id"] == session_id).sum()), counts=code_counts(frame, dimensions),
+        per_learner=window_counts(frame),
     )
