@@ -17,6 +17,7 @@ from sync.errors import InputError
 COMMANDS: tuple[str, ...] = (
     "init",
     "import_observations",
+    "demo",
 )
 
 
