@@ -99,9 +99,14 @@ def _stable_id(*parts: object) -> str:
 
 def _turns(schedule: RoundRobin, duration: float, rng: np.random.Generator, window: float,
            early_finish: float) -> list[tuple[int, str, float, float, float]]:
-    """Walk a schedule for ``duration`` device seconds: (slot, learner, start, end, coded) per turn."""
+    """Walk a schedule for ``duration`` device seconds: (slot, learner, start, end, coded) per turn.
+
+    A paired run stops after a whole number of slots, the same on both laptops, however
+    their clocks drift; a solo run stops when the next full window would not fit.
+    """
     turns = []
-    while schedule.current.start + window <= duration:
+    slots = round(duration / window)
+    while (schedule.current.slot < slots) if schedule.paired else (schedule.current.start + window <= duration):
         turn = schedule.current
         if not schedule.paired and rng.random() < early_finish:
             coded = round(turn.start + rng.uniform(0.5 * window, window), 3)
