@@ -22,6 +22,7 @@ COMMANDS: tuple[str, ...] = (
     "adjudicate",
     "plan",
     "check",
+    "demo",
 )
 
 
