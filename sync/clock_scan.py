@@ -31,9 +31,12 @@ FINE_STEP_S = 0.1
 FINE_HALF_WIDTH_S = 30.0
 CHUNKS = 12
 MIN_CHUNK_OBSERVATIONS = 100
+SESSION_GAP_S = 3600.0
+ROUGH_DRIFT_CHUNKS = 4
 MIN_DRIFT_SPAN_S = 3600.0
 AMBIGUOUS_BELOW = 0.25
 CLEAR_PEAK_SPREADS = 20.0  # a peak this many noise spreads above the far level is clear
+INFORMATIVE_SHARE = 0.5  # dimensions at least half as prominent as the best one are used
 SEPARATION_WINDOWS = 3.0  # rivals are offsets more than 3 window lengths beyond the peak
 PAIRS_PER_BLOCK = 4_000_000
 PEAK_REGION = 0.3  # the peak region: scores within 30% of the peak's height above the median
@@ -157,8 +160,7 @@ def locate_peak(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) 
     rivals = (offsets_s < offsets_s[left] - separation_s) | (offsets_s > offsets_s[right] + separation_s)
     rival = float(scores[rivals].max()) if rivals.any() else base
     separation = float(np.clip(1.0 - (rival - base) / height, 0.0, 1.0))
-    noise = 1.4826 * float(np.median(np.abs(level - base)))
-    clearness = 1.0 if noise <= 0 else float(min(1.0, height / (CLEAR_PEAK_SPREADS * noise)))
+    clearness = float(min(1.0, peak_prominence(offsets_s, scores, separation_s) / CLEAR_PEAK_SPREADS))
     if clearness < 0.5:
         warnings.append("no clear best offset: the codes barely explain the log activity at any offset; "
                         "add sync marks or set the offset by hand")
@@ -169,6 +171,26 @@ def locate_peak(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) 
     if left == 0 or right == len(scores) - 1:
         warnings.append("the best offset is at the edge of the scanned range; widen the range")
     return estimate, separation * clearness, warnings
+
+
+def peak_prominence(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) -> float:
+    """How many noise spreads the peak stands above the far level (see ``locate_peak``)."""
+    best = int(np.argmax(scores))
+    far = np.abs(offsets_s - offsets_s[best]) > separation_s
+    level = scores[far] if far.sum() >= 10 else scores
+    base = float(np.median(level))
+    noise = 1.4826 * float(np.median(np.abs(level - base)))
+    height = float(scores[best]) - base
+    return float("inf") if noise <= 0 < height else (0.0 if noise <= 0 else height / noise)
+
+
+def _informative_dimensions(offsets_s: np.ndarray, per_dimension: list[np.ndarray], separation_s: float) -> list[int]:
+    """Dimensions whose own peak is at least half as prominent as the clearest one's, so a
+    dimension unrelated to log activity adds no noise; all of them when none stands out."""
+    prominence = [peak_prominence(offsets_s, scores, separation_s) for scores in per_dimension]
+    if not prominence or max(prominence) <= 0:
+        return list(range(len(per_dimension)))
+    return [column for column, value in enumerate(prominence) if value >= INFORMATIVE_SHARE * max(prominence)]
 
 
 def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: list[str],
@@ -197,17 +219,33 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
     blocks = learner_blocks(events)
     window_s = float(np.median(seconds)) if len(start) else 0.0
 
-    def curve(rows: np.ndarray, offsets_s: np.ndarray, shift_ns: np.ndarray | int = 0) -> np.ndarray:
-        """Score per offset for the observations ``rows``, windows moved by ``shift_ns``."""
+    def curves(rows: np.ndarray, offsets_s: np.ndarray, columns: list[int],
+               shift_ns: np.ndarray | int = 0) -> list[np.ndarray]:
+        """Score per offset and dimension (``columns``) for the observations ``rows``,
+        windows moved by ``shift_ns``."""
         offsets_ns = np.round(offsets_s * 1e9).astype(np.int64)
         shift = shift_ns if np.isscalar(shift_ns) else shift_ns[rows]
+        chosen = labels[np.ix_(rows, columns)]
+        chosen_sizes = [sizes[column] for column in columns]
         totals = code_event_totals(event_ns, blocks, learners[rows], start[rows] - shift, end[rows] - shift,
-                                   offsets_ns, labels[rows], sizes)
-        return likelihood_ratio_curve(totals, _seconds_per_code(labels[rows], seconds[rows], sizes))
+                                   offsets_ns, chosen, chosen_sizes)
+        exposures = _seconds_per_code(chosen, seconds[rows], chosen_sizes)
+        return [likelihood_ratio_curve([total], [exposure]) for total, exposure in zip(totals, exposures)]
 
     everyone = np.arange(len(start))
-    scores = curve(everyone, candidates)
-    estimate, confidence, warnings = locate_peak(candidates, scores, SEPARATION_WINDOWS * window_s)
+    separation_s = SEPARATION_WINDOWS * window_s
+    per_dimension = curves(everyone, candidates, list(range(len(dimensions))))
+    informative = _informative_dimensions(candidates, per_dimension, separation_s)
+
+    def curve(rows: np.ndarray, offsets_s: np.ndarray, shift_ns: np.ndarray | int = 0) -> np.ndarray:
+        """The summed score of the informative dimensions."""
+        return np.sum(curves(rows, offsets_s, informative, shift_ns), axis=0)
+
+    scores = np.sum([per_dimension[column] for column in informative], axis=0)
+    estimate, confidence, warnings = locate_peak(candidates, scores, separation_s)
+    left_out = [dimensions[column] for column in range(len(dimensions)) if column not in informative]
+    if left_out:
+        warnings.append(f"left out of the scan, their codes do not follow log activity: {', '.join(left_out)}")
     reference = int(np.median(start)) - int(round(estimate * 1e9)) if len(start) else 0
     offset, drift, residual, drift_warnings = _drift(curve, start, estimate, reference, window_s)
     if drift:
@@ -229,16 +267,14 @@ def _drift(curve, start: np.ndarray, estimate: float, reference: int,
            window_s: float) -> tuple[float, float, float, list[str]]:
     """(offset at reference, drift ppm, median abs chunk residual s, warnings) from chunk scans."""
     fine = _fine_grid(estimate)
-    order = np.argsort(start, kind="stable")
-    chunks = min(CHUNKS, len(start) // MIN_CHUNK_OBSERVATIONS)
+    chunks = _time_chunks(start)
     span_s = (start.max() - start.min()) / 1e9 if len(start) else 0.0
-    if chunks < 3 or span_s < MIN_DRIFT_SPAN_S:
-        rows = order
-        offset, _, _ = locate_peak(fine, curve(rows, fine), window_s) if len(rows) else (estimate, 0, [])
+    if len(chunks) < 2 or span_s < MIN_DRIFT_SPAN_S:
+        offset = locate_peak(fine, curve(np.arange(len(start)), fine), window_s)[0] if len(start) else estimate
         return offset, 0.0, float("nan"), [
             "drift not estimated (needs observations spread over at least an hour); assumed 0 ppm"]
     centres, offsets = [], []
-    for rows in np.array_split(order, chunks):
+    for rows in chunks:
         offset, _, _ = locate_peak(fine, curve(rows, fine), window_s)
         centres.append((np.median(start[rows]) - reference) / 1e9 - offset)
         offsets.append(offset)
@@ -246,7 +282,27 @@ def _drift(curve, start: np.ndarray, estimate: float, reference: int,
     slope = theilslopes(offsets, centres)[0]
     intercept = float(np.median(offsets - slope * centres))
     residual = float(np.median(np.abs(offsets - (intercept + slope * centres))))
-    return intercept, float(slope * 1e6), residual, []
+    warnings = []
+    if len(chunks) < ROUGH_DRIFT_CHUNKS:
+        warnings.append(f"drift rests on only {len(chunks)} groups of observations; treat it as rough "
+                        "(sync marks pin it down)")
+    return intercept, float(slope * 1e6), residual, warnings
+
+
+def _time_chunks(start: np.ndarray) -> list[np.ndarray]:
+    """Time-ordered groups of observations for the drift fit: first split where coding
+    paused for more than SESSION_GAP_S (separate sessions), then each session into parts
+    of at least MIN_CHUNK_OBSERVATIONS, about CHUNKS parts in all.  Sessions too small to
+    give an offset of their own are left out."""
+    order = np.argsort(start, kind="stable")
+    breaks = np.flatnonzero(np.diff(start[order]) > SESSION_GAP_S * 1e9) + 1
+    chunks = []
+    for session in np.split(order, breaks):
+        if len(session) < MIN_CHUNK_OBSERVATIONS:
+            continue
+        parts = max(1, min(len(session) // MIN_CHUNK_OBSERVATIONS, int(np.ceil(CHUNKS * len(session) / len(start)))))
+        chunks.extend(np.array_split(session, parts))
+    return chunks
 
 
 def _code_numbers(observations: pd.DataFrame, dimensions: list[str]) -> tuple[np.ndarray, list[int]]:
