@@ -14,7 +14,16 @@ from observer_app import __version__
 from sync.errors import InputError
 
 # Verb modules in the order --help lists them.  Only verbs that work are listed.
-COMMANDS: tuple[str, ...] = ("check",)
+COMMANDS: tuple[str, ...] = (
+    "init",
+    "app",
+    "import_observations",
+    "agree",
+    "adjudicate",
+    "plan",
+    "check",
+    "demo",
+)
 
 
 class _Parser(argparse.ArgumentParser):

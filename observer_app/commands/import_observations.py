@@ -1,0 +1,40 @@
+"""``fieldmark import STUDY FILE...``: observations from other devices (SQLite) or CSV."""
+from __future__ import annotations
+
+import argparse
+import json
+from pathlib import Path
+
+from observer_app.import_observations import import_file
+from observer_app.store import Store
+from observer_app.study import load_study
+
+
+def add_parser(subparsers: argparse._SubParsersAction) -> None:
+    parser = subparsers.add_parser(
+        "import", help="add observations from another device's store or a CSV",
+        description="Import observations. A CSV needs columns coder, learner, time (ISO 8601 with offset) and one "
+                    "column per dimension; optional device, note, end, clip. Importing the same rows twice adds nothing.")
+    parser.add_argument("study", type=Path, help="study folder")
+    parser.add_argument("files", type=Path, nargs="+", metavar="FILE", help="observations.sqlite or .csv")
+    parser.add_argument("--skip-bad", action="store_true", help="import the good rows of a CSV and report the bad ones")
+    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    parser.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    study = load_study(args.study)
+    report = []
+    with Store(study.store_path) as store:
+        for path in args.files:
+            result = import_file(study, store, path, skip_bad=args.skip_bad)
+            report.append({"file": str(path), "added": result.added, "skipped": result.skipped})
+    if args.json:
+        print(json.dumps({"imports": report}))
+        return 0
+    for entry in report:
+        added = ", ".join(f"{count} {table}" for table, count in entry["added"].items()) or "nothing new"
+        print(f"{entry['file']}: added {added}")
+        for line in entry["skipped"]:
+            print(f"  skipped {line}")
+    return 0

@@ -1,0 +1,192 @@
+"""Observations coded elsewhere: another device's store, or a CSV from any tool.
+
+CSV columns: coder, learner, time (ISO 8601 with offset: when the observed window
+began), optional device (defaults to the coder), optional note, optional end (ISO 8601,
+the window's end; default time + window_seconds), optional clip (replay coding), and
+one column per scheme dimension (empty = not coded).  Rows are identified by their
+content (coder, device, learner, time), so importing a file twice adds nothing.
+"""
+from __future__ import annotations
+
+import hashlib
+import sqlite3
+import uuid
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from observer_app.scheme import Scheme
+from observer_app.store import SCHEMA_VERSION, Store, now_utc
+from observer_app.study import Study
+from sync.errors import InputError
+
+NAMESPACE = uuid.UUID("6f1c2a3e-9a7b-4d1e-8c55-2b0d3f4e5a61")
+REQUIRED = ("coder", "learner", "time")
+OPTIONAL = ("device", "note", "end", "clip")
+_OFFSET = r"(?:Z|z|[+-]\d{2}(?::?\d{2})?)$"
+SHOWN_PROBLEMS = 3
+
+
+@dataclass
+class ImportResult:
+    source: Path
+    added: dict[str, int] = field(default_factory=dict)
+    skipped: list[str] = field(default_factory=list)
+    already_imported: bool = False
+
+
+def file_hash(path: Path) -> str:
+    digest = hashlib.sha256()
+    with path.open("rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def import_file(study: Study, store: Store, path: Path, *, skip_bad: bool = False) -> ImportResult:
+    """Import one file into the study's store; InputError for anything the user must fix."""
+    if not path.is_file():
+        raise InputError(path, None, "file not found")
+    with path.open("rb") as handle:
+        magic = handle.read(16)
+    if magic.startswith(b"SQLite format 3"):
+        return _import_store(study, store, path)
+    return _import_csv(study, store, path, skip_bad=skip_bad)
+
+
+# -- another device's store ---------------------------------------------------------
+def _import_store(study: Study, store: Store, path: Path) -> ImportResult:
+    try:
+        connection = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+        version = connection.execute("PRAGMA user_version").fetchone()[0]
+        if version == 0:
+            raise InputError(path, None, "not a fieldmark observation store")
+        if version > SCHEMA_VERSION:
+            raise InputError(path, None, f"written by a newer fieldmark (schema {version}); upgrade fieldmark first")
+        hashes = {row[0] for row in connection.execute("SELECT DISTINCT scheme_hash FROM sessions")}
+        learners = {row[0] for row in connection.execute("SELECT DISTINCT learner FROM observations")}
+        codes = connection.execute("SELECT DISTINCT dimension, code FROM codes WHERE code IS NOT NULL").fetchall()
+    except sqlite3.DatabaseError as error:
+        raise InputError(path, None, f"cannot read the store ({error}); copy the file again from the device") from None
+    finally:
+        connection.close()
+    foreign = sorted(hashes - {study.scheme.content_hash})
+    if foreign:
+        raise InputError(path, "sessions", f"coded with a different code scheme (hash {foreign[0]}, the study's is "
+                         f"{study.scheme.content_hash}); import it into a study with that scheme")
+    unknown = sorted(learners - set(study.roster["learner"].dropna()))
+    if unknown:
+        raise InputError(path, "observations", f"learner {unknown[0]!r} is not in roster.csv; add them to the roster first")
+    for dimension, code in codes:
+        problem = _code_problem(study.scheme, dimension, code)
+        if problem:
+            raise InputError(path, "codes", problem)
+    added = store.merge_from(path)
+    return ImportResult(source=path, added={k: v for k, v in added.items() if v})
+
+
+def _code_problem(scheme: Scheme, dimension: str, code: str) -> str | None:
+    if dimension not in scheme.dimension_names:
+        return f"dimension {dimension!r} is not in scheme.toml"
+    if code not in scheme.dimension(dimension).code_names:
+        return f"code {code!r} is not a code of dimension {dimension!r} in scheme.toml"
+    return None
+
+
+# -- CSV --------------------------------------------------------------------------
+def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> ImportResult:
+    content_hash = file_hash(path)
+    try:
+        frame = pd.read_csv(path, dtype="string", keep_default_na=False, skipinitialspace=True)
+    except pd.errors.EmptyDataError:
+        raise InputError(path, None, "empty file; expected a header line coder,learner,time,<dimensions>") from None
+    except (pd.errors.ParserError, UnicodeDecodeError) as error:
+        raise InputError(path, None, f"not a readable CSV ({str(error).splitlines()[0]}); save it as UTF-8 CSV") from None
+    frame.columns = [c.strip() for c in frame.columns]
+    dimensions = study.scheme.dimension_names
+    for column in REQUIRED:
+        if column not in frame.columns:
+            raise InputError(path, "line 1", f"missing column {column!r}; the header needs coder,learner,time and one column per dimension")
+    allowed = set(REQUIRED) | set(OPTIONAL) | set(dimensions)
+    unknown = [c for c in frame.columns if c not in allowed]
+    if unknown:
+        raise InputError(path, "line 1", f"unknown column {unknown[0]!r}; dimensions in scheme.toml are {', '.join(dimensions)}")
+    present_dimensions = [d for d in dimensions if d in frame.columns]
+    if not present_dimensions:
+        raise InputError(path, "line 1", f"no dimension column; add at least one of {', '.join(dimensions)}")
+    if frame.empty:
+        raise InputError(path, None, "no rows below the header; nothing to import")
+    frame = frame.apply(lambda column: column.str.strip())
+    for column in OPTIONAL:
+        if column not in frame.columns:
+            frame[column] = ""
+    problems = _row_problems(study, frame, present_dimensions)
+    lines = pd.Series(range(2, len(frame) + 2), index=frame.index)
+    bad = problems.ne("")
+    skipped = [f"line {lines[i]}: {problems[i]}" for i in frame.index[bad]]
+    if bad.any() and not skip_bad:
+        shown = "; ".join(skipped[:SHOWN_PROBLEMS])
+        more = f" (and {len(skipped) - SHOWN_PROBLEMS} more bad rows)" if len(skipped) > SHOWN_PROBLEMS else ""
+        raise InputError(path, None, f"{shown}{more}; fix these rows or rerun with --skip-bad to import the rest")
+    good = frame[~bad].copy()
+    result = ImportResult(source=path, skipped=skipped)
+    if good.empty:
+        return result
+    good["device"] = good["device"].mask(good["device"].eq(""), good["coder"])
+    start = pd.to_datetime(good["time"], format="ISO8601", utc=True)
+    end = pd.to_datetime(good["end"].mask(good["end"].eq("")), format="ISO8601", utc=True)
+    good["window_start"] = start
+    good["window_end"] = end.fillna(start + pd.Timedelta(seconds=study.window_seconds))
+    good["coded_at"] = good["window_end"]
+    good["mode"] = good["clip"].ne("").map({True: "replay", False: "live"})
+    good["session_id"] = [str(uuid.uuid5(NAMESPACE, f"csv-session|{c}|{d}|{m}|{content_hash}"))
+                          for c, d, m in zip(good["coder"], good["device"], good["mode"])]
+    good["observation_id"] = [str(uuid.uuid5(NAMESPACE, f"csv|{c}|{d}|{l}|{t.value}|{k}"))
+                              for c, d, l, t, k in zip(good["coder"], good["device"], good["learner"],
+                                                       good["window_start"], good["clip"])]
+    good["scheme_hash"] = study.scheme.content_hash
+    good["slot"] = pd.NA
+    for dimension in present_dimensions:
+        good[dimension] = good[dimension].mask(good[dimension].eq(""))
+    sessions = good.groupby("session_id", as_index=False).agg(
+        coder=("coder", "first"), device=("device", "first"), mode=("mode", "first"), started_at=("window_start", "min"))
+    sessions["paired_start"] = pd.NaT
+    sessions["monotonic_start"] = 0.0
+    sessions["window_seconds"] = study.window_seconds
+    sessions["order"] = "imported"
+    sessions["seed"] = pd.NA
+    sessions["scheme_hash"] = study.scheme.content_hash
+    added = store.record_observations(sessions, good, present_dimensions)
+    store.record_import(content_hash, str(path), now_utc())
+    result.added = {"observations": added} if added else {}
+    return result
+
+
+def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> pd.Series:
+    """One reason per row ("" when the row is fine), computed column by column."""
+    problems = pd.Series("", index=frame.index, dtype="object")
+
+    def flag(mask: pd.Series, reason: str) -> None:
+        nonlocal problems
+        problems = problems.mask(mask & problems.eq(""), reason)
+
+    flag(frame["coder"].eq(""), "empty coder")
+    flag(frame["learner"].eq(""), "empty learner")
+    flag(~frame["learner"].isin(study.roster["learner"].dropna()) & frame["learner"].ne(""),
+         "learner not in roster.csv")
+    for column in ("time", "end"):
+        text = frame[column]
+        given = text.ne("")
+        parsed = pd.to_datetime(text.mask(~given), format="ISO8601", utc=True, errors="coerce")
+        flag(given & parsed.isna(), f"{column} is not an ISO 8601 time")
+        flag(given & parsed.notna() & ~text.str.contains(_OFFSET, regex=True),
+             f"{column} has no UTC offset; write it like 2026-03-02T09:15:00+01:00")
+    flag(frame["time"].eq(""), "empty time")
+    for dimension in dimensions:
+        valid = set(study.scheme.dimension(dimension).code_names)
+        values = frame[dimension]
+        flag(values.ne("") & ~values.isin(valid), f"unknown {dimension} code (see scheme.toml)")
+    coded = pd.concat([frame[d].ne("") for d in dimensions], axis=1).any(axis=1)
+    flag(~coded, "no code in any dimension")
+    return problems

@@ -1,0 +1,473 @@
+"""The observation store: one SQLite file per study or device, append-only.
+
+Why SQLite in WAL mode with synchronous=FULL: a commit returns only after the
+write-ahead log is on disk, so a code is durable before the screen says "saved",
+and a second process (an import) can write beside the app without corrupting it.
+Rows are never updated or deleted (triggers refuse it): a correction is a new code
+row for the same observation and dimension, and the newest row wins.  Column
+contracts of what the read side returns: observer_app/tables.py.
+"""
+from __future__ import annotations
+
+import sqlite3
+import uuid
+from collections.abc import Iterable, Mapping
+from datetime import datetime, timezone
+from pathlib import Path
+
+import pandas as pd
+
+from observer_app.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
+
+SCHEMA_VERSION = 1
+
+# Forward migrations: MIGRATIONS[n] takes a store from version n to n + 1.
+MIGRATIONS: tuple[str, ...] = (
+    """
+    CREATE TABLE sessions (
+        session_id TEXT PRIMARY KEY, coder TEXT NOT NULL, device TEXT NOT NULL,
+        mode TEXT NOT NULL CHECK (mode IN ('live', 'replay')),
+        paired_start_ns INTEGER, started_ns INTEGER NOT NULL, monotonic_start REAL NOT NULL,
+        window_seconds REAL NOT NULL, schedule_order TEXT NOT NULL, seed INTEGER,
+        scheme_hash TEXT NOT NULL, present TEXT NOT NULL DEFAULT '');
+    CREATE TABLE session_ends (
+        session_id TEXT PRIMARY KEY REFERENCES sessions, ended_ns INTEGER NOT NULL);
+    CREATE TABLE observations (
+        observation_id TEXT PRIMARY KEY, session_id TEXT NOT NULL REFERENCES sessions,
+        learner TEXT NOT NULL, slot INTEGER, clip TEXT NOT NULL DEFAULT '',
+        window_start_ns INTEGER NOT NULL, window_end_ns INTEGER NOT NULL,
+        created_ns INTEGER NOT NULL, no_code INTEGER NOT NULL DEFAULT 0, scheme_hash TEXT NOT NULL);
+    CREATE TABLE codes (
+        code_id TEXT PRIMARY KEY, observation_id TEXT NOT NULL REFERENCES observations,
+        dimension TEXT NOT NULL, code TEXT, entered_ns INTEGER NOT NULL, supersedes TEXT);
+    CREATE INDEX codes_by_observation ON codes (observation_id, dimension);
+    CREATE TABLE notes (
+        note_id TEXT PRIMARY KEY, observation_id TEXT NOT NULL REFERENCES observations,
+        text TEXT NOT NULL, entered_ns INTEGER NOT NULL);
+    CREATE TABLE sync_marks (
+        mark_id TEXT PRIMARY KEY, session_id TEXT NOT NULL REFERENCES sessions,
+        learner TEXT NOT NULL DEFAULT '', marked_ns INTEGER NOT NULL, note TEXT NOT NULL DEFAULT '');
+    CREATE TABLE absences (
+        absence_id TEXT PRIMARY KEY, session_id TEXT NOT NULL REFERENCES sessions,
+        learner TEXT NOT NULL, state TEXT NOT NULL CHECK (state IN ('absent', 'returned')),
+        at_ns INTEGER NOT NULL);
+    CREATE TABLE adjudications (
+        adjudication_id TEXT PRIMARY KEY, unit TEXT NOT NULL, dimension TEXT NOT NULL,
+        code TEXT NOT NULL, adjudicator TEXT NOT NULL, at_ns INTEGER NOT NULL,
+        reason TEXT NOT NULL DEFAULT '');
+    CREATE TABLE clock_models (
+        model_id TEXT PRIMARY KEY, device TEXT NOT NULL, model_json TEXT NOT NULL, at_ns INTEGER NOT NULL);
+    CREATE TABLE imports (
+        content_hash TEXT PRIMARY KEY, source TEXT NOT NULL, at_ns INTEGER NOT NULL);
+    """
+    + "".join(
+        f"""
+    CREATE TRIGGER {table}_no_update BEFORE UPDATE ON {table}
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER {table}_no_delete BEFORE DELETE ON {table}
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;"""
+        for table in ("sessions", "session_ends", "observations", "codes", "notes", "sync_marks",
+                      "absences", "adjudications", "clock_models")
+    ),
+)
+assert len(MIGRATIONS) == SCHEMA_VERSION
+
+APPEND_ONLY_TABLES: tuple[str, ...] = (
+    "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
+    "adjudications", "clock_models", "imports",
+)
+
+
+def to_ns(moment: datetime | pd.Timestamp) -> int:
+    """A tz-aware moment -> UTC nanoseconds.  Naive datetimes are refused: we never guess a zone."""
+    stamp = pd.Timestamp(moment)
+    if stamp.tzinfo is None:
+        raise ValueError("naive datetime given to the store; attach a time zone")
+    return int(stamp.value)
+
+
+def _nullable_ns(values: pd.Series) -> list[int | None]:
+    """A datetime column -> UTC nanoseconds as Python ints (None for NaT), whole column at once."""
+    stamps = pd.to_datetime(values, utc=True).dt.as_unit("ns")
+    numbers = stamps.to_numpy(dtype="datetime64[ns]").view("int64").tolist()
+    if stamps.isna().any():
+        numbers = [None if missing else n for n, missing in zip(numbers, stamps.isna())]
+    return numbers
+
+
+def _times(values: pd.Series) -> pd.Series:
+    return pd.to_datetime(values.astype("Int64"), unit="ns", utc=True)
+
+
+def new_id() -> str:
+    return str(uuid.uuid4())
+
+
+class Store:
+    """An open observation store.  Every ``record_*`` call is one durable transaction."""
+
+    def __init__(self, path: str | Path) -> None:
+        self.path = Path(path)
+        self._connection = sqlite3.connect(self.path, timeout=30.0, isolation_level=None)
+        self._connection.execute("PRAGMA busy_timeout = 30000")
+        self._connection.execute("PRAGMA journal_mode = WAL")
+        self._connection.execute("PRAGMA synchronous = FULL")
+        self._connection.execute("PRAGMA foreign_keys = ON")
+        self._migrate()
+
+    # -- lifecycle --------------------------------------------------------------
+    def close(self) -> None:
+        self._connection.close()
+
+    def __enter__(self) -> Store:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    @property
+    def schema_version(self) -> int:
+        return int(self._connection.execute("PRAGMA user_version").fetchone()[0])
+
+    def _migrate(self) -> None:
+        with self._transaction() as cursor:
+            version = int(cursor.execute("PRAGMA user_version").fetchone()[0])
+            if version > SCHEMA_VERSION:
+                raise RuntimeError(
+                    f"{self.path} was written by a newer fieldmark (schema {version}); upgrade fieldmark")
+            for step in range(version, SCHEMA_VERSION):
+                for statement in _statements(MIGRATIONS[step]):
+                    cursor.execute(statement)
+                cursor.execute(f"PRAGMA user_version = {step + 1}")
+
+    def _transaction(self):
+        return _Transaction(self._connection)
+
+    def integrity_check(self) -> str:
+        return str(self._connection.execute("PRAGMA integrity_check").fetchone()[0])
+
+    # -- write side -------------------------------------------------------------
+    def start_session(
+        self, *, coder: str, device: str, mode: str, started_at: datetime, monotonic_start: float,
+        window_seconds: float, order: str, seed: int | None, scheme_hash: str,
+        paired_start: datetime | None = None, present: Iterable[str] = (), session_id: str | None = None,
+    ) -> str:
+        session_id = session_id or new_id()
+        with self._transaction() as cursor:
+            cursor.execute(
+                "INSERT INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
+                (session_id, coder, device, mode, None if paired_start is None else to_ns(paired_start),
+                 to_ns(started_at), float(monotonic_start), float(window_seconds), order, seed,
+                 scheme_hash, "\n".join(present)),
+            )
+        return session_id
+
+    def end_session(self, session_id: str, ended_at: datetime) -> None:
+        with self._transaction() as cursor:
+            cursor.execute("INSERT OR IGNORE INTO session_ends VALUES (?,?)", (session_id, to_ns(ended_at)))
+
+    def record_code(
+        self, *, observation_id: str, session_id: str, learner: str, window_start: datetime,
+        window_end: datetime, dimension: str, code: str | None, entered_at: datetime, scheme_hash: str,
+        slot: int | None = None, clip: str = "", supersedes: str | None = None, code_id: str | None = None,
+    ) -> str:
+        """Store one code (``None`` retracts the dimension's current code); durable on return.
+
+        The observation row is created with the first code of its window.
+        """
+        code_id = code_id or new_id()
+        with self._transaction() as cursor:
+            cursor.execute(
+                "INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,0,?)",
+                (observation_id, session_id, learner, slot, clip, to_ns(window_start), to_ns(window_end),
+                 to_ns(entered_at), scheme_hash),
+            )
+            cursor.execute("INSERT INTO codes VALUES (?,?,?,?,?,?)",
+                           (code_id, observation_id, dimension, code, to_ns(entered_at), supersedes))
+        return code_id
+
+    def record_no_code(
+        self, *, session_id: str, learner: str, window_start: datetime, window_end: datetime,
+        scheme_hash: str, slot: int | None = None, clip: str = "", observation_id: str | None = None,
+    ) -> str:
+        """A window that ended with nothing coded: an explicit row, so gaps stay visible."""
+        observation_id = observation_id or new_id()
+        with self._transaction() as cursor:
+            cursor.execute(
+                "INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,1,?)",
+                (observation_id, session_id, learner, slot, clip, to_ns(window_start), to_ns(window_end),
+                 to_ns(window_end), scheme_hash),
+            )
+        return observation_id
+
+    def record_observation(
+        self, *, session_id: str, learner: str, window_start: datetime, window_end: datetime,
+        coded_at: datetime, codes: Mapping[str, str | None], scheme_hash: str, slot: int | None = None,
+        clip: str = "", note: str = "", observation_id: str | None = None,
+    ) -> str:
+        """A whole coded window in one transaction (imports, generated demo data)."""
+        observation_id = observation_id or new_id()
+        with self._transaction() as cursor:
+            self._insert_observation(cursor, observation_id, session_id, learner, window_start, window_end,
+                                     coded_at, codes, scheme_hash, slot, clip, note)
+        return observation_id
+
+    def _insert_observation(self, cursor, observation_id, session_id, learner, window_start, window_end,
+                            coded_at, codes, scheme_hash, slot, clip, note) -> None:
+        coded_ns = to_ns(coded_at)
+        given = {d: c for d, c in codes.items() if c is not None and c == c and c != ""}
+        cursor.execute(
+            "INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)",
+            (observation_id, session_id, learner, slot, clip, to_ns(window_start), to_ns(window_end),
+             coded_ns, 0 if given else 1, scheme_hash),
+        )
+        if cursor.rowcount == 0:
+            return
+        for dimension, code in given.items():
+            cursor.execute("INSERT INTO codes VALUES (?,?,?,?,?,NULL)",
+                           (f"{observation_id}:{dimension}", observation_id, dimension, code, coded_ns))
+        if note:
+            cursor.execute("INSERT INTO notes VALUES (?,?,?,?)", (f"{observation_id}:note", observation_id, note, coded_ns))
+
+    def record_observations(self, sessions: pd.DataFrame, observations: pd.DataFrame, dimensions: Iterable[str]) -> int:
+        """Many observations in one transaction; returns how many were new.
+
+        ``sessions`` has the SESSIONS columns, ``observations`` the OBSERVATIONS columns
+        (observer_app/tables.py).  Rows whose ids exist already are left alone, so a
+        repeated import adds nothing.  Columns are converted whole, not row by row.
+        """
+        dimensions = list(dimensions)
+        session_rows = zip(
+            sessions["session_id"], sessions["coder"], sessions["device"], sessions["mode"],
+            _nullable_ns(sessions["paired_start"]), _nullable_ns(sessions["started_at"]),
+            sessions["monotonic_start"].astype(float), sessions["window_seconds"].astype(float), sessions["order"],
+            [None if pd.isna(seed) else int(seed) for seed in sessions["seed"]], sessions["scheme_hash"],
+            [""] * len(sessions),
+        )
+        given = observations[dimensions].notna() & observations[dimensions].ne("") if dimensions else None
+        coded_ns = _nullable_ns(observations["coded_at"])
+        slots = [None if pd.isna(slot) else int(slot) for slot in observations.get("slot", pd.Series(pd.NA, index=observations.index))]
+        clips = observations["clip"].fillna("") if "clip" in observations else [""] * len(observations)
+        no_code = (~given.any(axis=1)).astype(int) if given is not None else [1] * len(observations)
+        observation_rows = zip(
+            observations["observation_id"], observations["session_id"], observations["learner"], slots, clips,
+            _nullable_ns(observations["window_start"]), _nullable_ns(observations["window_end"]), coded_ns,
+            no_code, observations["scheme_hash"],
+        )
+        code_rows = [
+            (f"{observation_id}:{dimension}", observation_id, dimension, code, entered)
+            for dimension in dimensions
+            for observation_id, code, entered, ok in zip(observations["observation_id"], observations[dimension],
+                                                         coded_ns, given[dimension])
+            if ok
+        ]
+        notes = observations["note"].fillna("") if "note" in observations else pd.Series("", index=observations.index)
+        note_rows = [(f"{o}:note", o, text, entered)
+                     for o, text, entered in zip(observations["observation_id"], notes, coded_ns) if text]
+        with self._transaction() as cursor:
+            cursor.executemany("INSERT OR IGNORE INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)", session_rows)
+            before = cursor.connection.total_changes
+            cursor.executemany("INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)", observation_rows)
+            added = cursor.connection.total_changes - before
+            cursor.executemany("INSERT OR IGNORE INTO codes VALUES (?,?,?,?,?,NULL)", code_rows)
+            cursor.executemany("INSERT OR IGNORE INTO notes VALUES (?,?,?,?)", note_rows)
+        return added
+
+    def record_note(self, observation_id: str, text: str, entered_at: datetime) -> str:
+        note_id = new_id()
+        with self._transaction() as cursor:
+            cursor.execute("INSERT INTO notes VALUES (?,?,?,?)", (note_id, observation_id, text, to_ns(entered_at)))
+        return note_id
+
+    def record_sync_mark(self, *, session_id: str, marked_at: datetime, learner: str = "", note: str = "",
+                         mark_id: str | None = None) -> str:
+        mark_id = mark_id or new_id()
+        with self._transaction() as cursor:
+            cursor.execute("INSERT OR IGNORE INTO sync_marks VALUES (?,?,?,?,?)",
+                           (mark_id, session_id, learner, to_ns(marked_at), note))
+        return mark_id
+
+    def record_absence(self, *, session_id: str, learner: str, state: str, at: datetime) -> str:
+        absence_id = new_id()
+        with self._transaction() as cursor:
+            cursor.execute("INSERT INTO absences VALUES (?,?,?,?,?)", (absence_id, session_id, learner, state, to_ns(at)))
+        return absence_id
+
+    def record_adjudication(self, *, unit: str, dimension: str, code: str, adjudicator: str, at: datetime,
+                            reason: str = "") -> str:
+        adjudication_id = new_id()
+        with self._transaction() as cursor:
+            cursor.execute("INSERT INTO adjudications VALUES (?,?,?,?,?,?,?)",
+                           (adjudication_id, unit, dimension, code, adjudicator, to_ns(at), reason))
+        return adjudication_id
+
+    def record_clock_model(self, device: str, model_json: str, at: datetime) -> str:
+        model_id = new_id()
+        with self._transaction() as cursor:
+            cursor.execute("INSERT INTO clock_models VALUES (?,?,?,?)", (model_id, device, model_json, to_ns(at)))
+        return model_id
+
+    def has_import(self, content_hash: str) -> bool:
+        row = self._connection.execute("SELECT 1 FROM imports WHERE content_hash = ?", (content_hash,)).fetchone()
+        return row is not None
+
+    def record_import(self, content_hash: str, source: str, at: datetime) -> None:
+        with self._transaction() as cursor:
+            cursor.execute("INSERT OR IGNORE INTO imports VALUES (?,?,?)", (content_hash, source, to_ns(at)))
+
+    def merge_from(self, other: Path) -> dict[str, int]:
+        """Copy every row of another store that this one lacks (idempotent: ids are keys).
+
+        Codes keep their relative order, so the other device's corrections still win
+        over the codes they corrected.
+        """
+        counts: dict[str, int] = {}
+        self._connection.execute("ATTACH DATABASE ? AS other", (str(other),))
+        try:
+            with self._transaction() as cursor:
+                for table in APPEND_ONLY_TABLES:
+                    if table == "imports":
+                        continue
+                    before = cursor.connection.total_changes
+                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} SELECT * FROM other.{table} ORDER BY rowid")
+                    counts[table] = cursor.connection.total_changes - before
+        finally:
+            self._connection.execute("DETACH DATABASE other")
+        return counts
+
+    # -- read side --------------------------------------------------------------
+    def _frame(self, query: str, params: tuple = ()) -> pd.DataFrame:
+        cursor = self._connection.execute(query, params)
+        columns = [c[0] for c in cursor.description]
+        return pd.DataFrame.from_records(cursor.fetchall(), columns=columns)
+
+    def sessions(self) -> pd.DataFrame:
+        frame = self._frame(
+            "SELECT s.session_id, s.coder, s.device, s.mode, s.paired_start_ns, s.started_ns, s.monotonic_start, "
+            "s.window_seconds, s.schedule_order AS \"order\", s.seed, s.scheme_hash, s.present, e.ended_ns "
+            "FROM sessions s LEFT JOIN session_ends e USING (session_id) ORDER BY s.started_ns, s.rowid")
+        frame["paired_start"] = _times(frame.pop("paired_start_ns"))
+        frame["started_at"] = _times(frame.pop("started_ns"))
+        frame["ended_at"] = _times(frame.pop("ended_ns"))
+        frame["seed"] = frame["seed"].astype("Int64")
+        frame["monotonic_start"] = frame["monotonic_start"].astype("float64")
+        frame["window_seconds"] = frame["window_seconds"].astype("float64")
+        for column in ("session_id", "coder", "device", "mode", "order", "scheme_hash", "present"):
+            frame[column] = frame[column].astype("string")
+        return frame[["session_id", "coder", "device", "mode", "paired_start", "started_at", "monotonic_start",
+                      "window_seconds", "order", "seed", "scheme_hash", "present", "ended_at"]]
+
+    def observations(self, dimensions: Iterable[str] | None = None) -> pd.DataFrame:
+        """The current view: newest code per (observation, dimension), retractions applied.
+
+        ``dimensions`` fixes which dimension columns appear (and their order); by default
+        every dimension that has ever been coded, sorted.
+        """
+        base = self._frame(
+            "SELECT o.observation_id, o.session_id, s.coder, s.device, s.mode, s.paired_start_ns, o.learner, "
+            "o.slot, o.clip, o.window_start_ns, o.window_end_ns, o.created_ns, o.no_code, o.scheme_hash "
+            "FROM observations o JOIN sessions s USING (session_id) ORDER BY o.window_start_ns, o.rowid")
+        codes = self._frame(
+            "SELECT c.observation_id, c.dimension, c.code, c.entered_ns, "
+            "(SELECT count(*) FROM codes d WHERE d.observation_id = c.observation_id AND d.dimension = c.dimension) AS versions "
+            "FROM codes c WHERE c.rowid IN (SELECT max(rowid) FROM codes GROUP BY observation_id, dimension)")
+        notes = self._frame(
+            "SELECT observation_id, text AS note FROM notes WHERE rowid IN (SELECT max(rowid) FROM notes GROUP BY observation_id)")
+        if dimensions is None:
+            dimensions = sorted(codes["dimension"].unique()) if len(codes) else []
+        dimensions = list(dimensions)
+        wide = codes.pivot(index="observation_id", columns="dimension", values="code") if len(codes) else pd.DataFrame()
+        frame = base.set_index("observation_id")
+        for dimension in dimensions:
+            frame[dimension] = wide[dimension].reindex(frame.index) if dimension in wide else None
+            frame[dimension] = frame[dimension].astype("string")
+        last_code = codes.groupby("observation_id")["entered_ns"].max() if len(codes) else pd.Series(dtype="int64")
+        corrected = codes.groupby("observation_id")["versions"].max().gt(1) if len(codes) else pd.Series(dtype=bool)
+        frame["coded_at"] = _times(last_code.reindex(frame.index).fillna(frame["created_ns"]))
+        frame["corrected"] = corrected.reindex(frame.index, fill_value=False).astype(bool)
+        frame["note"] = notes.set_index("observation_id")["note"].reindex(frame.index).fillna("").astype("string") \
+            if len(notes) else pd.Series("", index=frame.index, dtype="string")
+        frame = frame.reset_index()
+        frame["paired_start"] = _times(frame.pop("paired_start_ns"))
+        frame["window_start"] = _times(frame.pop("window_start_ns"))
+        frame["window_end"] = _times(frame.pop("window_end_ns"))
+        frame["slot"] = frame["slot"].astype("Int64")
+        for column in ("observation_id", "session_id", "coder", "device", "mode", "learner", "clip", "scheme_hash"):
+            frame[column] = frame[column].astype("string")
+        coded_any = frame[dimensions].notna().any(axis=1) if dimensions else pd.Series(False, index=frame.index)
+        frame["no_code"] = ~coded_any.to_numpy(dtype=bool)
+        return frame[list(OBSERVATION_COLUMNS) + dimensions + list(OBSERVATION_TAIL_COLUMNS)].reset_index(drop=True)
+
+    def sync_marks(self) -> pd.DataFrame:
+        frame = self._frame(
+            "SELECT m.mark_id, m.session_id, s.device, s.coder, m.learner, m.marked_ns, m.note "
+            "FROM sync_marks m JOIN sessions s USING (session_id) ORDER BY m.marked_ns, m.rowid")
+        frame["marked_at"] = _times(frame.pop("marked_ns"))
+        for column in ("mark_id", "session_id", "device", "coder", "learner", "note"):
+            frame[column] = frame[column].astype("string")
+        return frame[["mark_id", "session_id", "device", "coder", "learner", "marked_at", "note"]]
+
+    def absences(self) -> pd.DataFrame:
+        frame = self._frame("SELECT session_id, learner, state, at_ns FROM absences ORDER BY at_ns, rowid")
+        frame["at"] = _times(frame.pop("at_ns"))
+        for column in ("session_id", "learner", "state"):
+            frame[column] = frame[column].astype("string")
+        return frame
+
+    def adjudications(self) -> pd.DataFrame:
+        frame = self._frame(
+            "SELECT adjudication_id, unit, dimension, code, adjudicator, at_ns, reason FROM adjudications ORDER BY at_ns, rowid")
+        frame["at"] = _times(frame.pop("at_ns"))
+        for column in ("adjudication_id", "unit", "dimension", "code", "adjudicator", "reason"):
+            frame[column] = frame[column].astype("string")
+        return frame[["adjudication_id", "unit", "dimension", "code", "adjudicator", "at", "reason"]]
+
+    def clock_models(self) -> pd.DataFrame:
+        """The newest clock model per device: device, model_json, at."""
+        frame = self._frame(
+            "SELECT device, model_json, at_ns FROM clock_models WHERE rowid IN "
+            "(SELECT max(rowid) FROM clock_models GROUP BY device) ORDER BY device")
+        frame["at"] = _times(frame.pop("at_ns"))
+        frame["device"] = frame["device"].astype("string")
+        return frame
+
+    def codes_log(self) -> pd.DataFrame:
+        """Every code row ever written, oldest first (the audit trail)."""
+        frame = self._frame("SELECT code_id, observation_id, dimension, code, entered_ns, supersedes FROM codes ORDER BY rowid")
+        frame["entered_at"] = _times(frame.pop("entered_ns"))
+        return frame
+
+
+def _statements(script: str) -> list[str]:
+    """Split a migration script into statements, keeping trigger bodies whole."""
+    statements, buffer = [], []
+    for line in script.splitlines():
+        buffer.append(line)
+        joined = "\n".join(buffer)
+        if sqlite3.complete_statement(joined):
+            if joined.strip():
+                statements.append(joined)
+            buffer = []
+    return statements
+
+
+class _Transaction:
+    """BEGIN IMMEDIATE ... COMMIT: one writer at a time across processes, all or nothing."""
+
+    def __init__(self, connection: sqlite3.Connection) -> None:
+        self._connection = connection
+
+    def __enter__(self) -> sqlite3.Cursor:
+        self._cursor = self._connection.cursor()
+        self._cursor.execute("BEGIN IMMEDIATE")
+        return self._cursor
+
+    def __exit__(self, kind, value, traceback) -> None:
+        if kind is None:
+            self._cursor.execute("COMMIT")
+        else:
+            self._cursor.execute("ROLLBACK")
+
+
+def now_utc() -> datetime:
+    return datetime.now(timezone.utc)

@@ -1,0 +1,98 @@
+"""The study folder: study.toml, scheme.toml, roster.csv, observations.sqlite, logs/, secret.key.
+
+``load_study`` validates everything at the boundary so the rest of fieldmark can trust it.
+"""
+from __future__ import annotations
+
+import zoneinfo
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from observer_app.roster import load_roster
+from observer_app.scheme import Scheme, load_scheme, read_toml
+from sync.errors import InputError
+
+STUDY_FILE = "study.toml"
+SCHEME_FILE = "scheme.toml"
+ROSTER_FILE = "roster.csv"
+STORE_FILE = "observations.sqlite"
+KEY_FILE = "secret.key"
+ORDERS = ("fixed", "shuffled")
+_SECTIONS = {"study", "schedule", "logs"}
+_STUDY_KEYS = {"name", "timezone", "description"}
+_SCHEDULE_KEYS = {"window_seconds", "order", "seed"}
+
+
+@dataclass(frozen=True)
+class Study:
+    dir: Path
+    name: str
+    timezone: str
+    window_seconds: float
+    order: str
+    seed: int
+    scheme: Scheme
+    roster: pd.DataFrame
+    log_entries: tuple[dict, ...]
+    warnings: tuple[str, ...] = field(default=())
+
+    @property
+    def store_path(self) -> Path:
+        return self.dir / STORE_FILE
+
+    @property
+    def key_path(self) -> Path:
+        return self.dir / KEY_FILE
+
+
+def check_timezone(name: object, path: Path, where: str) -> str:
+    """An IANA zone name that zoneinfo knows, or InputError."""
+    if not isinstance(name, str) or not name:
+        raise InputError(path, where, "missing; give an IANA time zone such as \"Europe/Berlin\"")
+    try:
+        zoneinfo.ZoneInfo(name)
+    except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+        raise InputError(path, where, f"unknown IANA time zone {name!r}; use a name such as \"Europe/Berlin\"") from None
+    return name
+
+
+def load_study(directory: str | Path) -> Study:
+    """Validate and load a study folder; raise InputError on the first problem."""
+    directory = Path(directory)
+    if not directory.is_dir():
+        raise InputError(directory, None, "not a study folder; run `fieldmark init DIR` to create one")
+    path = directory / STUDY_FILE
+    raw = read_toml(path)
+    unknown = sorted(set(raw) - _SECTIONS)
+    if unknown:
+        raise InputError(path, unknown[0], f"unknown section; allowed are {', '.join(sorted(_SECTIONS))}")
+    header = raw.get("study", {})
+    unknown = sorted(set(header) - _STUDY_KEYS)
+    if unknown:
+        raise InputError(path, f"study.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_STUDY_KEYS))}")
+    name = header.get("name", directory.name)
+    timezone = check_timezone(header.get("timezone"), path, "study.timezone")
+    schedule = raw.get("schedule", {})
+    unknown = sorted(set(schedule) - _SCHEDULE_KEYS)
+    if unknown:
+        raise InputError(path, f"schedule.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_SCHEDULE_KEYS))}")
+    window = schedule.get("window_seconds", 20)
+    if isinstance(window, bool) or not isinstance(window, (int, float)) or not 1 <= window <= 3600:
+        raise InputError(path, "schedule.window_seconds", "must be a number of seconds between 1 and 3600")
+    order = schedule.get("order", "fixed")
+    if order not in ORDERS:
+        raise InputError(path, "schedule.order", f"invalid order {order!r}; use \"fixed\" or \"shuffled\"")
+    seed = schedule.get("seed", 0)
+    if isinstance(seed, bool) or not isinstance(seed, int):
+        raise InputError(path, "schedule.seed", "must be a whole number")
+    logs = raw.get("logs", [])
+    if not isinstance(logs, list) or not all(isinstance(entry, dict) for entry in logs):
+        raise InputError(path, "logs", "each log must be a [[logs]] table")
+    scheme = load_scheme(directory / SCHEME_FILE)
+    roster, warnings = load_roster(directory / ROSTER_FILE)
+    return Study(
+        dir=directory, name=str(name), timezone=timezone, window_seconds=float(window), order=order,
+        seed=seed, scheme=scheme, roster=roster, log_entries=tuple(logs), warnings=tuple(warnings),
+    )
