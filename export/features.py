@@ -45,10 +45,24 @@ class FeatureSettings:
 
 @dataclass(frozen=True)
 class CodedColumn:
-    """A string column as integer codes (-1 = empty or missing) and the code names."""
+    """A string column as integer codes and the code names.
+
+    Code -1 is a missing value; a code whose name is "" is blank (no item, no skill ...).
+    Blank codes are kept as codes rather than rewritten row by row: one pass less over
+    the log per column.
+    """
 
     codes: np.ndarray
     names: np.ndarray
+
+    def present(self, codes: np.ndarray) -> np.ndarray:
+        """Boolean per code value: neither missing nor blank."""
+        table = np.append(self.names != "", False)  # code -1 reads the trailing False
+        return table[codes]
+
+    def counts(self, rows: np.ndarray) -> np.ndarray:
+        """How many of ``rows`` have each code (missing and blank left out)."""
+        return np.bincount(self.codes[rows] + 1, minlength=len(self.names) + 1)[1:] * (self.names != "")
 
     def mask(self, wanted: tuple[str, ...], rows: np.ndarray | None = None) -> np.ndarray:
         """Boolean per row (all rows, or just ``rows``): the value is one of ``wanted``."""
@@ -81,12 +95,6 @@ def code_column(values: pd.Series | pa.ChunkedArray) -> CodedColumn:
         factorized, uniques = pd.factorize(values)
         codes = factorized.astype(np.int32, copy=False)
         names = np.asarray(uniques, dtype=object)
-    empty = np.flatnonzero(names == "")
-    if len(empty):
-        remap = np.arange(len(names) + 1, dtype=np.int32)
-        remap[empty] = -1
-        remap[-1] = -1
-        codes = remap[codes]
     return CodedColumn(codes, names)
 
 
@@ -158,6 +166,17 @@ class WindowEvents:
     def attempt_outcomes(self) -> tuple[str, ...]:
         return self.settings.error_outcomes + self.settings.success_outcomes
 
+    @cached_property
+    def attempt_rows(self) -> np.ndarray:
+        """Log rows that are attempts (error or success outcome), in log order."""
+        return np.flatnonzero(self.outcome.mask(self.attempt_outcomes))
+
+    @cached_property
+    def error_rows(self) -> np.ndarray:
+        """Log rows with an error outcome, in log order."""
+        attempts = self.attempt_rows
+        return attempts[self.outcome.mask(self.settings.error_outcomes, attempts)]
+
     def reduce_members(self, ufunc: np.ufunc, values: np.ndarray, empty: float) -> np.ndarray:
         """``ufunc`` over each window's member values; ``empty`` for windows without rows."""
         out = np.full(len(self.counts), empty, dtype=np.float64)
@@ -178,13 +197,12 @@ class WindowEvents:
         """How many rows of each span have one of the ``wanted`` values in ``column``."""
         return self.count_members(column.mask(wanted, self.member))
 
-    def count_before_span_end(self, column: CodedColumn, wanted: tuple[str, ...]) -> np.ndarray:
-        """The learner's rows before span end with one of the ``wanted`` values.
+    def count_before_span_end(self, rows: np.ndarray) -> np.ndarray:
+        """How many of ``rows`` (log rows in log order) lie between the learner's first row and span end.
 
-        A prefix count: the rows that qualify, in log order, searched at the learner's
-        first row and at span end (cheaper than a cumulative sum over the whole log).
+        A prefix count: searching the qualifying rows at both ends is the difference of
+        a cumulative sum, without building one over the whole log.
         """
-        rows = np.flatnonzero(column.mask(wanted))
         return (np.searchsorted(rows, self.stop) - np.searchsorted(rows, self.learner_start)).astype(np.float64)
 
 
@@ -230,9 +248,9 @@ def activity(view: WindowEvents) -> dict[str, np.ndarray]:
 
 @feature
 def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
-    """action_<name>: events of each of the top-K actions of the whole log in the span."""
+    """action_<name>: events of each of the top-K actions (by events in all spans) in the span."""
     action = view.action
-    totals = np.bincount(action.codes[action.codes >= 0], minlength=len(action.names))
+    totals = action.counts(view.member)  # only span events choose the columns: nothing else shapes the table
     ranked = sorted(range(len(action.names)), key=lambda code: (-totals[code], str(action.names[code])))
     top = np.asarray([code for code in ranked if totals[code] > 0][: view.settings.top_actions], dtype=np.int64)
     table = _counts_by_code(view, action, top)
@@ -241,9 +259,9 @@ def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
 
 @feature
 def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
-    """outcome_<name>: events with each (non-empty) outcome in the span."""
+    """outcome_<name>: events with each (non-empty) outcome seen in any span, in the span."""
     outcome = view.outcome
-    present = np.flatnonzero(np.bincount(outcome.codes + 1, minlength=len(outcome.names) + 1)[1:])
+    present = np.flatnonzero(outcome.counts(view.member))
     present = present[np.argsort(outcome.names[present].astype(str), kind="stable")]
     table = _counts_by_code(view, outcome, present)
     return {f"outcome_{outcome.names[code]}": table[:, column] for column, code in enumerate(present)}
@@ -308,9 +326,10 @@ def _segment_median(values: np.ndarray, segment: np.ndarray, offsets: np.ndarray
 def distinct_items(view: WindowEvents) -> dict[str, np.ndarray]:
     """distinct_items: distinct non-empty items touched in the span."""
     codes = view.item.codes[view.member].astype(np.int64)
-    keep = codes >= 0
-    pairs = np.unique(view.member_window[keep] * (len(view.item.names) + 1) + codes[keep])
-    per_window = np.bincount(pairs // (len(view.item.names) + 1), minlength=len(view.counts))
+    keep = view.item.present(codes)
+    pairs = np.sort(view.member_window[keep] * (len(view.item.names) + 1) + codes[keep])
+    distinct = pairs[np.append(True, pairs[1:] != pairs[:-1])] if len(pairs) else pairs  # np.unique hashes: slower here
+    per_window = np.bincount(distinct // (len(view.item.names) + 1), minlength=len(view.counts))
     return {"distinct_items": per_window.astype(np.float64)}
 
 
@@ -318,12 +337,14 @@ def distinct_items(view: WindowEvents) -> dict[str, np.ndarray]:
 def persistence(view: WindowEvents) -> dict[str, np.ndarray]:
     """attempts_without_success on the current skill at span end, and the wheel_spinning flag."""
     counter = np.zeros(len(view.counts))
-    attempts = np.flatnonzero(view.outcome.mask(view.attempt_outcomes) & (view.skill.codes >= 0))
+    skill = view.skill.codes[view.attempt_rows]
+    with_skill = view.skill.present(skill)
+    attempts, skill = view.attempt_rows[with_skill], skill[with_skill]
     latest = np.searchsorted(attempts, view.stop) - 1  # the learner's latest attempt before span end
     learner_first = np.searchsorted(attempts, view.learner_start)
     valid = latest >= learner_first
     if valid.any():
-        counter[valid] = _attempts_since_success(view, attempts, latest[valid], learner_first[valid])
+        counter[valid] = _attempts_since_success(view, attempts, skill, latest[valid], learner_first[valid])
     return {
         "attempts_without_success": counter,
         "wheel_spinning": (counter >= view.settings.wheel_spinning_attempts).astype(np.float64),
@@ -331,18 +352,20 @@ def persistence(view: WindowEvents) -> dict[str, np.ndarray]:
 
 
 def _attempts_since_success(
-    view: WindowEvents, attempts: np.ndarray, latest: np.ndarray, learner_first: np.ndarray,
+    view: WindowEvents, attempts: np.ndarray, skill: np.ndarray, latest: np.ndarray, learner_first: np.ndarray,
 ) -> np.ndarray:
     """Attempts in a row on the skill of attempt ``latest`` since the learner's last success on it.
 
-    ``attempts`` are log rows; ``latest`` and ``learner_first`` index into it.  A stable
+    ``attempts`` are log rows and ``skill`` their skill codes; ``latest`` and
+    ``learner_first`` index into them.  A stable
     sort by skill keeps log order inside each skill, so one learner's attempts on one
     skill are a contiguous stretch of the sorted order; the answer is the distance from
     the latest attempt back to the last success (or to the stretch's start).
     """
-    skill = view.skill.codes[attempts]
-    if len(view.skill.names) < np.iinfo(np.int16).max:
-        skill = skill.astype(np.int16)  # numpy sorts 16-bit keys by radix: linear time
+    for small in (np.int8, np.int16):  # numpy sorts 8- and 16-bit keys by radix: linear time
+        if len(view.skill.names) <= np.iinfo(small).max:
+            skill = skill.astype(small)
+            break
     order = np.argsort(skill, kind="stable")
     bounds = np.zeros(len(view.skill.names) + 1, dtype=np.int64)
     np.cumsum(np.bincount(skill, minlength=len(view.skill.names)), out=bounds[1:])
@@ -360,8 +383,8 @@ def _attempts_since_success(
 @feature
 def history(view: WindowEvents) -> dict[str, np.ndarray]:
     """history_attempts and history_error_rate over the learner's log before span end."""
-    attempts = view.count_before_span_end(view.outcome, view.attempt_outcomes)
-    errors = view.count_before_span_end(view.outcome, view.settings.error_outcomes)
+    attempts = view.count_before_span_end(view.attempt_rows)
+    errors = view.count_before_span_end(view.error_rows)
     return {"history_attempts": attempts, "history_error_rate": _ratio(errors, attempts)}
 
 
@@ -398,15 +421,16 @@ def index_windows(
     learner = code_column(events["learner"])
     time_ns = np.asarray(events["time_ns"], dtype=np.int64)
     columns = {name: code_column(events[name]) for name in ("action", "outcome", "item", "skill")}
-    order = _sort_order(learner.codes, time_ns)
-    if order is not None:
+    starts = _run_starts(learner.codes)
+    if not _in_log_order(learner.codes, time_ns, starts):
+        order = np.lexsort((time_ns, learner.codes))
         time_ns = time_ns[order]
         learner = CodedColumn(learner.codes[order], learner.names)
         columns = {name: CodedColumn(column.codes[order], column.names) for name, column in columns.items()}
+        starts = _run_starts(learner.codes)
     run_start = np.zeros(len(learner.names) + 1, dtype=np.int64)
     run_stop = np.zeros(len(learner.names) + 1, dtype=np.int64)
     if len(time_ns):
-        starts = np.flatnonzero(np.diff(learner.codes, prepend=learner.codes[0] - 1) != 0)
         run_start[learner.codes[starts]] = starts
         run_stop[learner.codes[starts]] = np.append(starts[1:], len(time_ns))
     window_learner = pd.Index(learner.names).get_indexer(windows["log_id"].astype(object).to_numpy())
@@ -426,15 +450,20 @@ def index_windows(
     )
 
 
-def _sort_order(learner_codes: np.ndarray, time_ns: np.ndarray) -> np.ndarray | None:
-    """None when rows are already grouped by learner and in time order, else the sort order."""
-    if len(time_ns) < 2:
-        return None
-    changes = learner_codes[1:] != learner_codes[:-1]
-    grouped = int(changes.sum()) + 1 == np.count_nonzero(np.bincount(learner_codes))
-    if grouped and bool(np.all((time_ns[1:] >= time_ns[:-1]) | changes)):
-        return None
-    return np.lexsort((time_ns, learner_codes))
+def _run_starts(learner_codes: np.ndarray) -> np.ndarray:
+    """First row of every run of equal learner codes."""
+    if len(learner_codes) == 0:
+        return np.zeros(0, dtype=np.int64)
+    return np.append(0, np.flatnonzero(learner_codes[1:] != learner_codes[:-1]) + 1)
+
+
+def _in_log_order(learner_codes: np.ndarray, time_ns: np.ndarray, starts: np.ndarray) -> bool:
+    """Each learner is one run, and time never goes back inside a run (EVENTS' promise, checked)."""
+    run_learners = learner_codes[starts]
+    if len(np.unique(run_learners)) != len(run_learners):
+        return False
+    backwards = np.flatnonzero(time_ns[1:] < time_ns[:-1]) + 1
+    return bool(np.isin(backwards, starts).all())
 
 
 def compute_features(

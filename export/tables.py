@@ -30,9 +30,11 @@ FEATURES -- one column per figure, float64 (counts too, so NaN can mean "undefin
 (FeatureSettings; defaults: errors {"incorrect"}, successes {"correct"}).
     event_count                 events in the span
     events_per_minute           event_count / span length in minutes
-    action_<name>               events of that action in the span, for the top-K actions
-                                of the whole event table (K = FeatureSettings.top_actions)
-    outcome_<name>              events with that outcome in the span, one per outcome seen
+    action_<name>               events of that action in the span, for the K actions with
+                                most events over all spans (K = FeatureSettings.top_actions;
+                                only span events choose the columns)
+    outcome_<name>              events with that outcome in the span, one per outcome seen in
+                                any span
     error_rate                  error outcomes / attempts in the span (NaN without attempts)
     help_requests               events whose action is a help action (defaults: "hint",
                                 "help", "help_request", "hint_request")
