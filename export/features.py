@@ -20,6 +20,7 @@ and every built-in definition: export/tables.py.
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -176,6 +177,12 @@ class WindowEvents:
         """Log rows with an error outcome, in log order."""
         attempts = self.attempt_rows
         return attempts[self.outcome.mask(self.settings.error_outcomes, attempts)]
+
+    def prepare(self) -> None:
+        """Build the shared arrays now, before feature functions read them from several threads."""
+        for name in ("counts", "offsets", "member", "member_window", "member_time_ns", "previous_gap_ns",
+                     "internal_gap_ns", "attempt_outcomes", "attempt_rows", "error_rows"):
+            getattr(self, name)
 
     def reduce_members(self, ufunc: np.ufunc, values: np.ndarray, empty: float) -> np.ndarray:
         """``ufunc`` over each window's member values; ``empty`` for windows without rows."""
@@ -411,6 +418,7 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
 
 def index_windows(
     events: pd.DataFrame | pa.Table, windows: pd.DataFrame, spans: SpanSettings, settings: FeatureSettings,
+    threads: int = 2,
 ) -> WindowEvents:
     """Sort the log once (if it is not already) and locate every window's rows.
 
@@ -418,9 +426,12 @@ def index_windows(
     Arrow; Arrow dictionary columns are the cheapest input).
     ``windows``: log_id, start_ns, end_ns, coded_ns (see export/tables.py).
     """
-    learner = code_column(events["learner"])
+    names = ("learner", "action", "outcome", "item", "skill")
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        coded = dict(zip(names, pool.map(code_column, [events[name] for name in names])))
+    learner = coded.pop("learner")
+    columns = coded
     time_ns = np.asarray(events["time_ns"], dtype=np.int64)
-    columns = {name: code_column(events[name]) for name in ("action", "outcome", "item", "skill")}
     starts = _run_starts(learner.codes)
     if not _in_log_order(learner.codes, time_ns, starts):
         order = np.lexsort((time_ns, learner.codes))
@@ -472,12 +483,19 @@ def compute_features(
     spans: SpanSettings = SpanSettings(),
     settings: FeatureSettings = FeatureSettings(),
     features: Mapping[str, FeatureFunction] = FEATURES,
+    threads: int = 2,
 ) -> pd.DataFrame:
-    """One row per window (``windows``' index): span_start_ns, span_end_ns, then every feature column."""
-    view = index_windows(events, windows, spans, settings)
+    """One row per window (``windows``' index): span_start_ns, span_end_ns, then every feature column.
+
+    Feature functions run on ``threads`` threads (numpy releases the GIL in its loops);
+    the arrays they share are built first, so the functions only read the view.
+    """
+    view = index_windows(events, windows, spans, settings, threads)
+    view.prepare()
     columns: dict[str, np.ndarray] = {"span_start_ns": view.span_start_ns, "span_end_ns": view.span_end_ns}
-    for function in features.values():
-        columns.update(function(view))
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        for result in pool.map(lambda function: function(view), features.values()):
+            columns.update(result)
     restored = {}
     for name, values in columns.items():
         restored[name] = np.empty_like(values)
