@@ -233,11 +233,12 @@ class Store:
         """Many observations in one transaction; returns how many were new.
 
         ``sessions`` has the SESSIONS columns, ``observations`` the OBSERVATIONS columns
-        (observer_app/tables.py).  Rows whose ids exist already are left alone, so a
+        (observer_app/tables.py); ``sessions`` may be empty when they were started
+        already.  Rows whose ids exist already are left alone, so a
         repeated import adds nothing.  Columns are converted whole, not row by row.
         """
         dimensions = list(dimensions)
-        session_rows = zip(
+        session_rows = [] if sessions.empty else zip(
             sessions["session_id"], sessions["coder"], sessions["device"], sessions["mode"],
             _nullable_ns(sessions["paired_start"]), _nullable_ns(sessions["started_at"]),
             sessions["monotonic_start"].astype(float), sessions["window_seconds"].astype(float), sessions["order"],
