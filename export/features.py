@@ -1,9 +1,9 @@
-"""Window features: what the learner did in each feature span, computed without a loop.
+"""Window features: what the learner did in each window, computed without a loop.
 
 How it stays fast (10M events x 50k windows): the events are sorted once by
-(learner, time); each window's learner is a contiguous run of rows, and the span's first
+(learner, time); each window's learner is a contiguous run of rows, and the window's first
 and last rows come from a vectorised binary search inside that run.  The rows of all
-spans are then laid out one window after another (``WindowEvents.member``), so every
+windows are then laid out one window after another (``WindowEvents.member``), so every
 window-local figure is a segment reduction (``ufunc.reduceat``) or a ``bincount`` over
 those rows, and every history figure is a difference of prefix sums over the whole log.
 
@@ -11,7 +11,7 @@ A lab adds its own feature as one function::
 
     @feature
     def long_pauses(view: WindowEvents) -> dict[str, np.ndarray]:
-        \"\"\"Pauses of a minute or more inside the span.\"\"\"
+        \"\"\"Pauses of a minute or more inside the window.\"\"\"
         return {"long_pauses": view.count_members(view.internal_gap_ns >= 60e9)}
 
 The first docstring line is the feature's definition in the manifest.  Column contracts
@@ -29,7 +29,8 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from export.spans import NS_PER_SECOND, SpanSettings, feature_spans
+
+NS_PER_SECOND = 1_000_000_000
 
 
 @dataclass(frozen=True)
@@ -101,14 +102,14 @@ def code_column(values: pd.Series | pa.ChunkedArray) -> CodedColumn:
 
 @dataclass
 class WindowEvents:
-    """The sorted log and, per window, where its learner's rows and its span's rows lie.
+    """The sorted log and, per window, where its learner's rows and the window's rows lie.
 
     Windows are held in log order (``window_order`` maps back to the caller's order:
     position i here is the caller's window ``window_order[i]``).
     Per window (arrays of length W): ``learner_start`` (first row of the learner, or 0
-    when the learner has no events), ``first`` (first row at or after span start),
-    ``stop`` (first row at or after span end: the span's rows are ``first:stop``),
-    ``span_start_ns``, ``span_end_ns``.  ``member`` lists the span rows window after
+    when the learner has no events), ``first`` (first row at or after window start),
+    ``stop`` (first row at or after window end: the window's rows are ``first:stop``),
+    ``start_ns``, ``end_ns``.  ``member`` lists the window rows window after
     window; window w's rows are ``member[offsets[w] : offsets[w] + counts[w]]``.
     """
 
@@ -123,8 +124,8 @@ class WindowEvents:
     learner_start: np.ndarray
     first: np.ndarray
     stop: np.ndarray
-    span_start_ns: np.ndarray
-    span_end_ns: np.ndarray
+    start_ns: np.ndarray
+    end_ns: np.ndarray
 
     @cached_property
     def counts(self) -> np.ndarray:
@@ -158,7 +159,7 @@ class WindowEvents:
 
     @cached_property
     def internal_gap_ns(self) -> np.ndarray:
-        """Per member row: ns since the previous event *inside the span* (NaN for the first)."""
+        """Per member row: ns since the previous event *inside the window* (NaN for the first)."""
         gaps = self.previous_gap_ns.copy()
         gaps[self.offsets[self.counts > 0]] = np.nan
         return gaps
@@ -200,12 +201,12 @@ class WindowEvents:
         """How many of each window's member rows satisfy a per-member condition."""
         return self.reduce_members(np.add, member_mask, 0.0)
 
-    def count_in_spans(self, column: CodedColumn, wanted: tuple[str, ...]) -> np.ndarray:
-        """How many rows of each span have one of the ``wanted`` values in ``column``."""
+    def count_in_windows(self, column: CodedColumn, wanted: tuple[str, ...]) -> np.ndarray:
+        """How many rows of each window have one of the ``wanted`` values in ``column``."""
         return self.count_members(column.mask(wanted, self.member))
 
-    def count_before_span_end(self, rows: np.ndarray) -> np.ndarray:
-        """How many of ``rows`` (log rows in log order) lie between the learner's first row and span end.
+    def count_before_window_end(self, rows: np.ndarray) -> np.ndarray:
+        """How many of ``rows`` (log rows in log order) lie between the learner's first row and window end.
 
         A prefix count: searching the qualifying rows at both ends is the difference of
         a cumulative sum, without building one over the whole log.
@@ -235,7 +236,7 @@ def _ratio(numerator: np.ndarray, denominator: np.ndarray) -> np.ndarray:
 
 
 def _counts_by_code(view: WindowEvents, column: CodedColumn, wanted: np.ndarray) -> np.ndarray:
-    """(windows x len(wanted)) counts of span rows whose code is each wanted code."""
+    """(windows x len(wanted)) counts of window rows whose code is each wanted code."""
     windows, width = len(view.counts), len(wanted)
     slot = np.full(len(column.names) + 1, -1, dtype=np.int64)  # code -1 reads the last slot
     slot[wanted] = np.arange(width)
@@ -247,17 +248,17 @@ def _counts_by_code(view: WindowEvents, column: CodedColumn, wanted: np.ndarray)
 
 @feature
 def activity(view: WindowEvents) -> dict[str, np.ndarray]:
-    """event_count and events_per_minute in the span."""
-    minutes = (view.span_end_ns - view.span_start_ns) / (60 * NS_PER_SECOND)
+    """event_count and events_per_minute in the window."""
+    minutes = (view.end_ns - view.start_ns) / (60 * NS_PER_SECOND)
     count = view.counts.astype(np.float64)
     return {"event_count": count, "events_per_minute": _ratio(count, minutes)}
 
 
 @feature
 def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
-    """action_<name>: events of each of the top-K actions (by events in all spans) in the span."""
+    """action_<name>: events of each of the top-K actions (by events in all windows) in the window."""
     action = view.action
-    totals = action.counts(view.member)  # only span events choose the columns: nothing else shapes the table
+    totals = action.counts(view.member)  # only window events choose the columns: nothing else shapes the table
     ranked = sorted(range(len(action.names)), key=lambda code: (-totals[code], str(action.names[code])))
     top = np.asarray([code for code in ranked if totals[code] > 0][: view.settings.top_actions], dtype=np.int64)
     table = _counts_by_code(view, action, top)
@@ -266,7 +267,7 @@ def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
 
 @feature
 def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
-    """outcome_<name>: events with each (non-empty) outcome seen in any span, in the span."""
+    """outcome_<name>: events with each (non-empty) outcome seen in any window, in the window."""
     outcome = view.outcome
     present = np.flatnonzero(outcome.counts(view.member))
     present = present[np.argsort(outcome.names[present].astype(str), kind="stable")]
@@ -276,10 +277,10 @@ def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
 
 @feature
 def errors_and_help(view: WindowEvents) -> dict[str, np.ndarray]:
-    """error_rate (errors / attempts) and help_requests (help actions) in the span."""
-    attempts = view.count_in_spans(view.outcome, view.attempt_outcomes)
-    errors = view.count_in_spans(view.outcome, view.settings.error_outcomes)
-    help_requests = view.count_in_spans(view.action, view.settings.help_actions)
+    """error_rate (errors / attempts) and help_requests (help actions) in the window."""
+    attempts = view.count_in_windows(view.outcome, view.attempt_outcomes)
+    errors = view.count_in_windows(view.outcome, view.settings.error_outcomes)
+    help_requests = view.count_in_windows(view.action, view.settings.help_actions)
     return {"error_rate": _ratio(errors, attempts), "help_requests": help_requests}
 
 
@@ -292,7 +293,7 @@ def pacing(view: WindowEvents) -> dict[str, np.ndarray]:
     has_previous = previous >= view.learner_start
     previous_time = np.zeros(len(counts), dtype=np.int64)
     previous_time[has_previous] = view.time_ns[previous[has_previous]]
-    since_previous = np.where(has_previous, (view.span_start_ns - previous_time) / second, np.nan)
+    since_previous = np.where(has_previous, (view.start_ns - previous_time) / second, np.nan)
 
     nonempty = counts > 0
     first_time = np.zeros(len(counts), dtype=np.int64)
@@ -303,8 +304,8 @@ def pacing(view: WindowEvents) -> dict[str, np.ndarray]:
     gaps = view.internal_gap_ns
     gap_max = view.reduce_members(np.fmax, gaps, np.nan)
     gap_median = _segment_median(gaps, view.member_window, view.offsets, counts - 1)
-    edges = np.fmax(first_time - view.span_start_ns, view.span_end_ns - last_time).astype(np.float64)
-    idle = np.where(nonempty, np.fmax(edges, gap_max), view.span_end_ns - view.span_start_ns)
+    edges = np.fmax(first_time - view.start_ns, view.end_ns - last_time).astype(np.float64)
+    idle = np.where(nonempty, np.fmax(edges, gap_max), view.end_ns - view.start_ns)
     rapid = view.count_members(view.previous_gap_ns < view.settings.rapid_seconds * second)
     return {
         "seconds_since_previous": since_previous,
@@ -331,7 +332,7 @@ def _segment_median(values: np.ndarray, segment: np.ndarray, offsets: np.ndarray
 
 @feature
 def distinct_items(view: WindowEvents) -> dict[str, np.ndarray]:
-    """distinct_items: distinct non-empty items touched in the span."""
+    """distinct_items: distinct non-empty items touched in the window."""
     codes = view.item.codes[view.member].astype(np.int64)
     keep = view.item.present(codes)
     pairs = np.sort(view.member_window[keep] * (len(view.item.names) + 1) + codes[keep])
@@ -342,12 +343,12 @@ def distinct_items(view: WindowEvents) -> dict[str, np.ndarray]:
 
 @feature
 def persistence(view: WindowEvents) -> dict[str, np.ndarray]:
-    """attempts_without_success on the current skill at span end, and the wheel_spinning flag."""
+    """attempts_without_success on the current skill at window end, and the wheel_spinning flag."""
     counter = np.zeros(len(view.counts))
     skill = view.skill.codes[view.attempt_rows]
     with_skill = view.skill.present(skill)
     attempts, skill = view.attempt_rows[with_skill], skill[with_skill]
-    latest = np.searchsorted(attempts, view.stop) - 1  # the learner's latest attempt before span end
+    latest = np.searchsorted(attempts, view.stop) - 1  # the learner's latest attempt before window end
     learner_first = np.searchsorted(attempts, view.learner_start)
     valid = latest >= learner_first
     if valid.any():
@@ -389,9 +390,9 @@ def _attempts_since_success(
 
 @feature
 def history(view: WindowEvents) -> dict[str, np.ndarray]:
-    """history_attempts and history_error_rate over the learner's log before span end."""
-    attempts = view.count_before_span_end(view.attempt_rows)
-    errors = view.count_before_span_end(view.error_rows)
+    """history_attempts and history_error_rate over the learner's log before window end."""
+    attempts = view.count_before_window_end(view.attempt_rows)
+    errors = view.count_before_window_end(view.error_rows)
     return {"history_attempts": attempts, "history_error_rate": _ratio(errors, attempts)}
 
 
@@ -400,8 +401,8 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
 
     ``values`` is sorted inside each [low, high) run (a learner's times, a skill's rows);
     one vectorised bisection searches every run at once.  (A single
-    ``searchsorted`` on a combined learner*span+time int64 key would overflow once the
-    learners' log spans add up to ~292 years of nanoseconds, which a large study reaches.)
+    ``searchsorted`` on a combined learner*length+time int64 key would overflow once the
+    learners' log lengths add up to ~292 years of nanoseconds, which a large study reaches.)
     """
     low = low.copy()
     high = high.copy()
@@ -417,14 +418,14 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
 
 
 def index_windows(
-    events: pd.DataFrame | pa.Table, windows: pd.DataFrame, spans: SpanSettings, settings: FeatureSettings,
+    events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings,
     threads: int = 2,
 ) -> WindowEvents:
     """Sort the log once (if it is not already) and locate every window's rows.
 
     ``events``: EVENTS columns learner, time_ns, action, outcome, item, skill (pandas or
     Arrow; Arrow dictionary columns are the cheapest input).
-    ``windows``: log_id, start_ns, end_ns, coded_ns (see export/tables.py).
+    ``windows``: log_id, start_ns (inclusive), end_ns (exclusive), as sync/ made them.
     """
     names = ("learner", "action", "outcome", "item", "skill")
     with ThreadPoolExecutor(max_workers=threads) as pool:
@@ -447,16 +448,17 @@ def index_windows(
     window_learner = pd.Index(learner.names).get_indexer(windows["log_id"].astype(object).to_numpy())
     learner_start = run_start[window_learner]  # -1 (unknown learner) reads the empty last run
     learner_stop = run_stop[window_learner]
-    span_start, span_end = feature_spans(windows, spans)
+    window_start = windows["start_ns"].to_numpy(dtype=np.int64)
+    window_end = windows["end_ns"].to_numpy(dtype=np.int64)
     # Windows in log order, so that every search below walks memory forwards.
-    window_order = np.lexsort((span_start, learner_start))
+    window_order = np.lexsort((window_start, learner_start))
     learner_start, learner_stop = learner_start[window_order], learner_stop[window_order]
-    span_start, span_end = span_start[window_order], span_end[window_order]
-    first = _search_runs(time_ns, learner_start, learner_stop, span_start)
-    stop = _search_runs(time_ns, first, learner_stop, span_end)
+    window_start, window_end = window_start[window_order], window_end[window_order]
+    first = _search_runs(time_ns, learner_start, learner_stop, window_start)
+    stop = _search_runs(time_ns, first, learner_stop, window_end)
     return WindowEvents(
         settings=settings, time_ns=time_ns, learner_codes=learner.codes, window_order=window_order,
-        learner_start=learner_start, first=first, stop=stop, span_start_ns=span_start, span_end_ns=span_end,
+        learner_start=learner_start, first=first, stop=stop, start_ns=window_start, end_ns=window_end,
         **columns,
     )
 
@@ -480,19 +482,18 @@ def _in_log_order(learner_codes: np.ndarray, time_ns: np.ndarray, starts: np.nda
 def compute_features(
     events: pd.DataFrame | pa.Table,
     windows: pd.DataFrame,
-    spans: SpanSettings = SpanSettings(),
     settings: FeatureSettings = FeatureSettings(),
     features: Mapping[str, FeatureFunction] = FEATURES,
     threads: int = 2,
 ) -> pd.DataFrame:
-    """One row per window (``windows``' index): span_start_ns, span_end_ns, then every feature column.
+    """One row per window (``windows``' index): start_ns, end_ns, then every feature column.
 
     Feature functions run on ``threads`` threads (numpy releases the GIL in its loops);
     the arrays they share are built first, so the functions only read the view.
     """
-    view = index_windows(events, windows, spans, settings, threads)
+    view = index_windows(events, windows, settings, threads)
     view.prepare()
-    columns: dict[str, np.ndarray] = {"span_start_ns": view.span_start_ns, "span_end_ns": view.span_end_ns}
+    columns: dict[str, np.ndarray] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
     with ThreadPoolExecutor(max_workers=threads) as pool:
         for result in pool.map(lambda function: function(view), features.values()):
             columns.update(result)
