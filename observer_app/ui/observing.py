@@ -105,7 +105,9 @@ class CodeTile(QWidget):
         strip = QPainterPath()
         strip.addRoundedRect(QRectF(box.left(), box.top(), 16, box.height()), 8, 8)
         painter.setPen(Qt.PenStyle.NoPen)
-        painter.setBrush(looks.blend(self.code.colour, theme.surface, 0.75 if theme is looks.LIGHT else 0.5))
+        strip_strength = 0.75 if theme is looks.LIGHT else 0.5
+        strip_colour = looks.blend(self.code.colour, theme.surface, strip_strength)
+        painter.setBrush(strip_colour.darker(125) if self.selected else strip_colour)
         painter.drawPath(strip)
         painter.drawRect(QRectF(box.left() + 8, box.top(), 8, box.height()))
         side = min(box.height() - 14, 46.0)
@@ -143,6 +145,7 @@ class DimensionPad(QFrame):
         self.title = QLabel(_title(dimension.name).upper())
         self.state = QLabel("")
         self.state.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        self.title.setSizePolicy(QSizePolicy.Policy.Minimum, QSizePolicy.Policy.Preferred)
         header.addWidget(self.title)
         header.addWidget(self.state, 1)
         layout.addLayout(header)
@@ -156,7 +159,7 @@ class DimensionPad(QFrame):
             tile.theme, tile.scale = theme, scale
             tile.update()
         points = looks.PAD_TITLE_POINTS * scale
-        self.title.setStyleSheet(f"font-size: {points}pt; font-weight: bold; color: {theme.quiet_text}; letter-spacing: 2px;")
+        self.title.setStyleSheet(f"font-size: {points}pt; font-weight: bold; color: {theme.quiet_text};")
         if code is None:
             self.state.setText("to code")
             self.state.setStyleSheet(f"font-size: {points}pt; color: {theme.quiet_text};")
@@ -166,18 +169,20 @@ class DimensionPad(QFrame):
 
 
 class NoteEdit(QLineEdit):
-    """The note line: Enter saves (via returnPressed), Escape gives up."""
+    """The note line: Enter saves, Escape gives up; neither reaches the screen behind it."""
 
-    def __init__(self, on_cancel) -> None:
+    def __init__(self, on_save, on_cancel) -> None:
         super().__init__()
-        self._on_cancel = on_cancel
+        self._on_save, self._on_cancel = on_save, on_cancel
         self.setPlaceholderText("Note for this window - Enter saves, Esc cancels")
 
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
         if event.key() == Qt.Key.Key_Escape:
             self._on_cancel()
-            return
-        super().keyPressEvent(event)
+        elif event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
+            self._on_save()
+        else:
+            super().keyPressEvent(event)
 
 
 class PresenceList(QListWidget):
@@ -248,8 +253,7 @@ class ObservingScreen(QWidget):
             pads.addWidget(pad, 1, Qt.AlignmentFlag.AlignTop)
         root.addLayout(pads, 1)
 
-        self.note_edit = NoteEdit(self._close_note)
-        self.note_edit.returnPressed.connect(self._save_note)
+        self.note_edit = NoteEdit(self._save_note, self._close_note)
         self.note_edit.hide()
         root.addWidget(self.note_edit)
         self.message_label = QLabel()
@@ -266,6 +270,7 @@ class ObservingScreen(QWidget):
         self.help.setTextFormat(Qt.TextFormat.RichText)
         self.help.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
         self.help.setMargin(28)
+        self.help.setWordWrap(True)
         self.help.hide()
 
         session.add_listener(self._changed)
@@ -344,14 +349,17 @@ class ObservingScreen(QWidget):
         self.time_bar.update()
 
     def _render_help(self) -> None:
-        rows = []
+        codes = []
         for dimension in self.session.study.scheme.dimensions:
-            codes = ", ".join(f"<b>{c.key.upper()}</b> {c.label}" for c in dimension.codes)
-            rows.append(f"<tr><td><b>{_title(dimension.name)}</b>&nbsp;&nbsp;</td><td>{codes}</td></tr>")
-        for _, key, what, _ in COMMAND_KEYS:
-            rows.append(f"<tr><td><b>{key}</b></td><td>{what}</td></tr>")
-        self.help.setText("<h2>Keys</h2><table cellspacing='6'>" + "".join(rows) + "</table>"
-                          "<p>Esc or F1 closes this list. The app makes no sound.</p>")
+            codes.append(f"<tr><td colspan='2'><br><b>{_title(dimension.name).upper()}</b></td></tr>")
+            codes += [f"<tr><td><b>{c.key.upper()}</b></td><td>{c.label}</td></tr>" for c in dimension.codes]
+        commands = [f"<tr><td><b>{key}</b></td><td>{what}</td></tr>" for _, key, what, _ in COMMAND_KEYS]
+        self.help.setText(
+            "<h2>Keys</h2><table width='100%'><tr>"
+            f"<td valign='top' width='45%'><table cellspacing='5'>{''.join(codes)}</table></td>"
+            f"<td valign='top'><table cellspacing='5'><tr><td colspan='2'><br><b>COMMANDS</b></td></tr>"
+            f"{''.join(commands)}</table></td></tr></table>"
+            "<p>Esc or F1 closes this list. The app makes no sound.</p>")
 
     def resizeEvent(self, event) -> None:  # noqa: N802
         super().resizeEvent(event)
