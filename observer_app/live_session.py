@@ -289,6 +289,8 @@ class LiveSession:
                 finished_at = None
                 if all(pd.notna(last[d]) for d in self._dimensions):
                     finished_at = (last["coded_at"].to_pydatetime() - self._origin_wall).total_seconds()
+                elif bool(last["no_code"]) and not last["note"]:  # written only when its window ended
+                    finished_at = (last["window_end"].to_pydatetime() - self._origin_wall).total_seconds()
                 gone = [moment for moment, learner, state in events if learner == last_learner and state == "absent"]
                 if gone:
                     finished_at = gone[0] if finished_at is None else min(finished_at, gone[0])

@@ -215,3 +215,15 @@ def test_screenshots_of_the_observing_screen_and_overview(qtbot, window):
     window.page.grab().save(str(ARTIFACTS / "end_of_session.png"))
     for path in saved:
         assert path.stat().st_size > 10_000
+
+
+def test_without_a_study_the_app_offers_to_open_or_create_one_and_shows_the_cautions(qtbot, tmp_path):
+    window = MainWindow(None, clock=FakeClock())
+    qtbot.addWidget(window)
+    window.show()
+    page = window.page
+    texts = " ".join(label.text() for label in page.findChildren(type(page.error)))
+    assert "open a study folder" in texts and "create a new study" in texts
+    assert "ethics approval" in texts and "minors" in texts and "sole basis" in texts
+    window.open_study(tmp_path / "missing")
+    assert window.page is page and "fieldmark init" in page.error.text()
