@@ -263,9 +263,15 @@ class ObservingScreen(QWidget):
             label.setWordWrap(True)
             root.addWidget(label)
 
+        self.presence_panel = QFrame(self)
+        panel_layout = QVBoxLayout(self.presence_panel)
+        panel_layout.setContentsMargins(20, 16, 20, 16)
+        self.presence_caption = QLabel("WHO IS HERE  -  Up/Down choose · Enter switch absent / back · Esc close")
+        self.presence_caption.setWordWrap(True)
         self.presence = PresenceList(self._toggle_presence, self._close_presence)
-        self.presence.setParent(self)
-        self.presence.hide()
+        panel_layout.addWidget(self.presence_caption)
+        panel_layout.addWidget(self.presence, 1)
+        self.presence_panel.hide()
         self.help = QLabel(self)
         self.help.setTextFormat(Qt.TextFormat.RichText)
         self.help.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
@@ -298,7 +304,13 @@ class ObservingScreen(QWidget):
         self.note_edit.setStyleSheet(f"font-size: {looks.TILE_POINTS * scale}pt;")
         self.help.setStyleSheet(f"background: {theme.surface}; color: {theme.text}; font-size: {14 * scale}pt;"
                                 f"border: 2px solid {theme.accent}; border-radius: 10px;")
-        self.presence.setStyleSheet(f"font-size: {looks.TILE_POINTS * scale}pt; border: 2px solid {theme.accent};")
+        self.presence_panel.setStyleSheet(
+            f"QFrame {{ background: {theme.surface}; border: 2px solid {theme.accent}; border-radius: 10px; }}"
+            f"QLabel {{ border: none; color: {theme.quiet_text}; font-size: {13 * scale}pt; }}"
+            f"QListWidget {{ border: none; font-size: {looks.TILE_POINTS * scale}pt; }}"
+            f"QListWidget::item {{ padding: 6px; }}"
+            f"QListWidget::item:selected {{ background: {looks.blend(theme.accent, theme.surface, 0.35).name()};"
+            f" color: {theme.text}; }}")
         self.time_bar.theme = theme
         self.keys_label.setText(" &nbsp;·&nbsp; ".join(f"<b>{key}</b> {short}" for _, key, _, short in COMMAND_KEYS if short))
         self._render_help()
@@ -318,7 +330,7 @@ class ObservingScreen(QWidget):
         elif state.paused:
             self.turn_caption.setText("PAUSED  -  press Space to go on")
         elif state.waiting:
-            self.turn_caption.setText("SHARED START NOT YET - FIRST UP")
+            self.turn_caption.setText("WAITING FOR THE SHARED START  -  FIRST UP")
         else:
             self.turn_caption.setText("NOW OBSERVING")
         self.learner_label.setText(state.label or "nobody present")
@@ -364,7 +376,12 @@ class ObservingScreen(QWidget):
     def resizeEvent(self, event) -> None:  # noqa: N802
         super().resizeEvent(event)
         self.help.setGeometry(self.rect().adjusted(60, 40, -60, -40))
-        self.presence.setGeometry(self.rect().adjusted(self.width() // 4, 80, -self.width() // 4, -80))
+        self._place_presence()
+
+    def _place_presence(self) -> None:
+        rows = max(1, self.presence.count())
+        height = min(self.height() - 120, 90 + rows * int(looks.TILE_POINTS * self._scale * 2.6))
+        self.presence_panel.setGeometry(self.width() // 4, 70, self.width() // 2, height)
 
     # -- input -------------------------------------------------------------------------
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
@@ -430,8 +447,9 @@ class ObservingScreen(QWidget):
             item.setData(Qt.ItemDataRole.UserRole, learner)
             self.presence.addItem(item)
         self.presence.setCurrentRow(0)
-        self.presence.raise_()
-        self.presence.show()
+        self._place_presence()
+        self.presence_panel.raise_()
+        self.presence_panel.show()
         self.presence.setFocus()
 
     def _toggle_presence(self, learner: str) -> None:
@@ -444,5 +462,5 @@ class ObservingScreen(QWidget):
         self.presence.setCurrentRow(row)
 
     def _close_presence(self) -> None:
-        self.presence.hide()
+        self.presence_panel.hide()
         self.setFocus()

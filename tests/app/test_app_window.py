@@ -227,3 +227,24 @@ def test_without_a_study_the_app_offers_to_open_or_create_one_and_shows_the_caut
     assert "ethics approval" in texts and "minors" in texts and "sole basis" in texts
     window.open_study(tmp_path / "missing")
     assert window.page is page and "fieldmark init" in page.error.text()
+
+
+def test_presence_list_marks_absent_and_back_from_the_keyboard(qtbot, window):
+    press(qtbot, window, Qt.Key.Key_S)
+    press(qtbot, window, None, "ana")
+    press(qtbot, window, Qt.Key.Key_Return)
+    press(qtbot, window, Qt.Key.Key_Return)
+    screen = window.page
+    press(qtbot, window, Qt.Key.Key_F4)
+    assert screen.presence_panel.isVisible()
+    press(qtbot, window, Qt.Key.Key_Down)
+    press(qtbot, window, Qt.Key.Key_Return)  # Bench 2 is absent
+    assert screen.presence.item(1).text().endswith("ABSENT")
+    assert screen.next_label.text() == "Bench 3"
+    press(qtbot, window, Qt.Key.Key_Return)  # and back again
+    press(qtbot, window, Qt.Key.Key_Escape)
+    assert not screen.presence_panel.isVisible() and focused(window) is screen
+    assert screen.next_label.text() == "Bench 2"
+    with sqlite3.connect(window.study.store_path) as connection:
+        assert connection.execute("SELECT learner, state FROM absences ORDER BY rowid").fetchall() == [
+            ("L02", "absent"), ("L02", "returned")]
