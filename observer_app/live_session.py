@@ -266,16 +266,16 @@ class LiveSession:
         self._recorded_slots = set(rows)
 
         def apply_until(moment: float) -> None:
+            """Replay absences up to ``moment`` (live, they were stored after the schedule caught up)."""
             while events and events[0][0] <= moment:
-                _, learner, state = events.pop(0)
+                event_moment, learner, state = events.pop(0)
+                if self.schedule.paired:
+                    ended.extend(self.schedule.advance_to(min(event_moment, now_elapsed)))
                 (self.schedule.mark_absent if state == "absent" else self.schedule.mark_returned)(learner)
 
         ended: list[Turn] = []
         if self.schedule.paired:
-            while events and events[0][0] <= now_elapsed:
-                moment, learner, state = events.pop(0)
-                ended += self.schedule.advance_to(moment)
-                (self.schedule.mark_absent if state == "absent" else self.schedule.mark_returned)(learner)
+            apply_until(float("inf"))
             ended += self.schedule.advance_to(now_elapsed)
         else:
             for slot, start in zip(observations["slot"], observations["window_start"]):

@@ -213,6 +213,9 @@ def test_screenshots_of_the_observing_screen_and_overview(qtbot, window):
     press(qtbot, window, Qt.Key.Key_F10)
     press(qtbot, window, Qt.Key.Key_F10)
     window.page.grab().save(str(ARTIFACTS / "end_of_session.png"))
+    press(qtbot, window, Qt.Key.Key_Return)
+    qtbot.wait(50)
+    window.overview.grab().save(str(ARTIFACTS / "overview_after_session.png"))
     for path in saved:
         assert path.stat().st_size > 10_000
 
