@@ -27,6 +27,9 @@ def _table(headers: list[str], rows: list[list[str]]) -> QTableWidget:
     table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
     table.setFocusPolicy(Qt.FocusPolicy.NoFocus)
     table.setShowGrid(False)
+    table.setStyleSheet("QTableWidget, QHeaderView::section { font-size: 11pt; padding: 2px 6px; }")
+    table.horizontalHeader().setMinimumSectionSize(30)
+    table.verticalHeader().setDefaultSectionSize(26)
     for row_number, row in enumerate(rows):
         for column, value in enumerate(row):
             item = QTableWidgetItem(value)
@@ -133,8 +136,8 @@ class StudyOverview(QWidget):
         self.counts_table = count_table(study, code_counts(observations, study.scheme.dimension_names),
                                         window_counts(observations))
         grid.addWidget(self._section("Observations per learner and code", self.counts_table), 1, 1, 2, 1)
-        grid.setColumnStretch(0, 4)
-        grid.setColumnStretch(1, 7)
+        grid.setColumnStretch(0, 3)
+        grid.setColumnStretch(1, 6)
         grid.setRowStretch(0, 3)
         grid.setRowStretch(1, 2)
         grid.setRowStretch(2, 3)
