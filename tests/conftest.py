@@ -26,6 +26,25 @@ def run_cli(*args: str, cwd: Path | None = None, timeout: float = 300) -> subpro
     )
 
 
+def call_cli(*args: str) -> subprocess.CompletedProcess:
+    """Run ``fieldmark ARGS`` in this process (same ``main`` as the console script, ~50x faster).
+
+    An unexpected exception propagates, so a traceback still fails the test.
+    """
+    import contextlib
+    import io
+
+    from observer_app.cli import main
+
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        try:
+            code = main([str(a) for a in args])
+        except SystemExit as stop:
+            code = stop.code if isinstance(stop.code, int) else 2
+    return subprocess.CompletedProcess(list(args), code, out.getvalue(), err.getvalue())
+
+
 @pytest.fixture
 def cli():
     """The ``run_cli`` function as a fixture."""
