@@ -8,7 +8,7 @@ import pytest
 from observer_app.shared_start import parse_shared_start, suggested_start_times
 from sync.errors import InputError
 from tests.app.conftest import make_study
-from tests.conftest import assert_user_error, run_cli
+from tests.conftest import assert_user_error, call_cli
 
 NOW = datetime(2026, 3, 9, 8, 0, 40, tzinfo=timezone.utc)  # 09:00:40 in Berlin
 
@@ -40,6 +40,6 @@ def test_suggested_start_times_leave_time_to_agree():
 def test_app_command_refuses_a_broken_study_before_opening_a_window(tmp_path):
     folder = make_study(tmp_path / "study")
     (folder / "study.toml").write_text("[schedule]\nwindow_seconds = 0\n[study]\ntimezone = \"Europe/Berlin\"\n")
-    result = run_cli("app", folder)
+    result = call_cli("app", folder)
     assert_user_error(result, "study.toml", "window_seconds")
 
