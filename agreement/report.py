@@ -63,10 +63,15 @@ def drift_plot(rolling: dict[str, pd.DataFrame], window: int) -> str | None:
     if not drawable:
         return None
     figure, axes = plt.subplots(figsize=(8, 3.5))
+    # Dimensions differ in which units count (could-not-observe is left out), so a shared
+    # clock axis is comparable and unit numbers are not; CSVs without times fall back.
+    timed = all(pd.notna(frame["time"]).all() for frame in drawable.values())
     for name, frame in drawable.items():
-        axes.plot(frame["position"], frame["kappa"], label=name)
+        axes.plot(pd.to_datetime(frame["time"]) if timed else frame["position"], frame["kappa"], label=name)
     axes.axhline(0.6, color="#888", linestyle="--", linewidth=1, label="0.6")
-    axes.set_xlabel(f"unit (time order); kappa over the last {window} units")
+    if timed:
+        figure.autofmt_xdate()
+    axes.set_xlabel(f"{'window start (UTC)' if timed else 'unit (file order)'}; kappa over the last {window} units")
     axes.set_ylabel("kappa")
     axes.set_ylim(-0.2, 1.05)
     axes.legend(loc="lower left", fontsize=8)

@@ -145,8 +145,9 @@ def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: 
               f"coders {', '.join(agreement.coders)}\n")
     out.write(f"95 % intervals: {agreement.resamples} bootstrap resamples of learners, seed {agreement.seed}\n")
     if pairing:
+        per_coder = ", ".join(f"{coder} {count}" for coder, count in pairing["unmatched_by_coder"].items())
         out.write(f"Pairing: {pairing['observations']} observations, {pairing['units']} units, "
-                  f"{pairing['unmatched']} unmatched {pairing['unmatched_by_coder']}\n")
+                  f"{pairing['unmatched']} unmatched{f' ({per_coder})' if per_coder else ''}\n")
     for result in agreement.dimensions.values():
         out.write(f"\n{result.name} ({result.level}, {result.units} units) -- Landis & Koch: {result.band}\n")
         width = max(len(label) for label in FIGURE_LABELS.values())
