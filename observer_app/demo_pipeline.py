@@ -1,0 +1,158 @@
+"""The demo pipeline: build the demo study, then run every fieldmark step on it.
+
+``STEPS`` is the list, in order; each step reads what the earlier ones left in the
+``DemoRun``, adds its figures to the summary and one section to the report.  A step that
+lands in fieldmark later (align, agree, export, check) adds itself here.
+
+DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
+    seed            int     the generator's seed
+    study           string  the study folder the pipeline ran on (DIR/study)
+    generated       object  learners, events, observations, sync_marks: what was generated
+    steps           list    {"name", "seconds"} per step, in the order run
+    devices         object  per coder device:
+                              "truth":     {"offset_s", "drift_ppm", "reference"} -- planted by the
+                                           generator, copied from DIR/truth.json (the only copied figures)
+                              "recovered": {"method", "offset_s", "drift_ppm", ...} from the align
+                                           step, or null while that step does not exist
+    dimensions      object  per scheme dimension, from the agree step: "kappa" and "alpha", each
+                            {"value", "low", "high"} (95 % interval); null while agree does not exist
+    coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
+                            {"kappa", "percent_correct", "windows"}: scikit-learn's Cohen's kappa of the
+                            simulated coder's codes against the generator's true states
+    windows         object  from the export step: {"written", "path"}; null while export does not exist
+    detector        object  from the check step; null while check does not exist
+    seconds         float   wall time of the whole run
+DIR/report.html: one section per step, tables and base64 PNG figures, self-contained.
+"""
+from __future__ import annotations
+
+import json
+import os
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+from tqdm import tqdm
+
+from demo_sessions.generate import Generated, generate_demo
+from demo_sessions.truth_check import coder_vs_truth
+from demo_sessions.truth_files import read_truth
+from observer_app import demo_report as report
+from observer_app.store import Store
+from observer_app.study import Study, load_study
+
+SUMMARY_FILE = "summary.json"
+REPORT_FILE = "report.html"
+SUMMARY_KEYS: tuple[str, ...] = (
+    "seed", "study", "generated", "steps", "devices", "dimensions", "coder_vs_truth", "windows", "detector",
+    "seconds",
+)
+TIMELINE_LEARNERS = 4
+
+
+@dataclass
+class DemoRun:
+    """What the steps share: the output folder, the study, the summary and the report so far."""
+
+    out: Path
+    seed: int
+    size: str
+    summary: dict = field(default_factory=dict)
+    sections: list[str] = field(default_factory=list)
+    generated: Generated | None = None
+    study: Study | None = None
+    observations: pd.DataFrame | None = None
+
+
+def step_generate(run: DemoRun) -> None:
+    """Build the demo study with the generator; record the planted clocks under "truth"."""
+    run.generated = generate_demo(run.out, run.seed, run.size)
+    run.study = load_study(run.generated.study)
+    with Store(run.study.store_path) as store:
+        run.observations = store.observations(run.study.scheme.dimension_names)
+    header, _, _ = read_truth(run.out)
+    run.summary["study"] = str(run.generated.study)
+    run.summary["generated"] = {"learners": run.generated.learners, "events": run.generated.events,
+                                "observations": run.generated.observations, "sync_marks": run.generated.sync_marks}
+    run.summary["devices"] = {device: {"truth": {key: planted[key] for key in ("offset_s", "drift_ppm", "reference")},
+                                       "recovered": None}
+                              for device, planted in header["devices"].items()}
+    clocks = pd.DataFrame([{"device": d, "coder": p["coder"], "offset_s": p["offset_s"], "drift_ppm": p["drift_ppm"]}
+                           for d, p in header["devices"].items()])
+    coded = (run.observations.groupby(["coder", "device", "mode"]).agg(
+        windows=("observation_id", "size"), paired=("paired_start", lambda s: int(s.notna().sum())),
+        not_coded=("no_code", "sum")).reset_index())
+    run.sections.append(report.section(
+        "The demo study",
+        report.paragraph(f"Generated with seed {run.seed}: {run.generated.learners} apprentices at two training centres, "
+                         f"{run.generated.events} simulator events (north as CSV with local times, south as xAPI "
+                         f"statements), {run.generated.observations} coded windows and {run.generated.sync_marks} "
+                         "sync marks from two coders' laptops, imported into the study's store."),
+        report.table_html(coded),
+        report.paragraph("Truth planted by the generator (not computed by the pipeline): each laptop's clock.",
+                         "note truth"),
+        report.table_html(clocks, "truth"),
+    ))
+
+
+def step_coder_vs_truth(run: DemoRun) -> None:
+    """Demo-quality check: each simulated coder against the generator's truth (scikit-learn kappa)."""
+    assert run.study is not None and run.observations is not None
+    _, states, truth = read_truth(run.out)
+    figures = coder_vs_truth(run.observations, truth, run.study.scheme)
+    run.summary["coder_vs_truth"] = figures
+    rows = pd.DataFrame([{"dimension": dimension, "coder": coder, **values}
+                         for dimension, coders in figures.items() for coder, values in coders.items()])
+    paired = run.observations[run.observations["paired_start"].notna()]
+    shown = sorted(paired["learner"].unique())[:TIMELINE_LEARNERS]
+    activity = run.study.scheme.dimensions[0]
+    origin = paired["window_start"].min()
+    codes = run.observations[run.observations["learner"].isin(shown) & run.observations[activity.name].notna()]
+    codes = pd.DataFrame({"learner": codes["learner"], "coder": codes["coder"], "code": codes[activity.name],
+                          "time": codes["window_start"] + (codes["window_end"] - codes["window_start"]) / 2})
+    day = states[(states["dimension"] == activity.name) & states["learner"].isin(shown)
+                 & (states["start"] < origin + pd.Timedelta(hours=2)) & (states["end"] > origin - pd.Timedelta(minutes=5))]
+    run.sections.append(report.section(
+        "Simulated coders against the truth (demo check, not the agreement step)",
+        report.paragraph("Cohen's kappa (scikit-learn) of each coder's codes against the true state behind each "
+                         "window; could-not-observe and uncoded windows left out."),
+        report.table_html(rows),
+        report.figure_html(report.timeline_figure(
+            day, codes, activity, origin,
+            f"True {activity.name} (bands, truth) and coded {activity.name} (markers: circles first coder, triangles "
+            "second), codes at the window middle on each laptop's own clock"), "latent-state timeline"),
+        *(report.figure_html(report.codes_per_learner_figure(run.observations, dimension), f"{dimension.name} per learner")
+          for dimension in run.study.scheme.dimensions),
+    ))
+
+
+STEPS: tuple[tuple[str, Callable[[DemoRun], None]], ...] = (
+    ("generate", step_generate),
+    ("coder_vs_truth", step_coder_vs_truth),
+)
+
+
+def _write_atomically(path: Path, text: str) -> None:
+    temporary = path.with_name(f".{path.name}.partial")
+    temporary.write_text(text, encoding="utf-8")
+    os.replace(temporary, path)
+
+
+def run_demo(out: str | Path, seed: int, size: str = "full", progress: bool = True) -> dict:
+    """Run every step into ``out``; write summary.json and report.html; return the summary."""
+    run = DemoRun(out=Path(out), seed=seed, size=size)
+    run.summary = dict.fromkeys(SUMMARY_KEYS)
+    run.summary.update(seed=seed, steps=[])
+    started = time.perf_counter()
+    with tqdm(STEPS, desc="fieldmark demo", unit="step", disable=not progress) as bar:
+        for name, step in bar:
+            bar.set_postfix_str(name)
+            began = time.perf_counter()
+            step(run)
+            run.summary["steps"].append({"name": name, "seconds": round(time.perf_counter() - began, 2)})
+    run.summary["seconds"] = round(time.perf_counter() - started, 2)
+    _write_atomically(run.out / SUMMARY_FILE, json.dumps(run.summary, indent=2) + "\n")
+    _write_atomically(run.out / REPORT_FILE, report.page(f"fieldmark demo (seed {seed})", run.sections))
+    return run.summary
