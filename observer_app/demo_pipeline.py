@@ -36,7 +36,7 @@ from pathlib import Path
 import pandas as pd
 from tqdm import tqdm
 
-from demo_sessions.generate import Generated, generate_demo
+from demo_sessions.generate import Generated, check_output_folder, generate_demo
 from demo_sessions.truth_check import coder_vs_truth
 from demo_sessions.truth_files import read_truth
 from observer_app import demo_report as report
@@ -142,6 +142,7 @@ def _write_atomically(path: Path, text: str) -> None:
 
 def run_demo(out: str | Path, seed: int, size: str = "full", progress: bool = True) -> dict:
     """Run every step into ``out``; write summary.json and report.html; return the summary."""
+    check_output_folder(Path(out))
     run = DemoRun(out=Path(out), seed=seed, size=size)
     run.summary = dict.fromkeys(SUMMARY_KEYS)
     run.summary.update(seed=seed, steps=[])
