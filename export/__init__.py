@@ -2,3 +2,6 @@
 
 Never imports observer_app or Qt.  Column contracts: ``export/tables.py``.
 """
+from export.writer import load_windows
+
+__all__ = ["load_windows"]

@@ -16,7 +16,12 @@ from sync.errors import InputError
 # Verb modules in the order --help lists them.  Only verbs that work are listed.
 COMMANDS: tuple[str, ...] = (
     "init",
+    "app",
     "import_observations",
+    "agree",
+    "adjudicate",
+    "plan",
+    "check",
     "demo",
 )
 

@@ -86,6 +86,15 @@ def to_ns(moment: datetime | pd.Timestamp) -> int:
     return int(stamp.value)
 
 
+def _nullable_ns(values: pd.Series) -> list[int | None]:
+    """A datetime column -> UTC nanoseconds as Python ints (None for NaT), whole column at once."""
+    stamps = pd.to_datetime(values, utc=True).dt.as_unit("ns")
+    numbers = stamps.to_numpy(dtype="datetime64[ns]").view("int64").tolist()
+    if stamps.isna().any():
+        numbers = [None if missing else n for n, missing in zip(numbers, stamps.isna())]
+    return numbers
+
+
 def _times(values: pd.Series) -> pd.Series:
     return pd.to_datetime(values.astype("Int64"), unit="ns", utc=True)
 
@@ -221,26 +230,48 @@ class Store:
             cursor.execute("INSERT INTO notes VALUES (?,?,?,?)", (f"{observation_id}:note", observation_id, note, coded_ns))
 
     def record_observations(self, sessions: pd.DataFrame, observations: pd.DataFrame, dimensions: Iterable[str]) -> int:
-        """Many observations (OBSERVATIONS columns) in one transaction; returns how many were new."""
+        """Many observations in one transaction; returns how many were new.
+
+        ``sessions`` has the SESSIONS columns, ``observations`` the OBSERVATIONS columns
+        (observer_app/tables.py); ``sessions`` may be empty when they were started
+        already.  Rows whose ids exist already are left alone, so a
+        repeated import adds nothing.  Columns are converted whole, not row by row.
+        """
         dimensions = list(dimensions)
-        added = 0
+        session_rows = [] if sessions.empty else zip(
+            sessions["session_id"], sessions["coder"], sessions["device"], sessions["mode"],
+            _nullable_ns(sessions["paired_start"]), _nullable_ns(sessions["started_at"]),
+            sessions["monotonic_start"].astype(float), sessions["window_seconds"].astype(float), sessions["order"],
+            [None if pd.isna(seed) else int(seed) for seed in sessions["seed"]], sessions["scheme_hash"],
+            [""] * len(sessions),
+        )
+        given = observations[dimensions].notna() & observations[dimensions].ne("") if dimensions else None
+        coded_ns = _nullable_ns(observations["coded_at"])
+        slots = [None if pd.isna(slot) else int(slot) for slot in observations.get("slot", pd.Series(pd.NA, index=observations.index))]
+        clips = observations["clip"].fillna("") if "clip" in observations else [""] * len(observations)
+        no_code = (~given.any(axis=1)).astype(int) if given is not None else [1] * len(observations)
+        observation_rows = zip(
+            observations["observation_id"], observations["session_id"], observations["learner"], slots, clips,
+            _nullable_ns(observations["window_start"]), _nullable_ns(observations["window_end"]), coded_ns,
+            no_code, observations["scheme_hash"],
+        )
+        code_rows = [
+            (f"{observation_id}:{dimension}", observation_id, dimension, code, entered)
+            for dimension in dimensions
+            for observation_id, code, entered, ok in zip(observations["observation_id"], observations[dimension],
+                                                         coded_ns, given[dimension])
+            if ok
+        ]
+        notes = observations["note"].fillna("") if "note" in observations else pd.Series("", index=observations.index)
+        note_rows = [(f"{o}:note", o, text, entered)
+                     for o, text, entered in zip(observations["observation_id"], notes, coded_ns) if text]
         with self._transaction() as cursor:
-            for session in sessions.itertuples(index=False):
-                cursor.execute(
-                    "INSERT OR IGNORE INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
-                    (session.session_id, session.coder, session.device, session.mode,
-                     None if pd.isna(session.paired_start) else to_ns(session.paired_start),
-                     to_ns(session.started_at), float(session.monotonic_start), float(session.window_seconds),
-                     session.order, None if pd.isna(session.seed) else int(session.seed), session.scheme_hash, ""),
-                )
-            for row in observations.to_dict("records"):
-                before = cursor.connection.total_changes
-                self._insert_observation(
-                    cursor, row["observation_id"], row["session_id"], row["learner"], row["window_start"],
-                    row["window_end"], row["coded_at"], {d: row.get(d) for d in dimensions}, row["scheme_hash"],
-                    None if pd.isna(row.get("slot")) else int(row["slot"]), row.get("clip") or "", row.get("note") or "",
-                )
-                added += cursor.connection.total_changes > before
+            cursor.executemany("INSERT OR IGNORE INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)", session_rows)
+            before = cursor.connection.total_changes
+            cursor.executemany("INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)", observation_rows)
+            added = cursor.connection.total_changes - before
+            cursor.executemany("INSERT OR IGNORE INTO codes VALUES (?,?,?,?,?,NULL)", code_rows)
+            cursor.executemany("INSERT OR IGNORE INTO notes VALUES (?,?,?,?)", note_rows)
         return added
 
     def record_note(self, observation_id: str, text: str, entered_at: datetime) -> str:

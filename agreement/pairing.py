@@ -1,0 +1,170 @@
+"""How two coders' observations are paired into units: the one home of that decision.
+
+Rules, in order:
+1. Live observations of a paired run: same ``paired_start``, ``slot`` and learner.
+2. Other live observations: same learner, window starts at most ``tolerance_s`` apart,
+   one to one, nearest first (a unit never holds two rows of one coder, and all its
+   window starts lie within the tolerance of each other).
+3. Replay observations: same clip.
+Observations left alone are counted as unmatched, per coder.
+"""
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from agreement.tables import (
+    MATCHED_BY_CLIP, MATCHED_BY_SLOT, MATCHED_BY_TIME, UNIT_COLUMNS,
+)
+
+
+@dataclass(frozen=True)
+class PairingReport:
+    """What pairing did with every observation."""
+
+    observations: int
+    units: int
+    paired_observations: int
+    unmatched: int
+    unmatched_by_coder: dict[str, int] = field(default_factory=dict)
+    units_by_method: dict[str, int] = field(default_factory=dict)
+
+    def as_dict(self) -> dict[str, object]:
+        return {
+            "observations": self.observations, "units": self.units,
+            "paired_observations": self.paired_observations, "unmatched": self.unmatched,
+            "unmatched_by_coder": self.unmatched_by_coder, "units_by_method": self.units_by_method,
+        }
+
+
+def unit_id(observation_ids: list[str]) -> str:
+    """Stable unit id: the same observations give the same id on every run."""
+    return hashlib.sha1("|".join(sorted(observation_ids)).encode("utf-8")).hexdigest()[:12]
+
+
+def _newest_per_key(rows: pd.DataFrame, key: list[str]) -> pd.DataFrame:
+    """One row per key and coder: the most recently coded one."""
+    return rows.sort_values("coded_at", kind="stable").drop_duplicates(key + ["coder"], keep="last")
+
+
+def _group_by_key(rows: pd.DataFrame, key: list[str]) -> pd.Series:
+    """Group number of the rows whose key was coded by two or more coders."""
+    rows = _newest_per_key(rows, key)
+    coders = rows.groupby(key, dropna=False, sort=False)["coder"].transform("nunique")
+    grouped = rows[coders >= 2]
+    groups = pd.Series(grouped.groupby(key, dropna=False, sort=False).ngroup().to_numpy(), index=grouped.index)
+    return groups
+
+
+def _candidate_edges(rows: pd.DataFrame, tolerance_ns: int) -> pd.DataFrame:
+    """Pairs of rows (same learner, different coders, starts within tolerance), nearest first."""
+    frame = pd.DataFrame({
+        "row": np.arange(len(rows)),
+        "learner": rows["learner"].astype(str).to_numpy(),
+        "coder": rows["coder"].astype(str).to_numpy(),
+        "start": rows["window_start"].to_numpy(dtype="datetime64[ns]").astype(np.int64),
+    })
+    frame["bucket"] = frame["start"] // max(tolerance_ns, 1)
+    edges = []
+    for shift in (0, 1):
+        right = frame.assign(bucket=frame["bucket"] - shift)
+        merged = frame.merge(right, on=["learner", "bucket"], suffixes=("_a", "_b"))
+        keep = (merged["coder_a"] != merged["coder_b"]) & (merged["row_a"] < merged["row_b"] if shift == 0 else True)
+        edges.append(merged[keep])
+    edges = pd.concat(edges, ignore_index=True)
+    edges["gap"] = (edges["start_a"] - edges["start_b"]).abs()
+    edges = edges[edges["gap"] <= tolerance_ns]
+    edges = edges.assign(first=np.minimum(edges["row_a"], edges["row_b"]), second=np.maximum(edges["row_a"], edges["row_b"]))
+    return edges.drop_duplicates(["first", "second"]).sort_values(["gap", "first", "second"], kind="stable")
+
+
+def _match_by_time(rows: pd.DataFrame, tolerance_ns: int) -> np.ndarray:
+    """Group number per row (-1 when unmatched): greedy nearest-first, one row per coder per group."""
+    group = np.arange(len(rows))
+    members: dict[int, list[int]] = {row: [row] for row in range(len(rows))}
+    coders = rows["coder"].astype(str).to_numpy()
+    starts = rows["window_start"].to_numpy(dtype="datetime64[ns]").astype(np.int64)
+    edges = _candidate_edges(rows, tolerance_ns)
+    for first, second in zip(edges["first"].to_numpy(), edges["second"].to_numpy()):
+        left, right = group[first], group[second]
+        if left == right:
+            continue
+        joined = members[left] + members[right]
+        if len(set(coders[joined])) < len(joined):
+            continue
+        if starts[joined].max() - starts[joined].min() > tolerance_ns:
+            continue
+        for row in members[right]:
+            group[row] = left
+        members[left] = joined
+        del members[right]
+    sizes = np.bincount(group, minlength=len(rows))
+    return np.where(sizes[group] >= 2, group, -1)
+
+
+def pair_observations(observations: pd.DataFrame, dimensions: list[str],
+                      tolerance_s: float) -> tuple[pd.DataFrame, PairingReport]:
+    """UNITS table (agreement/tables.py) and a report from an OBSERVATIONS table.
+
+    ``tolerance_s`` is how far apart two coders' window starts may be to count as one
+    unit when they did not code a paired run (common choice: half a window).
+    """
+    tolerance_ns = int(round(tolerance_s * 1e9))
+    observations = observations.reset_index(drop=True)
+    live = observations[observations["mode"] == "live"]
+    replay = observations[(observations["mode"] == "replay") & (observations["clip"].fillna("") != "")]
+    slotted = live[live["paired_start"].notna() & live["slot"].notna()]
+
+    slot_groups = _group_by_key(slotted, ["paired_start", "slot", "learner"])
+    clip_groups = _group_by_key(replay, ["clip"])
+    loose = live.loc[live.index.difference(slot_groups.index)]
+    time_group = _match_by_time(loose.reset_index(drop=True), tolerance_ns) if len(loose) else np.array([], int)
+    time_groups = pd.Series(time_group, index=loose.index)
+    time_groups = time_groups[time_groups >= 0]
+
+    parts = []
+    for method, groups in ((MATCHED_BY_SLOT, slot_groups), (MATCHED_BY_TIME, time_groups),
+                           (MATCHED_BY_CLIP, clip_groups)):
+        if len(groups):
+            part = observations.loc[groups.index].copy()
+            part["_group"] = method + ":" + groups.astype(str)
+            part["matched_by"] = method
+            parts.append(part)
+    units = _units_table(parts, dimensions)
+    paired = set(units["observation_id"]) if len(units) else set()
+    unmatched = observations[~observations["observation_id"].isin(paired)]
+    report = PairingReport(
+        observations=len(observations), units=int(units["unit"].nunique()) if len(units) else 0,
+        paired_observations=len(units), unmatched=len(unmatched),
+        unmatched_by_coder={str(k): int(v) for k, v in unmatched["coder"].value_counts().sort_index().items()},
+        units_by_method={str(k): int(v) for k, v in
+                         units.drop_duplicates("unit")["matched_by"].value_counts().sort_index().items()},
+    )
+    return units, report
+
+
+def _units_table(parts: list[pd.DataFrame], dimensions: list[str]) -> pd.DataFrame:
+    """Long UNITS table from the grouped observation rows."""
+    columns = list(UNIT_COLUMNS) + list(dimensions)
+    if not parts:
+        return pd.DataFrame({column: pd.Series(dtype="string") for column in columns}).assign(
+            time=pd.Series(dtype="datetime64[ns, UTC]"))
+    rows = pd.concat(parts, ignore_index=True)
+    ids = rows["observation_id"].astype(str)
+    unit_of_group = ids.groupby(rows["_group"]).agg(lambda group: unit_id(list(group)))
+    units = pd.DataFrame({
+        "unit": rows["_group"].map(unit_of_group),
+        "coder": rows["coder"].astype(str),
+        "learner": rows["learner"].astype(str),
+        "session_id": rows["session_id"].fillna("").astype(str),
+        "time": rows["window_start"],
+        "observation_id": ids,
+        "matched_by": rows["matched_by"],
+        "note": rows["note"].fillna("").astype(str) if "note" in rows else "",
+    })
+    for dimension in dimensions:
+        units[dimension] = rows[dimension].astype("string")
+    return units.sort_values(["time", "unit", "coder"], kind="stable").reset_index(drop=True)[columns]

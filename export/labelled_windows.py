@@ -1,0 +1,105 @@
+"""One exported row per unit: identity (pseudonymous), roster attributes, labels, features.
+
+Glues the decisions made elsewhere -- the feature span (spans.py), the features
+(features.py), the winning label (labels.py), the pseudonyms (pseudonyms.py) -- into the
+EXPORTED WINDOWS table of export/tables.py, and decides only what leaves the study:
+roster labels, notes, ids of observations, sessions, devices and clips never do; raw
+learner ids only with ``keep_ids``.
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import asdict, dataclass, field
+
+import pandas as pd
+import pyarrow as pa
+
+from export.features import FEATURES, FeatureFunction, FeatureSettings, compute_features, feature_definitions
+from export.labels import CODERS, REPRESENTATIVE, resolve_labels
+from export.pseudonyms import pseudonymise
+from export.spans import SpanSettings
+from export.tables import (
+    GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, ROSTER_PRIVATE_COLUMNS, SPAN_END, SPAN_START, UNIT,
+    WINDOW_ID,
+)
+
+
+@dataclass(frozen=True)
+class ExportSettings:
+    """Every choice that shapes the export; recorded in the manifest."""
+
+    spans: SpanSettings = field(default_factory=SpanSettings)
+    features: FeatureSettings = field(default_factory=FeatureSettings)
+    policy: str = "first-coder"
+    keep_could_not_observe: bool = False
+    keep_ids: bool = False
+
+    def parameters(self) -> dict:
+        """JSON-ready record of the settings."""
+        return asdict(self)
+
+
+@dataclass(frozen=True)
+class LabelledWindows:
+    """The exported table and which of its columns are features, labels and attributes."""
+
+    table: pd.DataFrame
+    feature_columns: list[str]
+    label_columns: list[str]
+    attribute_columns: list[str]
+    feature_definitions: dict[str, str]
+
+    def rows_per_label(self) -> dict[str, dict[str, int]]:
+        """Per dimension: rows per code (labelled rows only)."""
+        return {
+            dimension: {str(code): int(count) for code, count in self.table[dimension].value_counts().sort_index().items()}
+            for dimension in self.label_columns
+        }
+
+
+def label_windows(
+    events: pd.DataFrame | pa.Table,
+    windows: pd.DataFrame,
+    roster: pd.DataFrame,
+    dimensions: Sequence[str],
+    could_not_observe: Mapping[str, str],
+    key: bytes | None,
+    adjudications: pd.DataFrame | None = None,
+    settings: ExportSettings = ExportSettings(),
+    features: Mapping[str, FeatureFunction] = FEATURES,
+) -> LabelledWindows:
+    """The EXPORTED WINDOWS table (export/tables.py) for ``windows`` over ``events``.
+
+    ``key`` is the study's secret key; it may be None only with ``settings.keep_ids``.
+    """
+    if key is None and not settings.keep_ids:
+        raise ValueError("a secret key is needed unless keep_ids is set")
+    labels = resolve_labels(
+        windows, dimensions, could_not_observe, adjudications, settings.policy, settings.keep_could_not_observe,
+    )
+    chosen = windows.loc[labels[REPRESENTATIVE].to_numpy()].reset_index(drop=True)
+    computed = compute_features(events, chosen, settings.spans, settings.features, features)
+    attribute_columns = [column for column in roster.columns if column not in ROSTER_PRIVATE_COLUMNS]
+    attributes = roster.set_index(LEARNER)[attribute_columns].reindex(chosen[LEARNER].to_numpy()).reset_index(drop=True)
+    if settings.keep_ids:
+        identity = pd.DataFrame({
+            WINDOW_ID: labels[UNIT].astype("string"),
+            LEARNER: chosen[LEARNER].astype("string"),
+            GROUP: chosen[LEARNER].astype("string"),
+            LOG_ID: chosen[LOG_ID].astype("string"),
+        })
+    else:
+        learner = pseudonymise(chosen[LEARNER], key)
+        identity = pd.DataFrame({WINDOW_ID: pseudonymise(labels[UNIT], key), LEARNER: learner, GROUP: learner})
+    label_part = labels[[column for dimension in dimensions for column in (dimension, LABEL_SOURCE_PREFIX + dimension)]]
+    feature_columns = [column for column in computed.columns if column not in (SPAN_START, SPAN_END)]
+    table = pd.concat(
+        [identity, attributes, pd.DataFrame({MODE: chosen[MODE].astype("string"), CODERS: labels[CODERS]}),
+         computed[[SPAN_START, SPAN_END]], label_part.reset_index(drop=True), computed[feature_columns]],
+        axis=1,
+    )
+    table = table.sort_values([SPAN_START, WINDOW_ID], kind="stable").reset_index(drop=True)
+    return LabelledWindows(
+        table=table, feature_columns=feature_columns, label_columns=list(dimensions),
+        attribute_columns=attribute_columns, feature_definitions=feature_definitions(features),
+    )

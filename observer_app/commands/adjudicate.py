@@ -1,0 +1,47 @@
+"""``fieldmark adjudicate STUDY FILE.csv``: record a lead's decisions on disagreements.
+
+The CSV has columns unit, dimension, code, adjudicator, reason; units are the ids
+``fieldmark agree STUDY --disagreements OUT.csv`` lists.  Every row is checked against
+the scheme and the study's units before any is stored, so a bad file stores nothing.
+Records are appended; the newest per unit and dimension wins.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+import pandas as pd
+
+from agreement.disagreements import read_adjudications
+from observer_app.commands.agree import load_study_units
+from observer_app.store import Store
+from sync.errors import InputError
+
+
+def add_parser(subparsers: argparse._SubParsersAction) -> None:
+    parser = subparsers.add_parser(
+        "adjudicate", help="record adjudicated codes for disagreeing units",
+        description="Append adjudications (unit, dimension, code, adjudicator, reason) to the study.")
+    parser.add_argument("study", type=Path, help="the study folder")
+    parser.add_argument("file", type=Path, help="CSV with columns unit, dimension, code, adjudicator, reason")
+    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    parser.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    if not args.study.is_dir():
+        raise InputError(args.study, None, "not a study folder")
+    units, dimensions, _, store_path = load_study_units(args.study)
+    decisions = read_adjudications(args.file, dimensions, set(units["unit"].astype(str)))
+    at = pd.Timestamp.now(tz="UTC").to_pydatetime()
+    with Store(store_path) as store:
+        for row in decisions.itertuples(index=False):
+            store.record_adjudication(unit=row.unit, dimension=row.dimension, code=row.code,
+                                      adjudicator=row.adjudicator, at=at, reason=row.reason)
+    if args.json:
+        sys.stdout.write(json.dumps({"study": str(args.study), "recorded": len(decisions)}) + "\n")
+    else:
+        sys.stdout.write(f"Recorded {len(decisions)} adjudications in {args.study}\n")
+    return 0

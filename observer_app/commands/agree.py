@@ -1,0 +1,235 @@
+"""``fieldmark agree STUDY|CSV``: inter-rater reliability per dimension, pair and session.
+
+A study folder is paired with agreement.pairing (tolerance: half a window); a CSV is
+long format (agreement.long_format).  Human output is a table; ``--json`` prints one
+object whose keys are listed in agreement/tables.py.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import sys
+import tempfile
+from pathlib import Path
+
+import pandas as pd
+from tqdm import tqdm
+
+from agreement.bootstrap import DEFAULT_RESAMPLES
+from agreement.dimensions import LEVELS, Dimension
+from agreement.disagreements import list_disagreements
+from agreement.figures import Agreement, agreement_json, assess_agreement, estimate_text, headline_kappa
+from agreement.long_format import read_long_csv
+from agreement.pairing import pair_observations
+from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
+from agreement.views import (
+    CERTIFICATION_KAPPA, CERTIFICATION_PAIRS, ROLLING_WINDOW, by_pair, by_session, certify, rolling_kappa,
+    units_of_coders,
+)
+from observer_app.scheme import Scheme
+from observer_app.store import Store
+from observer_app.study import load_study
+from sync.errors import InputError
+
+
+def add_parser(subparsers: argparse._SubParsersAction) -> None:
+    parser = subparsers.add_parser(
+        "agree", help="inter-rater reliability per dimension, coder pair and session",
+        description="Kappa, alpha and friends with 95 % cluster-bootstrap intervals (resampling learners).")
+    parser.add_argument("source", metavar="STUDY|CSV", help="a study folder, or a long-format CSV "
+                        "(unit, coder, one column per dimension, optional learner)")
+    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    parser.add_argument("--level", choices=LEVELS, help="CSV only: level of measurement (default nominal)")
+    parser.add_argument("--order", help="CSV only: ordered codes, lowest first, comma-separated")
+    parser.add_argument("--coders", help="only these coders, comma-separated (e.g. ann,ben)")
+    parser.add_argument("--by", choices=("pair", "session"), help="also give figures per coder pair or session")
+    parser.add_argument("--report", type=Path, help="write a self-contained HTML reliability report here")
+    parser.add_argument("--disagreements", type=Path, help="write the disagreeing pairs to this CSV")
+    parser.add_argument("--include-could-not-observe", action="store_true",
+                        help="treat the could-not-observe code as a code (default: leave it out)")
+    parser.add_argument("--certify", metavar="REFERENCE", help="certify every other coder against this coder")
+    parser.add_argument("--certify-kappa", type=float, default=CERTIFICATION_KAPPA,
+                        help=f"kappa a coder must reach on every dimension (default {CERTIFICATION_KAPPA})")
+    parser.add_argument("--certify-pairs", type=int, default=CERTIFICATION_PAIRS,
+                        help=f"paired observations needed per dimension (default {CERTIFICATION_PAIRS})")
+    parser.add_argument("--rolling-window", type=int, default=ROLLING_WINDOW,
+                        help=f"units per rolling-kappa window (default {ROLLING_WINDOW})")
+    parser.add_argument("--resamples", type=int, default=DEFAULT_RESAMPLES, help="bootstrap resamples (default 1000)")
+    parser.add_argument("--seed", type=int, default=1, help="bootstrap seed (default 1)")
+    parser.set_defaults(run=run)
+
+
+def scheme_dimensions(scheme: Scheme) -> list[Dimension]:
+    """agreement's view of the study's code scheme."""
+    dimensions = []
+    for dimension in scheme.dimensions:
+        dimensions.append(Dimension(name=dimension.name, level=dimension.level,
+                                    codes=tuple(code.name for code in dimension.codes),
+                                    could_not_observe=dimension.could_not_observe or None))
+    return dimensions
+
+
+def load_study_units(path: Path) -> tuple[pd.DataFrame, list[Dimension], dict[str, object], Path]:
+    """UNITS, dimensions and pairing report of a study folder, and its store's path."""
+    study = load_study(path)
+    dimensions = scheme_dimensions(study.scheme)
+    names = [dimension.name for dimension in dimensions]
+    with Store(study.store_path) as store:
+        observations = store.observations(names)
+    units, report = pair_observations(observations, names, tolerance_s=study.window_seconds / 2.0)
+    return units, dimensions, report.as_dict(), study.store_path
+
+
+def load_units(args: argparse.Namespace) -> tuple[pd.DataFrame, list[Dimension], dict[str, object] | None, Path | None]:
+    """Units from a study folder or a CSV, with the boundary checks of the options."""
+    source = Path(args.source)
+    if source.is_dir():
+        if args.level or args.order:
+            raise InputError(None, "--level/--order", "only for a CSV; a study's scheme sets each dimension's "
+                                                      "level and code order")
+        return load_study_units(source)
+    if not source.exists():
+        raise InputError(source, None, "no such study folder or CSV file")
+    order = [code.strip() for code in args.order.split(",")] if args.order else None
+    units, dimensions = read_long_csv(source, args.level, order)
+    return units, dimensions, None, None
+
+
+def select_coders(units: pd.DataFrame, coders_option: str | None) -> pd.DataFrame:
+    if not coders_option:
+        return units
+    wanted = tuple(name.strip() for name in coders_option.split(",") if name.strip())
+    known = set(units["coder"].astype(str))
+    for name in wanted:
+        if name not in known:
+            raise InputError(None, "--coders", f"unknown coder {name!r}; coders are {', '.join(sorted(known))}")
+    if len(wanted) < 2:
+        raise InputError(None, "--coders", "name at least two coders, e.g. --coders ann,ben")
+    return units_of_coders(units, wanted)
+
+
+def write_atomically(path: Path, text: str) -> None:
+    """Write to a temporary name beside ``path``, then rename: never a half-written file."""
+    if not path.parent.exists():
+        raise InputError(path, None, "the folder does not exist")
+    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
+            stream.write(text)
+        mask = os.umask(0)
+        os.umask(mask)
+        os.chmod(temporary, 0o666 & ~mask)  # mkstemp makes the file private; give it the usual mode
+        os.replace(temporary, path)
+    except BaseException:
+        Path(temporary).unlink(missing_ok=True)
+        raise
+
+
+def _clean(value: object) -> object:
+    """JSON-safe: NaN/inf become null."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {key: _clean(item) for key, item in value.items()}
+    if isinstance(value, list):
+        return [_clean(item) for item in value]
+    return value
+
+
+def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: dict[str, Agreement],
+                certification: dict[str, list] | None, source: str) -> None:
+    out = sys.stdout
+    out.write(f"Agreement for {source}: {agreement.units} units, {agreement.clusters} learners, "
+              f"coders {', '.join(agreement.coders)}\n")
+    out.write(f"95 % intervals: {agreement.resamples} bootstrap resamples of learners, seed {agreement.seed}\n")
+    if pairing:
+        out.write(f"Pairing: {pairing['observations']} observations, {pairing['units']} units, "
+                  f"{pairing['unmatched']} unmatched {pairing['unmatched_by_coder']}\n")
+    for result in agreement.dimensions.values():
+        out.write(f"\n{result.name} ({result.level}, {result.units} units) -- Landis & Koch: {result.band}\n")
+        width = max(len(label) for label in FIGURE_LABELS.values())
+        for key in FIGURE_KEYS:
+            if result.figures[key].value is not None or key in ("cohen_kappa", "fleiss_kappa", "alpha"):
+                shown = estimate_text(result.figures[key])
+                if key == "cohen_kappa" and len(result.coders) != 2:
+                    shown += " (needs exactly two coders: use --coders A,B or --by pair)"
+                out.write(f"  {FIGURE_LABELS[key]:<{width}}  {shown}\n")
+        for code, estimate in result.per_code_kappa.items():
+            out.write(f"  {'kappa, ' + code + ' vs rest':<{width}}  {estimate_text(estimate)}\n")
+        could_not = result.could_not_observe
+        if could_not.code:
+            out.write(f"  could not observe ({could_not.code}): {could_not.codes} codes, "
+                      f"{could_not.units_one_coder_could_not} units where only one coder could not; "
+                      f"{'included' if could_not.included else 'left out'}\n")
+    if views:
+        out.write("\nKappa by view\n")
+        for label, view in views.items():
+            cells = ", ".join(f"{name} {estimate_text(headline_kappa(item.figures))}"
+                              for name, item in view.dimensions.items())
+            out.write(f"  {label}: {cells}\n")
+    if certification is not None:
+        out.write("\nCertification\n")
+        for coder, checks in certification.items():
+            verdict = "certified" if all(check.passes for check in checks) else "not certified"
+            details = ", ".join(f"{c.dimension} kappa {estimate_text(c.kappa)} on {c.pairs} pairs "
+                                f"({'pass' if c.passes else 'fail'})" for c in checks)
+            out.write(f"  {coder}: {verdict} -- {details}\n")
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.resamples < 1:
+        raise InputError(None, "--resamples", "must be at least 1 (1000 or more for a reported interval)")
+    if args.rolling_window < 2:
+        raise InputError(None, "--rolling-window", "must be at least 2")
+    units, dimensions, pairing, store_path = load_units(args)
+    units = select_coders(units, args.coders)
+    include = args.include_could_not_observe
+    if args.certify and args.certify not in set(units["coder"].astype(str)):
+        raise InputError(None, "--certify", f"unknown reference coder {args.certify!r}")
+    if args.by == "session" and not (units["session_id"].astype(str) != "").any():
+        raise InputError(args.source, "--by session", "no session ids; add a session_id column to the CSV")
+
+    agreement = assess_agreement(units, dimensions, args.resamples, args.seed, include)
+    views: dict[str, Agreement] = {}
+    if args.by == "pair":
+        pairs = by_pair(units, dimensions, args.resamples, args.seed, include)
+        views = {f"{a} + {b}": result for (a, b), result in tqdm(pairs.items(), desc="pairs", disable=None,
+                                                                 file=sys.stderr)}
+    elif args.by == "session":
+        views = dict(by_session(units, dimensions, args.resamples, args.seed, include))
+    certification = (certify(units, dimensions, args.certify, args.resamples, args.seed, args.certify_kappa,
+                             args.certify_pairs, include) if args.certify else None)
+
+    if args.disagreements:
+        adjudications = None
+        if store_path is not None:
+            with Store(store_path) as store:
+                adjudications = store.adjudications()
+        table = list_disagreements(units, dimensions, adjudications)
+        write_atomically(args.disagreements, table.to_csv(index=False))
+    if args.report:
+        from agreement.report import render_report  # matplotlib: only loaded when a report is asked for
+
+        rolling = {d.name: rolling_kappa(units, d, args.rolling_window, include) for d in dimensions}
+        write_atomically(args.report, render_report(f"Reliability report: {Path(args.source).name}", agreement,
+                                                    rolling, args.rolling_window, pairing, views))
+
+    if args.json:
+        document = {
+            "source": str(args.source), "coders": list(agreement.coders), "units": agreement.units,
+            "clusters": agreement.clusters, "resamples": agreement.resamples, "seed": agreement.seed,
+            "confidence": agreement.confidence, "pairing": pairing,
+            "dimensions": agreement_json(agreement),
+            "by": ([{args.by: label, "dimensions": agreement_json(view)} for label, view in views.items()]
+                   if args.by else None),
+            "certification": ({coder: {"certified": all(c.passes for c in checks),
+                                       "dimensions": {c.dimension: {"pairs": c.pairs, "kappa": c.kappa.as_dict(),
+                                                                    "passes": c.passes} for c in checks}}
+                               for coder, checks in certification.items()} if certification is not None else None),
+        }
+        sys.stdout.write(json.dumps(_clean(document)) + "\n")
+    else:
+        print_table(agreement, pairing, views, certification, str(args.source))
+    return 0

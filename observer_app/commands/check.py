@@ -1,0 +1,51 @@
+"""``fieldmark check WINDOWS``: grouped cross-validated detector check of exported windows."""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from export.detector_check import DEFAULT_FOLDS, check_windows
+from export.writer import read_manifest
+from sync.errors import InputError
+
+
+def add_parser(subparsers: argparse._SubParsersAction) -> None:
+    parser = subparsers.add_parser(
+        "check", help="grouped cross-validated detector check of exported windows",
+        description="Fit a plain detector per dimension with folds of whole learners and report "
+                    "Cohen's kappa and AUC beside majority and stratified baselines.",
+    )
+    parser.add_argument("windows", type=Path, metavar="WINDOWS", help="file written by fieldmark export")
+    parser.add_argument("--dimension", action="append", metavar="D", help="check only this dimension (repeatable)")
+    parser.add_argument("--folds", type=int, default=DEFAULT_FOLDS, help="folds of learners (default %(default)s)")
+    parser.add_argument("--seed", type=int, default=0, help="seed of the fold assignment (default %(default)s)")
+    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    parser.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.folds < 2:
+        raise InputError(None, "--folds", "needs at least 2 folds")
+    labels = read_manifest(args.windows)["label_columns"]
+    for dimension in args.dimension or []:
+        if dimension not in labels:
+            raise InputError(args.windows, dimension, f"no such dimension; the file has {', '.join(labels)}")
+    results = check_windows(args.windows, args.dimension, args.folds, args.seed)
+    if args.json:
+        payload = {"windows": str(args.windows), "dimensions": {result.dimension: result.as_dict() for result in results}}
+        sys.stdout.write(json.dumps(payload) + "\n")
+        return 0
+    print(f"{'dimension':<16}{'rows':>7}{'learners':>10}{'kappa':>8}{'AUC':>7}   baseline kappa/AUC (majority, stratified)")
+    for result in results:
+        print(
+            f"{result.dimension:<16}{result.rows:>7}{result.learners:>10}{_figure(result.model.kappa):>8}"
+            f"{_figure(result.model.auc):>7}   {_figure(result.majority_baseline.kappa)}/{_figure(result.majority_baseline.auc)}, "
+            f"{_figure(result.stratified_baseline.kappa)}/{_figure(result.stratified_baseline.auc)}"
+        )
+    return 0
+
+
+def _figure(value: float | None) -> str:
+    return "-" if value is None else f"{value:.2f}"

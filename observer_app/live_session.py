@@ -1,0 +1,618 @@
+"""The live coding session: every decision the observing screen shows, with no Qt in sight.
+
+A ``LiveSession`` owns the round-robin schedule, the observation store and a clock
+(observer_app/session_clock.py).  It decides whose turn it is, how much time is
+left, what a key press means, when a window ends and what gets written; the Qt view
+only listens (``add_listener``), renders ``state()`` and forwards keys.
+
+Durability rule: a code counts as saved only after ``Store.record_code`` returned,
+i.e. after SQLite committed it with synchronous=FULL.  If the write fails the code is
+not shown and the state carries the error.
+
+Time: the session measures time in *elapsed seconds on the schedule's grid*, read from
+the monotonic clock (it never jumps).  The grid's zero is the session start (solo)
+or the shared start time both coders typed (paired), so two paired devices count the
+same slots.  Window bounds written to the store are that zero plus the grid offsets;
+entry times are the device's wall clock at the moment of the key press.
+
+Rules this module decides (one home each):
+- Solo: the turn ends as soon as every dimension is coded, or at the window end.
+  Paired: the turn ends on the slot boundary only.
+- A turn that ends with no row (nothing coded, no note) is written as a no-code row.
+  Turns that ended before this coder joined a paired run are not written.
+- Pause, solo: time stops; on resume the same learner gets a fresh full window.
+  Pause, paired: the shared grid runs on (windows that pass become no-code rows);
+  only coding is blocked, so both coders stay on the same learner.
+- Marking the current learner absent ends their turn at once in solo mode; in paired
+  mode the turn runs to the boundary so both devices stay aligned.
+- Undo retracts the newest code still in effect with a retraction row (code NULL)
+  that supersedes it; nothing is deleted.  Re-coding a dimension in the same window
+  writes a correction that supersedes the earlier code.
+- Resume: an interrupted session (no end row) continues on the same grid.  Elapsed
+  time comes from the monotonic clock when it is still comparable with the wall clock
+  (same boot, no suspend), else from wall-clock time since the session started.
+  Paired: the slot follows from elapsed time; windows missed while the app was down
+  become no-code rows.  Solo: the downtime counts as a pause; an unfinished window
+  continues, a finished one is followed by the next learner.
+"""
+from __future__ import annotations
+
+import sqlite3
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta
+
+import pandas as pd
+
+from observer_app.schedule import RoundRobin, Turn
+from observer_app.session_clock import Clock
+from observer_app.store import Store, new_id
+from observer_app.study import Study
+from observer_app.study_overview import code_counts, window_counts
+
+CHANGED = "changed"  # anything a listener should redraw
+TICK = "tick"  # only the time moved
+# Monotonic and wall-clock elapsed time may differ by this much and still be "comparable";
+# a reboot (monotonic restarts) or a suspend (monotonic pauses) exceeds it.
+COMPARABLE_TOLERANCE_SECONDS = 5.0
+
+Listener = Callable[[str], None]
+
+
+@dataclass
+class _Window:
+    """The current turn as the session sees it: its row in the store and the codes in effect."""
+
+    turn: Turn
+    observation_id: str
+    has_row: bool = False
+    coded: dict[str, tuple[str, str]] = field(default_factory=dict)  # dimension -> (code, code_id)
+
+
+@dataclass(frozen=True)
+class _UndoEntry:
+    code_id: str
+    window: _Window
+    dimension: str
+    code: str
+
+
+@dataclass(frozen=True)
+class SessionState:
+    """Everything the observing screen shows, at one moment."""
+
+    session_id: str
+    learner: str | None
+    label: str  # roster label of the learner whose turn it is ("" when nobody is present)
+    next_label: str  # roster label of who comes next ("" when nobody)
+    slot: int
+    round: int
+    window_seconds: float
+    time_left: float  # seconds left in the window; before a paired start, seconds until it
+    waiting: bool  # paired run whose shared start time is still ahead
+    paused: bool
+    ended: bool
+    paired: bool
+    coded: dict[str, str]  # dimension -> code in effect in this window
+    missing: tuple[str, ...]  # dimensions not coded yet in this window, scheme order
+    saved_count: int  # code rows this session has made durable (corrections included)
+    last_saved_at: datetime | None
+    last_code_id: str | None  # the newest code row made durable (its id in the store)
+    absent: tuple[str, ...]  # learner ids currently marked absent
+    message: str  # what the last action did, for the status line
+    error: str | None  # a failed write: shown until the next successful one
+
+
+@dataclass(frozen=True)
+class SessionSummary:
+    """End-of-session figures, read back from the store (so they show what is durable).
+
+    counts: learner, dimension, code, count -- codes in effect per learner.
+    per_learner: learner, windows, coded_windows, missed_windows.
+    """
+
+    session_id: str
+    windows: int
+    coded_windows: int
+    missed_windows: int  # windows that ended with nothing coded (no-code rows)
+    sync_marks: int
+    counts: pd.DataFrame
+    per_learner: pd.DataFrame
+
+
+@dataclass(frozen=True)
+class InterruptedSession:
+    """A live session with no end row: the app offers to resume it."""
+
+    session_id: str
+    coder: str
+    device: str
+    started_at: datetime
+    paired_start: datetime | None
+    codes_saved: int
+
+
+def elapsed_since_start(monotonic_start: float, started_at: datetime, clock: Clock) -> float:
+    """Seconds since a session started: monotonic when still comparable, else wall clock.
+
+    Why: the monotonic clock is immune to wall-clock corrections but restarts on reboot
+    and stops during suspend; then only the wall clock knows how much time passed.
+    """
+    by_monotonic = clock.monotonic() - monotonic_start
+    by_wall = (clock.now_utc() - started_at).total_seconds()
+    if by_monotonic >= 0 and abs(by_monotonic - by_wall) <= COMPARABLE_TOLERANCE_SECONDS:
+        return by_monotonic
+    return by_wall
+
+
+def _session_codes(store: Store, session_id: str) -> pd.DataFrame:
+    """codes_log rows (oldest first) of one session's observations."""
+    codes = store.codes_log()
+    observations = store.observations([])
+    ids = observations.loc[observations["session_id"] == session_id, "observation_id"].astype(str)
+    return codes[codes["observation_id"].isin(set(ids))]
+
+
+def find_interrupted_session(study: Study, store: Store) -> InterruptedSession | None:
+    """The newest live session of this scheme without an end row, or None."""
+    sessions = store.sessions()
+    open_sessions = sessions[(sessions["mode"] == "live") & sessions["ended_at"].isna()
+                             & (sessions["scheme_hash"] == study.scheme.content_hash)]
+    if open_sessions.empty:
+        return None
+    row = open_sessions.iloc[-1]
+    paired_start = None if pd.isna(row["paired_start"]) else row["paired_start"].to_pydatetime()
+    return InterruptedSession(
+        session_id=str(row["session_id"]), coder=str(row["coder"]), device=str(row["device"]),
+        started_at=row["started_at"].to_pydatetime(), paired_start=paired_start,
+        codes_saved=len(_session_codes(store, str(row["session_id"]))),
+    )
+
+
+class LiveSession:
+    """One coder's live session.  Create with ``start`` or ``resume``."""
+
+    def __init__(self, study: Study, store: Store, clock: Clock, *, session_id: str, coder: str, device: str,
+                 schedule: RoundRobin, origin_wall: datetime, origin_monotonic: float, start_elapsed: float) -> None:
+        self.study = study
+        self.store = store
+        self.clock = clock
+        self.session_id = session_id
+        self.coder = coder
+        self.device = device
+        self.schedule = schedule
+        self._origin_wall = origin_wall
+        self._origin_monotonic = origin_monotonic
+        self._start_elapsed = start_elapsed
+        self._labels = dict(zip(study.roster["learner"].astype(str), study.roster["label"].astype(str)))
+        self._key_map = study.scheme.key_map()
+        self._dimensions = study.scheme.dimension_names
+        self._window = _Window(schedule.current, new_id())
+        self._undo: list[_UndoEntry] = []
+        self._listeners: list[Listener] = []
+        self._recorded_slots: set[int] = set()
+        self._paused = False
+        self._paused_time_left = 0.0
+        self._ended = False
+        self._saved_count = 0
+        self._last_saved_at: datetime | None = None
+        self._last_code_id: str | None = None
+        self._message = ""
+        self._error: str | None = None
+
+    # -- creation ----------------------------------------------------------------------
+    @classmethod
+    def start(cls, study: Study, store: Store, clock: Clock, *, coder: str, device: str,
+              paired_start: datetime | None = None, present: Iterable[str] | None = None) -> LiveSession:
+        """Write the session row and begin at slot 0 (solo) or on the shared grid (paired)."""
+        learners = list(study.roster["learner"].astype(str))
+        chosen = set(learners if present is None else present)
+        present_list = [learner for learner in learners if learner in chosen]
+        started_at, monotonic_start = clock.now_utc(), clock.monotonic()
+        session_id = store.start_session(
+            coder=coder, device=device, mode="live", started_at=started_at, monotonic_start=monotonic_start,
+            window_seconds=study.window_seconds, order=study.order, seed=study.seed,
+            scheme_hash=study.scheme.content_hash, paired_start=paired_start, present=present_list,
+        )
+        origin_wall = paired_start or started_at
+        start_elapsed = (started_at - origin_wall).total_seconds()
+        schedule = RoundRobin(learners, study.window_seconds, order=study.order, seed=study.seed,
+                              paired=paired_start is not None, present=present_list)
+        session = cls(study, store, clock, session_id=session_id, coder=coder, device=device, schedule=schedule,
+                      origin_wall=origin_wall, origin_monotonic=monotonic_start - start_elapsed,
+                      start_elapsed=start_elapsed)
+        session._message = "Session started"
+        session._catch_up()
+        return session
+
+    @classmethod
+    def reopen(cls, study: Study, store: Store, clock: Clock, session_id: str) -> LiveSession:
+        """Continue an interrupted session on its own grid (see the module docstring)."""
+        sessions = store.sessions()
+        row = sessions[sessions["session_id"] == session_id].iloc[0]
+        started_at = row["started_at"].to_pydatetime()
+        paired_start = None if pd.isna(row["paired_start"]) else row["paired_start"].to_pydatetime()
+        origin_wall = paired_start or started_at
+        start_elapsed = (started_at - origin_wall).total_seconds()
+        now_elapsed = start_elapsed + elapsed_since_start(float(row["monotonic_start"]), started_at, clock)
+        learners = list(study.roster["learner"].astype(str))
+        present = [learner for learner in str(row["present"]).split("\n") if learner]
+        seed = 0 if pd.isna(row["seed"]) else int(row["seed"])
+        schedule = RoundRobin(learners, float(row["window_seconds"]), order=str(row["order"]), seed=seed,
+                              paired=paired_start is not None, present=present)
+        session = cls(study, store, clock, session_id=session_id, coder=str(row["coder"]), device=str(row["device"]),
+                      schedule=schedule, origin_wall=origin_wall, origin_monotonic=clock.monotonic() - now_elapsed,
+                      start_elapsed=start_elapsed)
+        session._replay(now_elapsed)
+        session._message = f"Resumed at slot {session.schedule.current.slot + 1}"
+        return session
+
+    def _replay(self, now_elapsed: float) -> None:
+        """Rebuild the schedule and the current window from what the store holds."""
+        observations = self.store.observations(self._dimensions)
+        observations = observations[observations["session_id"] == self.session_id].sort_values("slot", kind="stable")
+        absences = self.store.absences()
+        absences = absences[absences["session_id"] == self.session_id]
+        events = [((at.to_pydatetime() - self._origin_wall).total_seconds(), str(learner), str(state))
+                  for at, learner, state in zip(absences["at"], absences["learner"], absences["state"])]
+        codes = _session_codes(self.store, self.session_id)
+        self._saved_count = len(codes)
+        if len(codes):
+            self._last_saved_at = codes["entered_at"].iloc[-1].to_pydatetime()
+        latest = codes.groupby(["observation_id", "dimension"], sort=False).tail(1)
+        code_ids = {(o, d): (c, i) for o, d, c, i in zip(latest["observation_id"], latest["dimension"],
+                                                         latest["code"], latest["code_id"]) if c is not None}
+        rows = {int(slot): str(oid) for slot, oid in zip(observations["slot"], observations["observation_id"])}
+        self._recorded_slots = set(rows)
+
+        def apply_until(moment: float) -> None:
+            while events and events[0][0] <= moment:
+                _, learner, state = events.pop(0)
+                (self.schedule.mark_absent if state == "absent" else self.schedule.mark_returned)(learner)
+
+        ended: list[Turn] = []
+        if self.schedule.paired:
+            while events and events[0][0] <= now_elapsed:
+                moment, learner, state = events.pop(0)
+                ended += self.schedule.advance_to(moment)
+                (self.schedule.mark_absent if state == "absent" else self.schedule.mark_returned)(learner)
+            ended += self.schedule.advance_to(now_elapsed)
+        else:
+            for slot, start in zip(observations["slot"], observations["window_start"]):
+                moment = (start.to_pydatetime() - self._origin_wall).total_seconds()
+                apply_until(moment)
+                while self.schedule.current.slot < int(slot):
+                    self.schedule.finish_early(moment)
+            if rows:
+                last = observations.iloc[-1]
+                last_learner = str(last["learner"])
+                finished_at = None
+                if all(pd.notna(last[d]) for d in self._dimensions):
+                    finished_at = (last["coded_at"].to_pydatetime() - self._origin_wall).total_seconds()
+                gone = [moment for moment, learner, state in events if learner == last_learner and state == "absent"]
+                if gone:
+                    finished_at = gone[0] if finished_at is None else min(finished_at, gone[0])
+                if finished_at is not None:
+                    apply_until(finished_at)
+                    self.schedule.finish_early(finished_at)
+            apply_until(float("inf"))
+            self.schedule.restart_at(now_elapsed)
+        current = self.schedule.current
+        self._window = _Window(current, rows.get(current.slot, new_id()))
+        if current.slot in rows:
+            self._window.has_row = True
+            self._window.coded = {d: code_ids[(rows[current.slot], d)] for d in self._dimensions
+                                  if (rows[current.slot], d) in code_ids}
+        for turn in ended:
+            self._close(turn, None)
+
+    # -- listening -----------------------------------------------------------------------
+    def add_listener(self, listener: Listener) -> None:
+        self._listeners.append(listener)
+
+    def _emit(self, kind: str) -> None:
+        for listener in list(self._listeners):
+            listener(kind)
+
+    # -- time ----------------------------------------------------------------------------
+    @property
+    def elapsed(self) -> float:
+        """Seconds on the schedule's grid (negative before a paired start)."""
+        return self.clock.monotonic() - self._origin_monotonic
+
+    def _wall(self, elapsed: float) -> datetime:
+        return self._origin_wall + timedelta(seconds=elapsed)
+
+    def tick(self) -> None:
+        """Called often by the view's timer: close windows whose time is up."""
+        if self._ended:
+            return
+        slot = self.schedule.current.slot
+        self._catch_up()
+        self._emit(CHANGED if self.schedule.current.slot != slot else TICK)
+
+    def _catch_up(self) -> None:
+        if self._ended or (self._paused and not self.schedule.paired):
+            return
+        ended = self.schedule.advance_to(self.elapsed)
+        if not ended:
+            return
+        window = self._window
+        for turn in ended:
+            self._close(turn, window if turn.slot == window.turn.slot else None)
+        self._window = _Window(self.schedule.current, new_id())
+
+    def _close(self, turn: Turn, window: _Window | None) -> None:
+        """A turn ended: write a no-code row unless it has a row or was before this coder joined."""
+        if turn.learner is None or turn.end <= self._start_elapsed or turn.slot in self._recorded_slots:
+            return
+        if window is not None and window.has_row:
+            return
+        try:
+            self.store.record_no_code(session_id=self.session_id, learner=turn.learner,
+                                      window_start=self._wall(turn.start), window_end=self._wall(turn.end),
+                                      scheme_hash=self.study.scheme.content_hash, slot=turn.slot,
+                                      observation_id=None if window is None else window.observation_id)
+        except sqlite3.Error as error:
+            self._error = f"NOT SAVED: empty window of {self._labels.get(turn.learner, turn.learner)} ({error})"
+
+    def _finish_turn(self) -> None:
+        """Solo: end the current turn now and move to the next learner."""
+        window = self._window
+        ended = self.schedule.finish_early(self.elapsed)
+        self._close(ended, window)
+        self._window = _Window(self.schedule.current, new_id())
+
+    # -- coding --------------------------------------------------------------------------
+    def _blocked(self) -> str | None:
+        if self._ended:
+            return "The session has ended"
+        if self._paused:
+            return "Paused: press Space to go on"
+        if self.elapsed < 0:
+            return "The shared start time has not come yet"
+        if self._window.turn.learner is None:
+            return "Nobody is present to observe"
+        return None
+
+    def press(self, key: str) -> bool:
+        """A scheme shortcut key -> code it; returns whether the key meant a code."""
+        target = self._key_map.get(key.lower())
+        if target is None:
+            return False
+        self.code(*target)
+        return True
+
+    def code(self, dimension: str, code: str) -> bool:
+        """Code one dimension of the current window; True once it is durable."""
+        self._catch_up()
+        reason = self._blocked()
+        if reason:
+            self._message = reason
+            self._emit(CHANGED)
+            return False
+        window = self._window
+        previous = window.coded.get(dimension)
+        if previous is not None and previous[0] == code:
+            return True
+        code_id = self._write(window, dimension, code, supersedes=None if previous is None else previous[1])
+        if code_id is None:
+            return False
+        if previous is not None:
+            self._undo = [entry for entry in self._undo if entry.code_id != previous[1]]
+        window.coded[dimension] = (code, code_id)
+        self._undo.append(_UndoEntry(code_id, window, dimension, code))
+        label = self.study.scheme.dimension(dimension).code(code).label
+        self._message = f"Saved {dimension}: {label}" + (" (corrected)" if previous else "")
+        if not self.schedule.paired and not self.missing:
+            self._finish_turn()
+        self._emit(CHANGED)
+        return True
+
+    def code_remaining_not_observed(self) -> bool:
+        """Every dimension still missing in this window gets its could-not-observe code."""
+        window = self._window
+        done = True
+        for dimension in self.missing:
+            if self._window is not window:
+                break
+            done = self.code(dimension, self.study.scheme.dimension(dimension).could_not_observe) and done
+        return done
+
+    def _write(self, window: _Window, dimension: str, code: str | None, supersedes: str | None) -> str | None:
+        turn = window.turn
+        entered_at = self.clock.now_utc()
+        try:
+            code_id = self.store.record_code(
+                observation_id=window.observation_id, session_id=self.session_id, learner=turn.learner,
+                window_start=self._wall(turn.start), window_end=self._wall(turn.end), dimension=dimension,
+                code=code, entered_at=entered_at, scheme_hash=self.study.scheme.content_hash, slot=turn.slot,
+                supersedes=supersedes,
+            )
+        except sqlite3.Error as error:
+            self._error = f"NOT SAVED: {dimension} ({error})"
+            self._emit(CHANGED)
+            return None
+        window.has_row = True
+        self._error = None
+        self._saved_count += 1
+        self._last_saved_at = entered_at
+        self._last_code_id = code_id
+        return code_id
+
+    def undo(self) -> bool:
+        """Retract the newest code still in effect (a retraction row; nothing is deleted)."""
+        if self._ended or not self._undo:
+            self._message = "Nothing to undo"
+            self._emit(CHANGED)
+            return False
+        entry = self._undo[-1]
+        if self._write(entry.window, entry.dimension, None, supersedes=entry.code_id) is None:
+            return False
+        self._undo.pop()
+        entry.window.coded.pop(entry.dimension, None)
+        learner = entry.window.turn.learner or ""
+        where = "" if entry.window is self._window else f" for {self._labels.get(learner, learner)}"
+        self._message = f"Undone {entry.dimension}: {entry.code}{where}"
+        self._emit(CHANGED)
+        return True
+
+    def note(self, text: str) -> bool:
+        """Attach a free-text note to the current window (creating its row if it has none)."""
+        text = text.strip()
+        reason = None if text else "Empty note not saved"
+        if reason is None and (self._ended or self._window.turn.learner is None):
+            reason = "No window to attach the note to"
+        if reason:
+            self._message = reason
+            self._emit(CHANGED)
+            return False
+        window = self._window
+        turn = window.turn
+        try:
+            if not window.has_row:
+                self.store.record_no_code(session_id=self.session_id, learner=turn.learner,
+                                          window_start=self._wall(turn.start), window_end=self._wall(turn.end),
+                                          scheme_hash=self.study.scheme.content_hash, slot=turn.slot,
+                                          observation_id=window.observation_id)
+                window.has_row = True
+            self.store.record_note(window.observation_id, text, self.clock.now_utc())
+        except sqlite3.Error as error:
+            self._error = f"NOT SAVED: note ({error})"
+            self._emit(CHANGED)
+            return False
+        self._error = None
+        self._message = "Note saved"
+        self._emit(CHANGED)
+        return True
+
+    # -- presence, pause, sync -------------------------------------------------------------
+    def mark_absent(self, learner: str | None = None) -> bool:
+        """Skip a learner (default: the current one) from their next turn on; stored durably."""
+        self._catch_up()
+        learner = learner or self._window.turn.learner
+        if self._ended or learner is None or learner not in self.schedule.present:
+            return False
+        if not self._record_presence(learner, "absent"):
+            return False
+        self.schedule.mark_absent(learner)
+        self._message = f"{self._labels.get(learner, learner)} marked absent"
+        if learner == self._window.turn.learner and not self.schedule.paired and not self._paused \
+                and self.elapsed >= 0:
+            self._finish_turn()
+        self._emit(CHANGED)
+        return True
+
+    def mark_returned(self, learner: str) -> bool:
+        self._catch_up()
+        if self._ended or learner in self.schedule.present or learner not in self._labels:
+            return False
+        if not self._record_presence(learner, "returned"):
+            return False
+        self.schedule.mark_returned(learner)
+        self._message = f"{self._labels.get(learner, learner)} is back"
+        self._emit(CHANGED)
+        return True
+
+    def _record_presence(self, learner: str, state: str) -> bool:
+        try:
+            self.store.record_absence(session_id=self.session_id, learner=learner, state=state,
+                                      at=self.clock.now_utc())
+        except sqlite3.Error as error:
+            self._error = f"NOT SAVED: {state} ({error})"
+            self._emit(CHANGED)
+            return False
+        return True
+
+    def pause(self) -> None:
+        self._catch_up()
+        if self._paused or self._ended:
+            return
+        self._paused = True
+        self._paused_time_left = max(0.0, self.schedule.current.end - self.elapsed)
+        self._message = "Paused" + (" (the shared grid runs on)" if self.schedule.paired else "")
+        self._emit(CHANGED)
+
+    def resume(self) -> None:
+        if not self._paused or self._ended:
+            return
+        self._paused = False
+        if not self.schedule.paired:
+            self._window.turn = self.schedule.restart_at(self.elapsed)
+        self._catch_up()
+        self._message = "Going on"
+        self._emit(CHANGED)
+
+    def toggle_pause(self) -> None:
+        (self.resume if self._paused else self.pause)()
+
+    def sync_mark(self, note: str = "") -> datetime | None:
+        """Store this device's clock reading now (with the current learner); returns it."""
+        marked_at = self.clock.now_utc()
+        try:
+            self.store.record_sync_mark(session_id=self.session_id, marked_at=marked_at,
+                                        learner=self._window.turn.learner or "", note=note)
+        except sqlite3.Error as error:
+            self._error = f"NOT SAVED: sync mark ({error})"
+            self._emit(CHANGED)
+            return None
+        self._message = f"Sync mark at {marked_at:%H:%M:%S} UTC"
+        self._emit(CHANGED)
+        return marked_at
+
+    def end(self) -> SessionSummary:
+        """Write the session's end row; the summary is read back from the store."""
+        if not self._ended:
+            self._catch_up()
+            self.store.end_session(self.session_id, self.clock.now_utc())
+            self._ended = True
+            self._message = "Session ended"
+            self._emit(CHANGED)
+        return self.summary()
+
+    # -- reading -------------------------------------------------------------------------
+    @property
+    def missing(self) -> tuple[str, ...]:
+        return tuple(d for d in self._dimensions if d not in self._window.coded)
+
+    def label(self, learner: str | None) -> str:
+        return "" if learner is None else self._labels.get(learner, learner)
+
+    def state(self) -> SessionState:
+        turn = self.schedule.current
+        elapsed = self.elapsed
+        waiting = elapsed < 0
+        if self._paused and not self.schedule.paired:
+            time_left = self._paused_time_left
+        elif waiting:
+            time_left = -elapsed
+        else:
+            time_left = max(0.0, turn.end - elapsed)
+        upcoming = self.schedule.upcoming(1)[0] if self.schedule.present else None
+        return SessionState(
+            session_id=self.session_id, learner=turn.learner, label=self.label(turn.learner),
+            next_label=self.label(upcoming), slot=turn.slot, round=turn.round,
+            window_seconds=self.schedule.window, time_left=time_left, waiting=waiting, paused=self._paused,
+            ended=self._ended, paired=self.schedule.paired,
+            coded={d: code for d, (code, _) in self._window.coded.items()}, missing=self.missing,
+            saved_count=self._saved_count, last_saved_at=self._last_saved_at, last_code_id=self._last_code_id,
+            absent=tuple(learner for learner in self.schedule.learners if learner not in self.schedule.present),
+            message=self._message, error=self._error,
+        )
+
+    def summary(self) -> SessionSummary:
+        return summarise_session(self.store, self.session_id, self._dimensions)
+
+
+def summarise_session(store: Store, session_id: str, dimensions: Iterable[str]) -> SessionSummary:
+    """Counts per learner and code, and missed windows, for one session as stored."""
+    dimensions = list(dimensions)
+    frame = store.observations(dimensions)
+    frame = frame[frame["session_id"] == session_id]
+    marks = store.sync_marks()
+    missed = int(frame["no_code"].sum())
+    return SessionSummary(
+        session_id=session_id, windows=len(frame), coded_windows=len(frame) - missed, missed_windows=missed,
+        sync_marks=int((marks["session_id"] == session_id).sum()), counts=code_counts(frame, dimensions),
+        per_learner=window_counts(frame),
+    )

@@ -1,0 +1,39 @@
+"""End of session: windows coded and missed, and counts per learner and code, as stored."""
+from __future__ import annotations
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QKeyEvent
+from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
+
+from observer_app.live_session import SessionSummary
+from observer_app.study import Study
+from observer_app.ui.overview import count_table
+
+
+class EndScreen(QWidget):
+    done = Signal()
+
+    def __init__(self, study: Study, summary: SessionSummary) -> None:
+        super().__init__()
+        self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(48, 32, 48, 32)
+        title = QLabel("Session ended")
+        title.setProperty("role", "title")
+        layout.addWidget(title)
+        self.figures = QLabel(
+            f"{summary.windows} windows  ·  {summary.coded_windows} coded  ·  "
+            f"{summary.missed_windows} missed (ended with no code)  ·  {summary.sync_marks} sync marks")
+        self.figures.setStyleSheet("font-size: 16pt;")
+        layout.addWidget(self.figures)
+        self.table = count_table(study, summary.counts, summary.per_learner)
+        layout.addWidget(self.table, 1)
+        hint = QLabel("Every code above is read back from the store.   Enter or Esc back to the study")
+        hint.setProperty("role", "caption")
+        layout.addWidget(hint)
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        if event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter, Qt.Key.Key_Escape):
+            self.done.emit()
+        else:
+            super().keyPressEvent(event)

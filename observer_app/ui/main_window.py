@@ -1,0 +1,190 @@
+"""The app window: moves between the screens; owns the open study, its store and the theme.
+
+Flow: choose or create a study -> overview -> start form -> clock check -> observing
+-> end of session -> overview.  From the overview an interrupted session resumes
+straight into observing.  Closing the window during a session leaves it open in the
+store (no end row), so the next start offers to resume it.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QKeyEvent, QKeySequence, QShortcut
+from PySide6.QtWidgets import QFileDialog, QLabel, QMainWindow, QStackedWidget, QVBoxLayout, QWidget
+
+from observer_app.live_session import LiveSession, SessionSummary
+from observer_app.session_clock import Clock, SystemClock
+from observer_app.store import Store
+from observer_app.study import Study, load_study
+from observer_app.study_folder import create_study
+from observer_app.ui import theme as looks
+from observer_app.ui.cautions import cautions_html
+from observer_app.ui.clock_check import ClockCheck
+from observer_app.ui.end_screen import EndScreen
+from observer_app.ui.observing import ObservingScreen
+from observer_app.ui.overview import StudyOverview
+from observer_app.ui.start_form import StartChoice, StartForm
+from sync.errors import InputError
+
+
+class WelcomePage(QWidget):
+    """No study given: O opens a study folder, C creates a new one."""
+
+    def __init__(self, window: MainWindow) -> None:
+        super().__init__()
+        self.window_ = window
+        self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(64, 48, 64, 48)
+        title = QLabel("fieldmark")
+        title.setProperty("role", "title")
+        layout.addWidget(title)
+        layout.addWidget(QLabel("<p style='font-size:16pt'><b>O</b> open a study folder<br>"
+                                "<b>C</b> create a new study in an empty folder<br><b>Ctrl+Q</b> quit</p>"))
+        self.error = QLabel("")
+        self.error.setProperty("role", "warning")
+        self.error.setWordWrap(True)
+        layout.addWidget(self.error)
+        cautions = QLabel("<b>Before you observe</b>" + cautions_html())
+        cautions.setWordWrap(True)
+        layout.addWidget(cautions)
+        layout.addStretch(1)
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        if event.key() == Qt.Key.Key_O:
+            self.window_.choose_study()
+        elif event.key() == Qt.Key.Key_C:
+            self.window_.create_study_folder()
+        else:
+            super().keyPressEvent(event)
+
+
+class MainWindow(QMainWindow):
+    def __init__(self, study_dir: Path | None = None, *, clock: Clock | None = None, device: str | None = None,
+                 discreet: bool = False) -> None:
+        super().__init__()
+        self.clock = clock or SystemClock()
+        self.device = device
+        self.theme = looks.DISCREET if discreet else looks.LIGHT
+        self.study: Study | None = None
+        self.store: Store | None = None
+        self.session: LiveSession | None = None
+        self.overview: StudyOverview | None = None
+        self.stack = QStackedWidget()
+        self.setCentralWidget(self.stack)
+        self.setWindowTitle("fieldmark")
+        self.resize(1280, 800)
+        QShortcut(QKeySequence(Qt.Key.Key_F6), self, self.toggle_discreet)
+        QShortcut(QKeySequence("Ctrl+Q"), self, self.close)
+        self.setStyleSheet(looks.stylesheet(self.theme))
+        self.welcome = WelcomePage(self)
+        if study_dir is None:
+            self._show(self.welcome)
+        else:
+            self.open_study(study_dir)
+
+    # -- pages ----------------------------------------------------------------------------
+    def _show(self, page: QWidget) -> None:
+        for index in reversed(range(self.stack.count())):
+            old = self.stack.widget(index)
+            if old is not page and old is not self.overview and old is not self.welcome:
+                self.stack.removeWidget(old)
+                old.deleteLater()
+        if self.stack.indexOf(page) < 0:
+            self.stack.addWidget(page)
+        self.stack.setCurrentWidget(page)
+        page.setFocus()
+
+    @property
+    def page(self) -> QWidget:
+        return self.stack.currentWidget()
+
+    def toggle_discreet(self) -> None:
+        self.theme = looks.LIGHT if self.theme is looks.DISCREET else looks.DISCREET
+        self.setStyleSheet(looks.stylesheet(self.theme))
+        for index in range(self.stack.count()):
+            page = self.stack.widget(index)
+            if hasattr(page, "set_theme"):
+                page.set_theme(self.theme)
+
+    # -- study ----------------------------------------------------------------------------
+    def choose_study(self) -> None:
+        folder = QFileDialog.getExistingDirectory(self, "Open a study folder")
+        if folder:
+            self.open_study(Path(folder))
+
+    def create_study_folder(self) -> None:
+        folder = QFileDialog.getExistingDirectory(self, "Choose an empty folder for the new study")
+        if not folder:
+            return
+        try:
+            create_study(Path(folder))
+        except InputError as error:
+            self.welcome.error.setText(error.line())
+            return
+        self.open_study(Path(folder))
+
+    def open_study(self, folder: Path) -> None:
+        try:
+            study = load_study(folder)
+        except InputError as error:
+            self.welcome.error.setText(error.line())
+            self._show(self.welcome)
+            return
+        if self.store is not None:
+            self.store.close()
+        self.study, self.store = study, Store(study.store_path)
+        self.setWindowTitle(f"fieldmark - {study.name}")
+        if self.overview is not None:
+            self.stack.removeWidget(self.overview)
+            self.overview.deleteLater()
+        self.overview = StudyOverview(study, self.store)
+        self.overview.start_requested.connect(self.show_start_form)
+        self.overview.resume_requested.connect(self.resume_session)
+        self.overview.open_requested.connect(self.choose_study)
+        self._show(self.overview)
+
+    def show_overview(self) -> None:
+        self.overview.refresh()
+        self._show(self.overview)
+
+    # -- session --------------------------------------------------------------------------
+    def show_start_form(self) -> None:
+        form = StartForm(self.study, self.clock, self.device)
+        form.started.connect(self.start_session)
+        form.cancelled.connect(self.show_overview)
+        self._show(form)
+        form.coder.setFocus()
+
+    def start_session(self, choice: StartChoice) -> None:
+        self.session = LiveSession.start(self.study, self.store, self.clock, coder=choice.coder, device=choice.device,
+                                         paired_start=choice.paired_start, present=choice.present)
+        check = ClockCheck(self.session)
+        check.set_theme(self.theme)
+        check.done.connect(self.show_observing)
+        self._show(check)
+
+    def resume_session(self, session_id: str) -> None:
+        self.session = LiveSession.reopen(self.study, self.store, self.clock, session_id)
+        self.show_observing()
+
+    def show_observing(self) -> None:
+        screen = ObservingScreen(self.session, self.theme)
+        screen.ended.connect(self.show_end)
+        self._show(screen)
+
+    def show_end(self, summary: SessionSummary) -> None:
+        self.session = None
+        end = EndScreen(self.study, summary)
+        end.done.connect(self.show_overview)
+        self._show(end)
+
+    def closeEvent(self, event) -> None:  # noqa: N802
+        page = self.page
+        if isinstance(page, ObservingScreen):
+            page.timer.stop()
+        if self.store is not None:
+            self.store.close()
+            self.store = None
+        super().closeEvent(event)

@@ -1,0 +1,440 @@
+"""The observing screen: renders a LiveSession's state and forwards keys to it.
+
+Layout, top to bottom: whose turn it is (large) and who is next; the time left as a
+bar and a number; one pad per dimension with each code's key printed on its tile;
+the last action; the status line; the command keys.  Every decision is the
+session's; this widget only draws and forwards.
+
+Command keys are keys that can never be a scheme shortcut (a scheme key is one
+visible character), so they can never collide with a code.
+"""
+from __future__ import annotations
+
+import math
+import zoneinfo
+
+from PySide6.QtCore import QRectF, QSize, Qt, QTimer, Signal
+from PySide6.QtGui import QColor, QFont, QKeyEvent, QPainter, QPainterPath, QPen
+from PySide6.QtWidgets import (QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
+                               QSizePolicy, QVBoxLayout, QWidget)
+
+from observer_app.live_session import CHANGED, LiveSession, SessionState
+from observer_app.scheme import Code, Dimension
+from observer_app.ui import theme as looks
+from observer_app.ui.theme import Theme
+
+# (Qt key, how the key is written on screen, what it does, the short form for the hint line or "")
+COMMAND_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
+    (Qt.Key.Key_F8, "F8", "could not observe: every dimension still to code", "rest not observable"),
+    (Qt.Key.Key_Backspace, "Backspace", "undo the last code", "undo"),
+    (Qt.Key.Key_Return, "Enter", "write a note for this window", "note"),
+    (Qt.Key.Key_Space, "Space", "pause / go on", "pause"),
+    (Qt.Key.Key_F3, "F3", "the current learner is absent", "absent"),
+    (Qt.Key.Key_F4, "F4", "who is here: mark absent or back", ""),
+    (Qt.Key.Key_F5, "F5", "sync mark (this device's clock, now)", "sync mark"),
+    (Qt.Key.Key_F6, "F6", "discreet mode on / off", ""),
+    (Qt.Key.Key_F10, "F10", "end the session (press twice)", "end"),
+    (Qt.Key.Key_F1, "F1", "show / hide all keys", "all keys"),
+)
+TICK_MILLISECONDS = 100
+
+
+def _title(name: str) -> str:
+    return name.replace("_", " ").capitalize()
+
+
+class TimeBar(QWidget):
+    """The part of the window still left, as a bar that empties from the right."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.fraction = 1.0
+        self.theme: Theme = looks.LIGHT
+        self.setMinimumHeight(22)
+        self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
+
+    def sizeHint(self) -> QSize:
+        return QSize(600, 22)
+
+    def paintEvent(self, event) -> None:  # noqa: N802 (Qt name)
+        painter = QPainter(self)
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+        outer = QRectF(self.rect()).adjusted(1, 1, -1, -1)
+        painter.setPen(Qt.PenStyle.NoPen)
+        painter.setBrush(QColor(self.theme.surface))
+        painter.drawRoundedRect(outer, 8, 8)
+        if self.fraction > 0:
+            filled = QRectF(outer.left(), outer.top(), outer.width() * min(1.0, self.fraction), outer.height())
+            painter.setBrush(QColor(self.theme.accent))
+            painter.drawRoundedRect(filled, 8, 8)
+
+
+class CodeTile(QWidget):
+    """One code: its key in a badge, its label, its scheme colour; filled when in effect."""
+
+    def __init__(self, dimension: Dimension, code: Code, on_click) -> None:
+        super().__init__()
+        self.dimension = dimension
+        self.code = code
+        self.selected = False
+        self.theme: Theme = looks.LIGHT
+        self.scale = 1.0
+        self._on_click = on_click
+        self.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.setMinimumHeight(54)
+        self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Expanding)
+        self.setToolTip(f"key {code.key.upper()}: {code.label}")
+
+    def sizeHint(self) -> QSize:
+        return QSize(360, 64)
+
+    def mousePressEvent(self, event) -> None:  # noqa: N802
+        self._on_click(self.dimension.name, self.code.name)
+
+    def paintEvent(self, event) -> None:  # noqa: N802
+        theme = self.theme
+        painter = QPainter(self)
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+        box = QRectF(self.rect()).adjusted(2, 3, -2, -3)
+        strength = theme.selected_strength if self.selected else theme.colour_strength
+        fill = looks.blend(self.code.colour, theme.surface, strength)
+        painter.setPen(QPen(looks.blend(self.code.colour, theme.surface, 0.9 if self.selected else 0.3),
+                            3 if self.selected else 1))
+        painter.setBrush(fill)
+        painter.drawRoundedRect(box, 9, 9)
+        strip = QPainterPath()
+        strip.addRoundedRect(QRectF(box.left(), box.top(), 16, box.height()), 8, 8)
+        painter.setPen(Qt.PenStyle.NoPen)
+        painter.setBrush(looks.blend(self.code.colour, theme.surface, 0.75 if theme is looks.LIGHT else 0.5))
+        painter.drawPath(strip)
+        painter.drawRect(QRectF(box.left() + 8, box.top(), 8, box.height()))
+        side = min(box.height() - 14, 46.0)
+        badge = QRectF(box.left() + 26, box.top() + (box.height() - side) / 2, side, side)
+        painter.setPen(QPen(QColor(theme.quiet_text), 1.5))
+        painter.setBrush(QColor(theme.background))
+        painter.drawRoundedRect(badge, 6, 6)
+        key_font = QFont(self.font())
+        key_font.setPointSizeF(looks.KEY_POINTS * self.scale)
+        key_font.setBold(True)
+        painter.setFont(key_font)
+        painter.setPen(QColor(theme.text))
+        painter.drawText(badge, Qt.AlignmentFlag.AlignCenter, self.code.key.upper())
+        label_font = QFont(self.font())
+        label_font.setPointSizeF(looks.TILE_POINTS * self.scale)
+        label_font.setBold(self.selected)
+        painter.setFont(label_font)
+        painter.setPen(QColor(looks.readable_text(fill, theme)))
+        text_box = QRectF(badge.right() + 16, box.top(), box.right() - badge.right() - 26, box.height())
+        label = painter.fontMetrics().elidedText(self.code.label, Qt.TextElideMode.ElideRight, int(text_box.width()))
+        painter.drawText(text_box, Qt.AlignmentFlag.AlignVCenter | Qt.AlignmentFlag.AlignLeft, label)
+
+
+class DimensionPad(QFrame):
+    """One dimension: its name, whether it is still to code, and a tile per code."""
+
+    def __init__(self, dimension: Dimension, on_click) -> None:
+        super().__init__()
+        self.dimension = dimension
+        self.setProperty("role", "panel")
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(14, 10, 14, 12)
+        layout.setSpacing(4)
+        header = QHBoxLayout()
+        self.title = QLabel(_title(dimension.name).upper())
+        self.state = QLabel("")
+        self.state.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        header.addWidget(self.title)
+        header.addWidget(self.state, 1)
+        layout.addLayout(header)
+        self.tiles = [CodeTile(dimension, code, on_click) for code in dimension.codes]
+        for tile in self.tiles:
+            layout.addWidget(tile)
+
+    def show_code(self, code: str | None, theme: Theme, scale: float) -> None:
+        for tile in self.tiles:
+            tile.selected = tile.code.name == code
+            tile.theme, tile.scale = theme, scale
+            tile.update()
+        points = looks.PAD_TITLE_POINTS * scale
+        self.title.setStyleSheet(f"font-size: {points}pt; font-weight: bold; color: {theme.quiet_text}; letter-spacing: 2px;")
+        if code is None:
+            self.state.setText("to code")
+            self.state.setStyleSheet(f"font-size: {points}pt; color: {theme.quiet_text};")
+        else:
+            self.state.setText("✓ " + self.dimension.code(code).label)
+            self.state.setStyleSheet(f"font-size: {points}pt; font-weight: bold; color: {theme.text};")
+
+
+class NoteEdit(QLineEdit):
+    """The note line: Enter saves (via returnPressed), Escape gives up."""
+
+    def __init__(self, on_cancel) -> None:
+        super().__init__()
+        self._on_cancel = on_cancel
+        self.setPlaceholderText("Note for this window - Enter saves, Esc cancels")
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        if event.key() == Qt.Key.Key_Escape:
+            self._on_cancel()
+            return
+        super().keyPressEvent(event)
+
+
+class PresenceList(QListWidget):
+    """Who is here: Up/Down to choose, Enter to switch absent / back, Escape to close."""
+
+    def __init__(self, on_toggle, on_close) -> None:
+        super().__init__()
+        self._on_toggle, self._on_close = on_toggle, on_close
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        if event.key() in (Qt.Key.Key_Escape, Qt.Key.Key_F4):
+            self._on_close()
+        elif event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
+            item = self.currentItem()
+            if item is not None:
+                self._on_toggle(item.data(Qt.ItemDataRole.UserRole))
+        else:
+            super().keyPressEvent(event)
+
+
+class ObservingScreen(QWidget):
+    """The screen a coder watches during a live session."""
+
+    ended = Signal(object)  # the SessionSummary, once the end row is written
+
+    def __init__(self, session: LiveSession, theme: Theme = looks.LIGHT, *, run_timer: bool = True) -> None:
+        super().__init__()
+        self.session = session
+        self.theme = theme
+        self._zone = zoneinfo.ZoneInfo(session.study.timezone)
+        self._confirm_end = False
+        self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
+        root = QVBoxLayout(self)
+        root.setContentsMargins(28, 18, 28, 14)
+        root.setSpacing(10)
+
+        header = QHBoxLayout()
+        turn = QVBoxLayout()
+        self.turn_caption = QLabel()
+        self.learner_label = QLabel()
+        turn.addWidget(self.turn_caption)
+        turn.addWidget(self.learner_label)
+        header.addLayout(turn, 3)
+        upcoming = QVBoxLayout()
+        self.next_caption = QLabel("NEXT")
+        self.next_label = QLabel()
+        self.slot_label = QLabel()
+        for label in (self.next_caption, self.next_label, self.slot_label):
+            label.setAlignment(Qt.AlignmentFlag.AlignRight)
+            upcoming.addWidget(label)
+        upcoming.addStretch(1)
+        header.addLayout(upcoming, 1)
+        root.addLayout(header)
+
+        timing = QHBoxLayout()
+        self.time_bar = TimeBar()
+        self.time_label = QLabel()
+        self.time_label.setMinimumWidth(150)
+        self.time_label.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        timing.addWidget(self.time_bar, 1)
+        timing.addWidget(self.time_label)
+        root.addLayout(timing)
+
+        pads = QHBoxLayout()
+        pads.setSpacing(18)
+        self.pads = [DimensionPad(dimension, self._clicked) for dimension in session.study.scheme.dimensions]
+        for pad in self.pads:
+            pads.addWidget(pad, 1, Qt.AlignmentFlag.AlignTop)
+        root.addLayout(pads, 1)
+
+        self.note_edit = NoteEdit(self._close_note)
+        self.note_edit.returnPressed.connect(self._save_note)
+        self.note_edit.hide()
+        root.addWidget(self.note_edit)
+        self.message_label = QLabel()
+        self.status_label = QLabel()
+        self.keys_label = QLabel()
+        for label in (self.message_label, self.status_label, self.keys_label):
+            label.setWordWrap(True)
+            root.addWidget(label)
+
+        self.presence = PresenceList(self._toggle_presence, self._close_presence)
+        self.presence.setParent(self)
+        self.presence.hide()
+        self.help = QLabel(self)
+        self.help.setTextFormat(Qt.TextFormat.RichText)
+        self.help.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
+        self.help.setMargin(28)
+        self.help.hide()
+
+        session.add_listener(self._changed)
+        self.timer = QTimer(self)
+        self.timer.setInterval(TICK_MILLISECONDS)
+        self.timer.timeout.connect(session.tick)
+        if run_timer:
+            self.timer.start()
+        self.set_theme(theme)
+
+    # -- drawing -----------------------------------------------------------------------
+    def set_theme(self, theme: Theme) -> None:
+        self.theme = theme
+        scale = looks.DISCREET_SCALE if theme is looks.DISCREET else 1.0
+        self._scale = scale
+        caption = f"font-size: {13 * scale}pt; color: {theme.quiet_text}; letter-spacing: 2px;"
+        self.turn_caption.setStyleSheet(caption)
+        self.next_caption.setStyleSheet(caption)
+        self.learner_label.setStyleSheet(f"font-size: {looks.LEARNER_POINTS * scale}pt; font-weight: bold;")
+        self.next_label.setStyleSheet(f"font-size: {looks.NEXT_POINTS * scale}pt; color: {theme.text};")
+        self.slot_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * scale}pt; color: {theme.quiet_text};")
+        self.time_label.setStyleSheet(f"font-size: {looks.TIME_POINTS * scale}pt; font-weight: bold;")
+        self.status_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * scale}pt;")
+        self.keys_label.setStyleSheet(f"font-size: {(looks.STATUS_POINTS - 1) * scale}pt; color: {theme.quiet_text};")
+        self.note_edit.setStyleSheet(f"font-size: {looks.TILE_POINTS * scale}pt;")
+        self.help.setStyleSheet(f"background: {theme.surface}; color: {theme.text}; font-size: {14 * scale}pt;"
+                                f"border: 2px solid {theme.accent}; border-radius: 10px;")
+        self.presence.setStyleSheet(f"font-size: {looks.TILE_POINTS * scale}pt; border: 2px solid {theme.accent};")
+        self.time_bar.theme = theme
+        self.keys_label.setText(" &nbsp;·&nbsp; ".join(f"<b>{key}</b> {short}" for _, key, _, short in COMMAND_KEYS if short))
+        self._render_help()
+        self.render(CHANGED)
+
+    def _changed(self, kind: str) -> None:
+        self.render(kind)
+
+    def render(self, kind: str = CHANGED) -> None:
+        state = self.session.state()
+        self._render_time(state)
+        if kind != CHANGED:
+            return
+        theme = self.theme
+        if state.ended:
+            self.turn_caption.setText("SESSION ENDED")
+        elif state.paused:
+            self.turn_caption.setText("PAUSED  -  press Space to go on")
+        elif state.waiting:
+            self.turn_caption.setText("SHARED START NOT YET - FIRST UP")
+        else:
+            self.turn_caption.setText("NOW OBSERVING")
+        self.learner_label.setText(state.label or "nobody present")
+        self.next_label.setText(state.next_label or "-")
+        mode = "paired" if state.paired else "solo"
+        self.slot_label.setText(f"slot {state.slot + 1} · round {state.round + 1} · {mode}")
+        for pad in self.pads:
+            pad.show_code(state.coded.get(pad.dimension.name), theme, self._scale)
+        self.message_label.setText(state.message)
+        colour = theme.warning if state.error else theme.text
+        self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt; color: {colour};")
+        if state.error:
+            self.message_label.setText(state.error)
+        last = "-" if state.last_saved_at is None else f"{state.last_saved_at.astimezone(self._zone):%H:%M:%S}"
+        missing = ", ".join(_title(d) for d in state.missing) or "nothing"
+        absent = f" · absent: {', '.join(self.session.label(a) for a in state.absent)}" if state.absent else ""
+        self.status_label.setText(f"Saved: <b>{state.saved_count}</b> · last save {last} · "
+                                  f"slot {state.slot + 1} · still to code: {missing}{absent}")
+
+    def _render_time(self, state: SessionState) -> None:
+        seconds = max(0, math.ceil(state.time_left - 1e-9))
+        if state.waiting:
+            self.time_label.setText(f"{seconds // 60}:{seconds % 60:02d}")
+            self.time_bar.fraction = 0.0
+        else:
+            self.time_label.setText(f"{seconds} s")
+            self.time_bar.fraction = state.time_left / state.window_seconds
+        self.time_bar.update()
+
+    def _render_help(self) -> None:
+        rows = []
+        for dimension in self.session.study.scheme.dimensions:
+            codes = ", ".join(f"<b>{c.key.upper()}</b> {c.label}" for c in dimension.codes)
+            rows.append(f"<tr><td><b>{_title(dimension.name)}</b>&nbsp;&nbsp;</td><td>{codes}</td></tr>")
+        for _, key, what, _ in COMMAND_KEYS:
+            rows.append(f"<tr><td><b>{key}</b></td><td>{what}</td></tr>")
+        self.help.setText("<h2>Keys</h2><table cellspacing='6'>" + "".join(rows) + "</table>"
+                          "<p>Esc or F1 closes this list. The app makes no sound.</p>")
+
+    def resizeEvent(self, event) -> None:  # noqa: N802
+        super().resizeEvent(event)
+        self.help.setGeometry(self.rect().adjusted(60, 40, -60, -40))
+        self.presence.setGeometry(self.rect().adjusted(self.width() // 4, 80, -self.width() // 4, -80))
+
+    # -- input -------------------------------------------------------------------------
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        key = event.key()
+        if event.isAutoRepeat():
+            return
+        if self.help.isVisible() and key in (Qt.Key.Key_Escape, Qt.Key.Key_F1):
+            self.help.hide()
+            return
+        if key != Qt.Key.Key_F10:
+            self._confirm_end = False
+        session = self.session
+        if key == Qt.Key.Key_F1:
+            self.help.raise_()
+            self.help.show()
+        elif key == Qt.Key.Key_Space:
+            session.toggle_pause()
+        elif key == Qt.Key.Key_Backspace:
+            session.undo()
+        elif key in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
+            self.note_edit.clear()
+            self.note_edit.show()
+            self.note_edit.setFocus()
+        elif key == Qt.Key.Key_F3:
+            session.mark_absent()
+        elif key == Qt.Key.Key_F4:
+            self._open_presence()
+        elif key == Qt.Key.Key_F5:
+            session.sync_mark()
+        elif key == Qt.Key.Key_F8:
+            session.code_remaining_not_observed()
+        elif key == Qt.Key.Key_F10:
+            self._end_pressed()
+        elif not (event.text() and session.press(event.text())):
+            super().keyPressEvent(event)
+
+    def _clicked(self, dimension: str, code: str) -> None:
+        self.session.code(dimension, code)
+        self.setFocus()
+
+    def _end_pressed(self) -> None:
+        if self._confirm_end:
+            self.timer.stop()
+            self.ended.emit(self.session.end())
+            return
+        self._confirm_end = True
+        self.message_label.setText("Press F10 again to end the session; any other key keeps it going.")
+
+    def _save_note(self) -> None:
+        self.session.note(self.note_edit.text())
+        self._close_note()
+
+    def _close_note(self) -> None:
+        self.note_edit.hide()
+        self.setFocus()
+
+    def _open_presence(self) -> None:
+        self.presence.clear()
+        present = self.session.schedule.present
+        for learner in self.session.schedule.learners:
+            where = "here" if learner in present else "ABSENT"
+            item = QListWidgetItem(f"{self.session.label(learner)}  -  {where}")
+            item.setData(Qt.ItemDataRole.UserRole, learner)
+            self.presence.addItem(item)
+        self.presence.setCurrentRow(0)
+        self.presence.raise_()
+        self.presence.show()
+        self.presence.setFocus()
+
+    def _toggle_presence(self, learner: str) -> None:
+        row = self.presence.currentRow()
+        if learner in self.session.schedule.present:
+            self.session.mark_absent(learner)
+        else:
+            self.session.mark_returned(learner)
+        self._open_presence()
+        self.presence.setCurrentRow(row)
+
+    def _close_presence(self) -> None:
+        self.presence.hide()
+        self.setFocus()

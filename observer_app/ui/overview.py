@@ -1,0 +1,165 @@
+"""Study overview: roster, scheme, sessions so far, observations per learner and per code.
+
+Also where the cautions live, and where an interrupted session is offered for resuming.
+Keys: S start a session, R resume, O open another study (handled by the main window).
+"""
+from __future__ import annotations
+
+import zoneinfo
+
+import pandas as pd
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QKeyEvent
+from PySide6.QtWidgets import (QAbstractItemView, QFrame, QGridLayout, QHeaderView, QLabel, QTableWidget,
+                               QTableWidgetItem, QVBoxLayout, QWidget)
+
+from observer_app.live_session import InterruptedSession, find_interrupted_session
+from observer_app.store import Store
+from observer_app.study import Study
+from observer_app.study_overview import code_counts, session_table, window_counts
+from observer_app.ui.cautions import cautions_html
+
+
+def _table(headers: list[str], rows: list[list[str]]) -> QTableWidget:
+    table = QTableWidget(len(rows), len(headers))
+    table.setHorizontalHeaderLabels(headers)
+    table.verticalHeader().hide()
+    table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+    table.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+    table.setShowGrid(False)
+    for row_number, row in enumerate(rows):
+        for column, value in enumerate(row):
+            item = QTableWidgetItem(value)
+            if column:
+                item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+            table.setItem(row_number, column, item)
+    table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+    table.horizontalHeader().setStretchLastSection(True)
+    return table
+
+
+def count_table(study: Study, counts: pd.DataFrame, per_learner: pd.DataFrame) -> QTableWidget:
+    """Codes down the side, learners (roster labels) across: windows, missed, then each code."""
+    learners = [learner for learner in study.roster["learner"].astype(str)]
+    labels = dict(zip(study.roster["learner"].astype(str), study.roster["label"].astype(str)))
+    windows = per_learner.set_index("learner") if len(per_learner) else pd.DataFrame(
+        columns=["windows", "missed_windows"])
+    lookup = {(str(r.learner), str(r.dimension), str(r.code)): int(r.count) for r in counts.itertuples()}
+    rows = [["Windows"] + [str(int(windows["windows"].get(learner, 0))) for learner in learners]
+            + [str(int(windows["windows"].sum()))],
+            ["Missed (no code)"] + [str(int(windows["missed_windows"].get(learner, 0))) for learner in learners]
+            + [str(int(windows["missed_windows"].sum()))]]
+    for dimension in study.scheme.dimensions:
+        for code in dimension.codes:
+            values = [lookup.get((learner, dimension.name, code.name), 0) for learner in learners]
+            rows.append([f"{dimension.name} · {code.label}"] + [str(v) for v in values] + [str(sum(values))])
+    return _table([""] + [labels[learner] for learner in learners] + ["All"], rows)
+
+
+class StudyOverview(QWidget):
+    start_requested = Signal()
+    resume_requested = Signal(str)  # session_id
+    open_requested = Signal()
+
+    def __init__(self, study: Study, store: Store) -> None:
+        super().__init__()
+        self.study = study
+        self.store = store
+        self.interrupted: InterruptedSession | None = None
+        self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
+        self._layout = QVBoxLayout(self)
+        self._layout.setContentsMargins(32, 24, 32, 16)
+        self.refresh()
+
+    def refresh(self) -> None:
+        """Rebuild every section from the study folder and the store."""
+        while self._layout.count():
+            item = self._layout.takeAt(0)
+            if item.widget():
+                item.widget().deleteLater()
+        study = self.study
+        title = QLabel(study.name)
+        title.setProperty("role", "title")
+        self._layout.addWidget(title)
+        detail = QLabel(f"{study.dir}  ·  time zone {study.timezone}  ·  windows of {study.window_seconds:g} s, "
+                        f"{study.order} order  ·  scheme {study.scheme.name!r} ({study.scheme.content_hash})")
+        detail.setProperty("role", "caption")
+        self._layout.addWidget(detail)
+
+        self.interrupted = find_interrupted_session(study, self.store)
+        self.resume_banner = QLabel()
+        if self.interrupted is not None:
+            zone = zoneinfo.ZoneInfo(study.timezone)
+            started = self.interrupted.started_at.astimezone(zone)
+            self.resume_banner.setText(
+                f"<b>A session was interrupted</b> (coder {self.interrupted.coder}, device {self.interrupted.device}, "
+                f"started {started:%Y-%m-%d %H:%M}, {self.interrupted.codes_saved} codes saved). "
+                f"Press <b>R</b> to resume it at the right slot.")
+            self.resume_banner.setProperty("role", "warning")
+            self.resume_banner.setStyleSheet("font-size: 15pt; padding: 8px;")
+            self._layout.addWidget(self.resume_banner)
+
+        cautions = QLabel("<b>Before you observe</b>" + cautions_html())
+        cautions.setWordWrap(True)
+        cautions.setStyleSheet("font-size: 11pt;")
+        panel = QFrame()
+        panel.setProperty("role", "panel")
+        QVBoxLayout(panel).addWidget(cautions)
+        self._layout.addWidget(panel)
+
+        grid = QGridLayout()
+        grid.setHorizontalSpacing(24)
+        roster = study.roster
+        self.roster_table = _table(list(roster.columns), roster.astype(str).values.tolist())
+        grid.addWidget(self._section("Roster", self.roster_table), 0, 0)
+        scheme_lines = []
+        for dimension in study.scheme.dimensions:
+            codes = "  ".join(f"<span style='color:{c.colour}'>■</span>&nbsp;<b>{c.key.upper()}</b>&nbsp;{c.label}"
+                              for c in dimension.codes)
+            scheme_lines.append(f"<p><b>{dimension.name}</b> ({dimension.level}): {codes}</p>")
+        scheme = QLabel("".join(scheme_lines))
+        scheme.setWordWrap(True)
+        grid.addWidget(self._section("Code scheme", scheme), 1, 0)
+        sessions = session_table(self.store)
+        zone = zoneinfo.ZoneInfo(study.timezone)
+        session_rows = [[row.coder, row.device, "paired" if row.paired else "solo",
+                         f"{row.started_at.astimezone(zone):%Y-%m-%d %H:%M}",
+                         "interrupted" if pd.isna(row.ended_at) else f"{row.ended_at.astimezone(zone):%H:%M}",
+                         str(row.windows)] for row in sessions.itertuples()]
+        self.sessions_table = _table(["Coder", "Device", "Mode", "Started", "Ended", "Windows"], session_rows)
+        grid.addWidget(self._section(f"Sessions so far ({len(sessions)})", self.sessions_table), 0, 1)
+        observations = self.store.observations(study.scheme.dimension_names)
+        self.counts_table = count_table(study, code_counts(observations, study.scheme.dimension_names),
+                                        window_counts(observations))
+        grid.addWidget(self._section("Observations per learner and code", self.counts_table), 1, 1)
+        grid.setColumnStretch(0, 2)
+        grid.setColumnStretch(1, 3)
+        self._layout.addLayout(grid, 1)
+        keys = "<b>S</b> start a session"
+        if self.interrupted is not None:
+            keys += "  ·  <b>R</b> resume the interrupted session"
+        keys += "  ·  <b>O</b> open another study  ·  <b>F6</b> discreet mode  ·  <b>Ctrl+Q</b> quit"
+        hint = QLabel(keys)
+        hint.setProperty("role", "caption")
+        self._layout.addWidget(hint)
+
+    @staticmethod
+    def _section(title: str, body: QWidget) -> QWidget:
+        box = QWidget()
+        layout = QVBoxLayout(box)
+        layout.setContentsMargins(0, 8, 0, 0)
+        heading = QLabel(title.upper())
+        heading.setProperty("role", "caption")
+        layout.addWidget(heading)
+        layout.addWidget(body, 1)
+        return box
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        if event.key() == Qt.Key.Key_S:
+            self.start_requested.emit()
+        elif event.key() == Qt.Key.Key_R and self.interrupted is not None:
+            self.resume_requested.emit(self.interrupted.session_id)
+        elif event.key() == Qt.Key.Key_O:
+            self.open_requested.emit()
+        else:
+            super().keyPressEvent(event)

@@ -1,0 +1,124 @@
+"""Start-session form: coder, device label, solo or paired (with the shared start), who is present.
+
+Tab moves between fields, Space ticks a learner, Enter starts, Escape goes back.
+The window length is the study's (study.toml); it is shown, not chosen here, so
+every coder of the study uses the same one.
+"""
+from __future__ import annotations
+
+import socket
+from dataclasses import dataclass
+from datetime import datetime
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QKeyEvent
+from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem, QVBoxLayout, QWidget
+
+from observer_app.session_clock import Clock
+from observer_app.shared_start import parse_shared_start, suggested_start_times
+from observer_app.study import Study
+from sync.errors import InputError
+
+SOLO, PAIRED = "Solo - I code alone", "Paired - another coder codes the same learners"
+
+
+@dataclass(frozen=True)
+class StartChoice:
+    coder: str
+    device: str
+    paired_start: datetime | None
+    present: tuple[str, ...]
+
+
+class StartForm(QWidget):
+    started = Signal(object)  # StartChoice
+    cancelled = Signal()
+
+    def __init__(self, study: Study, clock: Clock, device: str | None = None) -> None:
+        super().__init__()
+        self.study = study
+        self.clock = clock
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(48, 32, 48, 32)
+        title = QLabel("Start a session")
+        title.setProperty("role", "title")
+        layout.addWidget(title)
+        form = QFormLayout()
+        form.setVerticalSpacing(14)
+        self.coder = QLineEdit()
+        self.coder.setPlaceholderText("your coder name or initials")
+        self.device = QLineEdit(device or socket.gethostname())
+        self.mode = QComboBox()
+        self.mode.addItems([SOLO, PAIRED])
+        self.shared_start = QComboBox()
+        self.shared_start.setEditable(True)
+        self.shared_start.setToolTip("Both coders type or pick the same time (study time zone)")
+        self.present = QListWidget()
+        for learner, label in zip(study.roster["learner"].astype(str), study.roster["label"].astype(str)):
+            item = QListWidgetItem(label)
+            item.setData(Qt.ItemDataRole.UserRole, learner)
+            item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
+            item.setCheckState(Qt.CheckState.Checked)
+            self.present.addItem(item)
+        self.present.setCurrentRow(0)
+        form.addRow("Coder", self.coder)
+        form.addRow("Device label", self.device)
+        form.addRow("Mode", self.mode)
+        self.shared_start_caption = QLabel(f"Shared start ({study.timezone})")
+        form.addRow(self.shared_start_caption, self.shared_start)
+        form.addRow("Who is present (Space ticks)", self.present)
+        form.addRow("Window length", QLabel(f"{study.window_seconds:g} s each, {study.order} order (from study.toml)"))
+        layout.addLayout(form)
+        self.error = QLabel("")
+        self.error.setProperty("role", "warning")
+        layout.addWidget(self.error)
+        hint = QLabel("Tab next field  ·  Enter start  ·  Esc back")
+        hint.setProperty("role", "caption")
+        layout.addWidget(hint)
+        layout.addStretch(1)
+        self.mode.currentIndexChanged.connect(self._mode_changed)
+        self._mode_changed()
+
+    def showEvent(self, event) -> None:  # noqa: N802
+        super().showEvent(event)
+        self.shared_start.clear()
+        self.shared_start.addItems(suggested_start_times(self.clock.now_utc(), self.study.timezone))
+        self.coder.setFocus()
+
+    def _mode_changed(self) -> None:
+        paired = self.mode.currentText() == PAIRED
+        self.shared_start.setEnabled(paired)
+        self.shared_start_caption.setEnabled(paired)
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        if event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
+            self.submit()
+        elif event.key() == Qt.Key.Key_Escape:
+            self.cancelled.emit()
+        else:
+            super().keyPressEvent(event)
+
+    def submit(self) -> None:
+        coder = self.coder.text().strip()
+        if not coder:
+            self.error.setText("Type the coder's name or initials.")
+            self.coder.setFocus()
+            return
+        paired_start = None
+        if self.mode.currentText() == PAIRED:
+            try:
+                paired_start = parse_shared_start(self.shared_start.currentText(), self.study.timezone,
+                                                  self.clock.now_utc())
+            except InputError as error:
+                self.error.setText(error.line())
+                self.shared_start.setFocus()
+                return
+        present = tuple(self.present.item(row).data(Qt.ItemDataRole.UserRole) for row in range(self.present.count())
+                        if self.present.item(row).checkState() == Qt.CheckState.Checked)
+        if not present:
+            self.error.setText("Tick at least one learner who is present.")
+            self.present.setFocus()
+            return
+        self.error.setText("")
+        self.started.emit(StartChoice(coder=coder, device=self.device.text().strip() or socket.gethostname(),
+                                      paired_start=paired_start, present=present))

@@ -1,0 +1,88 @@
+"""Assembling the EVENTS table (sync/tables.py) from a reader's columns: one home for
+outcome normalisation, dictionary encoding and the sort order."""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from sync.tables import EVENT_COLUMNS
+
+# Outcome words seen in learning-system logs (common practice), mapped to EVENTS.outcome.
+OUTCOME_WORDS: dict[str, str] = {
+    **dict.fromkeys(("correct", "right", "true", "1", "yes", "pass", "passed", "success", "ok"), "correct"),
+    **dict.fromkeys(("incorrect", "wrong", "false", "0", "no", "fail", "failed", "failure", "error"), "incorrect"),
+    **dict.fromkeys(("completed", "complete", "done", "finished"), "completed"),
+}
+CATEGORY_COLUMNS: tuple[str, ...] = ("learner", "action", "outcome", "item", "skill", "source")
+
+
+def normalise_outcomes(values: pd.Categorical) -> pd.Categorical:
+    """Known outcome words -> correct/incorrect/completed; missing -> ""; others lower-cased.
+
+    Works on the distinct values only, so it stays cheap on millions of rows.
+    """
+    words = [str(word).strip().lower() for word in values.categories]
+    mapped = np.array([OUTCOME_WORDS.get(word, word) for word in words] + [""], dtype=object)
+    categories, inverse = np.unique(mapped, return_inverse=True)
+    codes = np.asarray(values.codes)
+    new_codes = inverse[np.where(codes >= 0, codes, len(words))]
+    return pd.Categorical.from_codes(new_codes, categories=categories, validate=False)
+
+
+def _category(values, length: int) -> pd.Categorical:
+    if values is None:
+        return pd.Categorical.from_codes(np.zeros(length, dtype=np.int8), categories=[""])
+    series = pd.Series(values)
+    if isinstance(series.dtype, pd.CategoricalDtype):
+        series = series.cat.add_categories([""]) if "" not in series.cat.categories else series
+        return pd.Categorical(series.fillna(""))
+    return pd.Categorical(series.astype("str").fillna("").str.strip())
+
+
+def build_events(*, learner, time_ns: np.ndarray, action=None, outcome=None, item=None, skill=None,
+                 duration_s=None, source: str, source_row: np.ndarray) -> pd.DataFrame:
+    """One reader's columns -> EVENTS (unsorted); missing optional roles become ""/NaN."""
+    length = len(time_ns)
+    outcome_values = normalise_outcomes(_category(outcome, length))
+    frame = pd.DataFrame({
+        "learner": _category(learner, length),
+        "time_ns": np.asarray(time_ns, dtype=np.int64),
+        "action": _category(action, length),
+        "outcome": outcome_values,
+        "item": _category(item, length),
+        "skill": _category(skill, length),
+        "duration_s": np.full(length, np.nan) if duration_s is None else np.asarray(duration_s, dtype=np.float64),
+        "source": pd.Categorical.from_codes(np.zeros(length, dtype=np.int8), categories=[source]),
+        "source_row": np.asarray(source_row, dtype=np.int64),
+    })
+    return frame[list(EVENT_COLUMNS)]
+
+
+def combine_events(parts: list[pd.DataFrame]) -> pd.DataFrame:
+    """Concatenate readers' tables (categories unioned) and sort by (learner, time_ns)."""
+    if not parts:
+        return empty_events()
+    if len(parts) == 1:
+        combined = parts[0]
+    else:
+        columns = {}
+        for name in EVENT_COLUMNS:
+            if name in CATEGORY_COLUMNS:
+                columns[name] = pd.api.types.union_categoricals([part[name] for part in parts])
+            else:
+                columns[name] = np.concatenate([part[name].to_numpy() for part in parts])
+        combined = pd.DataFrame(columns)
+    order = np.lexsort((combined["time_ns"].to_numpy(), _learner_sort_key(combined["learner"])))
+    return combined.iloc[order].reset_index(drop=True)
+
+
+def _learner_sort_key(learner: pd.Series) -> np.ndarray:
+    """Sort key for learner ids by their text, computed on the categories only."""
+    categories = learner.cat.categories
+    rank = np.argsort(np.argsort(categories.astype(str).to_numpy()))
+    return rank[learner.cat.codes.to_numpy()]
+
+
+def empty_events() -> pd.DataFrame:
+    """An EVENTS table with no rows and the right types."""
+    return build_events(learner=[], time_ns=np.zeros(0, np.int64), source="", source_row=np.zeros(0, np.int64))

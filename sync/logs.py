@@ -1,0 +1,73 @@
+"""All of a study's logs -> one EVENTS table and a report of what reading decided."""
+from __future__ import annotations
+
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+
+import pandas as pd
+
+from sync.csv_reader import read_csv_log
+from sync.errors import InputError
+from sync.event_table import combine_events
+from sync.local_time import LocalTimeCounts
+from sync.log_spec import LogSpec
+from sync.parquet_reader import read_parquet_log
+from sync.xapi_reader import read_xapi_log
+
+READERS = {"csv": read_csv_log, "parquet": read_parquet_log, "xapi": read_xapi_log}
+
+
+@dataclass
+class ReadReport:
+    """What reading the logs found: rows per file, DST decisions, learners not in the roster."""
+
+    rows_per_file: dict[str, int] = field(default_factory=dict)
+    ambiguous_local_times: int = 0
+    nonexistent_local_times: int = 0
+    unknown_learners: dict[str, int] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def rows(self) -> int:
+        return sum(self.rows_per_file.values())
+
+
+def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
+    """Read every file of every spec into one EVENTS table (sync/tables.py).
+
+    ``known_log_ids`` (the roster's log_id column) lets the report name learners the
+    roster does not know, with their event counts; they are kept, not fatal.  Raises
+    ``InputError`` for a missing file or any malformed input.
+    """
+    report = ReadReport()
+    counts = LocalTimeCounts()
+    parts = []
+    for spec in specs:
+        if not spec.path.exists():
+            raise InputError(spec.path, None, "does not exist; fix the path of its [[logs]] entry in study.toml")
+        files = spec.files()
+        if not files:
+            raise InputError(spec.path, None, f"is a folder with no {spec.format} files")
+        for path in files:
+            events, file_counts, warnings = READERS[spec.format](spec, path)
+            parts.append(events)
+            counts = counts + file_counts
+            report.rows_per_file[str(path)] = len(events)
+            report.warnings.extend(warnings)
+    events = combine_events(parts)
+    report.ambiguous_local_times = counts.ambiguous
+    report.nonexistent_local_times = counts.nonexistent
+    if counts.ambiguous or counts.nonexistent:
+        report.warnings.append(
+            f"{counts.ambiguous} local times fell in a repeated hour (read as the first occurrence) and "
+            f"{counts.nonexistent} in a skipped hour (moved forward by the gap)")
+    if known_log_ids is not None:
+        known = set(map(str, known_log_ids))
+        per_learner = events["learner"].value_counts(sort=False)
+        unknown = {str(learner): int(n) for learner, n in per_learner.items() if n and str(learner) not in known}
+        report.unknown_learners = dict(sorted(unknown.items()))
+        if unknown:
+            shown = ", ".join(list(report.unknown_learners)[:5])
+            report.warnings.append(f"{len(unknown)} learners in the logs are not in the roster's log_id column "
+                                   f"(e.g. {shown}); their events are kept but no observation will use them")
+    return events, report

@@ -1,0 +1,72 @@
+"""Kill a coding process with SIGKILL mid-stream; reopen; nothing acknowledged is lost."""
+from __future__ import annotations
+
+import math
+import os
+import signal
+import sqlite3
+import subprocess
+import sys
+from datetime import datetime, timedelta
+from pathlib import Path
+
+import pytest
+
+from observer_app.live_session import LiveSession, find_interrupted_session
+from observer_app.session_clock import FakeClock
+from observer_app.store import Store
+from observer_app.study import load_study
+from tests.app.conftest import make_study
+
+ROOT = Path(__file__).resolve().parents[2]
+ROSTER_ORDER = [f"L{n:02d}" for n in range(1, 7)]
+
+
+def run_until_killed(study_dir: Path, acks_wanted: int) -> tuple[datetime, list[str], datetime]:
+    """Start the child, SIGKILL it once it has acknowledged enough codes; return what it said."""
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    child = subprocess.Popen([sys.executable, str(ROOT / "tests/app/session_child.py"), str(study_dir)],
+                             stdout=subprocess.PIPE, text=True, env=env, cwd=ROOT)
+    lines = []
+    for line in child.stdout:
+        lines.append(line.split())
+        if len(lines) > acks_wanted:
+            break
+    os.kill(child.pid, signal.SIGKILL)  # while it is still writing
+    rest = child.stdout.read()
+    child.wait(timeout=30)
+    assert child.returncode == -signal.SIGKILL
+    lines += [line.split() for line in rest.splitlines() if line.endswith(tuple("0123456789"))]
+    acks = [parts for parts in lines if parts[0] == "ack" and len(parts) == 3]
+    return datetime.fromisoformat(lines[0][1]), [parts[1] for parts in acks], datetime.fromisoformat(acks[-1][2])
+
+
+@pytest.mark.parametrize("monotonic_comparable", [True, False])
+def test_killed_session_resumes_at_the_right_slot_with_every_acknowledged_code(tmp_path, monotonic_comparable):
+    study_dir = make_study(tmp_path / "study")
+    shared_start, acknowledged, last_ack_at = run_until_killed(study_dir, acks_wanted=60)
+    study = load_study(study_dir)
+    with sqlite3.connect(study.store_path) as connection:
+        assert connection.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        stored = {row[0] for row in connection.execute("SELECT code_id FROM codes")}
+    assert set(acknowledged) <= stored  # every acknowledged code survived the kill
+    assert len(acknowledged) >= 60
+
+    reopened_at = last_ack_at + timedelta(seconds=100)
+    # Same boot: the child's monotonic clock ran in step with its wall clock (7000 s at start).
+    # After a reboot the monotonic clock restarts near zero and only the wall clock can tell.
+    child_monotonic = 7000.0 + (reopened_at - (shared_start - timedelta(seconds=5))).total_seconds()
+    clock = FakeClock(monotonic=child_monotonic if monotonic_comparable else 12.0, wall=reopened_at)
+    with Store(study.store_path) as store:
+        interrupted = find_interrupted_session(study, store)
+        assert interrupted is not None and interrupted.codes_saved >= len(acknowledged)
+        session = LiveSession.reopen(study, store, clock, interrupted.session_id)
+        expected_slot = math.floor((reopened_at - shared_start).total_seconds() / study.window_seconds)
+        state = session.state()
+        assert state.slot == expected_slot
+        assert state.learner == ROSTER_ORDER[expected_slot % len(ROSTER_ORDER)]  # fixed order, nobody absent
+        assert session.press("2")
+        assert session.state().coded == {"activity": "task_talk"}
+        observations = store.observations(study.scheme.dimension_names)
+        slots = sorted(int(s) for s in observations["slot"])
+        assert slots == list(range(slots[0], expected_slot + 1))  # the windows missed while down are no-code rows
