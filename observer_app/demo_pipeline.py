@@ -14,8 +14,10 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
                                            generator, copied from DIR/truth.json (the only copied figures)
                               "recovered": {"method", "offset_s", "drift_ppm", ...} from the align
                                            step, or null while that step does not exist
-    dimensions      object  per scheme dimension, from the agree step: "kappa" and "alpha", each
-                            {"value", "low", "high"} (95 % interval); null while agree does not exist
+    dimensions      object  per scheme dimension, from the agree step (agreement/, as `fieldmark agree`):
+                            "kappa" (Cohen's), "alpha" (Krippendorff's) and "percent_agreement", each
+                            {"value", "low", "high"} (95 % cluster-bootstrap interval over learners), "band"
+                            (Landis & Koch) and "units" (paired windows compared)
     coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
                             {"kappa", "percent_correct", "windows"}: scikit-learn's Cohen's kappa of the
                             simulated coder's codes against the generator's true states
@@ -50,6 +52,7 @@ SUMMARY_KEYS: tuple[str, ...] = (
     "seconds",
 )
 TIMELINE_LEARNERS = 4
+AGREEMENT_RESAMPLES = 1000
 
 
 @dataclass
@@ -128,9 +131,42 @@ def step_coder_vs_truth(run: DemoRun) -> None:
     ))
 
 
+def step_agree(run: DemoRun) -> None:
+    """Reliability between the two coders, as `fieldmark agree STUDY` computes it (1000 learner resamples)."""
+    from agreement.figures import assess_agreement, estimate_text
+    from agreement.report import confusion_heatmap
+    from observer_app.commands.agree import load_study_units
+
+    assert run.generated is not None
+    units, dimensions, pairing, _ = load_study_units(run.generated.study)
+    agreement = assess_agreement(units, dimensions, AGREEMENT_RESAMPLES, run.seed)
+    run.summary["dimensions"] = {
+        name: {"kappa": result.figures["cohen_kappa"].as_dict(), "alpha": result.figures["alpha"].as_dict(),
+               "percent_agreement": result.figures["percent_agreement"].as_dict(), "band": result.band,
+               "units": result.units}
+        for name, result in agreement.dimensions.items()}
+    rows = pd.DataFrame([{"dimension": name, "units": result.units,
+                          "percent agreement": estimate_text(result.figures["percent_agreement"]),
+                          "Cohen's kappa": estimate_text(result.figures["cohen_kappa"]),
+                          "Krippendorff's alpha": estimate_text(result.figures["alpha"]),
+                          "Landis & Koch": result.band}
+                         for name, result in agreement.dimensions.items()])
+    run.sections.append(report.section(
+        "Agreement between the coders (fieldmark agree)",
+        report.paragraph(f"{pairing['units']} units paired from {pairing['observations']} observations "
+                         f"({pairing['unmatched']} unmatched: the solo halves of each session); 95 % intervals from "
+                         f"{agreement.resamples} bootstrap resamples of {agreement.clusters} learners; "
+                         "could-not-observe codes left out."),
+        report.table_html(rows),
+        *(f'<img alt="confusion {name}" src="data:image/png;base64,{confusion_heatmap(result)}">'
+          for name, result in agreement.dimensions.items()),
+    ))
+
+
 STEPS: tuple[tuple[str, Callable[[DemoRun], None]], ...] = (
     ("generate", step_generate),
     ("coder_vs_truth", step_coder_vs_truth),
+    ("agree", step_agree),
 )
 
 

@@ -22,6 +22,12 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.set_defaults(run=run)
 
 
+def _estimate(figure: dict) -> str:
+    if figure["value"] is None:
+        return "undefined"
+    return f"{figure['value']:.2f} [{figure['low']:.2f}, {figure['high']:.2f}]"
+
+
 def human_summary(summary: dict) -> str:
     """The few lines printed at the end: what was built, what each step found."""
     generated = summary["generated"]
@@ -34,8 +40,8 @@ def human_summary(summary: dict) -> str:
         lines.append(f"  {device}: truth {truth['offset_s']:+.2f} s, {truth['drift_ppm']:+.1f} ppm; {found}")
     for dimension, figures in (summary["dimensions"] or {}).items():
         kappa, alpha = figures["kappa"], figures["alpha"]
-        lines.append(f"  {dimension}: kappa {kappa['value']:.2f} [{kappa['low']:.2f}, {kappa['high']:.2f}], "
-                     f"alpha {alpha['value']:.2f} [{alpha['low']:.2f}, {alpha['high']:.2f}]")
+        lines.append(f"  coder agreement, {dimension}: Cohen's kappa {_estimate(kappa)}, "
+                     f"Krippendorff's alpha {_estimate(alpha)} ({figures['units']} paired windows)")
     for dimension, coders in (summary["coder_vs_truth"] or {}).items():
         shown = ", ".join(f"{coder} {values['kappa']:.2f}" for coder, values in coders.items())
         lines.append(f"  coder vs truth (demo check), {dimension}: kappa {shown}")

@@ -64,6 +64,26 @@ def test_coder_vs_truth_figures_are_computed_from_the_study(demo_run):
             assert figures["windows"] == len(rows)
 
 
+def test_agreement_figures_match_scikit_learn_on_the_paired_windows(demo_run):
+    """The agree step's Cohen's kappa equals scikit-learn's on the paired slots (same start, slot, learner)."""
+    out, _, _ = demo_run
+    summary = json.loads((out / "summary.json").read_text())
+    with Store(out / "study" / "observations.sqlite") as store:
+        observations = store.observations(["activity", "affect"])
+    paired = observations[observations["paired_start"].notna()]
+    wide = paired.pivot_table(index=["paired_start", "slot"], columns="coder", values=["activity", "affect"],
+                              aggfunc="first")
+    for dimension, unseen in (("activity", "not_visible"), ("affect", "unclear")):
+        both = wide[dimension].dropna()
+        both = both[(both != unseen).all(axis=1)]
+        figures = summary["dimensions"][dimension]
+        assert figures["units"] == len(both)
+        expected = cohen_kappa_score(both["coder_a"], both["coder_b"])  # reference: scikit-learn
+        assert figures["kappa"]["value"] == pytest.approx(expected, abs=1e-9)
+        for name in ("kappa", "alpha"):
+            assert figures[name]["low"] < figures[name]["value"] < figures[name]["high"]
+
+
 def test_report_is_self_contained_with_embedded_figures(demo_run):
     out, _, _ = demo_run
     page = (out / "report.html").read_text()
@@ -84,3 +104,4 @@ def test_human_summary_names_each_device_and_the_outputs(demo_run):
     text = human_summary(json.loads((out / "summary.json").read_text()))
     assert "laptop-a: truth" in text and "laptop-b: truth" in text
     assert "summary.json" in text and "report.html" in text
+    assert "Cohen's kappa" in text and "Krippendorff's alpha" in text
