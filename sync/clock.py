@@ -55,6 +55,10 @@ class ClockModel:
     scan_offsets_s: tuple[float, ...] = ()
     scan_scores: tuple[float, ...] = ()
 
+    def __post_init__(self) -> None:
+        if self.method not in METHODS:
+            raise ValueError(f"method must be one of {METHODS}, got {self.method!r}")
+
     @property
     def outlying_marks(self) -> list[str]:
         """mark ids the fit set aside as outliers."""

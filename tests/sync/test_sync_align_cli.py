@@ -12,7 +12,8 @@ import pytest
 
 from tests.conftest import assert_user_error, call_cli, run_cli
 from demo_sessions.generate import generate_demo
-from observer_app.store import Store
+from observer_app.alignment import stored_clock_models
+from observer_app.study import load_study
 from sync.clock import ClockModel
 
 CORPUS = Path(__file__).resolve().parents[1] / "data" / "malformed_logs"
@@ -32,9 +33,7 @@ def study(demo, tmp_path) -> Path:
 
 
 def stored_models(study: Path) -> dict[str, ClockModel]:
-    with Store(study / "observations.sqlite") as store:
-        rows = store.clock_models()
-    return {device: ClockModel.from_json(text) for device, text in zip(rows["device"], rows["model_json"])}
+    return stored_clock_models(load_study(study))
 
 
 def test_align_json_recovers_the_planted_clocks_from_sync_marks(demo, study):
