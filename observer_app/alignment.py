@@ -6,7 +6,8 @@ The one place that decides which method a device gets:
   "best":  marks when at least MIN_MARKS_FOR_BEST marks name learners with log events,
            otherwise the automatic scan.
 Hand-set offsets (--set-offset) win over all of them.  Replay observations are left out
-of the scan: a replayed clip is coded against the log itself, not a device's wall clock.
+of the scan (a replayed clip is coded against the log itself, not a device's wall
+clock), and so are could-not-observe codes.
 """
 from __future__ import annotations
 
@@ -54,7 +55,7 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
     if not devices:
         raise InputError(study.store_path, None, "holds no coding sessions yet; import observations first")
     to_fit = [device for device in devices if device not in manual_offsets]
-    events, report = _read_study_logs(study) if to_fit else (empty_events(), ReadReport())
+    events, report = read_study_logs(study) if to_fit else (empty_events(), ReadReport())
     log_ids = dict(zip(study.roster["learner"].astype(str), study.roster["log_id"].astype(str)))
     observations = observations.assign(log_id=observations["learner"].astype(str).map(log_ids).fillna(""))
     marks = marks.assign(log_id=marks["learner"].astype(str).map(log_ids).fillna(""))
@@ -70,7 +71,7 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
         elif use_marks:
             skipped[device] = "no sync marks that name a learner with log events"
         elif len(live):
-            models[device] = scan_offset(live, events, list(study.scheme.dimension_names))
+            models[device] = scan_offset(_observable(live, study), events, list(study.scheme.dimension_names))
         else:
             skipped[device] = "no live observations to scan"
     with Store(study.store_path) as store:
@@ -80,7 +81,17 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
     return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped)
 
 
-def _read_study_logs(study: Study) -> tuple[pd.DataFrame, ReadReport]:
+def _observable(observations: pd.DataFrame, study: Study) -> pd.DataFrame:
+    """Could-not-observe codes blanked: they say nothing about what the learner did."""
+    observations = observations.copy()
+    for dimension in study.scheme.dimensions:
+        column = observations[dimension.name]
+        observations[dimension.name] = column.where(column != dimension.could_not_observe)
+    return observations
+
+
+def read_study_logs(study: Study) -> tuple[pd.DataFrame, ReadReport]:
+    """The study's [[logs]] as one EVENTS table (sync/tables.py), learners checked against the roster."""
     if not study.log_entries:
         raise InputError(study.dir / "study.toml", "[[logs]]", "no logs declared; add a [[logs]] entry, "
                          "or give every device's offset with --set-offset DEVICE=SECONDS")
@@ -104,5 +115,6 @@ def model_summary(model: ClockModel) -> dict:
         "method": model.method, "offset_s": number(model.offset_s, 3), "drift_ppm": number(model.drift_ppm, 2),
         "reference_ns": model.reference_ns, "marks_used": model.marks_used,
         "median_abs_residual_s": number(model.median_abs_residual_s, 3), "confidence": number(model.confidence, 3),
+        "offset_standard_error_s": number(model.offset_standard_error_s, 3),
         "outlying_marks": model.outlying_marks, "warnings": list(model.warnings),
     }

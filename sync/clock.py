@@ -35,6 +35,8 @@ class MarkResidual:
 class ClockModel:
     """Offset and drift of one device's clock relative to the log, with the evidence.
 
+    offset_standard_error_s: the offset's standard error (marks: robust SD of the kept
+    residuals / sqrt(kept marks); auto: split samples); NaN when not known.
     confidence is in [0, 1]: for "marks" the share of marks that agree with the fit
     (within max(1 s, 5 robust SD)); for "auto" how clearly the best offset beats the
     next-best separate candidate (1 = unrivalled, 0 = a tie); NaN for "manual" and
@@ -50,6 +52,7 @@ class ClockModel:
     marks_used: int = 0
     median_abs_residual_s: float = math.nan
     confidence: float = math.nan
+    offset_standard_error_s: float = math.nan
     warnings: tuple[str, ...] = ()
     residuals: tuple[MarkResidual, ...] = ()
     scan_offsets_s: tuple[float, ...] = ()
@@ -98,7 +101,7 @@ class ClockModel:
     def from_json(cls, text: str) -> "ClockModel":
         """The inverse of :meth:`to_json`."""
         data = json.loads(text)
-        for key in ("median_abs_residual_s", "confidence"):
+        for key in ("median_abs_residual_s", "confidence", "offset_standard_error_s"):
             if data.get(key) is None:
                 data[key] = math.nan
         data["warnings"] = tuple(data.get("warnings", ()))

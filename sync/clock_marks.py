@@ -94,6 +94,7 @@ def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame) -> ClockModel:
         device=model.device, method="marks", offset_s=model.offset_s, drift_ppm=model.drift_ppm,
         reference_ns=model.reference_ns, marks_used=int(keep.sum()),
         median_abs_residual_s=float(np.median(np.abs(residual))), confidence=float(keep.mean()),
+        offset_standard_error_s=_robust_sd(residual[keep]) / np.sqrt(keep.sum()) if keep.sum() > 1 else float("nan"),
         warnings=tuple(dict.fromkeys(warnings)), residuals=residuals)
 
 
@@ -151,6 +152,10 @@ def _fit(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, keep: np
     return fitted, gap - (intercept + slope * since)
 
 
+def _robust_sd(residual: np.ndarray) -> float:
+    """1.4826 x median absolute deviation: the SD of normal residuals, unmoved by outliers."""
+    return 1.4826 * float(np.median(np.abs(residual - np.median(residual)))) if len(residual) else 0.0
+
+
 def _outlier_limit(residual: np.ndarray) -> float:
-    robust_sd = 1.4826 * float(np.median(np.abs(residual - np.median(residual)))) if len(residual) else 0.0
-    return max(OUTLIER_FLOOR_S, OUTLIER_ROBUST_SD * robust_sd)
+    return max(OUTLIER_FLOOR_S, OUTLIER_ROBUST_SD * _robust_sd(residual))

@@ -12,7 +12,8 @@ offsets that would put it inside, in per-code difference arrays summed by np.bin
 Drift: the observations are cut into time-ordered chunks, each chunk's offset is found by
 a fine scan (0.1 s) near the overall estimate, and a Theil-Sen slope through the chunk
 offsets gives the drift; a last fine scan of all observations with the drift taken out
-gives the offset at the reference time.
+gives the offset at the reference time.  Its standard error comes from split samples
+(the offset found in each of 8 random groups of observations).
 """
 from __future__ import annotations
 
@@ -33,6 +34,9 @@ CHUNKS = 12
 MIN_CHUNK_OBSERVATIONS = 100
 SESSION_GAP_S = 3600.0
 ROUGH_DRIFT_CHUNKS = 4
+SPLITS = 8
+MIN_SPLIT_OBSERVATIONS = 30
+UNCERTAIN_OFFSET_S = 1.0
 MIN_DRIFT_SPAN_S = 3600.0
 AMBIGUOUS_BELOW = 0.25
 CLEAR_PEAK_SPREADS = 20.0  # a peak this many noise spreads above the far level is clear
@@ -248,16 +252,19 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
         warnings.append(f"left out of the scan, their codes do not follow log activity: {', '.join(left_out)}")
     reference = int(np.median(start)) - int(round(estimate * 1e9)) if len(start) else 0
     offset, drift, residual, drift_warnings = _drift(curve, start, estimate, reference, window_s)
+    # Final offset from all observations at once, with the drift taken out of the windows
+    # (device - drift * (device - reference); the error, drift * offset, is microseconds).
+    shift = np.round(drift * 1e-6 * (start - reference)).astype(np.int64)
+    final = _fine_grid(offset)
     if drift:
-        # Final offset from all observations at once, with the drift taken out of the
-        # windows (device - drift * (device - reference); the error, drift * offset, is
-        # micro-seconds).
-        shift = np.round(drift * 1e-6 * (start - reference)).astype(np.int64)
-        final = _fine_grid(offset)
         offset = locate_peak(final, curve(everyone, final, shift), window_s)[0]
+    standard_error = _split_sample_error(curve, len(start), final, shift, window_s)
+    if standard_error > UNCERTAIN_OFFSET_S:
+        warnings.append(f"offset uncertain: standard error {standard_error:.1f} s (few windows show the "
+                        "learner's activity change); sync marks pin it down")
     return ClockModel(
         device=str(devices[0]), method="auto", offset_s=offset, drift_ppm=drift, reference_ns=reference,
-        marks_used=0, median_abs_residual_s=residual, confidence=confidence,
+        marks_used=0, median_abs_residual_s=residual, confidence=confidence, offset_standard_error_s=standard_error,
         warnings=tuple(warnings + drift_warnings),
         scan_offsets_s=tuple(float(x) for x in candidates), scan_scores=tuple(round(float(s), 6) for s in scores),
     )
@@ -288,6 +295,19 @@ def _drift(curve, start: np.ndarray, estimate: float, reference: int,
         warnings.append(f"drift rests on only {len(chunks)} groups of observations; treat it as rough "
                         "(sync marks pin it down)")
     return intercept, float(slope * 1e6), residual, warnings
+
+
+def _split_sample_error(curve, count: int, grid: np.ndarray, shift: np.ndarray, window_s: float) -> float:
+    """Standard error of the offset by split samples: the observations are dealt at random
+    (fixed seed) into SPLITS groups, each group's offset is found on ``grid``, and
+    SE = sd(group offsets) / sqrt(SPLITS).  NaN when there are too few observations."""
+    splits = min(SPLITS, count // MIN_SPLIT_OBSERVATIONS)
+    if splits < 2:
+        return float("nan")
+    groups = np.random.default_rng(0).permutation(count) % splits
+    offsets = [locate_peak(grid, curve(np.flatnonzero(groups == group), grid, shift), window_s)[0]
+               for group in range(splits)]
+    return float(np.std(offsets, ddof=1) / np.sqrt(splits))
 
 
 def _time_chunks(start: np.ndarray) -> list[np.ndarray]:
