@@ -289,7 +289,8 @@ def _drift(curve, start: np.ndarray, estimate: float, reference: int,
     centres, offsets = np.asarray(centres), np.asarray(offsets)
     slope = theilslopes(offsets, centres)[0]
     intercept = float(np.median(offsets - slope * centres))
-    residual = float(np.median(np.abs(offsets - (intercept + slope * centres))))
+    # With two groups the line passes through both: no residual to speak of.
+    residual = float(np.median(np.abs(offsets - (intercept + slope * centres)))) if len(chunks) > 2 else float("nan")
     warnings = []
     if len(chunks) < ROUGH_DRIFT_CHUNKS:
         warnings.append(f"drift rests on only {len(chunks)} groups of observations; treat it as rough "

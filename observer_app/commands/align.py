@@ -61,11 +61,13 @@ def run(args: argparse.Namespace) -> int:
         print(f"read {report.rows} log events from {len(report.rows_per_file)} files")
     for warning in report.warnings:
         print(f"  note: {warning}")
-    print(f"{'device':<16}{'method':<9}{'offset_s':>10}{'drift_ppm':>11}{'marks':>7}{'median|res|_s':>15}{'confidence':>12}")
+    print(f"{'device':<16}{'method':<9}{'offset_s':>10}{'se_s':>7}{'drift_ppm':>11}{'marks':>7}{'median|res|_s':>15}"
+          f"{'confidence':>12}")
     for device, model in alignment.models.items():
         figures = model_summary(model)
         print(f"{device:<16}{model.method:<9}{_shown(figures['offset_s'], '+.3f'):>10}"
-              f"{_shown(figures['drift_ppm'], '+.2f'):>11}{model.marks_used:>7}"
+              f"{_shown(figures['offset_standard_error_s'], '.2f'):>7}{_shown(figures['drift_ppm'], '+.2f'):>11}"
+              f"{model.marks_used:>7}"
               f"{_shown(figures['median_abs_residual_s'], '.3f'):>15}{_shown(figures['confidence'], '.2f'):>12}")
         for warning in model.warnings:
             print(f"  {device}: {warning}")
