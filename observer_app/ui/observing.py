@@ -208,7 +208,7 @@ class ObservingScreen(QWidget):
 
     ended = Signal(object)  # the SessionSummary, once the end row is written
 
-    def __init__(self, session: LiveSession, theme: Theme = looks.LIGHT, *, run_timer: bool = True) -> None:
+    def __init__(self, session: LiveSession, theme: Theme = looks.LIGHT) -> None:
         super().__init__()
         self.session = session
         self.theme = theme
@@ -283,8 +283,7 @@ class ObservingScreen(QWidget):
         self.timer = QTimer(self)
         self.timer.setInterval(TICK_MILLISECONDS)
         self.timer.timeout.connect(session.tick)
-        if run_timer:
-            self.timer.start()
+        self.timer.start()
         self.set_theme(theme)
 
     # -- drawing -----------------------------------------------------------------------
