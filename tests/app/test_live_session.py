@@ -44,6 +44,10 @@ def test_solo_advances_as_soon_as_every_dimension_is_coded(study, store, clock):
     assert state.time_left == pytest.approx(20.0)  # a fresh full window from the moment of advance
     rows = raw(study, "SELECT o.learner, c.dimension, c.code FROM codes c JOIN observations o USING (observation_id) ORDER BY c.rowid")
     assert rows == [("L01", "activity", "on_task"), ("L01", "affect", "focused")]
+    # the window really ended when the last code went in (5 s), not at the planned 20 s
+    view = store.observations(["activity", "affect"])
+    first = view[view["learner"] == "L01"].iloc[0]
+    assert (first["window_end"] - first["window_start"]).total_seconds() == pytest.approx(5.0)
 
 
 def test_solo_window_that_ends_uncoded_is_an_explicit_no_code_row(study, store, clock):
