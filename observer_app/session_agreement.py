@@ -13,7 +13,7 @@ import pandas as pd
 
 from agreement.figures import Estimate, assess_agreement, headline_kappa
 from agreement.pairing import pair_observations
-from observer_app.commands.agree import scheme_dimensions
+from observer_app.reliability_data import scheme_dimensions
 from observer_app.store import Store
 from observer_app.study import Study
 
