@@ -129,11 +129,11 @@ def test_recoding_a_dimension_supersedes_the_earlier_code(study, store, clock):
 
 def test_could_not_observe_key_codes_every_remaining_dimension(study, store, clock):
     session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1")
-    session.press("2")
+    session.press("4")
     session.code_remaining_not_observed()
     assert session.state().learner == "L02"
     assert raw(study, "SELECT dimension, code FROM codes ORDER BY rowid") == [
-        ("activity", "task_talk"), ("affect", "unclear")]  # "unclear": scheme.toml's could_not_observe for affect
+        ("activity", "rapid_guessing"), ("affect", "unclear")]  # "unclear": scheme.toml's could_not_observe for affect
 
 
 def test_absent_learner_is_skipped_and_returned_learner_is_picked_up(study, store, clock):
@@ -327,7 +327,7 @@ def test_reopening_resumes_an_interrupted_session(study, clock, paired):
             session.tick()
     session.mark_absent("L06")
     clock.advance(2)
-    session.press("2")  # fifth learner half coded, then the app dies
+    session.press("4")  # fifth learner half coded, then the app dies
     store.close()
     clock.advance(47)
     store = Store(study.store_path)
@@ -344,7 +344,7 @@ def test_reopening_resumes_an_interrupted_session(study, clock, paired):
         assert raw(study, "SELECT slot, no_code FROM observations WHERE slot >= 4 ORDER BY slot") == [(4, 0), (5, 1)]
     else:
         assert state.slot == 4 and state.learner == "L05"
-        assert state.coded == {"activity": "task_talk"} and state.missing == ("affect",)
+        assert state.coded == {"activity": "rapid_guessing"} and state.missing == ("affect",)
         assert state.time_left == pytest.approx(20)
         resumed.press("w")
         assert resumed.state().learner == "L01"  # L06 is still absent after the resume
