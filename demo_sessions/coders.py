@@ -163,7 +163,9 @@ def simulate_coding(rng: np.random.Generator, scenario: Scenario, seed: int, clo
     return _code_turns(rng, scenario, seed, clocks, states, events, sessions, session_rows, turn_rows)
 
 
-def _code_turns(rng, scenario, seed, clocks, states, events, sessions, session_rows, turn_rows) -> CodingRecord:
+def _code_turns(rng: np.random.Generator, scenario: Scenario, seed: int, clocks: tuple[DeviceClock, ...],
+                states: LatentStates, events: pd.DataFrame, sessions: tuple[CodingSession, ...],
+                session_rows: list[dict], turn_rows: list[tuple]) -> CodingRecord:
     """Vectorised over all turns: device and log times, true and coded states, sync marks."""
     (session_id, coder_index, centre_index, learner, slot, begin, end, coded, started_ns,
      log_start_ns) = (np.asarray(column) for column in zip(*turn_rows))
@@ -216,7 +218,9 @@ def _code_turns(rng, scenario, seed, clocks, states, events, sessions, session_r
     return CodingRecord(sessions=pd.DataFrame(session_rows), observations=observations, marks=marks, truth=truth)
 
 
-def _sync_marks(rng, scenario, seed, clocks, events, chains, coder_index, session_id, learner, log_start, log_coded):
+def _sync_marks(rng: np.random.Generator, scenario: Scenario, seed: int, clocks: tuple[DeviceClock, ...],
+                events: pd.DataFrame, chains: np.ndarray, coder_index: np.ndarray, session_id: np.ndarray,
+                learner: np.ndarray, log_start: np.ndarray, log_coded: np.ndarray) -> pd.DataFrame:
     """Up to ``marks_per_session`` marks per device session, on isolated attempts seen in a window."""
     time_ns = events["time_ns"].to_numpy()
     event_chain = events["chain"].to_numpy()

@@ -59,13 +59,20 @@ def _utc_ns(day: str, clock_time: str, timezone: str) -> int:
     return int(pd.Timestamp(local).value)
 
 
+def check_output_folder(out: Path) -> None:
+    """InputError unless ``out`` is new or holds none of the generator's outputs."""
+    if out.exists() and not out.is_dir():
+        raise InputError(out, None, "is a file; give a folder for --out")
+    clashes = [name for name in OUTPUTS if (out / name).exists()]
+    if clashes:
+        raise InputError(out / clashes[0], None, "already exists; choose an empty --out folder")
+
+
 def generate_demo(out: str | Path, seed: int, size: str = "full") -> Generated:
     """Build the demo under ``out`` (see the module docstring); InputError if ``out`` already holds one."""
     out = Path(out)
     scenario = SIZES[size]
-    clashes = [name for name in OUTPUTS if (out / name).exists()]
-    if clashes:
-        raise InputError(out / clashes[0], None, "already exists; choose an empty --out folder")
+    check_output_folder(out)
     out.mkdir(parents=True, exist_ok=True)
     building = out / f".building-{seed}"
     shutil.rmtree(building, ignore_errors=True)

@@ -14,8 +14,10 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
                                            generator, copied from DIR/truth.json (the only copied figures)
                               "recovered": {"method", "offset_s", "drift_ppm", ...} from the align
                                            step, or null while that step does not exist
-    dimensions      object  per scheme dimension, from the agree step: "kappa" and "alpha", each
-                            {"value", "low", "high"} (95 % interval); null while agree does not exist
+    dimensions      object  per scheme dimension, from the agree step (agreement/, as `fieldmark agree`):
+                            "kappa" (Cohen's), "alpha" (Krippendorff's) and "percent_agreement", each
+                            {"value", "low", "high"} (95 % cluster-bootstrap interval over learners), "band"
+                            (Landis & Koch) and "units" (paired windows compared)
     coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
                             {"kappa", "percent_correct", "windows"}: scikit-learn's Cohen's kappa of the
                             simulated coder's codes against the generator's true states
@@ -40,7 +42,7 @@ from agreement.figures import assess_agreement, headline_kappa
 from agreement.report import confusion_figure, drift_figure
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
 from agreement.views import rolling_kappa
-from demo_sessions.generate import Generated, generate_demo
+from demo_sessions.generate import Generated, check_output_folder, generate_demo
 from demo_sessions.truth_check import coder_vs_truth
 from demo_sessions.truth_files import read_truth
 from observer_app import demo_report as report
@@ -55,6 +57,7 @@ SUMMARY_KEYS: tuple[str, ...] = (
     "seconds",
 )
 TIMELINE_LEARNERS = 4
+AGREEMENT_RESAMPLES = 1000
 
 
 @dataclass
@@ -137,9 +140,11 @@ def step_agree(run: DemoRun) -> None:
     """The agreement step: the two coders' paired windows, every figure with its cluster-bootstrap CI."""
     assert run.study is not None
     units, dimensions, pairing = study_units(run.study)
-    agreement = assess_agreement(units, dimensions, resamples=1000, seed=run.seed)
+    agreement = assess_agreement(units, dimensions, resamples=AGREEMENT_RESAMPLES, seed=run.seed)
     run.summary["dimensions"] = {
-        name: {"kappa": headline_kappa(result.figures).as_dict(), "alpha": result.figures["alpha"].as_dict()}
+        name: {"kappa": headline_kappa(result.figures).as_dict(), "alpha": result.figures["alpha"].as_dict(),
+               "percent_agreement": result.figures["percent_agreement"].as_dict(), "band": result.band,
+               "units": result.units}
         for name, result in agreement.dimensions.items()
     }
     figures = pd.DataFrame([
@@ -178,6 +183,7 @@ def _write_atomically(path: Path, text: str) -> None:
 
 def run_demo(out: str | Path, seed: int, size: str = "full", progress: bool = True) -> dict:
     """Run every step into ``out``; write summary.json and report.html; return the summary."""
+    check_output_folder(Path(out))
     run = DemoRun(out=Path(out), seed=seed, size=size)
     run.summary = dict.fromkeys(SUMMARY_KEYS)
     run.summary.update(seed=seed, steps=[])

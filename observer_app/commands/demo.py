@@ -1,11 +1,13 @@
-"""``fieldmark demo --out DIR [--seed N]``: build the demo study and run the whole pipeline on it."""
+"""``fieldmark demo --out DIR [--seed N]``: build the demo study and run the whole pipeline on it.
+
+The pipeline (and with it scikit-learn and matplotlib) is imported only when the verb
+runs, so `fieldmark --help` and the other verbs start fast.
+"""
 from __future__ import annotations
 
 import argparse
 import json
 from pathlib import Path
-
-from observer_app.demo_pipeline import REPORT_FILE, SUMMARY_FILE, run_demo
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
@@ -20,7 +22,14 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.set_defaults(run=run)
 
 
-def _human(summary: dict, out: Path) -> str:
+def _estimate(figure: dict) -> str:
+    if figure["value"] is None:
+        return "undefined"
+    return f"{figure['value']:.2f} [{figure['low']:.2f}, {figure['high']:.2f}]"
+
+
+def human_summary(summary: dict) -> str:
+    """The few lines printed at the end: what was built, what each step found."""
     generated = summary["generated"]
     lines = [f"demo study: {summary['study']} ({generated['learners']} learners, {generated['events']} log events, "
              f"{generated['observations']} coded windows)"]
@@ -31,18 +40,21 @@ def _human(summary: dict, out: Path) -> str:
         lines.append(f"  {device}: truth {truth['offset_s']:+.2f} s, {truth['drift_ppm']:+.1f} ppm; {found}")
     for dimension, figures in (summary["dimensions"] or {}).items():
         kappa, alpha = figures["kappa"], figures["alpha"]
-        lines.append(f"  {dimension}: kappa {kappa['value']:.2f} [{kappa['low']:.2f}, {kappa['high']:.2f}], "
-                     f"alpha {alpha['value']:.2f} [{alpha['low']:.2f}, {alpha['high']:.2f}]")
+        lines.append(f"  coder agreement, {dimension}: Cohen's kappa {_estimate(kappa)}, "
+                     f"Krippendorff's alpha {_estimate(alpha)} ({figures['units']} paired windows)")
     for dimension, coders in (summary["coder_vs_truth"] or {}).items():
         shown = ", ".join(f"{coder} {values['kappa']:.2f}" for coder, values in coders.items())
         lines.append(f"  coder vs truth (demo check), {dimension}: kappa {shown}")
     if summary["windows"]:
         lines.append(f"  windows written: {summary['windows']['written']} -> {summary['windows']['path']}")
-    lines.append(f"wrote {out / SUMMARY_FILE} and {out / REPORT_FILE} in {summary['seconds']:.1f} s")
+    out = Path(summary["study"]).parent
+    lines.append(f"wrote {out / 'summary.json'} and {out / 'report.html'} in {summary['seconds']:.1f} s")
     return "\n".join(lines)
 
 
 def run(args: argparse.Namespace) -> int:
+    from observer_app.demo_pipeline import run_demo
+
     summary = run_demo(args.out, args.seed)
-    print(json.dumps(summary) if args.json else _human(summary, args.out))
+    print(json.dumps(summary) if args.json else human_summary(summary))
     return 0
