@@ -85,9 +85,6 @@ LABEL_SOURCE_PREFIX = "label_source_"
 
 ROSTER_PRIVATE_COLUMNS: tuple[str, ...] = ("learner", "label", "log_id")
 
-LABEL_SOURCES: tuple[str, ...] = (
-    "adjudicated", "agreed", "single", "first-coder", "majority", "unresolved", "could-not-observe",
-)
 LABEL_POLICIES: tuple[str, ...] = ("first-coder", "agreed-only", "majority")
 
 METADATA_KEY = b"fieldmark"
