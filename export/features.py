@@ -345,9 +345,11 @@ def distinct_items(view: WindowEvents) -> dict[str, np.ndarray]:
 def persistence(view: WindowEvents) -> dict[str, np.ndarray]:
     """attempts_without_success on the current skill at window end, and the wheel_spinning flag."""
     counter = np.zeros(len(view.counts))
-    skill = view.skill.codes[view.attempt_rows]
-    with_skill = view.skill.present(skill)
-    attempts, skill = view.attempt_rows[with_skill], skill[with_skill]
+    attempts = view.attempt_rows
+    skill = view.skill.codes[attempts]
+    if (view.skill.names == "").any() or skill.min(initial=0) < 0:  # skip the filter when every row has a skill
+        with_skill = view.skill.present(skill)
+        attempts, skill = attempts[with_skill], skill[with_skill]
     latest = np.searchsorted(attempts, view.stop) - 1  # the learner's latest attempt before window end
     learner_first = np.searchsorted(attempts, view.learner_start)
     valid = latest >= learner_first
