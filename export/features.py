@@ -68,9 +68,16 @@ class CodedColumn:
 
     def mask(self, wanted: tuple[str, ...], rows: np.ndarray | None = None) -> np.ndarray:
         """Boolean per row (all rows, or just ``rows``): the value is one of ``wanted``."""
+        codes = self.codes if rows is None else self.codes[rows]
+        matching = np.flatnonzero(np.isin(self.names, np.asarray(wanted, dtype=object)))
+        if len(matching) <= 2:  # a comparison or two is cheaper than a table lookup per row
+            result = np.zeros(len(codes), dtype=bool)
+            for code in matching:
+                result |= codes == code
+            return result
         lookup = np.zeros(len(self.names) + 1, dtype=bool)  # code -1 reads the trailing False
-        lookup[np.flatnonzero(np.isin(self.names, np.asarray(wanted, dtype=object)))] = True
-        return lookup[self.codes if rows is None else self.codes[rows]]
+        lookup[matching] = True
+        return lookup[codes]
 
 
 def code_column(values: pd.Series | pa.ChunkedArray) -> CodedColumn:
@@ -176,8 +183,7 @@ class WindowEvents:
     @cached_property
     def error_rows(self) -> np.ndarray:
         """Log rows with an error outcome, in log order."""
-        attempts = self.attempt_rows
-        return attempts[self.outcome.mask(self.settings.error_outcomes, attempts)]
+        return np.flatnonzero(self.outcome.mask(self.settings.error_outcomes))
 
     def prepare(self) -> None:
         """Build the shared arrays now, before feature functions read them from several threads."""
@@ -367,10 +373,10 @@ def _attempts_since_success(
     """Attempts in a row on the skill of attempt ``latest`` since the learner's last success on it.
 
     ``attempts`` are log rows and ``skill`` their skill codes; ``latest`` and
-    ``learner_first`` index into them.  A stable
-    sort by skill keeps log order inside each skill, so one learner's attempts on one
-    skill are a contiguous stretch of the sorted order; the answer is the distance from
-    the latest attempt back to the last success (or to the stretch's start).
+    ``learner_first`` index into them.  A stable sort by skill keeps log order inside
+    each skill, so one learner's attempts on one skill are a contiguous stretch of the
+    sorted order; the answer is the distance from the latest attempt back to the last
+    success (or to the stretch's start).
     """
     for small in (np.int8, np.int16):  # numpy sorts 8- and 16-bit keys by radix: linear time
         if len(view.skill.names) <= np.iinfo(small).max:
@@ -379,15 +385,19 @@ def _attempts_since_success(
     order = np.argsort(skill, kind="stable")
     bounds = np.zeros(len(view.skill.names) + 1, dtype=np.int64)
     np.cumsum(np.bincount(skill, minlength=len(view.skill.names)), out=bounds[1:])
-    current = skill[latest]
-    low, high = bounds[current], bounds[current.astype(np.int64) + 1]
+    current = skill[latest].astype(np.int64)
+    by_skill = np.lexsort((latest, current))  # queries in sorted-array order: the searches walk forwards
+    latest, learner_first, current = latest[by_skill], learner_first[by_skill], current[by_skill]
+    low, high = bounds[current], bounds[current + 1]
     position = _search_runs(order, low, high, latest)
     stretch_start = _search_runs(order, low, high, learner_first)
     success = view.outcome.mask(view.settings.success_outcomes, attempts)
     successes = np.flatnonzero(success[order])
     before = np.searchsorted(successes, position, side="right") - 1
     last_success = np.where(before >= 0, successes[np.maximum(before, 0)] if len(successes) else -1, -1)
-    return (position - np.maximum(last_success, stretch_start - 1)).astype(np.float64)
+    streak = np.empty(len(latest))
+    streak[by_skill] = position - np.maximum(last_success, stretch_start - 1)
+    return streak
 
 
 @feature
