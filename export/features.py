@@ -121,11 +121,9 @@ class WindowEvents:
     """
 
     settings: FeatureSettings
+    events: pd.DataFrame | pa.Table
+    row_order: np.ndarray | None
     time_ns: np.ndarray
-    action: CodedColumn
-    outcome: CodedColumn
-    item: CodedColumn
-    skill: CodedColumn
     learner_codes: np.ndarray
     window_order: np.ndarray
     learner_start: np.ndarray
@@ -133,6 +131,29 @@ class WindowEvents:
     stop: np.ndarray
     start_ns: np.ndarray
     end_ns: np.ndarray
+
+    def _coded(self, name: str) -> CodedColumn:
+        """An EVENTS string column as codes, in the sorted log's row order."""
+        column = code_column(self.events[name])
+        return column if self.row_order is None else CodedColumn(column.codes[self.row_order], column.names)
+
+    # The log's other columns are coded on first use, so features that do not need one
+    # never read it (and a caller may leave it out of the table).
+    @cached_property
+    def action(self) -> CodedColumn:
+        return self._coded("action")
+
+    @cached_property
+    def outcome(self) -> CodedColumn:
+        return self._coded("outcome")
+
+    @cached_property
+    def item(self) -> CodedColumn:
+        return self._coded("item")
+
+    @cached_property
+    def skill(self) -> CodedColumn:
+        return self._coded("skill")
 
     @cached_property
     def counts(self) -> np.ndarray:
@@ -184,12 +205,6 @@ class WindowEvents:
     def error_rows(self) -> np.ndarray:
         """Log rows with an error outcome, in log order."""
         return np.flatnonzero(self.outcome.mask(self.settings.error_outcomes))
-
-    def prepare(self) -> None:
-        """Build the shared arrays now, before feature functions read them from several threads."""
-        for name in ("counts", "offsets", "member", "member_window", "member_time_ns", "previous_gap_ns",
-                     "internal_gap_ns", "attempt_outcomes", "attempt_rows", "error_rows"):
-            getattr(self, name)
 
     def reduce_members(self, ufunc: np.ufunc, values: np.ndarray, empty: float) -> np.ndarray:
         """``ufunc`` over each window's member values; ``empty`` for windows without rows."""
@@ -429,28 +444,22 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
         high = np.where(active & ~before, middle, high)
 
 
-def index_windows(
-    events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings,
-    threads: int = 2,
-) -> WindowEvents:
+def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings) -> WindowEvents:
     """Sort the log once (if it is not already) and locate every window's rows.
 
-    ``events``: EVENTS columns learner, time_ns, action, outcome, item, skill (pandas or
-    Arrow; Arrow dictionary columns are the cheapest input).
+    ``events``: EVENTS columns learner and time_ns, and those of action, outcome, item,
+    skill that the features use (pandas or Arrow; Arrow dictionary columns are the
+    cheapest input).
     ``windows``: log_id, start_ns (inclusive), end_ns (exclusive), as sync/ made them.
     """
-    names = ("learner", "action", "outcome", "item", "skill")
-    with ThreadPoolExecutor(max_workers=threads) as pool:
-        coded = dict(zip(names, pool.map(code_column, [events[name] for name in names])))
-    learner = coded.pop("learner")
-    columns = coded
+    learner = code_column(events["learner"])
     time_ns = np.asarray(events["time_ns"], dtype=np.int64)
     starts = _run_starts(learner.codes)
+    row_order = None
     if not _in_log_order(learner.codes, time_ns, starts):
-        order = np.lexsort((time_ns, learner.codes))
-        time_ns = time_ns[order]
-        learner = CodedColumn(learner.codes[order], learner.names)
-        columns = {name: CodedColumn(column.codes[order], column.names) for name, column in columns.items()}
+        row_order = np.lexsort((time_ns, learner.codes))
+        time_ns = time_ns[row_order]
+        learner = CodedColumn(learner.codes[row_order], learner.names)
         starts = _run_starts(learner.codes)
     run_start = np.zeros(len(learner.names) + 1, dtype=np.int64)
     run_stop = np.zeros(len(learner.names) + 1, dtype=np.int64)
@@ -469,9 +478,9 @@ def index_windows(
     first = _search_runs(time_ns, learner_start, learner_stop, window_start)
     stop = _search_runs(time_ns, first, learner_stop, window_end)
     return WindowEvents(
-        settings=settings, time_ns=time_ns, learner_codes=learner.codes, window_order=window_order,
-        learner_start=learner_start, first=first, stop=stop, start_ns=window_start, end_ns=window_end,
-        **columns,
+        settings=settings, events=events, row_order=row_order, time_ns=time_ns, learner_codes=learner.codes,
+        window_order=window_order, learner_start=learner_start, first=first, stop=stop, start_ns=window_start,
+        end_ns=window_end,
     )
 
 
@@ -500,11 +509,12 @@ def compute_features(
 ) -> pd.DataFrame:
     """One row per window (``windows``' index): start_ns, end_ns, then every feature column.
 
-    Feature functions run on ``threads`` threads (numpy releases the GIL in its loops);
-    the arrays they share are built first, so the functions only read the view.
+    Feature functions run on ``threads`` threads (numpy releases the GIL in its loops).
+    The arrays they share are cached properties of the view: built once under
+    cached_property's lock (Python 3.11); on later Pythons two threads may at worst both
+    build the same array.
     """
-    view = index_windows(events, windows, settings, threads)
-    view.prepare()
+    view = index_windows(events, windows, settings)
     columns: dict[str, np.ndarray] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
     with ThreadPoolExecutor(max_workers=threads) as pool:
         for result in pool.map(lambda function: function(view), features.values()):
