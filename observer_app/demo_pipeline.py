@@ -46,9 +46,11 @@ from demo_sessions.generate import Generated, check_output_folder, generate_demo
 from demo_sessions.truth_check import coder_vs_truth
 from demo_sessions.truth_files import read_truth
 from observer_app import demo_report as report
+from observer_app.alignment import align_study, model_summary
 from observer_app.reliability_data import study_units
 from observer_app.store import Store
 from observer_app.study import Study, load_study
+from sync.residual_plot import residual_figure
 
 SUMMARY_FILE = "summary.json"
 REPORT_FILE = "report.html"
@@ -136,6 +138,32 @@ def step_coder_vs_truth(run: DemoRun) -> None:
     ))
 
 
+def step_align(run: DemoRun) -> None:
+    """The align step: each laptop's clock model (sync marks when there are enough), stored in the study."""
+    assert run.study is not None
+    alignment = align_study(run.study, "best")
+    rows = []
+    for device, model in alignment.models.items():
+        truth = run.summary["devices"].get(device, {}).get("truth")
+        if truth:  # the same fitted line, stated at the planted reference so the figures compare
+            model = model.at_reference(pd.Timestamp(truth["reference"]).value)
+        run.summary["devices"].setdefault(device, {"truth": None})["recovered"] = model_summary(model)
+        rows.append({"device": device, "method": model.method, "offset_s": model.offset_s,
+                     "drift_ppm": model.drift_ppm, "marks_used": model.marks_used,
+                     "median_abs_residual_s": model.median_abs_residual_s, "confidence": model.confidence,
+                     "planted offset_s (truth)": truth and truth["offset_s"],
+                     "planted drift_ppm (truth)": truth and truth["drift_ppm"]})
+    run.sections.append(report.section(
+        "Clocks: each laptop on the log's clock",
+        report.paragraph(f"Read {alignment.read_report.rows} log events. Device time = log time + offset + drift x "
+                         "(log time - reference); offsets are stated at the generator's reference time. The planted "
+                         "columns are the generator's truth, shown for comparison only."),
+        report.table_html(pd.DataFrame(rows)),
+        *(report.figure_html(residual_figure(model), f"clock fit of {device}")
+          for device, model in alignment.models.items()),
+    ))
+
+
 def step_agree(run: DemoRun) -> None:
     """The agreement step: the two coders' paired windows, every figure with its cluster-bootstrap CI."""
     assert run.study is not None
@@ -171,6 +199,7 @@ def step_agree(run: DemoRun) -> None:
 STEPS: tuple[tuple[str, Callable[[DemoRun], None]], ...] = (
     ("generate", step_generate),
     ("coder_vs_truth", step_coder_vs_truth),
+    ("align", step_align),
     ("agree", step_agree),
 )
 
