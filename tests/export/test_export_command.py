@@ -135,3 +135,16 @@ def test_export_without_the_secret_key_asks_for_it_or_for_keep_ids(study, tmp_pa
         key.write_bytes(saved)
         key.chmod(0o600)
     assert not (tmp_path / "w.parquet").exists()
+
+
+def test_demo_runs_the_export_and_check_steps(tmp_path) -> None:
+    from observer_app.demo_pipeline import run_demo
+
+    summary = run_demo(tmp_path / "demo", seed=5, size="small", progress=False)
+    assert [step["name"] for step in summary["steps"]][-2:] == ["export", "check"]
+    table = pd.read_parquet(summary["windows"]["path"])
+    assert summary["windows"]["written"] == len(table) > 0
+    assert set(summary["detector"]) == {"activity", "affect"}
+    activity = summary["detector"]["activity"]
+    assert activity["learners"] == table["group"].nunique()
+    assert activity["majority_baseline"]["auc"] == pytest.approx(0.5)
