@@ -97,7 +97,7 @@ def test_exported_features_match_duckdb_on_the_same_windows(study, tmp_path, cap
     assert table["help_requests"].sum() > 0 and table["event_count"].sum() > 0
 
 
-def test_export_csv_and_agreed_only_labels(study, tmp_path, capsys) -> None:
+def test_export_csv_and_agreed_only_labels(study, exported, tmp_path, capsys) -> None:
     out = tmp_path / "windows.csv"
     assert main(["export", str(study), "--out", str(out), "--labels", "agreed-only", "--json"]) == 0
     summary = json.loads(capsys.readouterr().out)
@@ -105,6 +105,9 @@ def test_export_csv_and_agreed_only_labels(study, tmp_path, capsys) -> None:
     table = pd.read_csv(out)
     sources = set(table["label_source_activity"].dropna()) | set(table["label_source_affect"].dropna())
     assert not sources & {"first-coder", "majority"}
+    earlier = pd.read_parquet(exported[0])                                           # another run, same key
+    assert set(table["learner"]) <= set(earlier["learner"])                          # the same pseudonyms
+    assert set(table["window_id"]) <= set(earlier["window_id"])
 
 
 def test_export_rejects_bad_input_with_one_line_and_writes_nothing(study, tmp_path, capsys) -> None:
