@@ -68,9 +68,16 @@ class CodedColumn:
 
     def mask(self, wanted: tuple[str, ...], rows: np.ndarray | None = None) -> np.ndarray:
         """Boolean per row (all rows, or just ``rows``): the value is one of ``wanted``."""
+        codes = self.codes if rows is None else self.codes[rows]
+        matching = np.flatnonzero(np.isin(self.names, np.asarray(wanted, dtype=object)))
+        if len(matching) <= 2:  # a comparison or two is cheaper than a table lookup per row
+            result = np.zeros(len(codes), dtype=bool)
+            for code in matching:
+                result |= codes == code
+            return result
         lookup = np.zeros(len(self.names) + 1, dtype=bool)  # code -1 reads the trailing False
-        lookup[np.flatnonzero(np.isin(self.names, np.asarray(wanted, dtype=object)))] = True
-        return lookup[self.codes if rows is None else self.codes[rows]]
+        lookup[matching] = True
+        return lookup[codes]
 
 
 def code_column(values: pd.Series | pa.ChunkedArray) -> CodedColumn:
@@ -114,11 +121,9 @@ class WindowEvents:
     """
 
     settings: FeatureSettings
+    events: pd.DataFrame | pa.Table
+    row_order: np.ndarray | None
     time_ns: np.ndarray
-    action: CodedColumn
-    outcome: CodedColumn
-    item: CodedColumn
-    skill: CodedColumn
     learner_codes: np.ndarray
     window_order: np.ndarray
     learner_start: np.ndarray
@@ -126,6 +131,29 @@ class WindowEvents:
     stop: np.ndarray
     start_ns: np.ndarray
     end_ns: np.ndarray
+
+    def _coded(self, name: str) -> CodedColumn:
+        """An EVENTS string column as codes, in the sorted log's row order."""
+        column = code_column(self.events[name])
+        return column if self.row_order is None else CodedColumn(column.codes[self.row_order], column.names)
+
+    # The log's other columns are coded on first use, so features that do not need one
+    # never read it (and a caller may leave it out of the table).
+    @cached_property
+    def action(self) -> CodedColumn:
+        return self._coded("action")
+
+    @cached_property
+    def outcome(self) -> CodedColumn:
+        return self._coded("outcome")
+
+    @cached_property
+    def item(self) -> CodedColumn:
+        return self._coded("item")
+
+    @cached_property
+    def skill(self) -> CodedColumn:
+        return self._coded("skill")
 
     @cached_property
     def counts(self) -> np.ndarray:
@@ -176,14 +204,7 @@ class WindowEvents:
     @cached_property
     def error_rows(self) -> np.ndarray:
         """Log rows with an error outcome, in log order."""
-        attempts = self.attempt_rows
-        return attempts[self.outcome.mask(self.settings.error_outcomes, attempts)]
-
-    def prepare(self) -> None:
-        """Build the shared arrays now, before feature functions read them from several threads."""
-        for name in ("counts", "offsets", "member", "member_window", "member_time_ns", "previous_gap_ns",
-                     "internal_gap_ns", "attempt_outcomes", "attempt_rows", "error_rows"):
-            getattr(self, name)
+        return np.flatnonzero(self.outcome.mask(self.settings.error_outcomes))
 
     def reduce_members(self, ufunc: np.ufunc, values: np.ndarray, empty: float) -> np.ndarray:
         """``ufunc`` over each window's member values; ``empty`` for windows without rows."""
@@ -345,9 +366,11 @@ def distinct_items(view: WindowEvents) -> dict[str, np.ndarray]:
 def persistence(view: WindowEvents) -> dict[str, np.ndarray]:
     """attempts_without_success on the current skill at window end, and the wheel_spinning flag."""
     counter = np.zeros(len(view.counts))
-    skill = view.skill.codes[view.attempt_rows]
-    with_skill = view.skill.present(skill)
-    attempts, skill = view.attempt_rows[with_skill], skill[with_skill]
+    attempts = view.attempt_rows
+    skill = view.skill.codes[attempts]
+    if (view.skill.names == "").any() or skill.min(initial=0) < 0:  # skip the filter when every row has a skill
+        with_skill = view.skill.present(skill)
+        attempts, skill = attempts[with_skill], skill[with_skill]
     latest = np.searchsorted(attempts, view.stop) - 1  # the learner's latest attempt before window end
     learner_first = np.searchsorted(attempts, view.learner_start)
     valid = latest >= learner_first
@@ -365,10 +388,10 @@ def _attempts_since_success(
     """Attempts in a row on the skill of attempt ``latest`` since the learner's last success on it.
 
     ``attempts`` are log rows and ``skill`` their skill codes; ``latest`` and
-    ``learner_first`` index into them.  A stable
-    sort by skill keeps log order inside each skill, so one learner's attempts on one
-    skill are a contiguous stretch of the sorted order; the answer is the distance from
-    the latest attempt back to the last success (or to the stretch's start).
+    ``learner_first`` index into them.  A stable sort by skill keeps log order inside
+    each skill, so one learner's attempts on one skill are a contiguous stretch of the
+    sorted order; the answer is the distance from the latest attempt back to the last
+    success (or to the stretch's start).
     """
     for small in (np.int8, np.int16):  # numpy sorts 8- and 16-bit keys by radix: linear time
         if len(view.skill.names) <= np.iinfo(small).max:
@@ -377,15 +400,19 @@ def _attempts_since_success(
     order = np.argsort(skill, kind="stable")
     bounds = np.zeros(len(view.skill.names) + 1, dtype=np.int64)
     np.cumsum(np.bincount(skill, minlength=len(view.skill.names)), out=bounds[1:])
-    current = skill[latest]
-    low, high = bounds[current], bounds[current.astype(np.int64) + 1]
+    current = skill[latest].astype(np.int64)
+    by_skill = np.lexsort((latest, current))  # queries in sorted-array order: the searches walk forwards
+    latest, learner_first, current = latest[by_skill], learner_first[by_skill], current[by_skill]
+    low, high = bounds[current], bounds[current + 1]
     position = _search_runs(order, low, high, latest)
     stretch_start = _search_runs(order, low, high, learner_first)
     success = view.outcome.mask(view.settings.success_outcomes, attempts)
     successes = np.flatnonzero(success[order])
     before = np.searchsorted(successes, position, side="right") - 1
     last_success = np.where(before >= 0, successes[np.maximum(before, 0)] if len(successes) else -1, -1)
-    return (position - np.maximum(last_success, stretch_start - 1)).astype(np.float64)
+    streak = np.empty(len(latest))
+    streak[by_skill] = position - np.maximum(last_success, stretch_start - 1)
+    return streak
 
 
 @feature
@@ -417,28 +444,22 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
         high = np.where(active & ~before, middle, high)
 
 
-def index_windows(
-    events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings,
-    threads: int = 2,
-) -> WindowEvents:
+def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings) -> WindowEvents:
     """Sort the log once (if it is not already) and locate every window's rows.
 
-    ``events``: EVENTS columns learner, time_ns, action, outcome, item, skill (pandas or
-    Arrow; Arrow dictionary columns are the cheapest input).
+    ``events``: EVENTS columns learner and time_ns, and those of action, outcome, item,
+    skill that the features use (pandas or Arrow; Arrow dictionary columns are the
+    cheapest input).
     ``windows``: log_id, start_ns (inclusive), end_ns (exclusive), as sync/ made them.
     """
-    names = ("learner", "action", "outcome", "item", "skill")
-    with ThreadPoolExecutor(max_workers=threads) as pool:
-        coded = dict(zip(names, pool.map(code_column, [events[name] for name in names])))
-    learner = coded.pop("learner")
-    columns = coded
+    learner = code_column(events["learner"])
     time_ns = np.asarray(events["time_ns"], dtype=np.int64)
     starts = _run_starts(learner.codes)
+    row_order = None
     if not _in_log_order(learner.codes, time_ns, starts):
-        order = np.lexsort((time_ns, learner.codes))
-        time_ns = time_ns[order]
-        learner = CodedColumn(learner.codes[order], learner.names)
-        columns = {name: CodedColumn(column.codes[order], column.names) for name, column in columns.items()}
+        row_order = np.lexsort((time_ns, learner.codes))
+        time_ns = time_ns[row_order]
+        learner = CodedColumn(learner.codes[row_order], learner.names)
         starts = _run_starts(learner.codes)
     run_start = np.zeros(len(learner.names) + 1, dtype=np.int64)
     run_stop = np.zeros(len(learner.names) + 1, dtype=np.int64)
@@ -457,9 +478,9 @@ def index_windows(
     first = _search_runs(time_ns, learner_start, learner_stop, window_start)
     stop = _search_runs(time_ns, first, learner_stop, window_end)
     return WindowEvents(
-        settings=settings, time_ns=time_ns, learner_codes=learner.codes, window_order=window_order,
-        learner_start=learner_start, first=first, stop=stop, start_ns=window_start, end_ns=window_end,
-        **columns,
+        settings=settings, events=events, row_order=row_order, time_ns=time_ns, learner_codes=learner.codes,
+        window_order=window_order, learner_start=learner_start, first=first, stop=stop, start_ns=window_start,
+        end_ns=window_end,
     )
 
 
@@ -488,11 +509,12 @@ def compute_features(
 ) -> pd.DataFrame:
     """One row per window (``windows``' index): start_ns, end_ns, then every feature column.
 
-    Feature functions run on ``threads`` threads (numpy releases the GIL in its loops);
-    the arrays they share are built first, so the functions only read the view.
+    Feature functions run on ``threads`` threads (numpy releases the GIL in its loops).
+    The arrays they share are cached properties of the view: built once under
+    cached_property's lock (Python 3.11); on later Pythons two threads may at worst both
+    build the same array.
     """
-    view = index_windows(events, windows, settings, threads)
-    view.prepare()
+    view = index_windows(events, windows, settings)
     columns: dict[str, np.ndarray] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
     with ThreadPoolExecutor(max_workers=threads) as pool:
         for result in pool.map(lambda function: function(view), features.values()):

@@ -15,10 +15,10 @@ import pandas as pd
 import pyarrow as pa
 
 from export.features import FEATURES, FeatureFunction, FeatureSettings, compute_features, feature_definitions
-from export.labels import CODERS, REPRESENTATIVE, resolve_labels
+from export.labels import REPRESENTATIVE, resolve_labels
 from export.pseudonyms import pseudonymise
 from export.tables import (
-    GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, ROSTER_PRIVATE_COLUMNS, END, START, UNIT,
+    CODERS, GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, ROSTER_PRIVATE_COLUMNS, END, START, UNIT,
     WINDOW_ID,
 )
 

@@ -21,11 +21,10 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 import pandas as pd
 
-from export.tables import LABEL_POLICIES, LABEL_SOURCE_PREFIX, UNIT
+from export.tables import CODERS, LABEL_POLICIES, LABEL_SOURCE_PREFIX, UNIT
 
 REPRESENTATIVE = "observation"
 """Column of the result: index label (in ``windows``) of the unit's first observation."""
-CODERS = "coders"
 
 
 def unit_keys(windows: pd.DataFrame) -> pd.Series:

@@ -33,7 +33,8 @@ FEATURES -- one column per figure, float64 (counts too, so NaN can mean "undefin
                                 any window
     error_rate                  error outcomes / attempts in the window (NaN without attempts)
     help_requests               events whose action is a help action (defaults: "hint",
-                                "help", "help_request", "hint_request")
+                                "help", "help_request", "hint_request"; xAPI logs carry
+                                verb ids, so name those: fieldmark export --help-actions)
     seconds_since_previous      window start minus the learner's last event before it (NaN
                                 when there is none)
     gap_mean_s, gap_median_s,   mean / median / largest time between consecutive events
@@ -52,7 +53,9 @@ FEATURES -- one column per figure, float64 (counts too, so NaN can mean "undefin
     history_error_rate          error outcomes / attempts before window end (NaN without)
   Every feature uses only events before the window end: no future leakage.
 
-EXPORTED WINDOWS -- one row per unit (or per observation when there is no unit):
+EXPORTED WINDOWS -- one row per unit (or per observation when there is no unit); the
+unit's learner and window are those of its first observation (earliest start, ties by
+coder name), the labels come from all of its observations (export/labels.py):
     window_id        string   keyed pseudonym of the unit (raw unit with keep_ids)
     learner          string   keyed pseudonym of the roster learner (raw id with keep_ids)
     group            string   same as learner: the grouping for grouped cross-validation
@@ -60,8 +63,8 @@ EXPORTED WINDOWS -- one row per unit (or per observation when there is no unit):
     log_id           string   only with keep_ids
     mode             string   "live" or "replay"
     coders           int64    how many observations (coders) the unit has
-    start_ns    int64    feature window start, UTC ns on the log's clock (inclusive)
-    end_ns      int64    feature window end (exclusive)
+    start_ns         int64    window start, UTC ns on the log's clock (inclusive)
+    end_ns           int64    window end (exclusive)
     <dimension>      string   the resolved label, one column per scheme dimension (NA when
                               unresolved or could-not-observe)
     label_source_<dimension>  string  "adjudicated" | "agreed" | "single" | "first-coder" |
@@ -85,9 +88,6 @@ LABEL_SOURCE_PREFIX = "label_source_"
 
 ROSTER_PRIVATE_COLUMNS: tuple[str, ...] = ("learner", "label", "log_id")
 
-LABEL_SOURCES: tuple[str, ...] = (
-    "adjudicated", "agreed", "single", "first-coder", "majority", "unresolved", "could-not-observe",
-)
 LABEL_POLICIES: tuple[str, ...] = ("first-coder", "agreed-only", "majority")
 
 METADATA_KEY = b"fieldmark"

@@ -22,6 +22,7 @@ COMMANDS: tuple[str, ...] = (
     "agree",
     "adjudicate",
     "plan",
+    "export_windows",
     "check",
     "demo",
 )

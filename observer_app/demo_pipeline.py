@@ -21,8 +21,11 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
     coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
                             {"kappa", "percent_correct", "windows"}: scikit-learn's Cohen's kappa of the
                             simulated coder's codes against the generator's true states
-    windows         object  from the export step: {"written", "path"}; null while export does not exist
-    detector        object  from the check step; null while check does not exist
+    windows         object  from the export step: {"written", "path"} -- DIR/windows.parquet, labelled,
+                            de-identified windows with their features (manifest beside it)
+    detector        object  from the check step: per dimension the grouped cross-validated check of
+                            export/detector_check.py (rows, learners, folds, codes, model, majority_baseline,
+                            stratified_baseline; each score {"kappa", "auc"})
     seconds         float   wall time of the whole run
 DIR/report.html: one section per step, tables and base64 PNG figures, self-contained.
 """
@@ -45,14 +48,17 @@ from agreement.views import rolling_kappa
 from demo_sessions.generate import Generated, check_output_folder, generate_demo
 from demo_sessions.truth_check import coder_vs_truth
 from demo_sessions.truth_files import read_truth
+from export.detector_check import check_windows
 from observer_app import demo_report as report
 from observer_app.alignment import align_study, model_summary
 from observer_app.reliability_data import study_units
 from observer_app.store import Store
+from observer_app.window_export import export_study
 from observer_app.study import Study, load_study
 from sync.residual_plot import residual_figure
 
 SUMMARY_FILE = "summary.json"
+WINDOWS_FILE = "windows.parquet"
 REPORT_FILE = "report.html"
 SUMMARY_KEYS: tuple[str, ...] = (
     "seed", "study", "generated", "steps", "devices", "dimensions", "coder_vs_truth", "windows", "detector",
@@ -196,11 +202,49 @@ def step_agree(run: DemoRun) -> None:
     ))
 
 
+def step_export(run: DemoRun) -> None:
+    """The export step: labelled, de-identified windows with their log features."""
+    assert run.study is not None
+    path = run.out / WINDOWS_FILE
+    exported = export_study(run.study.dir, path, progress=False)
+    run.summary["windows"] = {"written": exported["rows"], "path": str(path)}
+    counts = pd.DataFrame([{"dimension": dimension, "code": code, "windows": count}
+                           for dimension, codes in exported["rows_per_label"].items() for code, count in codes.items()])
+    run.sections.append(report.section(
+        "Labelled windows for detector training",
+        report.paragraph(f"{exported['rows']} windows from {exported['observations']} coded observations "
+                         f"({exported['units']} coded by both coders), each with its log features, written to "
+                         f"{WINDOWS_FILE} with a manifest beside it. Learners appear only as keyed pseudonyms. "
+                         "`fieldmark export STUDY --out FILE` does the same."),
+        report.table_html(counts),
+    ))
+
+
+def step_check(run: DemoRun) -> None:
+    """The check step: a plain detector per dimension, cross-validated with folds of whole learners."""
+    results = check_windows(run.out / WINDOWS_FILE)
+    run.summary["detector"] = {result.dimension: result.as_dict() for result in results}
+    rows = [{"dimension": result.dimension, "windows": result.rows, "learners": result.learners,
+             "kappa": result.model.kappa, "AUC": result.model.auc,
+             "majority baseline kappa": result.majority_baseline.kappa,
+             "stratified baseline kappa": result.stratified_baseline.kappa} for result in results]
+    run.sections.append(report.section(
+        "Detector check",
+        report.paragraph("Logistic regression on the window features, folds of whole learners (no learner is "
+                         "ever in both training and test data), out-of-fold predictions pooled. A sanity check "
+                         "that the labels and features carry signal, not a tuned detector. "
+                         "`fieldmark check WINDOWS` does the same."),
+        report.table_html(pd.DataFrame(rows)),
+    ))
+
+
 STEPS: tuple[tuple[str, Callable[[DemoRun], None]], ...] = (
     ("generate", step_generate),
     ("coder_vs_truth", step_coder_vs_truth),
     ("align", step_align),
     ("agree", step_agree),
+    ("export", step_export),
+    ("check", step_check),
 )
 
 

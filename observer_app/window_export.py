@@ -1,0 +1,123 @@
+"""Exporting a study's labelled windows: the glue behind `fieldmark export` and the demo.
+
+The study (observer_app.study), the store, the logs (sync.read_logs), the clock models
+and windows on the log's clock (sync.windows), the pairing of coders into units
+(agreement.pairing), then export/ for features, labels, pseudonyms and the file.  Each
+of those decides its own part; this module only passes the tables along.
+"""
+from __future__ import annotations
+
+import json
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+
+from tqdm import tqdm
+
+from agreement.pairing import pair_observations
+from export.labelled_windows import ExportSettings, label_windows
+from export.pseudonyms import read_secret_key
+from export.tables import UNIT
+from export.writer import build_manifest, file_digests, write_windows
+from observer_app import __version__
+from observer_app.store import Store
+from observer_app.study import ROSTER_FILE, SCHEME_FILE, load_study
+from sync.clock import ClockModel
+from sync.errors import InputError
+from sync.log_spec import log_spec_from_toml
+from sync.logs import read_logs
+from sync.windows import observations_to_windows
+
+CLOCK_SUMMARY_KEYS = ("device", "method", "offset_s", "drift_ppm", "reference_ns", "marks_used",
+                      "median_abs_residual_s", "confidence")
+STEPS = ("read the study", "read the logs", "put observations on the log's clock", "pair coders",
+         "features and labels", "write")
+
+
+@dataclass(frozen=True)
+class WindowChoice:
+    """Where the window lies around each observation (sync/windows.py decides what it means)."""
+
+    anchor: str = "start"
+    before_s: float = 0.0
+    after_s: float | None = None
+
+
+def export_study(
+    study_dir: Path, out: Path, output_format: str = "parquet", window: WindowChoice = WindowChoice(),
+    settings: ExportSettings = ExportSettings(), progress: bool | None = None,
+) -> dict:
+    """Write the study's labelled windows and manifest to ``out``; return a JSON-ready summary
+    (out, manifest, format, rows, rows_per_label, events, observations, units, warnings).
+
+    ``progress``: None shows a bar only on a terminal.  Raises InputError for the user's mistakes.
+    """
+    bar = tqdm(total=len(STEPS), unit="step", desc="export", file=sys.stderr,
+               disable=None if progress is None else not progress)
+    with bar:
+        bar.set_postfix_str(STEPS[0])
+        study = load_study(study_dir)
+        key = None if settings.keep_ids else read_secret_key(study.key_path)
+        dimensions = list(study.scheme.dimension_names)
+        could_not_observe = {dimension.name: dimension.could_not_observe for dimension in study.scheme.dimensions}
+        with Store(study.store_path) as store:
+            observations = store.observations(dimensions)
+            adjudications = store.adjudications()
+            stored_models = store.clock_models()
+        if observations.empty:
+            raise InputError(study.store_path, None, "no observations to export; code or import some first")
+        bar.update()
+
+        bar.set_postfix_str(STEPS[1])
+        specs = [log_spec_from_toml(entry, study.dir, index) for index, entry in enumerate(study.log_entries)]
+        if not specs:
+            raise InputError(study.dir / "study.toml", "logs", "no [[logs]] entries; export needs the learning logs")
+        events, read_report = read_logs(specs, study.roster["log_id"].dropna().astype(str))
+        bar.update()
+
+        bar.set_postfix_str(STEPS[2])
+        models = {str(row.device): ClockModel.from_json(row.model_json) for row in stored_models.itertuples()}
+        try:
+            windows = observations_to_windows(observations, models, study.roster, window.anchor, window.before_s,
+                                              window.after_s)
+        except ValueError as error:
+            raise InputError(None, "--before/--after", str(error)) from None
+        bar.update()
+
+        bar.set_postfix_str(STEPS[3])
+        units, pairing = pair_observations(observations, dimensions, tolerance_s=study.window_seconds / 2.0)
+        windows[UNIT] = windows["observation_id"].map(units.set_index("observation_id")[UNIT]) if len(units) else None
+        bar.update()
+
+        bar.set_postfix_str(STEPS[4])
+        result = label_windows(events, windows, study.roster, dimensions, could_not_observe, key, adjudications, settings)
+        bar.update()
+
+        bar.set_postfix_str(STEPS[5])
+        inputs = [(path, path.relative_to(study.dir).as_posix() if path.is_relative_to(study.dir) else path.name)
+                  for spec in specs for path in spec.files()]
+        inputs += [(study.dir / name, name) for name in (SCHEME_FILE, ROSTER_FILE)]
+        parameters = {
+            **settings.parameters(),
+            "window": {"anchor": window.anchor, "before_s": window.before_s, "after_s": window.after_s},
+            "pairing_tolerance_s": study.window_seconds / 2.0,
+        }
+        manifest = build_manifest(
+            result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
+            clock_models=[clock_summary(model) for model in models.values()],
+            inputs=file_digests(*zip(*inputs)), output_format=output_format,
+        )
+        beside = write_windows(result, out, manifest)
+        bar.update()
+    return {
+        "out": str(out), "manifest": str(beside), "format": output_format, "rows": manifest["rows"],
+        "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
+        "observations": int(len(observations)), "units": pairing.units,
+        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])),
+    }
+
+
+def clock_summary(model: ClockModel) -> dict:
+    """What the manifest keeps of a clock model: the fit, not its evidence (the sync
+    marks' residuals name learners, so they stay in the study)."""
+    return {key: value for key, value in json.loads(model.to_json()).items() if key in CLOCK_SUMMARY_KEYS}
