@@ -17,9 +17,10 @@ from __future__ import annotations
 
 import numpy as np
 
+# Landis & Koch (1977), Biometrics 33:159-174, benchmark table (p. 165, from memory):
+# < 0 poor; 0.00-0.20 slight; 0.21-0.40 fair; 0.41-0.60 moderate; 0.61-0.80
+# substantial; 0.81-1.00 almost perfect.  Pairs: (upper bound, label).
 LANDIS_KOCH_BANDS: tuple[tuple[float, str], ...] = (
-    # Landis & Koch (1977), Biometrics 33:159-174, Table on p. 165.
-    (0.0, "poor"),
     (0.20, "slight"),
     (0.40, "fair"),
     (0.60, "moderate"),
@@ -152,12 +153,12 @@ def alpha_from_coincidence(coincidence: np.ndarray, values: np.ndarray, level: s
 
 
 def landis_koch_band(kappa: float | None) -> str:
-    """Landis & Koch (1977) label: poor (<0), slight, fair, moderate, substantial, almost perfect."""
+    """Landis & Koch (1977) label: poor (< 0), slight, fair, moderate, substantial, almost perfect."""
     if kappa is None or not np.isfinite(kappa):
         return "undefined"
     if kappa < 0:
         return "poor"
-    for upper, label in LANDIS_KOCH_BANDS[1:]:
+    for upper, label in LANDIS_KOCH_BANDS:
         if kappa <= upper:
             return label
-    return "almost perfect"
+    return LANDIS_KOCH_BANDS[-1][1]

@@ -12,6 +12,8 @@ from __future__ import annotations
 
 import hashlib
 from dataclasses import dataclass, field
+from itertools import groupby
+from operator import itemgetter
 
 import numpy as np
 import pandas as pd
@@ -82,25 +84,31 @@ def _candidate_edges(rows: pd.DataFrame, tolerance_ns: int) -> pd.DataFrame:
 
 
 def _match_by_time(rows: pd.DataFrame, tolerance_ns: int) -> np.ndarray:
-    """Group number per row (-1 when unmatched): greedy nearest-first, one row per coder per group."""
-    group = np.arange(len(rows))
+    """Group number per row (-1 when unmatched): greedy nearest-first, one row per coder per group.
+
+    The candidate edges are found vectorised; accepting them in order is inherently
+    sequential (each merge changes what later edges may do), so that loop is plain
+    Python over small per-group summaries.
+    """
+    group = list(range(len(rows)))
     members: dict[int, list[int]] = {row: [row] for row in range(len(rows))}
-    coders = rows["coder"].astype(str).to_numpy()
-    starts = rows["window_start"].to_numpy(dtype="datetime64[ns]").astype(np.int64)
+    coders = rows["coder"].astype(str).tolist()
+    group_coders = {row: {coders[row]} for row in range(len(rows))}
+    starts = rows["window_start"].to_numpy(dtype="datetime64[ns]").astype(np.int64).tolist()
+    earliest, latest = list(starts), list(starts)
     edges = _candidate_edges(rows, tolerance_ns)
-    for first, second in zip(edges["first"].to_numpy(), edges["second"].to_numpy()):
+    for first, second in zip(edges["first"].tolist(), edges["second"].tolist()):
         left, right = group[first], group[second]
-        if left == right:
+        if left == right or group_coders[left] & group_coders[right]:
             continue
-        joined = members[left] + members[right]
-        if len(set(coders[joined])) < len(joined):
-            continue
-        if starts[joined].max() - starts[joined].min() > tolerance_ns:
+        if max(latest[left], latest[right]) - min(earliest[left], earliest[right]) > tolerance_ns:
             continue
         for row in members[right]:
             group[row] = left
-        members[left] = joined
-        del members[right]
+        members[left] += members.pop(right)
+        group_coders[left] |= group_coders.pop(right)
+        earliest[left], latest[left] = min(earliest[left], earliest[right]), max(latest[left], latest[right])
+    group = np.asarray(group, dtype=np.int64)
     sizes = np.bincount(group, minlength=len(rows))
     return np.where(sizes[group] >= 2, group, -1)
 
@@ -154,7 +162,11 @@ def _units_table(parts: list[pd.DataFrame], dimensions: list[str]) -> pd.DataFra
             time=pd.Series(dtype="datetime64[ns, UTC]"))
     rows = pd.concat(parts, ignore_index=True)
     ids = rows["observation_id"].astype(str)
-    unit_of_group = ids.groupby(rows["_group"]).agg(lambda group: unit_id(list(group)))
+    ordered = pd.DataFrame({"group": rows["_group"], "id": ids}).sort_values(["group", "id"], kind="stable")
+    unit_of_group = pd.Series({
+        group: unit_id([observation for _, observation in members])
+        for group, members in groupby(zip(ordered["group"], ordered["id"]), key=itemgetter(0))
+    })
     units = pd.DataFrame({
         "unit": rows["_group"].map(unit_of_group),
         "coder": rows["coder"].astype(str),

@@ -38,8 +38,8 @@ def png_base64(figure: plt.Figure) -> str:
     return base64.b64encode(buffer.getvalue()).decode("ascii")
 
 
-def confusion_heatmap(result: DimensionAgreement) -> str:
-    """Base64 PNG heatmap of the dimension's confusion matrix."""
+def confusion_figure(result: DimensionAgreement) -> plt.Figure:
+    """Heatmap of the dimension's confusion matrix."""
     counts = result.confusion.counts
     size = max(3.0, 0.6 * len(result.codes) + 1.5)
     figure, axes = plt.subplots(figsize=(size + 1, size))
@@ -54,23 +54,28 @@ def confusion_heatmap(result: DimensionAgreement) -> str:
         axes.text(column, row, f"{value:g}", ha="center", va="center",
                   color="white" if value > threshold else "black", fontsize=8)
     figure.colorbar(image, ax=axes, shrink=0.8)
-    return png_base64(figure)
+    return figure
 
 
-def drift_plot(rolling: dict[str, pd.DataFrame], window: int) -> str | None:
-    """Base64 PNG of rolling kappa per dimension; None when no dimension has a window."""
+def drift_figure(rolling: dict[str, pd.DataFrame], window: int) -> plt.Figure | None:
+    """Rolling kappa per dimension (ROLLING tables); None when no dimension has a window."""
     drawable = {name: frame for name, frame in rolling.items() if len(frame)}
     if not drawable:
         return None
     figure, axes = plt.subplots(figsize=(8, 3.5))
+    # Dimensions differ in which units count (could-not-observe is left out), so a shared
+    # clock axis is comparable and unit numbers are not; CSVs without times fall back.
+    timed = all(pd.notna(frame["time"]).all() for frame in drawable.values())
     for name, frame in drawable.items():
-        axes.plot(frame["position"], frame["kappa"], label=name)
+        axes.plot(pd.to_datetime(frame["time"]) if timed else frame["position"], frame["kappa"], label=name)
     axes.axhline(0.6, color="#888", linestyle="--", linewidth=1, label="0.6")
-    axes.set_xlabel(f"unit (time order); kappa over the last {window} units")
+    if timed:
+        figure.autofmt_xdate()
+    axes.set_xlabel(f"{'window start (UTC)' if timed else 'unit (file order)'}; kappa over the last {window} units")
     axes.set_ylabel("kappa")
     axes.set_ylim(-0.2, 1.05)
     axes.legend(loc="lower left", fontsize=8)
-    return png_base64(figure)
+    return figure
 
 
 def _figure_table(result: DimensionAgreement) -> str:
@@ -98,7 +103,7 @@ def _figure_table(result: DimensionAgreement) -> str:
         f"<table><caption>One-vs-rest kappa per code</caption><tr><th>Code</th><th>Kappa [95 % CI]</th></tr>"
         f"{per_code}</table>"
         f"<img alt='confusion matrix of {html.escape(result.name)}' "
-        f"src='data:image/png;base64,{confusion_heatmap(result)}'>"
+        f"src='data:image/png;base64,{png_base64(confusion_figure(result))}'>"
     )
 
 
@@ -117,7 +122,8 @@ def render_report(title: str, agreement: Agreement, rolling: dict[str, pd.DataFr
             for key, value in pairing.items()) + "</table>")
     for result in agreement.dimensions.values():
         parts.append(_figure_table(result))
-    drift = drift_plot(rolling, window)
+    drift_plot = drift_figure(rolling, window)
+    drift = png_base64(drift_plot) if drift_plot is not None else None
     parts.append("<h2>Agreement over time</h2>")
     parts.append(f"<img alt='rolling kappa' src='data:image/png;base64,{drift}'>" if drift
                  else "<p>Too few units for a rolling kappa.</p>")

@@ -1,9 +1,9 @@
-"""Window features: what the learner did in each feature span, computed without a loop.
+"""Window features: what the learner did in each window, computed without a loop.
 
 How it stays fast (10M events x 50k windows): the events are sorted once by
-(learner, time); each window's learner is a contiguous run of rows, and the span's first
+(learner, time); each window's learner is a contiguous run of rows, and the window's first
 and last rows come from a vectorised binary search inside that run.  The rows of all
-spans are then laid out one window after another (``WindowEvents.member``), so every
+windows are then laid out one window after another (``WindowEvents.member``), so every
 window-local figure is a segment reduction (``ufunc.reduceat``) or a ``bincount`` over
 those rows, and every history figure is a difference of prefix sums over the whole log.
 
@@ -11,7 +11,7 @@ A lab adds its own feature as one function::
 
     @feature
     def long_pauses(view: WindowEvents) -> dict[str, np.ndarray]:
-        \"\"\"Pauses of a minute or more inside the span.\"\"\"
+        \"\"\"Pauses of a minute or more inside the window.\"\"\"
         return {"long_pauses": view.count_members(view.internal_gap_ns >= 60e9)}
 
 The first docstring line is the feature's definition in the manifest.  Column contracts
@@ -20,6 +20,7 @@ and every built-in definition: export/tables.py.
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -28,7 +29,8 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from export.spans import NS_PER_SECOND, SpanSettings, feature_spans
+
+NS_PER_SECOND = 1_000_000_000
 
 
 @dataclass(frozen=True)
@@ -45,10 +47,24 @@ class FeatureSettings:
 
 @dataclass(frozen=True)
 class CodedColumn:
-    """A string column as integer codes (-1 = empty or missing) and the code names."""
+    """A string column as integer codes and the code names.
+
+    Code -1 is a missing value; a code whose name is "" is blank (no item, no skill ...).
+    Blank codes are kept as codes rather than rewritten row by row: one pass less over
+    the log per column.
+    """
 
     codes: np.ndarray
     names: np.ndarray
+
+    def present(self, codes: np.ndarray) -> np.ndarray:
+        """Boolean per code value: neither missing nor blank."""
+        table = np.append(self.names != "", False)  # code -1 reads the trailing False
+        return table[codes]
+
+    def counts(self, rows: np.ndarray) -> np.ndarray:
+        """How many of ``rows`` have each code (missing and blank left out)."""
+        return np.bincount(self.codes[rows] + 1, minlength=len(self.names) + 1)[1:] * (self.names != "")
 
     def mask(self, wanted: tuple[str, ...], rows: np.ndarray | None = None) -> np.ndarray:
         """Boolean per row (all rows, or just ``rows``): the value is one of ``wanted``."""
@@ -81,25 +97,19 @@ def code_column(values: pd.Series | pa.ChunkedArray) -> CodedColumn:
         factorized, uniques = pd.factorize(values)
         codes = factorized.astype(np.int32, copy=False)
         names = np.asarray(uniques, dtype=object)
-    empty = np.flatnonzero(names == "")
-    if len(empty):
-        remap = np.arange(len(names) + 1, dtype=np.int32)
-        remap[empty] = -1
-        remap[-1] = -1
-        codes = remap[codes]
     return CodedColumn(codes, names)
 
 
 @dataclass
 class WindowEvents:
-    """The sorted log and, per window, where its learner's rows and its span's rows lie.
+    """The sorted log and, per window, where its learner's rows and the window's rows lie.
 
     Windows are held in log order (``window_order`` maps back to the caller's order:
     position i here is the caller's window ``window_order[i]``).
     Per window (arrays of length W): ``learner_start`` (first row of the learner, or 0
-    when the learner has no events), ``first`` (first row at or after span start),
-    ``stop`` (first row at or after span end: the span's rows are ``first:stop``),
-    ``span_start_ns``, ``span_end_ns``.  ``member`` lists the span rows window after
+    when the learner has no events), ``first`` (first row at or after window start),
+    ``stop`` (first row at or after window end: the window's rows are ``first:stop``),
+    ``start_ns``, ``end_ns``.  ``member`` lists the window rows window after
     window; window w's rows are ``member[offsets[w] : offsets[w] + counts[w]]``.
     """
 
@@ -114,8 +124,8 @@ class WindowEvents:
     learner_start: np.ndarray
     first: np.ndarray
     stop: np.ndarray
-    span_start_ns: np.ndarray
-    span_end_ns: np.ndarray
+    start_ns: np.ndarray
+    end_ns: np.ndarray
 
     @cached_property
     def counts(self) -> np.ndarray:
@@ -149,7 +159,7 @@ class WindowEvents:
 
     @cached_property
     def internal_gap_ns(self) -> np.ndarray:
-        """Per member row: ns since the previous event *inside the span* (NaN for the first)."""
+        """Per member row: ns since the previous event *inside the window* (NaN for the first)."""
         gaps = self.previous_gap_ns.copy()
         gaps[self.offsets[self.counts > 0]] = np.nan
         return gaps
@@ -157,6 +167,23 @@ class WindowEvents:
     @cached_property
     def attempt_outcomes(self) -> tuple[str, ...]:
         return self.settings.error_outcomes + self.settings.success_outcomes
+
+    @cached_property
+    def attempt_rows(self) -> np.ndarray:
+        """Log rows that are attempts (error or success outcome), in log order."""
+        return np.flatnonzero(self.outcome.mask(self.attempt_outcomes))
+
+    @cached_property
+    def error_rows(self) -> np.ndarray:
+        """Log rows with an error outcome, in log order."""
+        attempts = self.attempt_rows
+        return attempts[self.outcome.mask(self.settings.error_outcomes, attempts)]
+
+    def prepare(self) -> None:
+        """Build the shared arrays now, before feature functions read them from several threads."""
+        for name in ("counts", "offsets", "member", "member_window", "member_time_ns", "previous_gap_ns",
+                     "internal_gap_ns", "attempt_outcomes", "attempt_rows", "error_rows"):
+            getattr(self, name)
 
     def reduce_members(self, ufunc: np.ufunc, values: np.ndarray, empty: float) -> np.ndarray:
         """``ufunc`` over each window's member values; ``empty`` for windows without rows."""
@@ -174,17 +201,16 @@ class WindowEvents:
         """How many of each window's member rows satisfy a per-member condition."""
         return self.reduce_members(np.add, member_mask, 0.0)
 
-    def count_in_spans(self, column: CodedColumn, wanted: tuple[str, ...]) -> np.ndarray:
-        """How many rows of each span have one of the ``wanted`` values in ``column``."""
+    def count_in_windows(self, column: CodedColumn, wanted: tuple[str, ...]) -> np.ndarray:
+        """How many rows of each window have one of the ``wanted`` values in ``column``."""
         return self.count_members(column.mask(wanted, self.member))
 
-    def count_before_span_end(self, column: CodedColumn, wanted: tuple[str, ...]) -> np.ndarray:
-        """The learner's rows before span end with one of the ``wanted`` values.
+    def count_before_window_end(self, rows: np.ndarray) -> np.ndarray:
+        """How many of ``rows`` (log rows in log order) lie between the learner's first row and window end.
 
-        A prefix count: the rows that qualify, in log order, searched at the learner's
-        first row and at span end (cheaper than a cumulative sum over the whole log).
+        A prefix count: searching the qualifying rows at both ends is the difference of
+        a cumulative sum, without building one over the whole log.
         """
-        rows = np.flatnonzero(column.mask(wanted))
         return (np.searchsorted(rows, self.stop) - np.searchsorted(rows, self.learner_start)).astype(np.float64)
 
 
@@ -210,7 +236,7 @@ def _ratio(numerator: np.ndarray, denominator: np.ndarray) -> np.ndarray:
 
 
 def _counts_by_code(view: WindowEvents, column: CodedColumn, wanted: np.ndarray) -> np.ndarray:
-    """(windows x len(wanted)) counts of span rows whose code is each wanted code."""
+    """(windows x len(wanted)) counts of window rows whose code is each wanted code."""
     windows, width = len(view.counts), len(wanted)
     slot = np.full(len(column.names) + 1, -1, dtype=np.int64)  # code -1 reads the last slot
     slot[wanted] = np.arange(width)
@@ -222,17 +248,17 @@ def _counts_by_code(view: WindowEvents, column: CodedColumn, wanted: np.ndarray)
 
 @feature
 def activity(view: WindowEvents) -> dict[str, np.ndarray]:
-    """event_count and events_per_minute in the span."""
-    minutes = (view.span_end_ns - view.span_start_ns) / (60 * NS_PER_SECOND)
+    """event_count and events_per_minute in the window."""
+    minutes = (view.end_ns - view.start_ns) / (60 * NS_PER_SECOND)
     count = view.counts.astype(np.float64)
     return {"event_count": count, "events_per_minute": _ratio(count, minutes)}
 
 
 @feature
 def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
-    """action_<name>: events of each of the top-K actions of the whole log in the span."""
+    """action_<name>: events of each of the top-K actions (by events in all windows) in the window."""
     action = view.action
-    totals = np.bincount(action.codes[action.codes >= 0], minlength=len(action.names))
+    totals = action.counts(view.member)  # only window events choose the columns: nothing else shapes the table
     ranked = sorted(range(len(action.names)), key=lambda code: (-totals[code], str(action.names[code])))
     top = np.asarray([code for code in ranked if totals[code] > 0][: view.settings.top_actions], dtype=np.int64)
     table = _counts_by_code(view, action, top)
@@ -241,9 +267,9 @@ def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
 
 @feature
 def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
-    """outcome_<name>: events with each (non-empty) outcome in the span."""
+    """outcome_<name>: events with each (non-empty) outcome seen in any window, in the window."""
     outcome = view.outcome
-    present = np.flatnonzero(np.bincount(outcome.codes + 1, minlength=len(outcome.names) + 1)[1:])
+    present = np.flatnonzero(outcome.counts(view.member))
     present = present[np.argsort(outcome.names[present].astype(str), kind="stable")]
     table = _counts_by_code(view, outcome, present)
     return {f"outcome_{outcome.names[code]}": table[:, column] for column, code in enumerate(present)}
@@ -251,10 +277,10 @@ def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
 
 @feature
 def errors_and_help(view: WindowEvents) -> dict[str, np.ndarray]:
-    """error_rate (errors / attempts) and help_requests (help actions) in the span."""
-    attempts = view.count_in_spans(view.outcome, view.attempt_outcomes)
-    errors = view.count_in_spans(view.outcome, view.settings.error_outcomes)
-    help_requests = view.count_in_spans(view.action, view.settings.help_actions)
+    """error_rate (errors / attempts) and help_requests (help actions) in the window."""
+    attempts = view.count_in_windows(view.outcome, view.attempt_outcomes)
+    errors = view.count_in_windows(view.outcome, view.settings.error_outcomes)
+    help_requests = view.count_in_windows(view.action, view.settings.help_actions)
     return {"error_rate": _ratio(errors, attempts), "help_requests": help_requests}
 
 
@@ -267,7 +293,7 @@ def pacing(view: WindowEvents) -> dict[str, np.ndarray]:
     has_previous = previous >= view.learner_start
     previous_time = np.zeros(len(counts), dtype=np.int64)
     previous_time[has_previous] = view.time_ns[previous[has_previous]]
-    since_previous = np.where(has_previous, (view.span_start_ns - previous_time) / second, np.nan)
+    since_previous = np.where(has_previous, (view.start_ns - previous_time) / second, np.nan)
 
     nonempty = counts > 0
     first_time = np.zeros(len(counts), dtype=np.int64)
@@ -278,8 +304,8 @@ def pacing(view: WindowEvents) -> dict[str, np.ndarray]:
     gaps = view.internal_gap_ns
     gap_max = view.reduce_members(np.fmax, gaps, np.nan)
     gap_median = _segment_median(gaps, view.member_window, view.offsets, counts - 1)
-    edges = np.fmax(first_time - view.span_start_ns, view.span_end_ns - last_time).astype(np.float64)
-    idle = np.where(nonempty, np.fmax(edges, gap_max), view.span_end_ns - view.span_start_ns)
+    edges = np.fmax(first_time - view.start_ns, view.end_ns - last_time).astype(np.float64)
+    idle = np.where(nonempty, np.fmax(edges, gap_max), view.end_ns - view.start_ns)
     rapid = view.count_members(view.previous_gap_ns < view.settings.rapid_seconds * second)
     return {
         "seconds_since_previous": since_previous,
@@ -306,24 +332,27 @@ def _segment_median(values: np.ndarray, segment: np.ndarray, offsets: np.ndarray
 
 @feature
 def distinct_items(view: WindowEvents) -> dict[str, np.ndarray]:
-    """distinct_items: distinct non-empty items touched in the span."""
+    """distinct_items: distinct non-empty items touched in the window."""
     codes = view.item.codes[view.member].astype(np.int64)
-    keep = codes >= 0
-    pairs = np.unique(view.member_window[keep] * (len(view.item.names) + 1) + codes[keep])
-    per_window = np.bincount(pairs // (len(view.item.names) + 1), minlength=len(view.counts))
+    keep = view.item.present(codes)
+    pairs = np.sort(view.member_window[keep] * (len(view.item.names) + 1) + codes[keep])
+    distinct = pairs[np.append(True, pairs[1:] != pairs[:-1])] if len(pairs) else pairs  # np.unique hashes: slower here
+    per_window = np.bincount(distinct // (len(view.item.names) + 1), minlength=len(view.counts))
     return {"distinct_items": per_window.astype(np.float64)}
 
 
 @feature
 def persistence(view: WindowEvents) -> dict[str, np.ndarray]:
-    """attempts_without_success on the current skill at span end, and the wheel_spinning flag."""
+    """attempts_without_success on the current skill at window end, and the wheel_spinning flag."""
     counter = np.zeros(len(view.counts))
-    attempts = np.flatnonzero(view.outcome.mask(view.attempt_outcomes) & (view.skill.codes >= 0))
-    latest = np.searchsorted(attempts, view.stop) - 1  # the learner's latest attempt before span end
+    skill = view.skill.codes[view.attempt_rows]
+    with_skill = view.skill.present(skill)
+    attempts, skill = view.attempt_rows[with_skill], skill[with_skill]
+    latest = np.searchsorted(attempts, view.stop) - 1  # the learner's latest attempt before window end
     learner_first = np.searchsorted(attempts, view.learner_start)
     valid = latest >= learner_first
     if valid.any():
-        counter[valid] = _attempts_since_success(view, attempts, latest[valid], learner_first[valid])
+        counter[valid] = _attempts_since_success(view, attempts, skill, latest[valid], learner_first[valid])
     return {
         "attempts_without_success": counter,
         "wheel_spinning": (counter >= view.settings.wheel_spinning_attempts).astype(np.float64),
@@ -331,18 +360,20 @@ def persistence(view: WindowEvents) -> dict[str, np.ndarray]:
 
 
 def _attempts_since_success(
-    view: WindowEvents, attempts: np.ndarray, latest: np.ndarray, learner_first: np.ndarray,
+    view: WindowEvents, attempts: np.ndarray, skill: np.ndarray, latest: np.ndarray, learner_first: np.ndarray,
 ) -> np.ndarray:
     """Attempts in a row on the skill of attempt ``latest`` since the learner's last success on it.
 
-    ``attempts`` are log rows; ``latest`` and ``learner_first`` index into it.  A stable
+    ``attempts`` are log rows and ``skill`` their skill codes; ``latest`` and
+    ``learner_first`` index into them.  A stable
     sort by skill keeps log order inside each skill, so one learner's attempts on one
     skill are a contiguous stretch of the sorted order; the answer is the distance from
     the latest attempt back to the last success (or to the stretch's start).
     """
-    skill = view.skill.codes[attempts]
-    if len(view.skill.names) < np.iinfo(np.int16).max:
-        skill = skill.astype(np.int16)  # numpy sorts 16-bit keys by radix: linear time
+    for small in (np.int8, np.int16):  # numpy sorts 8- and 16-bit keys by radix: linear time
+        if len(view.skill.names) <= np.iinfo(small).max:
+            skill = skill.astype(small)
+            break
     order = np.argsort(skill, kind="stable")
     bounds = np.zeros(len(view.skill.names) + 1, dtype=np.int64)
     np.cumsum(np.bincount(skill, minlength=len(view.skill.names)), out=bounds[1:])
@@ -359,9 +390,9 @@ def _attempts_since_success(
 
 @feature
 def history(view: WindowEvents) -> dict[str, np.ndarray]:
-    """history_attempts and history_error_rate over the learner's log before span end."""
-    attempts = view.count_before_span_end(view.outcome, view.attempt_outcomes)
-    errors = view.count_before_span_end(view.outcome, view.settings.error_outcomes)
+    """history_attempts and history_error_rate over the learner's log before window end."""
+    attempts = view.count_before_window_end(view.attempt_rows)
+    errors = view.count_before_window_end(view.error_rows)
     return {"history_attempts": attempts, "history_error_rate": _ratio(errors, attempts)}
 
 
@@ -370,8 +401,8 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
 
     ``values`` is sorted inside each [low, high) run (a learner's times, a skill's rows);
     one vectorised bisection searches every run at once.  (A single
-    ``searchsorted`` on a combined learner*span+time int64 key would overflow once the
-    learners' log spans add up to ~292 years of nanoseconds, which a large study reaches.)
+    ``searchsorted`` on a combined learner*length+time int64 key would overflow once the
+    learners' log lengths add up to ~292 years of nanoseconds, which a large study reaches.)
     """
     low = low.copy()
     high = high.copy()
@@ -387,68 +418,85 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
 
 
 def index_windows(
-    events: pd.DataFrame | pa.Table, windows: pd.DataFrame, spans: SpanSettings, settings: FeatureSettings,
+    events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings,
+    threads: int = 2,
 ) -> WindowEvents:
     """Sort the log once (if it is not already) and locate every window's rows.
 
     ``events``: EVENTS columns learner, time_ns, action, outcome, item, skill (pandas or
     Arrow; Arrow dictionary columns are the cheapest input).
-    ``windows``: log_id, start_ns, end_ns, coded_ns (see export/tables.py).
+    ``windows``: log_id, start_ns (inclusive), end_ns (exclusive), as sync/ made them.
     """
-    learner = code_column(events["learner"])
+    names = ("learner", "action", "outcome", "item", "skill")
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        coded = dict(zip(names, pool.map(code_column, [events[name] for name in names])))
+    learner = coded.pop("learner")
+    columns = coded
     time_ns = np.asarray(events["time_ns"], dtype=np.int64)
-    columns = {name: code_column(events[name]) for name in ("action", "outcome", "item", "skill")}
-    order = _sort_order(learner.codes, time_ns)
-    if order is not None:
+    starts = _run_starts(learner.codes)
+    if not _in_log_order(learner.codes, time_ns, starts):
+        order = np.lexsort((time_ns, learner.codes))
         time_ns = time_ns[order]
         learner = CodedColumn(learner.codes[order], learner.names)
         columns = {name: CodedColumn(column.codes[order], column.names) for name, column in columns.items()}
+        starts = _run_starts(learner.codes)
     run_start = np.zeros(len(learner.names) + 1, dtype=np.int64)
     run_stop = np.zeros(len(learner.names) + 1, dtype=np.int64)
     if len(time_ns):
-        starts = np.flatnonzero(np.diff(learner.codes, prepend=learner.codes[0] - 1) != 0)
         run_start[learner.codes[starts]] = starts
         run_stop[learner.codes[starts]] = np.append(starts[1:], len(time_ns))
     window_learner = pd.Index(learner.names).get_indexer(windows["log_id"].astype(object).to_numpy())
     learner_start = run_start[window_learner]  # -1 (unknown learner) reads the empty last run
     learner_stop = run_stop[window_learner]
-    span_start, span_end = feature_spans(windows, spans)
+    window_start = windows["start_ns"].to_numpy(dtype=np.int64)
+    window_end = windows["end_ns"].to_numpy(dtype=np.int64)
     # Windows in log order, so that every search below walks memory forwards.
-    window_order = np.lexsort((span_start, learner_start))
+    window_order = np.lexsort((window_start, learner_start))
     learner_start, learner_stop = learner_start[window_order], learner_stop[window_order]
-    span_start, span_end = span_start[window_order], span_end[window_order]
-    first = _search_runs(time_ns, learner_start, learner_stop, span_start)
-    stop = _search_runs(time_ns, first, learner_stop, span_end)
+    window_start, window_end = window_start[window_order], window_end[window_order]
+    first = _search_runs(time_ns, learner_start, learner_stop, window_start)
+    stop = _search_runs(time_ns, first, learner_stop, window_end)
     return WindowEvents(
         settings=settings, time_ns=time_ns, learner_codes=learner.codes, window_order=window_order,
-        learner_start=learner_start, first=first, stop=stop, span_start_ns=span_start, span_end_ns=span_end,
+        learner_start=learner_start, first=first, stop=stop, start_ns=window_start, end_ns=window_end,
         **columns,
     )
 
 
-def _sort_order(learner_codes: np.ndarray, time_ns: np.ndarray) -> np.ndarray | None:
-    """None when rows are already grouped by learner and in time order, else the sort order."""
-    if len(time_ns) < 2:
-        return None
-    changes = learner_codes[1:] != learner_codes[:-1]
-    grouped = int(changes.sum()) + 1 == np.count_nonzero(np.bincount(learner_codes))
-    if grouped and bool(np.all((time_ns[1:] >= time_ns[:-1]) | changes)):
-        return None
-    return np.lexsort((time_ns, learner_codes))
+def _run_starts(learner_codes: np.ndarray) -> np.ndarray:
+    """First row of every run of equal learner codes."""
+    if len(learner_codes) == 0:
+        return np.zeros(0, dtype=np.int64)
+    return np.append(0, np.flatnonzero(learner_codes[1:] != learner_codes[:-1]) + 1)
+
+
+def _in_log_order(learner_codes: np.ndarray, time_ns: np.ndarray, starts: np.ndarray) -> bool:
+    """Each learner is one run, and time never goes back inside a run (EVENTS' promise, checked)."""
+    run_learners = learner_codes[starts]
+    if len(np.unique(run_learners)) != len(run_learners):
+        return False
+    backwards = np.flatnonzero(time_ns[1:] < time_ns[:-1]) + 1
+    return bool(np.isin(backwards, starts).all())
 
 
 def compute_features(
     events: pd.DataFrame | pa.Table,
     windows: pd.DataFrame,
-    spans: SpanSettings = SpanSettings(),
     settings: FeatureSettings = FeatureSettings(),
     features: Mapping[str, FeatureFunction] = FEATURES,
+    threads: int = 2,
 ) -> pd.DataFrame:
-    """One row per window (``windows``' index): span_start_ns, span_end_ns, then every feature column."""
-    view = index_windows(events, windows, spans, settings)
-    columns: dict[str, np.ndarray] = {"span_start_ns": view.span_start_ns, "span_end_ns": view.span_end_ns}
-    for function in features.values():
-        columns.update(function(view))
+    """One row per window (``windows``' index): start_ns, end_ns, then every feature column.
+
+    Feature functions run on ``threads`` threads (numpy releases the GIL in its loops);
+    the arrays they share are built first, so the functions only read the view.
+    """
+    view = index_windows(events, windows, settings, threads)
+    view.prepare()
+    columns: dict[str, np.ndarray] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        for result in pool.map(lambda function: function(view), features.values()):
+            columns.update(result)
     restored = {}
     for name, values in columns.items():
         restored[name] = np.empty_like(values)

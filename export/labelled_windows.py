@@ -1,6 +1,6 @@
 """One exported row per unit: identity (pseudonymous), roster attributes, labels, features.
 
-Glues the decisions made elsewhere -- the feature span (spans.py), the features
+Glues the decisions made elsewhere -- the window (sync/windows.py), the features
 (features.py), the winning label (labels.py), the pseudonyms (pseudonyms.py) -- into the
 EXPORTED WINDOWS table of export/tables.py, and decides only what leaves the study:
 roster labels, notes, ids of observations, sessions, devices and clips never do; raw
@@ -17,9 +17,8 @@ import pyarrow as pa
 from export.features import FEATURES, FeatureFunction, FeatureSettings, compute_features, feature_definitions
 from export.labels import CODERS, REPRESENTATIVE, resolve_labels
 from export.pseudonyms import pseudonymise
-from export.spans import SpanSettings
 from export.tables import (
-    GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, ROSTER_PRIVATE_COLUMNS, SPAN_END, SPAN_START, UNIT,
+    GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, ROSTER_PRIVATE_COLUMNS, END, START, UNIT,
     WINDOW_ID,
 )
 
@@ -28,7 +27,6 @@ from export.tables import (
 class ExportSettings:
     """Every choice that shapes the export; recorded in the manifest."""
 
-    spans: SpanSettings = field(default_factory=SpanSettings)
     features: FeatureSettings = field(default_factory=FeatureSettings)
     policy: str = "first-coder"
     keep_could_not_observe: bool = False
@@ -78,7 +76,7 @@ def label_windows(
         windows, dimensions, could_not_observe, adjudications, settings.policy, settings.keep_could_not_observe,
     )
     chosen = windows.loc[labels[REPRESENTATIVE].to_numpy()].reset_index(drop=True)
-    computed = compute_features(events, chosen, settings.spans, settings.features, features)
+    computed = compute_features(events, chosen, settings.features, features)
     attribute_columns = [column for column in roster.columns if column not in ROSTER_PRIVATE_COLUMNS]
     attributes = roster.set_index(LEARNER)[attribute_columns].reindex(chosen[LEARNER].to_numpy()).reset_index(drop=True)
     if settings.keep_ids:
@@ -92,13 +90,13 @@ def label_windows(
         learner = pseudonymise(chosen[LEARNER], key)
         identity = pd.DataFrame({WINDOW_ID: pseudonymise(labels[UNIT], key), LEARNER: learner, GROUP: learner})
     label_part = labels[[column for dimension in dimensions for column in (dimension, LABEL_SOURCE_PREFIX + dimension)]]
-    feature_columns = [column for column in computed.columns if column not in (SPAN_START, SPAN_END)]
+    feature_columns = [column for column in computed.columns if column not in (START, END)]
     table = pd.concat(
         [identity, attributes, pd.DataFrame({MODE: chosen[MODE].astype("string"), CODERS: labels[CODERS]}),
-         computed[[SPAN_START, SPAN_END]], label_part.reset_index(drop=True), computed[feature_columns]],
+         computed[[START, END]], label_part.reset_index(drop=True), computed[feature_columns]],
         axis=1,
     )
-    table = table.sort_values([SPAN_START, WINDOW_ID], kind="stable").reset_index(drop=True)
+    table = table.sort_values([START, WINDOW_ID], kind="stable").reset_index(drop=True)
     return LabelledWindows(
         table=table, feature_columns=feature_columns, label_columns=list(dimensions),
         attribute_columns=attribute_columns, feature_definitions=feature_definitions(features),

@@ -16,43 +16,41 @@ INPUT -- what the caller hands in:
     ROSTER   learner, label, log_id, then attribute columns (site, cohort ...).  ``label``
              and ``log_id`` are never exported.
 
-FEATURE SPAN -- the stretch of a learner's log the window features cover, on the log's
-clock, start inclusive, end exclusive (export/spans.py decides it):
-    anchor "start": [start_ns - before, start_ns + after); defaults before = 0,
-                    after = end_ns - start_ns, i.e. the observed window itself.
-    anchor "coded": [coded_ns - before, coded_ns + after); defaults before = the window's
-                    length, after = 0, i.e. a window as long as the observed one that
-                    ends when the code was entered.
-  Only the observed learner's events count.
+WINDOW -- the stretch of a learner's log the features cover is the WINDOWS row's
+[start_ns, end_ns) on the log's clock, start inclusive, end exclusive.  sync/windows.py
+decides it (anchor at the window start or the coding time, extents before and after);
+export only reads it.  Only the observed learner's events count.
 
 FEATURES -- one column per figure, float64 (counts too, so NaN can mean "undefined").
 "Attempt" = an event whose outcome is an error outcome or a success outcome
 (FeatureSettings; defaults: errors {"incorrect"}, successes {"correct"}).
-    event_count                 events in the span
-    events_per_minute           event_count / span length in minutes
-    action_<name>               events of that action in the span, for the top-K actions
-                                of the whole event table (K = FeatureSettings.top_actions)
-    outcome_<name>              events with that outcome in the span, one per outcome seen
-    error_rate                  error outcomes / attempts in the span (NaN without attempts)
+    event_count                 events in the window
+    events_per_minute           event_count / window length in minutes
+    action_<name>               events of that action in the window, for the K actions with
+                                most events over all windows (K = FeatureSettings.top_actions;
+                                only window events choose the columns)
+    outcome_<name>              events with that outcome in the window, one per outcome seen in
+                                any window
+    error_rate                  error outcomes / attempts in the window (NaN without attempts)
     help_requests               events whose action is a help action (defaults: "hint",
                                 "help", "help_request", "hint_request")
-    seconds_since_previous      span start minus the learner's last event before it (NaN
+    seconds_since_previous      window start minus the learner's last event before it (NaN
                                 when there is none)
     gap_mean_s, gap_median_s,   mean / median / largest time between consecutive events
-    gap_max_s                   inside the span (NaN with fewer than two events)
-    idle_longest_s              longest stretch of the span without an event, counting
-                                span start to the first event and the last event to span end
-    rapid_share                 share of the span's events that came less than
+    gap_max_s                   inside the window (NaN with fewer than two events)
+    idle_longest_s              longest stretch of the window without an event, counting
+                                window start to the first event and the last event to window end
+    rapid_share                 share of the window's events that came less than
                                 FeatureSettings.rapid_seconds after the learner's previous
                                 event (NaN without events)
-    distinct_items              distinct non-empty items touched in the span
-    attempts_without_success    as of span end: attempts in a row on the skill of the
+    distinct_items              distinct non-empty items touched in the window
+    attempts_without_success    as of window end: attempts in a row on the skill of the
                                 learner's latest attempt since their last success on it
     wheel_spinning              1.0 when attempts_without_success >= 10 (common practice:
                                 ten attempts without mastery), else 0.0
-    history_attempts            the learner's attempts before span end (whole log so far)
-    history_error_rate          error outcomes / attempts before span end (NaN without)
-  Every feature uses only events before the span end: no future leakage.
+    history_attempts            the learner's attempts before window end (whole log so far)
+    history_error_rate          error outcomes / attempts before window end (NaN without)
+  Every feature uses only events before the window end: no future leakage.
 
 EXPORTED WINDOWS -- one row per unit (or per observation when there is no unit):
     window_id        string   keyed pseudonym of the unit (raw unit with keep_ids)
@@ -62,8 +60,8 @@ EXPORTED WINDOWS -- one row per unit (or per observation when there is no unit):
     log_id           string   only with keep_ids
     mode             string   "live" or "replay"
     coders           int64    how many observations (coders) the unit has
-    span_start_ns    int64    feature span start, UTC ns on the log's clock (inclusive)
-    span_end_ns      int64    feature span end (exclusive)
+    start_ns    int64    feature window start, UTC ns on the log's clock (inclusive)
+    end_ns      int64    feature window end (exclusive)
     <dimension>      string   the resolved label, one column per scheme dimension (NA when
                               unresolved or could-not-observe)
     label_source_<dimension>  string  "adjudicated" | "agreed" | "single" | "first-coder" |
@@ -80,8 +78,8 @@ GROUP = "group"
 LOG_ID = "log_id"
 MODE = "mode"
 CODERS = "coders"
-SPAN_START = "span_start_ns"
-SPAN_END = "span_end_ns"
+START = "start_ns"
+END = "end_ns"
 UNIT = "unit"
 LABEL_SOURCE_PREFIX = "label_source_"
 
@@ -91,7 +89,6 @@ LABEL_SOURCES: tuple[str, ...] = (
     "adjudicated", "agreed", "single", "first-coder", "majority", "unresolved", "could-not-observe",
 )
 LABEL_POLICIES: tuple[str, ...] = ("first-coder", "agreed-only", "majority")
-ANCHORS: tuple[str, ...] = ("start", "coded")
 
 METADATA_KEY = b"fieldmark"
 """Parquet schema-metadata key holding the manifest's JSON (feature and label columns)."""

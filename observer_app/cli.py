@@ -18,6 +18,7 @@ COMMANDS: tuple[str, ...] = (
     "init",
     "app",
     "import_observations",
+    "align",
     "agree",
     "adjudicate",
     "plan",

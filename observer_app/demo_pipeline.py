@@ -15,9 +15,9 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
                               "recovered": {"method", "offset_s", "drift_ppm", ...} from the align
                                            step, or null while that step does not exist
     dimensions      object  per scheme dimension, from the agree step (agreement/, as `fieldmark agree`):
-                            "kappa" (Cohen's), "alpha" (Krippendorff's) and "percent_agreement", each
-                            {"value", "low", "high"} (95 % cluster-bootstrap interval over learners), "band"
-                            (Landis & Koch) and "units" (paired windows compared)
+                            "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and
+                            "percent_agreement", each {"value", "low", "high"} (95 % cluster-bootstrap
+                            interval over learners), "band" (Landis & Koch) and "units" (paired windows)
     coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
                             {"kappa", "percent_correct", "windows"}: scikit-learn's Cohen's kappa of the
                             simulated coder's codes against the generator's true states
@@ -38,10 +38,15 @@ from pathlib import Path
 import pandas as pd
 from tqdm import tqdm
 
+from agreement.figures import assess_agreement, headline_kappa
+from agreement.report import confusion_figure, drift_figure
+from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
+from agreement.views import rolling_kappa
 from demo_sessions.generate import Generated, check_output_folder, generate_demo
 from demo_sessions.truth_check import coder_vs_truth
 from demo_sessions.truth_files import read_truth
 from observer_app import demo_report as report
+from observer_app.reliability_data import study_units
 from observer_app.store import Store
 from observer_app.study import Study, load_study
 
@@ -52,7 +57,6 @@ SUMMARY_KEYS: tuple[str, ...] = (
     "seconds",
 )
 TIMELINE_LEARNERS = 4
-AGREEMENT_RESAMPLES = 1000
 
 
 @dataclass
@@ -132,34 +136,34 @@ def step_coder_vs_truth(run: DemoRun) -> None:
 
 
 def step_agree(run: DemoRun) -> None:
-    """Reliability between the two coders, as `fieldmark agree STUDY` computes it (1000 learner resamples)."""
-    from agreement.figures import assess_agreement, estimate_text
-    from agreement.report import confusion_heatmap
-    from observer_app.commands.agree import load_study_units
-
-    assert run.generated is not None
-    units, dimensions, pairing, _ = load_study_units(run.generated.study)
-    agreement = assess_agreement(units, dimensions, AGREEMENT_RESAMPLES, run.seed)
+    """The agreement step: the two coders' paired windows, every figure with its cluster-bootstrap CI."""
+    assert run.study is not None
+    units, dimensions, pairing = study_units(run.study)
+    agreement = assess_agreement(units, dimensions, resamples=1000, seed=run.seed)
     run.summary["dimensions"] = {
-        name: {"kappa": result.figures["cohen_kappa"].as_dict(), "alpha": result.figures["alpha"].as_dict(),
+        name: {"kappa": headline_kappa(result.figures).as_dict(), "alpha": result.figures["alpha"].as_dict(),
                "percent_agreement": result.figures["percent_agreement"].as_dict(), "band": result.band,
                "units": result.units}
-        for name, result in agreement.dimensions.items()}
-    rows = pd.DataFrame([{"dimension": name, "units": result.units,
-                          "percent agreement": estimate_text(result.figures["percent_agreement"]),
-                          "Cohen's kappa": estimate_text(result.figures["cohen_kappa"]),
-                          "Krippendorff's alpha": estimate_text(result.figures["alpha"]),
-                          "Landis & Koch": result.band}
-                         for name, result in agreement.dimensions.items()])
+        for name, result in agreement.dimensions.items()
+    }
+    figures = pd.DataFrame([
+        {"dimension": name, "figure": FIGURE_LABELS[key], "value": estimate.value, "low": estimate.low,
+         "high": estimate.high}
+        for name, result in agreement.dimensions.items() for key in FIGURE_KEYS
+        for estimate in (result.figures[key],) if estimate.value is not None
+    ])
+    window = 40
+    drift = drift_figure({d.name: rolling_kappa(units, d, window) for d in dimensions}, window)
     run.sections.append(report.section(
-        "Agreement between the coders (fieldmark agree)",
-        report.paragraph(f"{pairing['units']} units paired from {pairing['observations']} observations "
-                         f"({pairing['unmatched']} unmatched: the solo halves of each session); 95 % intervals from "
-                         f"{agreement.resamples} bootstrap resamples of {agreement.clusters} learners; "
-                         "could-not-observe codes left out."),
-        report.table_html(rows),
-        *(f'<img alt="confusion {name}" src="data:image/png;base64,{confusion_heatmap(result)}">'
+        "Agreement between the coders",
+        report.paragraph(f"Paired windows: {pairing['units']} units from {pairing['observations']} coded windows "
+                         f"({pairing['unmatched']} windows coded by one coder only). Intervals: 95 % bootstrap "
+                         f"resampling the {agreement.clusters} learners, 1000 resamples. The could-not-observe "
+                         "code is left out. `fieldmark agree STUDY --report FILE` gives the full report."),
+        report.table_html(figures),
+        *(report.figure_html(confusion_figure(result), f"confusion matrix of {name}")
           for name, result in agreement.dimensions.items()),
+        *([report.figure_html(drift, "rolling kappa")] if drift is not None else []),
     ))
 
 

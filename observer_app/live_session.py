@@ -266,16 +266,16 @@ class LiveSession:
         self._recorded_slots = set(rows)
 
         def apply_until(moment: float) -> None:
+            """Replay absences up to ``moment`` (live, they were stored after the schedule caught up)."""
             while events and events[0][0] <= moment:
-                _, learner, state = events.pop(0)
+                event_moment, learner, state = events.pop(0)
+                if self.schedule.paired:
+                    ended.extend(self.schedule.advance_to(min(event_moment, now_elapsed)))
                 (self.schedule.mark_absent if state == "absent" else self.schedule.mark_returned)(learner)
 
         ended: list[Turn] = []
         if self.schedule.paired:
-            while events and events[0][0] <= now_elapsed:
-                moment, learner, state = events.pop(0)
-                ended += self.schedule.advance_to(moment)
-                (self.schedule.mark_absent if state == "absent" else self.schedule.mark_returned)(learner)
+            apply_until(float("inf"))
             ended += self.schedule.advance_to(now_elapsed)
         else:
             for slot, start in zip(observations["slot"], observations["window_start"]):
@@ -289,6 +289,8 @@ class LiveSession:
                 finished_at = None
                 if all(pd.notna(last[d]) for d in self._dimensions):
                     finished_at = (last["coded_at"].to_pydatetime() - self._origin_wall).total_seconds()
+                elif bool(last["no_code"]) and not last["note"]:  # written only when its window ended
+                    finished_at = (last["window_end"].to_pydatetime() - self._origin_wall).total_seconds()
                 gone = [moment for moment, learner, state in events if learner == last_learner and state == "absent"]
                 if gone:
                     finished_at = gone[0] if finished_at is None else min(finished_at, gone[0])

@@ -1,23 +1,15 @@
 """Creating a study folder: commented templates, an empty store and the pseudonym key."""
 from __future__ import annotations
 
-import os
-import secrets
 from importlib import resources
 from pathlib import Path
 
+from export.pseudonyms import create_secret_key
 from observer_app.store import Store
 from observer_app.study import KEY_FILE, ROSTER_FILE, SCHEME_FILE, STORE_FILE, STUDY_FILE
 from sync.errors import InputError
 
 TEMPLATES = (STUDY_FILE, SCHEME_FILE, ROSTER_FILE)
-
-
-def write_secret_key(path: Path) -> None:
-    """32 random bytes, readable by the owner only; never overwritten, never exported."""
-    descriptor = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
-    with os.fdopen(descriptor, "wb") as handle:
-        handle.write(secrets.token_bytes(32))
 
 
 def create_study(directory: Path) -> list[Path]:
@@ -34,5 +26,5 @@ def create_study(directory: Path) -> list[Path]:
                           encoding="utf-8")
         written.append(target)
     Store(directory / STORE_FILE).close()
-    write_secret_key(directory / KEY_FILE)
+    create_secret_key(directory / KEY_FILE)  # export/pseudonyms.py owns the key: 0o600, never replaced
     return written + [directory / STORE_FILE, directory / KEY_FILE]

@@ -86,3 +86,18 @@ def _learner_sort_key(learner: pd.Series) -> np.ndarray:
 def empty_events() -> pd.DataFrame:
     """An EVENTS table with no rows and the right types."""
     return build_events(learner=[], time_ns=np.zeros(0, np.int64), source="", source_row=np.zeros(0, np.int64))
+
+
+def learner_blocks(events: pd.DataFrame) -> dict[str, tuple[int, int]]:
+    """Each learner's [first, last) row range in a sorted EVENTS table.
+
+    Lets callers search one learner's times with ``np.searchsorted`` on a slice, without
+    copying or grouping.
+    """
+    codes = events["learner"].cat.codes.to_numpy()
+    if codes.size == 0:
+        return {}
+    starts = np.concatenate(([0], np.flatnonzero(np.diff(codes)) + 1))
+    ends = np.concatenate((starts[1:], [codes.size]))
+    categories = events["learner"].cat.categories
+    return {str(categories[codes[start]]): (int(start), int(end)) for start, end in zip(starts, ends)}

@@ -1,27 +1,40 @@
 """Column contracts of the tables sync/ produces and consumes.  One place, on purpose.
 
-EVENTS -- one row per learning-system log event, every reader returns this:
-    learner     string (dictionary-encoded)  the learner's id *in the log* (roster.log_id)
+EVENTS -- one row per learning-system log event; ``sync.logs.read_logs`` returns this:
+    learner     category (string)  the learner's id *in the log* (roster.log_id)
     time_ns     int64    UTC, nanoseconds since the Unix epoch, on the log server's clock
-    action      string   what the learner did (verb id for xAPI)
-    outcome     string   normalised result: "correct", "incorrect", "completed", "" when none
-    item        string   the task item / object id ("" when none)
-    skill       string   the skill or step ("" when none)
+    action      category (string)  what the learner did (verb id for xAPI); "" when none
+    outcome     category (string)  normalised result: "correct", "incorrect", "completed",
+                         "" when none; other words of a CSV/Parquet log kept lower-cased
+    item        category (string)  the task item / object id ("" when none)
+    skill       category (string)  the skill or step ("" when none)
     duration_s  float64  seconds the event took (NaN when not given)
-    source      string   the file the row came from
-    source_row  int64    1-based row (CSV: data row after the header; JSON lines: line)
-  Sorted by (learner, time_ns).
+    source      category (string)  the file the row came from
+    source_row  int64    1-based row (CSV/Parquet: data row after the header; xAPI: the
+                         line the statement starts on)
+  Sorted by (learner text, time_ns).  Text columns are pandas categoricals (dictionary
+  encoded) so that tens of millions of rows stay small; compare them with strings as usual.
 
 CLOCK MODEL -- ``sync.clock.ClockModel`` (a dataclass), one per device:
-    device time = log time + offset_s + drift_ppm * 1e-6 * (log time - reference)
-  so a device whose clock runs ahead has a positive offset_s.
+    device time = log time + offset_s + drift_ppm * 1e-6 * (log time - reference_ns)
+  so a device whose clock runs ahead has a positive offset_s.  method is "manual",
+  "marks", "auto" or "identity" (no model: device time used as log time).  Stored as the
+  JSON text of ``ClockModel.to_json()``.
 
-WINDOWS -- one row per observation, what export consumes:
+SYNC MARKS for ``sync.clock_marks.fit_from_marks`` -- the store's SYNC MARKS columns
+  (observer_app/tables.py) plus
+    log_id      string  roster.log_id of the marked learner ("" when none)
+
+OBSERVATIONS for ``sync.clock_scan.scan_offset`` -- the store's OBSERVATIONS columns
+  (at least device, window_start, window_end and the dimensions) plus log_id as above.
+
+WINDOWS -- one row per observation, what export consumes (``sync.windows``):
     every column of the observations table (observer_app/tables.py) plus
-    log_id      string  roster.log_id of the observed learner
+    log_id      string  roster.log_id of the observed learner ("" when not in the roster)
     start_ns    int64   window start, UTC ns on the log's clock (inclusive)
     end_ns      int64   window end,   UTC ns on the log's clock (exclusive)
-    coded_ns    int64   coded_at mapped to the log's clock
+    coded_ns    Int64   coded_at mapped to the log's clock (NA when coded_at is NaT)
+  ``attrs["warnings"]`` lists what was assumed (devices without a clock model) or left out.
 """
 from __future__ import annotations
 

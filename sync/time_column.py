@@ -106,3 +106,8 @@ def _raise_bad_rows(values: pd.Series, missing: np.ndarray, rows: np.ndarray, fi
     what = "the time is empty" if blank else f"{str(first)[:40]!r} is not a time"
     raise InputError(file, f"column {column}, {row_word} {shown}{more}",
                      f"{what}; write ISO 8601 (2026-03-29T14:05:00+02:00) or epoch seconds/milliseconds")
+
+
+def datetime_column_ns(values: pd.Series) -> np.ndarray:
+    """A datetime column of the store (UTC) -> int64 ns, NaT as the int64 minimum."""
+    return pd.to_datetime(values, utc=True).dt.as_unit("ns").array.asi8.astype(np.int64)

@@ -15,7 +15,7 @@ from pathlib import Path
 import pandas as pd
 
 from agreement.disagreements import read_adjudications
-from observer_app.commands.agree import load_study_units
+from observer_app.reliability_data import load_study_units
 from observer_app.store import Store
 from sync.errors import InputError
 

@@ -22,15 +22,13 @@ from agreement.dimensions import LEVELS, Dimension
 from agreement.disagreements import list_disagreements
 from agreement.figures import Agreement, agreement_json, assess_agreement, estimate_text, headline_kappa
 from agreement.long_format import read_long_csv
-from agreement.pairing import pair_observations
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
 from agreement.views import (
     CERTIFICATION_KAPPA, CERTIFICATION_PAIRS, ROLLING_WINDOW, by_pair, by_session, certify, rolling_kappa,
     units_of_coders,
 )
-from observer_app.scheme import Scheme
+from observer_app.reliability_data import load_study_units
 from observer_app.store import Store
-from observer_app.study import load_study
 from sync.errors import InputError
 
 
@@ -59,27 +57,6 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--resamples", type=int, default=DEFAULT_RESAMPLES, help="bootstrap resamples (default 1000)")
     parser.add_argument("--seed", type=int, default=1, help="bootstrap seed (default 1)")
     parser.set_defaults(run=run)
-
-
-def scheme_dimensions(scheme: Scheme) -> list[Dimension]:
-    """agreement's view of the study's code scheme."""
-    dimensions = []
-    for dimension in scheme.dimensions:
-        dimensions.append(Dimension(name=dimension.name, level=dimension.level,
-                                    codes=tuple(code.name for code in dimension.codes),
-                                    could_not_observe=dimension.could_not_observe or None))
-    return dimensions
-
-
-def load_study_units(path: Path) -> tuple[pd.DataFrame, list[Dimension], dict[str, object], Path]:
-    """UNITS, dimensions and pairing report of a study folder, and its store's path."""
-    study = load_study(path)
-    dimensions = scheme_dimensions(study.scheme)
-    names = [dimension.name for dimension in dimensions]
-    with Store(study.store_path) as store:
-        observations = store.observations(names)
-    units, report = pair_observations(observations, names, tolerance_s=study.window_seconds / 2.0)
-    return units, dimensions, report.as_dict(), study.store_path
 
 
 def load_units(args: argparse.Namespace) -> tuple[pd.DataFrame, list[Dimension], dict[str, object] | None, Path | None]:
@@ -145,8 +122,9 @@ def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: 
               f"coders {', '.join(agreement.coders)}\n")
     out.write(f"95 % intervals: {agreement.resamples} bootstrap resamples of learners, seed {agreement.seed}\n")
     if pairing:
+        per_coder = ", ".join(f"{coder} {count}" for coder, count in pairing["unmatched_by_coder"].items())
         out.write(f"Pairing: {pairing['observations']} observations, {pairing['units']} units, "
-                  f"{pairing['unmatched']} unmatched {pairing['unmatched_by_coder']}\n")
+                  f"{pairing['unmatched']} unmatched{f' ({per_coder})' if per_coder else ''}\n")
     for result in agreement.dimensions.values():
         out.write(f"\n{result.name} ({result.level}, {result.units} units) -- Landis & Koch: {result.band}\n")
         width = max(len(label) for label in FIGURE_LABELS.values())

@@ -6,7 +6,6 @@ import json
 import sys
 from pathlib import Path
 
-from export.detector_check import DEFAULT_FOLDS, check_windows
 from export.writer import read_manifest
 from sync.errors import InputError
 
@@ -19,20 +18,22 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     )
     parser.add_argument("windows", type=Path, metavar="WINDOWS", help="file written by fieldmark export")
     parser.add_argument("--dimension", action="append", metavar="D", help="check only this dimension (repeatable)")
-    parser.add_argument("--folds", type=int, default=DEFAULT_FOLDS, help="folds of learners (default %(default)s)")
+    parser.add_argument("--folds", type=int, help="folds of learners (default 5, fewer when there are fewer learners)")
     parser.add_argument("--seed", type=int, default=0, help="seed of the fold assignment (default %(default)s)")
     parser.add_argument("--json", action="store_true", help="print one JSON object")
     parser.set_defaults(run=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    if args.folds < 2:
+    if args.folds is not None and args.folds < 2:
         raise InputError(None, "--folds", "needs at least 2 folds")
     labels = read_manifest(args.windows)["label_columns"]
     for dimension in args.dimension or []:
         if dimension not in labels:
             raise InputError(args.windows, dimension, f"no such dimension; the file has {', '.join(labels)}")
-    results = check_windows(args.windows, args.dimension, args.folds, args.seed)
+    from export.detector_check import DEFAULT_FOLDS, check_windows  # scikit-learn loads only when the check runs
+
+    results = check_windows(args.windows, args.dimension, args.folds or DEFAULT_FOLDS, args.seed)
     if args.json:
         payload = {"windows": str(args.windows), "dimensions": {result.dimension: result.as_dict() for result in results}}
         sys.stdout.write(json.dumps(payload) + "\n")

@@ -36,6 +36,7 @@ class ClockCheck(QWidget):
                       "M or F5 store a sync mark now  ·  Enter start observing")
         hint.setWordWrap(True)
         hint.setProperty("role", "caption")
+        layout.addStretch(1)
         for widget in (caption, self.utc, self.local, self.marks):
             layout.addWidget(widget, 0, Qt.AlignmentFlag.AlignHCenter)
         layout.addStretch(1)

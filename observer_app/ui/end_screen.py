@@ -1,11 +1,14 @@
-"""End of session: windows coded and missed, and counts per learner and code, as stored."""
+"""End of session: windows coded and missed, counts per learner and code, as stored; and for a
+paired run whose partner session has been imported, the agreement between the two."""
 from __future__ import annotations
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
 
+from agreement.figures import estimate_text
 from observer_app.live_session import SessionSummary
+from observer_app.session_agreement import PartnerAgreement
 from observer_app.study import Study
 from observer_app.ui.overview import count_table
 
@@ -13,7 +16,8 @@ from observer_app.ui.overview import count_table
 class EndScreen(QWidget):
     done = Signal()
 
-    def __init__(self, study: Study, summary: SessionSummary) -> None:
+    def __init__(self, study: Study, summary: SessionSummary, *, paired: bool = False,
+                 agreement: PartnerAgreement | None = None) -> None:
         super().__init__()
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
         layout = QVBoxLayout(self)
@@ -26,11 +30,26 @@ class EndScreen(QWidget):
             f"{summary.missed_windows} missed (ended with no code)  ·  {summary.sync_marks} sync marks")
         self.figures.setStyleSheet("font-size: 16pt;")
         layout.addWidget(self.figures)
+        self.agreement = QLabel(self._agreement_text(paired, agreement))
+        self.agreement.setWordWrap(True)
+        self.agreement.setStyleSheet("font-size: 14pt;")
+        layout.addWidget(self.agreement)
         self.table = count_table(study, summary.counts, summary.per_learner)
         layout.addWidget(self.table, 1)
         hint = QLabel("Every code above is read back from the store.   Enter or Esc back to the study")
         hint.setProperty("role", "caption")
         layout.addWidget(hint)
+
+    @staticmethod
+    def _agreement_text(paired: bool, agreement: PartnerAgreement | None) -> str:
+        if not paired:
+            return ""
+        if agreement is None:
+            return ("Paired run: once your partner's observations are imported (fieldmark import), "
+                    "your agreement shows here and in fieldmark agree.")
+        figures = "  ·  ".join(f"{name}: kappa {estimate_text(kappa)} ({agreement.band[name]})"
+                               for name, kappa in agreement.kappa.items())
+        return f"Agreement with {', '.join(agreement.partners)} over {agreement.units} windows:  {figures}"
 
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
         if event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter, Qt.Key.Key_Escape):

@@ -14,6 +14,7 @@ from PySide6.QtGui import QKeyEvent, QKeySequence, QShortcut
 from PySide6.QtWidgets import QFileDialog, QLabel, QMainWindow, QStackedWidget, QVBoxLayout, QWidget
 
 from observer_app.live_session import LiveSession, SessionSummary
+from observer_app.session_agreement import partner_agreement
 from observer_app.session_clock import Clock, SystemClock
 from observer_app.store import Store
 from observer_app.study import Study, load_study
@@ -175,8 +176,10 @@ class MainWindow(QMainWindow):
         self._show(screen)
 
     def show_end(self, summary: SessionSummary) -> None:
+        paired = self.session.schedule.paired
         self.session = None
-        end = EndScreen(self.study, summary)
+        end = EndScreen(self.study, summary, paired=paired,
+                        agreement=partner_agreement(self.study, self.store, summary.session_id) if paired else None)
         end.done.connect(self.show_overview)
         self._show(end)
 

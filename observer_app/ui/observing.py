@@ -105,7 +105,9 @@ class CodeTile(QWidget):
         strip = QPainterPath()
         strip.addRoundedRect(QRectF(box.left(), box.top(), 16, box.height()), 8, 8)
         painter.setPen(Qt.PenStyle.NoPen)
-        painter.setBrush(looks.blend(self.code.colour, theme.surface, 0.75 if theme is looks.LIGHT else 0.5))
+        strip_strength = 0.75 if theme is looks.LIGHT else 0.5
+        strip_colour = looks.blend(self.code.colour, theme.surface, strip_strength)
+        painter.setBrush(strip_colour.darker(125) if self.selected else strip_colour)
         painter.drawPath(strip)
         painter.drawRect(QRectF(box.left() + 8, box.top(), 8, box.height()))
         side = min(box.height() - 14, 46.0)
@@ -143,6 +145,7 @@ class DimensionPad(QFrame):
         self.title = QLabel(_title(dimension.name).upper())
         self.state = QLabel("")
         self.state.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        self.title.setSizePolicy(QSizePolicy.Policy.Minimum, QSizePolicy.Policy.Preferred)
         header.addWidget(self.title)
         header.addWidget(self.state, 1)
         layout.addLayout(header)
@@ -156,7 +159,7 @@ class DimensionPad(QFrame):
             tile.theme, tile.scale = theme, scale
             tile.update()
         points = looks.PAD_TITLE_POINTS * scale
-        self.title.setStyleSheet(f"font-size: {points}pt; font-weight: bold; color: {theme.quiet_text}; letter-spacing: 2px;")
+        self.title.setStyleSheet(f"font-size: {points}pt; font-weight: bold; color: {theme.quiet_text};")
         if code is None:
             self.state.setText("to code")
             self.state.setStyleSheet(f"font-size: {points}pt; color: {theme.quiet_text};")
@@ -166,18 +169,20 @@ class DimensionPad(QFrame):
 
 
 class NoteEdit(QLineEdit):
-    """The note line: Enter saves (via returnPressed), Escape gives up."""
+    """The note line: Enter saves, Escape gives up; neither reaches the screen behind it."""
 
-    def __init__(self, on_cancel) -> None:
+    def __init__(self, on_save, on_cancel) -> None:
         super().__init__()
-        self._on_cancel = on_cancel
+        self._on_save, self._on_cancel = on_save, on_cancel
         self.setPlaceholderText("Note for this window - Enter saves, Esc cancels")
 
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
         if event.key() == Qt.Key.Key_Escape:
             self._on_cancel()
-            return
-        super().keyPressEvent(event)
+        elif event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
+            self._on_save()
+        else:
+            super().keyPressEvent(event)
 
 
 class PresenceList(QListWidget):
@@ -248,8 +253,7 @@ class ObservingScreen(QWidget):
             pads.addWidget(pad, 1, Qt.AlignmentFlag.AlignTop)
         root.addLayout(pads, 1)
 
-        self.note_edit = NoteEdit(self._close_note)
-        self.note_edit.returnPressed.connect(self._save_note)
+        self.note_edit = NoteEdit(self._save_note, self._close_note)
         self.note_edit.hide()
         root.addWidget(self.note_edit)
         self.message_label = QLabel()
@@ -259,13 +263,20 @@ class ObservingScreen(QWidget):
             label.setWordWrap(True)
             root.addWidget(label)
 
+        self.presence_panel = QFrame(self)
+        panel_layout = QVBoxLayout(self.presence_panel)
+        panel_layout.setContentsMargins(20, 16, 20, 16)
+        self.presence_caption = QLabel("WHO IS HERE  -  Up/Down choose · Enter switch absent / back · Esc close")
+        self.presence_caption.setWordWrap(True)
         self.presence = PresenceList(self._toggle_presence, self._close_presence)
-        self.presence.setParent(self)
-        self.presence.hide()
+        panel_layout.addWidget(self.presence_caption)
+        panel_layout.addWidget(self.presence, 1)
+        self.presence_panel.hide()
         self.help = QLabel(self)
         self.help.setTextFormat(Qt.TextFormat.RichText)
         self.help.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
         self.help.setMargin(28)
+        self.help.setWordWrap(True)
         self.help.hide()
 
         session.add_listener(self._changed)
@@ -293,7 +304,13 @@ class ObservingScreen(QWidget):
         self.note_edit.setStyleSheet(f"font-size: {looks.TILE_POINTS * scale}pt;")
         self.help.setStyleSheet(f"background: {theme.surface}; color: {theme.text}; font-size: {14 * scale}pt;"
                                 f"border: 2px solid {theme.accent}; border-radius: 10px;")
-        self.presence.setStyleSheet(f"font-size: {looks.TILE_POINTS * scale}pt; border: 2px solid {theme.accent};")
+        self.presence_panel.setStyleSheet(
+            f"QFrame {{ background: {theme.surface}; border: 2px solid {theme.accent}; border-radius: 10px; }}"
+            f"QLabel {{ border: none; color: {theme.quiet_text}; font-size: {13 * scale}pt; }}"
+            f"QListWidget {{ border: none; font-size: {looks.TILE_POINTS * scale}pt; }}"
+            f"QListWidget::item {{ padding: 6px; }}"
+            f"QListWidget::item:selected {{ background: {looks.blend(theme.accent, theme.surface, 0.35).name()};"
+            f" color: {theme.text}; }}")
         self.time_bar.theme = theme
         self.keys_label.setText(" &nbsp;·&nbsp; ".join(f"<b>{key}</b> {short}" for _, key, _, short in COMMAND_KEYS if short))
         self._render_help()
@@ -313,7 +330,7 @@ class ObservingScreen(QWidget):
         elif state.paused:
             self.turn_caption.setText("PAUSED  -  press Space to go on")
         elif state.waiting:
-            self.turn_caption.setText("SHARED START NOT YET - FIRST UP")
+            self.turn_caption.setText("WAITING FOR THE SHARED START  -  FIRST UP")
         else:
             self.turn_caption.setText("NOW OBSERVING")
         self.learner_label.setText(state.label or "nobody present")
@@ -344,19 +361,27 @@ class ObservingScreen(QWidget):
         self.time_bar.update()
 
     def _render_help(self) -> None:
-        rows = []
+        codes = []
         for dimension in self.session.study.scheme.dimensions:
-            codes = ", ".join(f"<b>{c.key.upper()}</b> {c.label}" for c in dimension.codes)
-            rows.append(f"<tr><td><b>{_title(dimension.name)}</b>&nbsp;&nbsp;</td><td>{codes}</td></tr>")
-        for _, key, what, _ in COMMAND_KEYS:
-            rows.append(f"<tr><td><b>{key}</b></td><td>{what}</td></tr>")
-        self.help.setText("<h2>Keys</h2><table cellspacing='6'>" + "".join(rows) + "</table>"
-                          "<p>Esc or F1 closes this list. The app makes no sound.</p>")
+            codes.append(f"<tr><td colspan='2'><br><b>{_title(dimension.name).upper()}</b></td></tr>")
+            codes += [f"<tr><td><b>{c.key.upper()}</b></td><td>{c.label}</td></tr>" for c in dimension.codes]
+        commands = [f"<tr><td><b>{key}</b></td><td>{what}</td></tr>" for _, key, what, _ in COMMAND_KEYS]
+        self.help.setText(
+            "<h2>Keys</h2><table width='100%'><tr>"
+            f"<td valign='top' width='45%'><table cellspacing='5'>{''.join(codes)}</table></td>"
+            f"<td valign='top'><table cellspacing='5'><tr><td colspan='2'><br><b>COMMANDS</b></td></tr>"
+            f"{''.join(commands)}</table></td></tr></table>"
+            "<p>Esc or F1 closes this list. The app makes no sound.</p>")
 
     def resizeEvent(self, event) -> None:  # noqa: N802
         super().resizeEvent(event)
         self.help.setGeometry(self.rect().adjusted(60, 40, -60, -40))
-        self.presence.setGeometry(self.rect().adjusted(self.width() // 4, 80, -self.width() // 4, -80))
+        self._place_presence()
+
+    def _place_presence(self) -> None:
+        rows = max(1, self.presence.count())
+        height = min(self.height() - 120, 90 + rows * int(looks.TILE_POINTS * self._scale * 2.6))
+        self.presence_panel.setGeometry(self.width() // 4, 70, self.width() // 2, height)
 
     # -- input -------------------------------------------------------------------------
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
@@ -422,8 +447,9 @@ class ObservingScreen(QWidget):
             item.setData(Qt.ItemDataRole.UserRole, learner)
             self.presence.addItem(item)
         self.presence.setCurrentRow(0)
-        self.presence.raise_()
-        self.presence.show()
+        self._place_presence()
+        self.presence_panel.raise_()
+        self.presence_panel.show()
         self.presence.setFocus()
 
     def _toggle_presence(self, learner: str) -> None:
@@ -436,5 +462,5 @@ class ObservingScreen(QWidget):
         self.presence.setCurrentRow(row)
 
     def _close_presence(self) -> None:
-        self.presence.hide()
+        self.presence_panel.hide()
         self.setFocus()

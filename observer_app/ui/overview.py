@@ -27,6 +27,9 @@ def _table(headers: list[str], rows: list[list[str]]) -> QTableWidget:
     table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
     table.setFocusPolicy(Qt.FocusPolicy.NoFocus)
     table.setShowGrid(False)
+    table.setStyleSheet("QTableWidget, QHeaderView::section { font-size: 11pt; padding: 2px 6px; }")
+    table.horizontalHeader().setMinimumSectionSize(30)
+    table.verticalHeader().setDefaultSectionSize(26)
     for row_number, row in enumerate(rows):
         for column, value in enumerate(row):
             item = QTableWidgetItem(value)
@@ -34,7 +37,7 @@ def _table(headers: list[str], rows: list[list[str]]) -> QTableWidget:
                 item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
             table.setItem(row_number, column, item)
     table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-    table.horizontalHeader().setStretchLastSection(True)
+    table.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
     return table
 
 
@@ -84,6 +87,7 @@ class StudyOverview(QWidget):
         detail = QLabel(f"{study.dir}  ·  time zone {study.timezone}  ·  windows of {study.window_seconds:g} s, "
                         f"{study.order} order  ·  scheme {study.scheme.name!r} ({study.scheme.content_hash})")
         detail.setProperty("role", "caption")
+        detail.setWordWrap(True)
         self._layout.addWidget(detail)
 
         self.interrupted = find_interrupted_session(study, self.store)
@@ -99,14 +103,6 @@ class StudyOverview(QWidget):
             self.resume_banner.setStyleSheet("font-size: 15pt; padding: 8px;")
             self._layout.addWidget(self.resume_banner)
 
-        cautions = QLabel("<b>Before you observe</b>" + cautions_html())
-        cautions.setWordWrap(True)
-        cautions.setStyleSheet("font-size: 11pt;")
-        panel = QFrame()
-        panel.setProperty("role", "panel")
-        QVBoxLayout(panel).addWidget(cautions)
-        self._layout.addWidget(panel)
-
         grid = QGridLayout()
         grid.setHorizontalSpacing(24)
         roster = study.roster
@@ -119,7 +115,15 @@ class StudyOverview(QWidget):
             scheme_lines.append(f"<p><b>{dimension.name}</b> ({dimension.level}): {codes}</p>")
         scheme = QLabel("".join(scheme_lines))
         scheme.setWordWrap(True)
+        scheme.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
         grid.addWidget(self._section("Code scheme", scheme), 1, 0)
+        cautions = QLabel("<b>Before you observe</b>" + cautions_html())
+        cautions.setWordWrap(True)
+        cautions.setStyleSheet("font-size: 11pt;")
+        panel = QFrame()
+        panel.setProperty("role", "panel")
+        QVBoxLayout(panel).addWidget(cautions)
+        grid.addWidget(panel, 2, 0)
         sessions = session_table(self.store)
         zone = zoneinfo.ZoneInfo(study.timezone)
         session_rows = [[row.coder, row.device, "paired" if row.paired else "solo",
@@ -131,9 +135,12 @@ class StudyOverview(QWidget):
         observations = self.store.observations(study.scheme.dimension_names)
         self.counts_table = count_table(study, code_counts(observations, study.scheme.dimension_names),
                                         window_counts(observations))
-        grid.addWidget(self._section("Observations per learner and code", self.counts_table), 1, 1)
-        grid.setColumnStretch(0, 2)
-        grid.setColumnStretch(1, 3)
+        grid.addWidget(self._section("Observations per learner and code", self.counts_table), 1, 1, 2, 1)
+        grid.setColumnStretch(0, 3)
+        grid.setColumnStretch(1, 6)
+        grid.setRowStretch(0, 3)
+        grid.setRowStretch(1, 2)
+        grid.setRowStretch(2, 3)
         self._layout.addLayout(grid, 1)
         keys = "<b>S</b> start a session"
         if self.interrupted is not None:

@@ -69,3 +69,15 @@ def test_could_not_observe_excluded_by_default_and_included_on_request():
     assert excluded.units == 2 and excluded.figures["percent_agreement"].value == 1.0
     assert excluded.could_not_observe.units_one_coder_could_not == 1
     assert included.units == 3 and included.figures["percent_agreement"].value == 2 / 3
+
+
+def test_landis_koch_bands_at_their_published_bounds():
+    # Landis & Koch (1977), Biometrics 33:159-174, benchmark table (from memory):
+    # <0 poor, .00-.20 slight, .21-.40 fair, .41-.60 moderate, .61-.80 substantial, .81-1 almost perfect.
+    from agreement.coefficients import landis_koch_band
+
+    cases = {-0.01: "poor", 0.0: "slight", 0.20: "slight", 0.21: "fair", 0.40: "fair", 0.41: "moderate",
+             0.60: "moderate", 0.61: "substantial", 0.80: "substantial", 0.81: "almost perfect",
+             1.0: "almost perfect", None: "undefined"}
+    for kappa, label in cases.items():
+        assert landis_koch_band(kappa) == label, kappa

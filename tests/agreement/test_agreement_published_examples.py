@@ -161,3 +161,13 @@ def test_cohen_two_by_two_worked_example_via_cli(tmp_path):
     assert entry["confusion"]["rows"] == "A" and entry["confusion"]["columns"] == "B"
     assert entry["confusion"]["codes"] == ["no", "yes"]
     assert entry["confusion"]["counts"] == [[15, 10], [5, 20]]
+
+
+def test_json_keys_are_the_documented_ones(tmp_path):
+    # The contract in agreement/tables.py (copied into the README) is what --json prints.
+    from agreement.tables import JSON_DIMENSION_KEYS, JSON_TOP_KEYS
+
+    csv = write_cohen_csv(tmp_path / "cohen.csv")
+    document = agree_json(str(csv))
+    assert list(document) == list(JSON_TOP_KEYS)
+    assert list(document["dimensions"]["decision"]) == list(JSON_DIMENSION_KEYS)

@@ -12,8 +12,9 @@ from hypothesis import strategies as st
 from sklearn.metrics import cohen_kappa_score
 from statsmodels.stats.inter_rater import fleiss_kappa as statsmodels_fleiss_kappa
 
+from agreement.count_tables import count_tables
 from agreement.dimensions import Dimension
-from agreement.figures import assess_agreement
+from agreement.figures import assess_agreement, cluster_numbers, figures_from_tables
 
 CODES = ("a", "b", "c", "d")
 
@@ -105,22 +106,26 @@ missing_data = st.tuples(st.integers(2, 5), st.integers(2, 30)).flatmap(
 
 @settings(max_examples=40, deadline=None)
 @given(missing_data, st.sampled_from(["nominal", "ordinal", "interval", "ratio"]))
-def test_alpha_matches_krippendorff_package_with_missing_values(lists, level):
+def test_alpha_from_coincidence_matrices_matches_krippendorff_package(lists, level):
     # Reference: krippendorff.alpha (PyPI "krippendorff"), values 1..4, NaN = missing.
+    # Checked: our matrix route (what every bootstrap resample uses), not the point
+    # value (which the package itself supplies).
     matrix = np.array(lists)
     codes = ("1", "2", "3", "4")
+    dimension = Dimension("value", "ratio", codes)
     reliability = np.where(matrix >= 0, matrix + 1, np.nan).astype(float)
+    units = long_units(matrix, codes)
+    cluster_index, clusters = cluster_numbers(units)
+    tables = count_tables(units, dimension, cluster_index, clusters)
+    figures, _ = figures_from_tables(tables.unflat(tables.flat().sum(axis=0)), tables.values, dimension, False)
+    ours = float(figures[f"alpha_{level}"])
     pairable_units = np.isfinite(reliability).sum(axis=0) >= 2
     pairable_values = np.unique(reliability[:, pairable_units][np.isfinite(reliability[:, pairable_units])])
-    ours = figures_of(matrix, "ratio", codes).figures[f"alpha_{level}"].value
     if len(pairable_values) < 2:
-        # Nothing pairable, or one value only: the package raises or divides by zero; we say "undefined".
-        assert ours is None
+        # Nothing pairable, or one value only: the package raises or divides by zero; ours is undefined.
+        assert np.isnan(ours)
+        assert figures_of(matrix, level, codes).figures["alpha"].value is None
         return
     with np.errstate(all="ignore"):
-        expected = krippendorff.alpha(reliability, level_of_measurement=level,
-                                      value_domain=[1.0, 2.0, 3.0, 4.0])
-    if np.isfinite(expected):
-        assert ours == pytest.approx(expected, abs=1e-9)
-    else:
-        assert ours is None
+        expected = krippendorff.alpha(reliability, level_of_measurement=level, value_domain=[1.0, 2.0, 3.0, 4.0])
+    assert ours == pytest.approx(expected, abs=1e-9)

@@ -78,6 +78,14 @@ def test_study_figures_match_scikit_learn(study):
                                            "units_one_coder_could_not": 12}
 
 
+def test_could_not_observe_included_on_request(study):
+    result = call_cli("agree", study, "--json", "--include-could-not-observe", "--resamples", "50")
+    affect = json.loads(result.stdout)["dimensions"]["affect"]
+    assert affect["units"] == 120 and "unclear" in affect["codes"]
+    assert affect["could_not_observe"]["included"] is True
+    assert affect["percent_agreement"]["value"] == pytest.approx(108 / 120)
+
+
 def test_human_table_names_every_dimension(study):
     result = call_cli("agree", study, "--resamples", "100")
     assert result.returncode == 0, result.stderr

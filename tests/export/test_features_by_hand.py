@@ -6,7 +6,6 @@ import pandas as pd
 import pytest
 
 from export.features import FEATURES, FeatureSettings, WindowEvents, compute_features, feature, feature_definitions
-from export.spans import SpanSettings
 
 S = 1_000_000_000  # one second in ns
 
@@ -38,7 +37,7 @@ EVENTS = log([
 
 def test_features_of_a_window_worked_by_hand() -> None:
     result = compute_features(EVENTS, windows([("a", 10 * S, 20 * S)]), settings=FeatureSettings(rapid_seconds=2)).iloc[0]
-    # span [10 s, 20 s) of learner a: events at 10, 11, 14 (20 is the end: excluded)
+    # window [10 s, 20 s) of learner a: events at 10, 11, 14 (20 is the end: excluded)
     assert result["event_count"] == 3
     assert result["events_per_minute"] == pytest.approx(3 / (10 / 60))           # 18 per minute
     assert result["action_try"] == 2 and result["action_hint"] == 1
@@ -49,7 +48,7 @@ def test_features_of_a_window_worked_by_hand() -> None:
     assert result["gap_mean_s"] == pytest.approx(2.0)                            # gaps 1 and 3: (14 - 10) / 2
     assert result["gap_median_s"] == pytest.approx(2.0)                          # median of {1, 3}
     assert result["gap_max_s"] == 3
-    assert result["idle_longest_s"] == 6                                         # last event 14 -> span end 20
+    assert result["idle_longest_s"] == 6                                         # last event 14 -> window end 20
     assert result["rapid_share"] == pytest.approx(1 / 3)                         # only 11 s came < 2 s after the previous
     assert result["distinct_items"] == 2                                         # i1, i2 ("" is no item)
     assert result["attempts_without_success"] == 0                               # latest attempt (14 s) succeeded
@@ -59,7 +58,7 @@ def test_features_of_a_window_worked_by_hand() -> None:
 
 def test_window_bounds_start_inclusive_end_exclusive() -> None:
     result = compute_features(EVENTS, windows([("a", 20 * S, 30 * S)])).iloc[0]
-    # span [20 s, 30 s): 20 and 21 are in, 30 is not
+    # window [20 s, 30 s): 20 and 21 are in, 30 is not
     assert result["event_count"] == 2
     assert result["idle_longest_s"] == 9                                         # 21 -> 30
     assert result["seconds_since_previous"] == 6                                 # 20 - 14
@@ -67,8 +66,8 @@ def test_window_bounds_start_inclusive_end_exclusive() -> None:
     assert result["history_attempts"] == 5                                       # 0, 10, 14, 20, 21 (30 is not before the end)
 
 
-def test_history_ignores_other_learners_and_everything_after_the_span() -> None:
-    # b's span [0 s, 20 s): b has one attempt (12 s, wrong); a's eight events and b's later hint never count.
+def test_history_ignores_other_learners_and_everything_after_the_window() -> None:
+    # b's window [0 s, 20 s): b has one attempt (12 s, wrong); a's eight events and b's later hint never count.
     result = compute_features(EVENTS, windows([("b", 0, 20 * S)])).iloc[0]
     assert result["history_attempts"] == 1
     assert result["history_error_rate"] == 1
@@ -82,7 +81,7 @@ def test_history_features_do_not_change_when_the_future_changes() -> None:
     before = compute_features(EVENTS, spans)
     future = EVENTS.copy()
     later = future["time_ns"] >= 20 * S
-    future.loc[later, "outcome"] = "correct"                                     # rewrite everything after the spans
+    future.loc[later, "outcome"] = "correct"                                     # rewrite everything after the windows
     future = pd.concat([future, log([("a", 25 * S, "try", "incorrect", "i9", "s1")] * 5)])
     pd.testing.assert_frame_equal(compute_features(future, spans), before)
 
@@ -94,18 +93,6 @@ def test_wheel_spinning_flag_at_ten_attempts_without_success() -> None:
     result = compute_features(log(rows), spans)
     assert list(result["attempts_without_success"]) == [9, 10]
     assert list(result["wheel_spinning"]) == [0, 1]
-
-
-def test_coded_anchor_defaults_to_a_window_of_the_observed_length_ending_at_the_code() -> None:
-    spans = windows([("a", 10 * S, 20 * S)])
-    spans["coded_ns"] = 32 * S
-    result = compute_features(EVENTS, spans, SpanSettings(anchor="coded")).iloc[0]
-    # [32 - 10, 32) = [22, 32): events 30 and 31
-    assert (result["span_start_ns"], result["span_end_ns"]) == (22 * S, 32 * S)
-    assert result["event_count"] == 2
-    extended = compute_features(EVENTS, spans, SpanSettings(anchor="start", before_s=10, after_s=1.5)).iloc[0]
-    # [10 - 10, 10 + 1.5) = [0, 11.5): events 0, 10, 11
-    assert extended["event_count"] == 3
 
 
 def test_a_window_of_a_learner_without_events_is_empty_not_an_error() -> None:
@@ -127,13 +114,13 @@ def test_a_lab_adds_its_own_feature_as_one_function() -> None:
     registry = dict(FEATURES)
 
     def long_pauses(view: WindowEvents) -> dict[str, np.ndarray]:
-        """Pauses of five seconds or more inside the span."""
+        """Pauses of five seconds or more inside the window."""
         return {"long_pauses": view.count_members(view.internal_gap_ns >= 5 * S)}
 
     registry["long_pauses"] = long_pauses
     result = compute_features(EVENTS, windows([("a", 0, 40 * S)]), features=registry).iloc[0]
     assert result["long_pauses"] == 3                                            # gaps 10, 6 and 9 s
-    assert feature_definitions(registry)["long_pauses"] == "Pauses of five seconds or more inside the span."
+    assert feature_definitions(registry)["long_pauses"] == "Pauses of five seconds or more inside the window."
     assert "long_pauses" not in FEATURES
 
 

@@ -67,7 +67,7 @@ def test_manifest_records_how_the_file_was_made(exported) -> None:
     manifest = json.loads(writer.manifest_path(path).read_text())
     assert manifest["fieldmark_version"] == "0.1.0" and manifest["scheme_hash"] == "scheme-1"
     assert manifest["parameters"]["policy"] == "first-coder"
-    assert manifest["parameters"]["spans"]["anchor"] == "start"
+    assert manifest["parameters"]["features"]["rapid_seconds"] == 2.0
     assert manifest["clock_models"][0]["offset_s"] == 12.5
     assert manifest["inputs"] == {"logs/centre_north.csv": "sha256:00"}
     assert manifest["feature_columns"] == result.feature_columns

@@ -1,0 +1,156 @@
+"""Clock model from sync marks: moments a coder marked on the device clock while the
+learner did something the log records.
+
+1. Coarse model by voting (a Hough transform): every event of the marked learner within
+   +-300 s of a mark is a candidate pairing; for each drift on a grid (+-200 ppm, step
+   2 ppm; quartz clocks stay well inside, common practice) each pairing votes for the
+   offset it implies, and the (drift, offset) with most votes wins.  So a large offset or
+   a long study does not pair marks with the wrong events.
+2. Each mark is matched to its learner's nearest event under the current model, and a
+   Theil-Sen line (scipy) of (device - event) against event time gives offset and drift.
+   Matching and fitting are repeated with the fitted model.
+3. Marks further than max(1 s, 5 robust SD) from the line are outliers: named, and left
+   out of the final fit.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from scipy.stats import theilslopes
+
+from sync.clock import ClockModel, MarkResidual
+from sync.event_table import learner_blocks
+from sync.time_column import datetime_column_ns
+
+SEARCH_RANGE_S = 300.0
+VOTE_BIN_S = 1.0
+VOTE_DRIFT_RANGE_PPM = 200.0
+VOTE_DRIFT_STEP_PPM = 2.0
+OUTLIER_FLOOR_S = 1.0
+OUTLIER_ROBUST_SD = 5.0
+MIN_DRIFT_SPAN_S = 600.0
+MIN_DRIFT_MARKS = 3
+ROUNDS = 3
+
+
+def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame) -> ClockModel:
+    """Clock model for ONE device from its sync marks and the EVENTS table.
+
+    ``marks`` has the SYNC MARKS columns (observer_app/tables.py: mark_id, device,
+    marked_at ...) plus ``log_id``, the marked learner's id in the log (the caller maps
+    roster learner -> log_id).  Marks without a log_id, or whose learner has no events,
+    are reported in the warnings and not used.  Raises ValueError when no mark is usable.
+    """
+    devices = marks["device"].unique()
+    if len(devices) != 1:
+        raise ValueError(f"fit_from_marks takes one device's marks, got {list(devices)}")
+    blocks = learner_blocks(events)
+    event_ns = events["time_ns"].to_numpy()
+    log_ids = marks["log_id"].fillna("").astype(str)
+    usable = marks[log_ids.isin(list(blocks))]
+    warnings = []
+    if len(usable) < len(marks):
+        skipped = marks.loc[~log_ids.isin(list(blocks)), "mark_id"].astype(str).tolist()
+        warnings.append(f"{len(skipped)} marks have no learner with log events and were not used "
+                        f"({', '.join(skipped[:5])})")
+    if usable.empty:
+        raise ValueError("no sync mark names a learner with log events")
+    device_ns = datetime_column_ns(usable["marked_at"])
+    learners = usable["log_id"].astype(str).to_numpy()
+    mark_ids = usable["mark_id"].astype(str).to_numpy()
+
+    def nearest(log_guess: np.ndarray) -> np.ndarray:
+        """Each mark's learner's event closest to its guessed log time; marks on the last axis."""
+        guess = np.atleast_2d(log_guess)
+        found = np.empty_like(guess)
+        for learner in np.unique(learners):
+            rows = np.flatnonzero(learners == learner)
+            begin, stop = blocks[learner]
+            times = event_ns[begin:stop]
+            query = guess[:, rows]
+            after = np.clip(np.searchsorted(times, query), 0, len(times) - 1)
+            before = np.clip(after - 1, 0, len(times) - 1)
+            closer_after = np.abs(times[after] - query) < np.abs(query - times[before])
+            found[:, rows] = np.where(closer_after, times[after], times[before])
+        return found.reshape(np.shape(log_guess))
+
+    offset, drift, reference = _coarse_model(device_ns, learners, blocks, event_ns)
+    model = ClockModel(device=str(devices[0]), method="marks", offset_s=offset, drift_ppm=drift,
+                       reference_ns=reference - int(round(offset * 1e9)))
+    keep = np.ones(len(device_ns), dtype=bool)
+    for _ in range(ROUNDS):
+        matched = nearest(model.to_log_ns(device_ns))
+        model, residual = _fit(model, device_ns, matched, keep, warnings)
+        keep = np.abs(residual) <= _outlier_limit(residual[keep])
+        model, residual = _fit(model, device_ns, matched, keep, warnings)
+    residuals = tuple(
+        MarkResidual(mark_id=mark_ids[i], learner=learners[i], device_ns=int(device_ns[i]), event_ns=int(matched[i]),
+                     residual_s=round(float(residual[i]), 6), outlier=not bool(keep[i]))
+        for i in range(len(device_ns)))
+    outliers = [r.mark_id for r in residuals if r.outlier]
+    if outliers:
+        warnings.append(f"{len(outliers)} outlying marks left out of the fit: {', '.join(outliers[:10])}")
+    return ClockModel(
+        device=model.device, method="marks", offset_s=model.offset_s, drift_ppm=model.drift_ppm,
+        reference_ns=model.reference_ns, marks_used=int(keep.sum()),
+        median_abs_residual_s=float(np.median(np.abs(residual))), confidence=float(keep.mean()),
+        warnings=tuple(dict.fromkeys(warnings)), residuals=residuals)
+
+
+def _coarse_model(device_ns: np.ndarray, learners: np.ndarray, blocks: dict[str, tuple[int, int]],
+                  event_ns: np.ndarray) -> tuple[float, float, int]:
+    """(offset_s, drift_ppm, reference_ns) with the most votes from candidate pairings."""
+    reference = int(np.median(device_ns))
+    gaps, since = [], []
+    reach = int(SEARCH_RANGE_S * 1e9)
+    for learner in np.unique(learners):
+        rows = np.flatnonzero(learners == learner)
+        begin, stop = blocks[learner]
+        times = event_ns[begin:stop]
+        first = np.searchsorted(times, device_ns[rows] - reach)
+        last = np.searchsorted(times, device_ns[rows] + reach, side="right")
+        size = last - first
+        index = np.repeat(first, size) + (np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size))
+        gaps.append((np.repeat(device_ns[rows], size) - times[index]) / 1e9)
+        since.append((times[index] - reference) / 1e9)
+    gaps, since = np.concatenate(gaps), np.concatenate(since)
+    if gaps.size == 0:
+        return 0.0, 0.0, reference
+    drifts = np.arange(-VOTE_DRIFT_RANGE_PPM, VOTE_DRIFT_RANGE_PPM + VOTE_DRIFT_STEP_PPM / 2, VOTE_DRIFT_STEP_PPM)
+    bins = int(2 * SEARCH_RANGE_S / VOTE_BIN_S) + 3
+    best = (-1, 0.0, 0.0)
+    for drift in drifts:
+        implied = gaps - drift * 1e-6 * since
+        index = np.floor((implied + SEARCH_RANGE_S) / VOTE_BIN_S).astype(np.int64) + 1
+        inside = (index >= 0) & (index < bins)
+        votes = np.bincount(index[inside], minlength=bins)
+        pair_votes = votes[:-1] + votes[1:]
+        top = int(np.argmax(pair_votes))
+        if pair_votes[top] > best[0]:
+            best = (int(pair_votes[top]), float((top - 1 + 1) * VOTE_BIN_S - SEARCH_RANGE_S), float(drift))
+    return best[1], best[2], reference
+
+
+def _fit(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, keep: np.ndarray,
+         warnings: list[str]) -> tuple[ClockModel, np.ndarray]:
+    """Theil-Sen offset and drift through the kept marks; residuals for all marks (s)."""
+    since = (matched - model.reference_ns) / 1e9
+    gap = (device_ns - matched) / 1e9
+    span = since[keep].max() - since[keep].min() if keep.any() else 0.0
+    if keep.sum() >= MIN_DRIFT_MARKS and span >= MIN_DRIFT_SPAN_S:
+        slope = theilslopes(gap[keep], since[keep])[0]
+        # The offset is the median residual about the Theil-Sen slope (scipy's own
+        # intercept pairs median(y) with median(x), which need not be the same mark).
+        intercept = float(np.median(gap[keep] - slope * since[keep]))
+    else:
+        slope, intercept = 0.0, float(np.median(gap[keep] if keep.any() else gap))
+        warnings.append(f"drift not estimated (needs {MIN_DRIFT_MARKS} marks spread over "
+                        f"{MIN_DRIFT_SPAN_S / 60:.0f} minutes); assumed 0 ppm")
+    fitted = ClockModel(device=model.device, method="marks", offset_s=float(intercept),
+                        drift_ppm=float(slope * 1e6), reference_ns=model.reference_ns)
+    return fitted, gap - (intercept + slope * since)
+
+
+def _outlier_limit(residual: np.ndarray) -> float:
+    robust_sd = 1.4826 * float(np.median(np.abs(residual - np.median(residual)))) if len(residual) else 0.0
+    return max(OUTLIER_FLOOR_S, OUTLIER_ROBUST_SD * robust_sd)

@@ -1,0 +1,333 @@
+"""Automatic clock model, no sync marks needed: the offset under which the codes best
+explain each learner's log activity inside the observed windows.
+
+For every candidate offset o (default -300..+300 s in 0.5 s steps) each observation's
+window is moved onto the log clock ([start - o, end - o)) and the learner's events in it
+are counted.  The score of o is the likelihood-ratio (G) statistic of "one event rate per
+code" against "one rate for all" (Poisson deviance), summed over dimensions, so a scheme
+needs no hints about which code means a busy or a quiet log.  Counting is exact and
+vectorised over all offsets at once: each event near a window adds +1 on the run of grid
+offsets that would put it inside, in per-code difference arrays summed by np.bincount.
+
+Drift: the observations are cut into time-ordered chunks, each chunk's offset is found by
+a fine scan (0.1 s) near the overall estimate, and a Theil-Sen slope through the chunk
+offsets gives the drift; a last fine scan of all observations with the drift taken out
+gives the offset at the reference time.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from scipy.special import xlogy
+from scipy.stats import theilslopes
+
+from sync.clock import ClockModel
+from sync.event_table import learner_blocks
+from sync.time_column import datetime_column_ns
+
+DEFAULT_RANGE_S = 300.0
+DEFAULT_STEP_S = 0.5
+FINE_STEP_S = 0.1
+FINE_HALF_WIDTH_S = 30.0
+CHUNKS = 12
+MIN_CHUNK_OBSERVATIONS = 100
+SESSION_GAP_S = 3600.0
+ROUGH_DRIFT_CHUNKS = 4
+MIN_DRIFT_SPAN_S = 3600.0
+AMBIGUOUS_BELOW = 0.25
+CLEAR_PEAK_SPREADS = 20.0  # a peak this many noise spreads above the far level is clear
+INFORMATIVE_SHARE = 0.5  # dimensions at least half as prominent as the best one are used
+SEPARATION_WINDOWS = 3.0  # rivals are offsets more than 3 window lengths beyond the peak
+PAIRS_PER_BLOCK = 4_000_000
+PEAK_REGION = 0.3  # the peak region: scores within 30% of the peak's height above the median
+
+
+def default_candidates() -> np.ndarray:
+    """-300 .. +300 s in 0.5 s steps (1201 offsets)."""
+    return np.round(np.arange(-DEFAULT_RANGE_S, DEFAULT_RANGE_S + DEFAULT_STEP_S / 2, DEFAULT_STEP_S), 6)
+
+
+def code_event_totals(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learners: np.ndarray,
+                      start_ns: np.ndarray, end_ns: np.ndarray, offsets_ns: np.ndarray,
+                      labels: np.ndarray, sizes: list[int]) -> list[np.ndarray]:
+    """Per dimension, per code, per offset: the events of observed learners inside the
+    windows coded so, with every window moved to [start - o, end - o).
+
+    ``event_ns`` is EVENTS.time_ns sorted by (learner, time) and ``blocks`` its
+    ``learner_blocks``; ``offsets_ns`` an evenly spaced ascending grid; ``labels`` an
+    (observations x dimensions) int array of code numbers (-1 = not coded) with
+    ``sizes[d]`` codes in dimension d.  Returns one (codes x offsets) int64 array per
+    dimension.  No (observations x offsets) matrix is ever built: each (event, window)
+    pair adds +1 on the run of grid offsets that put the event inside the window, in a
+    difference array per code, summed by ``np.bincount``.
+    """
+    k = len(offsets_ns)
+    width = k + 1
+    totals = [np.zeros(size * width, dtype=np.int64) for size in sizes]
+    if len(start_ns) == 0 or k == 0:
+        return [t.reshape(size, width)[:, :k] for t, size in zip(totals, sizes)]
+    low = np.int64(offsets_ns[0])
+    step = np.int64(offsets_ns[1] - offsets_ns[0]) if k > 1 else np.int64(1)
+    high = np.int64(offsets_ns[-1])
+    first = np.zeros(len(start_ns), dtype=np.int64)
+    last = np.zeros(len(start_ns), dtype=np.int64)
+    learners = np.asarray(learners).astype(str)
+    for learner in np.unique(learners):
+        if learner not in blocks:
+            continue
+        rows = np.flatnonzero(learners == learner)
+        begin, stop = blocks[learner]
+        times = event_ns[begin:stop]
+        first[rows] = begin + np.searchsorted(times, start_ns[rows] - high, side="left")
+        last[rows] = begin + np.searchsorted(times, end_ns[rows] - low, side="left")
+    lengths = np.maximum(last - first, 0)
+    for rows in _blocks(lengths):
+        size = lengths[rows]
+        owner = np.repeat(rows, size)
+        position = np.arange(int(size.sum())) - np.repeat(np.cumsum(size) - size, size)
+        times = event_ns[np.repeat(first[rows], size) + position]
+        # Event t is inside the window for offsets o in [start - t, end - t): grid
+        # indices [enter, leave), by ceiling division onto the grid.
+        enter = np.clip(-((times - start_ns[owner] + low) // step), 0, k)
+        leave = np.clip(-((times - end_ns[owner] + low) // step), 0, k)
+        for dimension, total in enumerate(totals):
+            code = labels[owner, dimension]
+            coded = code >= 0
+            base = code[coded] * width
+            total += np.bincount(base + enter[coded], minlength=total.size)
+            total -= np.bincount(base + leave[coded], minlength=total.size)
+    return [np.cumsum(t.reshape(size, width), axis=1)[:, :k] for t, size in zip(totals, sizes)]
+
+
+def _blocks(lengths: np.ndarray) -> list[np.ndarray]:
+    """Consecutive observation ranges holding about PAIRS_PER_BLOCK (event, window) pairs
+    each, so the pair arrays stay a few tens of megabytes."""
+    cumulative = np.cumsum(lengths)
+    cuts = np.searchsorted(cumulative, np.arange(PAIRS_PER_BLOCK, cumulative[-1] + 1, PAIRS_PER_BLOCK), side="left")
+    edges = np.unique(np.concatenate(([0], np.minimum(cuts + 1, len(lengths)), [len(lengths)])))
+    return [np.arange(a, b) for a, b in zip(edges[:-1], edges[1:])]
+
+
+def likelihood_ratio_curve(totals: list[np.ndarray], exposures: list[np.ndarray]) -> np.ndarray:
+    """Sum over dimensions of the likelihood-ratio (G) statistic, per offset column.
+
+    G = 2 * sum_c N_c * log(rate_c / rate), with N_c the events in windows coded c,
+    rate_c = N_c / (seconds observed with code c), rate = all events / all seconds: the
+    Poisson deviance between one event rate per code and one rate for all.  It is 0 when
+    the code says nothing about log activity and grows the better it does.
+    """
+    score = np.zeros(totals[0].shape[1]) if totals else np.zeros(0)
+    for events_per_code, seconds_per_code in zip(totals, exposures):
+        used = seconds_per_code > 0
+        if used.sum() < 2:
+            continue
+        counts = events_per_code[used].astype(np.float64)
+        seconds = seconds_per_code[used][:, None]
+        everything = counts.sum(axis=0)
+        overall_rate = everything / seconds.sum()
+        with np.errstate(divide="ignore", invalid="ignore"):
+            score += 2.0 * (xlogy(counts, counts / seconds).sum(axis=0) - xlogy(everything, overall_rate))
+    return score
+
+
+def locate_peak(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) -> tuple[float, float, list[str]]:
+    """(estimate, confidence, warnings) from a score curve.
+
+    Offsets more than ``separation_s`` beyond the peak are the "far" level: its median is
+    the baseline and its robust spread (1.4826 * MAD) the noise.  The estimate is the
+    middle of the contiguous peak region (scores within 30% of the peak's height above
+    the baseline): the apex of a sharp peak, the centre of a plateau.
+    confidence = separation * clearness, where separation = 1 - (best far score -
+    baseline) / (peak - baseline) (0 = a rival as good, 1 = none) and clearness =
+    min(1, (peak - baseline) / (CLEAR_PEAK_SPREADS * noise)).
+    """
+    warnings: list[str] = []
+    best = int(np.argmax(scores))
+    top = float(scores[best])
+    far = np.abs(offsets_s - offsets_s[best]) > separation_s
+    level = scores[far] if far.sum() >= 10 else scores
+    base = float(np.median(level))
+    height = top - base
+    if not np.isfinite(height) or height <= 1e-12:
+        return float(offsets_s[best]), 0.0, ["no offset explains the log activity better than the others"]
+    inside = scores >= top - PEAK_REGION * height
+    left = right = best
+    while left > 0 and inside[left - 1]:
+        left -= 1
+    while right < len(scores) - 1 and inside[right + 1]:
+        right += 1
+    estimate = float((offsets_s[left] + offsets_s[right]) / 2)
+    rivals = (offsets_s < offsets_s[left] - separation_s) | (offsets_s > offsets_s[right] + separation_s)
+    rival = float(scores[rivals].max()) if rivals.any() else base
+    separation = float(np.clip(1.0 - (rival - base) / height, 0.0, 1.0))
+    clearness = float(min(1.0, peak_prominence(offsets_s, scores, separation_s) / CLEAR_PEAK_SPREADS))
+    if clearness < 0.5:
+        warnings.append("no clear best offset: the codes barely explain the log activity at any offset; "
+                        "add sync marks or set the offset by hand")
+    elif separation < AMBIGUOUS_BELOW:
+        rival_at = float(offsets_s[rivals][np.argmax(scores[rivals])])
+        warnings.append(f"ambiguous: an offset of {rival_at:+.1f} s explains the log almost as well as "
+                        f"{estimate:+.1f} s; add sync marks or check the result")
+    if left == 0 or right == len(scores) - 1:
+        warnings.append("the best offset is at the edge of the scanned range; widen the range")
+    return estimate, separation * clearness, warnings
+
+
+def peak_prominence(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) -> float:
+    """How many noise spreads the peak stands above the far level (see ``locate_peak``)."""
+    best = int(np.argmax(scores))
+    far = np.abs(offsets_s - offsets_s[best]) > separation_s
+    level = scores[far] if far.sum() >= 10 else scores
+    base = float(np.median(level))
+    noise = 1.4826 * float(np.median(np.abs(level - base)))
+    height = float(scores[best]) - base
+    return float("inf") if noise <= 0 < height else (0.0 if noise <= 0 else height / noise)
+
+
+def _informative_dimensions(offsets_s: np.ndarray, per_dimension: list[np.ndarray], separation_s: float) -> list[int]:
+    """Dimensions whose own peak is at least half as prominent as the clearest one's, so a
+    dimension unrelated to log activity adds no noise; all of them when none stands out."""
+    prominence = [peak_prominence(offsets_s, scores, separation_s) for scores in per_dimension]
+    if not prominence or max(prominence) <= 0:
+        return list(range(len(per_dimension)))
+    return [column for column, value in enumerate(prominence) if value >= INFORMATIVE_SHARE * max(prominence)]
+
+
+def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: list[str],
+                candidates: np.ndarray | None = None) -> ClockModel:
+    """Automatic clock model for ONE device from its observations and the EVENTS table.
+
+    ``observations`` needs device, log_id, window_start, window_end (device clock,
+    datetime UTC) and one column per name in ``dimensions``; ``candidates`` are offsets in
+    seconds on an even grid (default -300..300 by 0.5).  Rows whose log_id has no events
+    still count (as empty windows).
+    """
+    devices = observations["device"].unique()
+    if len(devices) != 1:
+        raise ValueError(f"scan_offset takes one device's observations, got {list(devices)}")
+    candidates = default_candidates() if candidates is None else np.asarray(candidates, dtype=np.float64)
+    if len(candidates) > 2 and not np.allclose(np.diff(candidates), candidates[1] - candidates[0]):
+        raise ValueError("candidates must be an evenly spaced ascending grid")
+    usable = observations.dropna(subset=["window_start", "window_end"])
+    usable = usable[usable["log_id"].fillna("").astype(str) != ""]
+    start = datetime_column_ns(usable["window_start"])
+    end = datetime_column_ns(usable["window_end"])
+    learners = usable["log_id"].astype(str).to_numpy()
+    labels, sizes = _code_numbers(usable, dimensions)
+    seconds = (end - start) / 1e9
+    event_ns = events["time_ns"].to_numpy()
+    blocks = learner_blocks(events)
+    window_s = float(np.median(seconds)) if len(start) else 0.0
+
+    def curves(rows: np.ndarray, offsets_s: np.ndarray, columns: list[int],
+               shift_ns: np.ndarray | int = 0) -> list[np.ndarray]:
+        """Score per offset and dimension (``columns``) for the observations ``rows``,
+        windows moved by ``shift_ns``."""
+        offsets_ns = np.round(offsets_s * 1e9).astype(np.int64)
+        shift = shift_ns if np.isscalar(shift_ns) else shift_ns[rows]
+        chosen = labels[np.ix_(rows, columns)]
+        chosen_sizes = [sizes[column] for column in columns]
+        totals = code_event_totals(event_ns, blocks, learners[rows], start[rows] - shift, end[rows] - shift,
+                                   offsets_ns, chosen, chosen_sizes)
+        exposures = _seconds_per_code(chosen, seconds[rows], chosen_sizes)
+        return [likelihood_ratio_curve([total], [exposure]) for total, exposure in zip(totals, exposures)]
+
+    everyone = np.arange(len(start))
+    separation_s = SEPARATION_WINDOWS * window_s
+    per_dimension = curves(everyone, candidates, list(range(len(dimensions))))
+    informative = _informative_dimensions(candidates, per_dimension, separation_s)
+
+    def curve(rows: np.ndarray, offsets_s: np.ndarray, shift_ns: np.ndarray | int = 0) -> np.ndarray:
+        """The summed score of the informative dimensions."""
+        return np.sum(curves(rows, offsets_s, informative, shift_ns), axis=0)
+
+    scores = np.sum([per_dimension[column] for column in informative], axis=0)
+    estimate, confidence, warnings = locate_peak(candidates, scores, separation_s)
+    left_out = [dimensions[column] for column in range(len(dimensions)) if column not in informative]
+    if left_out:
+        warnings.append(f"left out of the scan, their codes do not follow log activity: {', '.join(left_out)}")
+    reference = int(np.median(start)) - int(round(estimate * 1e9)) if len(start) else 0
+    offset, drift, residual, drift_warnings = _drift(curve, start, estimate, reference, window_s)
+    if drift:
+        # Final offset from all observations at once, with the drift taken out of the
+        # windows (device - drift * (device - reference); the error, drift * offset, is
+        # micro-seconds).
+        shift = np.round(drift * 1e-6 * (start - reference)).astype(np.int64)
+        final = _fine_grid(offset)
+        offset = locate_peak(final, curve(everyone, final, shift), window_s)[0]
+    return ClockModel(
+        device=str(devices[0]), method="auto", offset_s=offset, drift_ppm=drift, reference_ns=reference,
+        marks_used=0, median_abs_residual_s=residual, confidence=confidence,
+        warnings=tuple(warnings + drift_warnings),
+        scan_offsets_s=tuple(float(x) for x in candidates), scan_scores=tuple(round(float(s), 6) for s in scores),
+    )
+
+
+def _drift(curve, start: np.ndarray, estimate: float, reference: int,
+           window_s: float) -> tuple[float, float, float, list[str]]:
+    """(offset at reference, drift ppm, median abs chunk residual s, warnings) from chunk scans."""
+    fine = _fine_grid(estimate)
+    chunks = _time_chunks(start)
+    span_s = (start.max() - start.min()) / 1e9 if len(start) else 0.0
+    if len(chunks) < 2 or span_s < MIN_DRIFT_SPAN_S:
+        offset = locate_peak(fine, curve(np.arange(len(start)), fine), window_s)[0] if len(start) else estimate
+        return offset, 0.0, float("nan"), [
+            "drift not estimated (needs observations spread over at least an hour); assumed 0 ppm"]
+    centres, offsets = [], []
+    for rows in chunks:
+        offset, _, _ = locate_peak(fine, curve(rows, fine), window_s)
+        centres.append((np.median(start[rows]) - reference) / 1e9 - offset)
+        offsets.append(offset)
+    centres, offsets = np.asarray(centres), np.asarray(offsets)
+    slope = theilslopes(offsets, centres)[0]
+    intercept = float(np.median(offsets - slope * centres))
+    residual = float(np.median(np.abs(offsets - (intercept + slope * centres))))
+    warnings = []
+    if len(chunks) < ROUGH_DRIFT_CHUNKS:
+        warnings.append(f"drift rests on only {len(chunks)} groups of observations; treat it as rough "
+                        "(sync marks pin it down)")
+    return intercept, float(slope * 1e6), residual, warnings
+
+
+def _time_chunks(start: np.ndarray) -> list[np.ndarray]:
+    """Time-ordered groups of observations for the drift fit: first split where coding
+    paused for more than SESSION_GAP_S (separate sessions), then each session into parts
+    of at least MIN_CHUNK_OBSERVATIONS, about CHUNKS parts in all.  Sessions too small to
+    give an offset of their own are left out."""
+    order = np.argsort(start, kind="stable")
+    breaks = np.flatnonzero(np.diff(start[order]) > SESSION_GAP_S * 1e9) + 1
+    chunks = []
+    for session in np.split(order, breaks):
+        if len(session) < MIN_CHUNK_OBSERVATIONS:
+            continue
+        parts = max(1, min(len(session) // MIN_CHUNK_OBSERVATIONS, int(np.ceil(CHUNKS * len(session) / len(start)))))
+        chunks.extend(np.array_split(session, parts))
+    return chunks
+
+
+def _code_numbers(observations: pd.DataFrame, dimensions: list[str]) -> tuple[np.ndarray, list[int]]:
+    """(observations x dimensions) code numbers, -1 where not coded, and codes per dimension."""
+    labels = np.full((len(observations), len(dimensions)), -1, dtype=np.int64)
+    sizes = []
+    for column, name in enumerate(dimensions):
+        codes = pd.Categorical(observations[name])
+        labels[:, column] = codes.codes
+        sizes.append(len(codes.categories))
+    return labels, sizes
+
+
+def _seconds_per_code(labels: np.ndarray, seconds: np.ndarray, sizes: list[int]) -> list[np.ndarray]:
+    """Per dimension, the seconds observed under each code (the rates' exposure)."""
+    result = []
+    for dimension, size in enumerate(sizes):
+        coded = labels[:, dimension] >= 0
+        result.append(np.bincount(labels[coded, dimension], weights=seconds[coded], minlength=size))
+    return result
+
+
+def _fine_grid(centre_s: float) -> np.ndarray:
+    """Offsets within FINE_HALF_WIDTH_S of ``centre_s`` in FINE_STEP_S steps.
+
+    Wide enough that the curve's median is off the peak, which ``locate_peak`` needs."""
+    return np.round(np.arange(centre_s - FINE_HALF_WIDTH_S, centre_s + FINE_HALF_WIDTH_S + FINE_STEP_S / 2,
+                              FINE_STEP_S), 6)

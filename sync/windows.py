@@ -1,0 +1,81 @@
+"""Observations -> windows on the log's clock (the WINDOWS table of sync/tables.py).
+
+What a window covers is decided here and nowhere else:
+  anchor="start" (default): [window_start - before_s, window_end) -- the observed window
+      itself when before_s is 0 -- or [window_start - before_s, window_start + after_s)
+      when after_s is given;
+  anchor="coded": [coded_at - before_s, coded_at + after_s) (after_s defaults to 0).
+Bounds are mapped through the device's clock model; start is inclusive, end exclusive,
+so back-to-back windows never share an event.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from sync.clock import NAT, ClockModel, identity_model
+from sync.tables import WINDOW_EXTRA_COLUMNS
+from sync.time_column import datetime_column_ns
+
+ANCHORS: tuple[str, ...] = ("start", "coded")
+
+
+def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, ClockModel],
+                            roster: pd.DataFrame, anchor: str = "start", before_s: float = 0.0,
+                            after_s: float | None = None) -> pd.DataFrame:
+    """Every observation with log_id, start_ns, end_ns, coded_ns on the log's clock.
+
+    ``observations`` has the OBSERVATIONS columns (observer_app/tables.py); ``roster``
+    the columns learner and log_id.  Devices without a model are mapped with the identity
+    model.  Rows without window_start/window_end are left out.  What was assumed or left
+    out is listed in ``result.attrs["warnings"]``.  Raises ValueError for an unknown
+    anchor or a window that would not have positive length.
+    """
+    if anchor not in ANCHORS:
+        raise ValueError(f"anchor must be one of {ANCHORS}, got {anchor!r}")
+    if anchor == "coded" and before_s + (after_s or 0.0) <= 0:
+        raise ValueError("a window around coded_at needs before_s or after_s > 0")
+    if anchor == "start" and after_s is not None and before_s + after_s <= 0:
+        raise ValueError("before_s + after_s must be > 0")
+    warnings: list[str] = []
+    complete = observations["window_start"].notna() & observations["window_end"].notna()
+    if not complete.all():
+        warnings.append(f"{int((~complete).sum())} observations without window bounds were left out")
+    result = observations.loc[complete].copy()
+    log_ids = dict(zip(roster["learner"].astype(str), roster["log_id"].astype(str)))
+    result["log_id"] = result["learner"].astype(str).map(log_ids).fillna("").astype(str)
+    unknown = sorted(set(result.loc[result["log_id"] == "", "learner"].astype(str)))
+    if unknown:
+        warnings.append(f"learners not in the roster (no log_id): {', '.join(unknown[:10])}")
+    start_ns = np.zeros(len(result), dtype=np.int64)
+    end_ns = np.zeros(len(result), dtype=np.int64)
+    coded_ns = np.full(len(result), NAT, dtype=np.int64)
+    window_start, window_end, coded_at = (datetime_column_ns(result[column]) for column in ("window_start", "window_end", "coded_at"))
+    before, after = round(before_s * 1e9), None if after_s is None else round(after_s * 1e9)
+    devices = result["device"].astype(str).to_numpy()
+    for device in np.unique(devices):
+        rows = devices == device
+        model = clock_models.get(device)
+        if model is None:
+            model = identity_model(device)
+            warnings.extend(model.warnings)
+        if anchor == "start":
+            begin = window_start[rows] - before
+            finish = window_end[rows] if after is None else window_start[rows] + after
+        else:
+            begin = coded_at[rows] - before
+            finish = coded_at[rows] + (after or 0)
+        start_ns[rows] = model.to_log_ns(begin)
+        end_ns[rows] = model.to_log_ns(finish)
+        coded_ns[rows] = model.to_log_ns(coded_at[rows])
+    dropped = (start_ns == NAT) | (end_ns == NAT)
+    result["start_ns"] = start_ns
+    result["end_ns"] = end_ns
+    result["coded_ns"] = pd.arrays.IntegerArray(coded_ns, coded_ns == NAT)
+    if dropped.any():
+        warnings.append(f"{int(dropped.sum())} observations without coded_at were left out (anchor 'coded')")
+        result = result.loc[~dropped]
+    columns = [c for c in observations.columns if c not in WINDOW_EXTRA_COLUMNS] + list(WINDOW_EXTRA_COLUMNS)
+    result = result[columns].reset_index(drop=True)
+    result.attrs["warnings"] = warnings
+    return result

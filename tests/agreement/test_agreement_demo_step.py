@@ -1,0 +1,31 @@
+"""The demo pipeline's agree step reports what scikit-learn computes on the demo's paired windows."""
+from __future__ import annotations
+
+import pytest
+from sklearn.metrics import cohen_kappa_score
+
+from observer_app.demo_pipeline import run_demo
+from observer_app.store import Store
+from observer_app.study import load_study
+
+
+def test_demo_agree_step_matches_scikit_learn(tmp_path):
+    summary = run_demo(tmp_path / "demo", seed=3, size="small", progress=False)
+    assert "agree" in [step["name"] for step in summary["steps"]]
+    study = load_study(summary["study"])
+    with Store(study.store_path) as store:
+        paired = store.observations(study.scheme.dimension_names)
+    paired = paired[paired["paired_start"].notna()]
+    for dimension in study.scheme.dimensions:
+        # Paired-run windows share (paired_start, slot, learner); the could-not-observe code is left out.
+        wide = paired.pivot_table(index=["paired_start", "slot", "learner"], columns="coder",
+                                  values=dimension.name, aggfunc="first")
+        wide = wide.dropna()
+        wide = wide[(wide != dimension.could_not_observe).all(axis=1)]
+        first, second = sorted(wide.columns)
+        # Reference: sklearn.metrics.cohen_kappa_score on the same pairs.
+        expected = cohen_kappa_score(wide[first], wide[second])
+        kappa = summary["dimensions"][dimension.name]["kappa"]
+        assert kappa["value"] == pytest.approx(expected, abs=1e-12)
+        assert kappa["low"] <= kappa["value"] <= kappa["high"]
+    assert "Agreement between the coders" in (tmp_path / "demo" / "report.html").read_text()
