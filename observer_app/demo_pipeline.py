@@ -12,8 +12,14 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
     devices         object  per coder device:
                               "truth":     {"offset_s", "drift_ppm", "reference"} -- planted by the
                                            generator, copied from DIR/truth.json (the only copied figures)
-                              "recovered": {"method", "offset_s", "drift_ppm", ...} from the align
-                                           step, or null while that step does not exist
+                              "recovered": the align step's stored model (`fieldmark align`, default
+                                           method: sync marks): {"method", "offset_s", "drift_ppm",
+                                           "reference_ns", "marks_used", "median_abs_residual_s",
+                                           "confidence", "outlying_marks", "warnings", "versus_truth"}
+                              "recovered_automatic": the same from the automatic scan (no marks)
+                              "versus_truth" (in both): {"planted_offset_at_reference_s",
+                                           "offset_error_s", "drift_error_ppm"}: recovered minus planted,
+                                           both at the model's reference time
     dimensions      object  per scheme dimension, from the agree step (agreement/, as `fieldmark agree`):
                             "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and
                             "percent_agreement", each {"value", "low", "high"} (95 % cluster-bootstrap
@@ -71,6 +77,7 @@ class DemoRun:
     generated: Generated | None = None
     study: Study | None = None
     observations: pd.DataFrame | None = None
+    clock_models: dict = field(default_factory=dict)  # device -> sync.clock.ClockModel, from the align step
 
 
 def step_generate(run: DemoRun) -> None:
@@ -84,7 +91,7 @@ def step_generate(run: DemoRun) -> None:
     run.summary["generated"] = {"learners": run.generated.learners, "events": run.generated.events,
                                 "observations": run.generated.observations, "sync_marks": run.generated.sync_marks}
     run.summary["devices"] = {device: {"truth": {key: planted[key] for key in ("offset_s", "drift_ppm", "reference")},
-                                       "recovered": None}
+                                       "recovered": None, "recovered_automatic": None}
                               for device, planted in header["devices"].items()}
     clocks = pd.DataFrame([{"device": d, "coder": p["coder"], "offset_s": p["offset_s"], "drift_ppm": p["drift_ppm"]}
                            for d, p in header["devices"].items()])
@@ -115,10 +122,19 @@ def step_coder_vs_truth(run: DemoRun) -> None:
     paired = run.observations[run.observations["paired_start"].notna()]
     shown = sorted(paired["learner"].unique())[:TIMELINE_LEARNERS]
     activity = run.study.scheme.dimensions[0]
-    origin = paired["window_start"].min()
     codes = run.observations[run.observations["learner"].isin(shown) & run.observations[activity.name].notna()]
+    middle = codes["window_start"] + (codes["window_end"] - codes["window_start"]) / 2
+    clock = "each laptop's own clock"
+    if run.clock_models:
+        middle = pd.Series(middle.to_numpy(dtype="datetime64[ns]").astype("int64"), index=codes.index)
+        for device, model in run.clock_models.items():
+            mine = codes["device"] == device
+            middle[mine] = model.to_log_ns(middle[mine].to_numpy())
+        middle = pd.to_datetime(middle, unit="ns", utc=True)
+        clock = "the log's clock, through the aligned clock models"
     codes = pd.DataFrame({"learner": codes["learner"], "coder": codes["coder"], "code": codes[activity.name],
-                          "time": codes["window_start"] + (codes["window_end"] - codes["window_start"]) / 2})
+                          "time": middle})
+    origin = codes["time"].min()
     day = states[(states["dimension"] == activity.name) & states["learner"].isin(shown)
                  & (states["start"] < origin + pd.Timedelta(hours=2)) & (states["end"] > origin - pd.Timedelta(minutes=5))]
     run.sections.append(report.section(
@@ -129,9 +145,61 @@ def step_coder_vs_truth(run: DemoRun) -> None:
         report.figure_html(report.timeline_figure(
             day, codes, activity, origin,
             f"True {activity.name} (bands, truth) and coded {activity.name} (markers: circles first coder, triangles "
-            "second), codes at the window middle on each laptop's own clock"), "latent-state timeline"),
+            f"second) at the window middle on {clock}"), "latent-state timeline"),
         *(report.figure_html(report.codes_per_learner_figure(run.observations, dimension), f"{dimension.name} per learner")
           for dimension in run.study.scheme.dimensions),
+    ))
+
+
+def planted_offset_at(planted: dict, reference_ns: int) -> float:
+    """The generator's offset (truth.json) carried to another reference time through its drift."""
+    since_s = (reference_ns - pd.Timestamp(planted["reference"]).value) / 1e9
+    return planted["offset_s"] + planted["drift_ppm"] * 1e-6 * since_s
+
+
+def versus_truth(model_figures: dict, planted: dict) -> dict:
+    """Recovered minus planted, both at the recovered model's reference time."""
+    at_reference = planted_offset_at(planted, model_figures["reference_ns"])
+    return {"planted_offset_at_reference_s": round(at_reference, 3),
+            "offset_error_s": round(model_figures["offset_s"] - at_reference, 3),
+            "drift_error_ppm": round(model_figures["drift_ppm"] - planted["drift_ppm"], 2)}
+
+
+def step_align(run: DemoRun) -> None:
+    """Each laptop's clock model, as `fieldmark align STUDY` fits it: the automatic scan (for comparison),
+    then the default method (sync marks when a device has enough), which is stored and used downstream."""
+    from observer_app.alignment import align_study
+    from observer_app.commands.align import model_summary
+    from sync.residual_plot import residual_figure
+
+    assert run.study is not None
+    automatic = align_study(run.study, "auto").models
+    chosen = align_study(run.study, "best").models
+    run.clock_models = chosen
+    header, _, _ = read_truth(run.out)
+    rows = []
+    for device, entry in run.summary["devices"].items():
+        planted = header["devices"][device]
+        for key, models in (("recovered", chosen), ("recovered_automatic", automatic)):
+            if device not in models:
+                continue
+            figures = model_summary(models[device])
+            entry[key] = {**figures, "versus_truth": versus_truth(figures, planted)}
+            rows.append({"device": device, "method": figures["method"], "offset_s": figures["offset_s"],
+                         "drift_ppm": figures["drift_ppm"],
+                         "reference": pd.Timestamp(figures["reference_ns"], tz="UTC").isoformat(),
+                         "marks used": figures["marks_used"], "median |residual| s": figures["median_abs_residual_s"],
+                         "confidence": figures["confidence"], **{f"{name} (vs truth)": value
+                                                                 for name, value in entry[key]["versus_truth"].items()}})
+    run.sections.append(report.section(
+        "Clock alignment (fieldmark align)",
+        report.paragraph("Each laptop's clock model fitted against the simulator logs: first the automatic scan "
+                         "(no sync marks), then the default method, which uses the sync marks and is the model stored "
+                         "in the study for every later step.  Offsets are at each model's reference time; the "
+                         "columns marked (vs truth) compare with the generator's planted clock."),
+        report.table_html(pd.DataFrame(rows)),
+        *(report.figure_html(residual_figure(model), f"clock fit of {device}")
+          for models in (chosen, automatic) for device, model in models.items()),
     ))
 
 
@@ -169,6 +237,7 @@ def step_agree(run: DemoRun) -> None:
 
 STEPS: tuple[tuple[str, Callable[[DemoRun], None]], ...] = (
     ("generate", step_generate),
+    ("align", step_align),
     ("coder_vs_truth", step_coder_vs_truth),
     ("agree", step_agree),
 )

@@ -42,11 +42,34 @@ def test_summary_has_the_documented_keys_and_labels_the_truth(demo_run):
     planted = json.loads((out / "truth.json").read_text())["devices"]
     assert set(summary["devices"]) == set(planted)
     for device, figures in summary["devices"].items():
-        assert set(figures) == {"truth", "recovered"}
+        assert set(figures) == {"truth", "recovered", "recovered_automatic"}
         assert figures["truth"]["offset_s"] == planted[device]["offset_s"]
         assert figures["truth"]["drift_ppm"] == planted[device]["drift_ppm"]
-    assert [step["name"] for step in summary["steps"]][:2] == ["generate", "coder_vs_truth"]
+    assert [step["name"] for step in summary["steps"]][:4] == ["generate", "align", "coder_vs_truth", "agree"]
     assert (out / "study" / "study.toml").is_file()
+
+
+def test_aligned_clocks_recover_the_planted_ones(demo_run):
+    """The align step's stored models, compared with truth.json at each model's reference time.
+
+    Bounds from the sync issue: offset within 1 s, drift within 10 ppm, by sync marks.
+    """
+    out, _, _ = demo_run
+    summary = json.loads((out / "summary.json").read_text())
+    planted = json.loads((out / "truth.json").read_text())["devices"]
+    with Store(out / "study" / "observations.sqlite") as store:
+        stored = {device: json.loads(text) for device, text in zip(store.clock_models()["device"],
+                                                                    store.clock_models()["model_json"])}
+    for device, figures in summary["devices"].items():
+        recovered = figures["recovered"]
+        assert recovered["method"] == "marks" == stored[device]["method"]
+        assert recovered["offset_s"] == pytest.approx(stored[device]["offset_s"], abs=5e-4)  # computed, from the store
+        since_s = (recovered["reference_ns"] - pd.Timestamp(planted[device]["reference"]).value) / 1e9
+        truth_there = planted[device]["offset_s"] + planted[device]["drift_ppm"] * 1e-6 * since_s
+        assert recovered["versus_truth"]["planted_offset_at_reference_s"] == pytest.approx(truth_there, abs=1e-3)
+        assert abs(recovered["offset_s"] - truth_there) < 1.0
+        assert abs(recovered["drift_ppm"] - planted[device]["drift_ppm"]) < 10.0
+        assert figures["recovered_automatic"]["method"] == "auto"
 
 
 def test_coder_vs_truth_figures_are_computed_from_the_study(demo_run):
