@@ -207,7 +207,7 @@ def step_agree(run: DemoRun) -> None:
     """The agreement step: the two coders' paired windows, every figure with its cluster-bootstrap CI."""
     assert run.study is not None
     units, dimensions, pairing = study_units(run.study)
-    agreement = assess_agreement(units, dimensions, resamples=1000, seed=run.seed)
+    agreement = assess_agreement(units, dimensions, resamples=AGREEMENT_RESAMPLES, seed=run.seed)
     run.summary["dimensions"] = {
         name: {"kappa": headline_kappa(result.figures).as_dict(), "alpha": result.figures["alpha"].as_dict(),
                "percent_agreement": result.figures["percent_agreement"].as_dict(), "band": result.band,
