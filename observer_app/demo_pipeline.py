@@ -63,6 +63,7 @@ SUMMARY_KEYS: tuple[str, ...] = (
     "seconds",
 )
 TIMELINE_LEARNERS = 4
+AGREEMENT_RESAMPLES = 1000
 
 
 @dataclass
