@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+
 from demo_sessions import committed_copy
 from demo_sessions.__main__ import main
 from observer_app.study import load_study
