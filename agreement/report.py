@@ -89,7 +89,7 @@ def _figure_table(result: DimensionAgreement) -> str:
     )
     could_not = result.could_not_observe
     could_not_line = (
-        f"<p class='note'>Could-not-observe code {html.escape(could_not.code)!s}: used {could_not.codes} times; "
+        f"<p class='note'>Could-not-observe code {html.escape(could_not.code)}: used {could_not.codes} times; "
         f"{could_not.units_one_coder_could_not} units where one coder could not observe and another coded; "
         f"{'included as a code' if could_not.included else 'left out of the figures'}.</p>"
         if could_not.code else ""
@@ -107,6 +107,13 @@ def _figure_table(result: DimensionAgreement) -> str:
     )
 
 
+def _plain(value: object) -> str:
+    """A pairing figure as text: counts per name as "ann 3, ben 1", "none" when empty."""
+    if isinstance(value, dict):
+        return ", ".join(f"{name} {count}" for name, count in value.items()) or "none"
+    return str(value)
+
+
 def render_report(title: str, agreement: Agreement, rolling: dict[str, pd.DataFrame], window: int,
                   pairing: dict[str, object] | None = None,
                   views: dict[str, Agreement] | None = None) -> str:
@@ -118,7 +125,7 @@ def render_report(title: str, agreement: Agreement, rolling: dict[str, pd.DataFr
              f"{agreement.resamples} resamples of learners (clusters), seed {agreement.seed}.</p>"]
     if pairing:
         parts.append("<table><caption>Pairing</caption>" + "".join(
-            f"<tr><td>{html.escape(str(key))}</td><td>{html.escape(str(value))}</td></tr>"
+            f"<tr><td>{html.escape(key.replace('_', ' '))}</td><td>{html.escape(_plain(value))}</td></tr>"
             for key, value in pairing.items()) + "</table>")
     for result in agreement.dimensions.values():
         parts.append(_figure_table(result))

@@ -67,7 +67,8 @@ JSON_TOP_KEYS: tuple[str, ...] = (
     "resamples",       # bootstrap resamples
     "seed",            # bootstrap seed
     "confidence",      # 0.95
-    "pairing",         # study only: observations, paired, unmatched (+ per coder), by method
+    "pairing",         # study only: observations, units, paired_observations, unmatched,
+                       # unmatched_by_coder, units_by_method, clock ("log" once aligned, else "device")
     "dimensions",      # {dimension name: JSON_DIMENSION_KEYS}
     "by",              # --by pair|session: list of {"pair"|"session", "dimensions"}, else null
     "certification",   # --certify CODER: per coder and dimension, else null

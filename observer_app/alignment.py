@@ -10,6 +10,7 @@ of the scan: a replayed clip is coded against the log itself, not a device's wal
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import pandas as pd
@@ -92,3 +93,16 @@ def stored_clock_models(study: Study) -> dict[str, ClockModel]:
     with Store(study.store_path) as store:
         rows = store.clock_models()
     return {str(device): ClockModel.from_json(text) for device, text in zip(rows["device"], rows["model_json"])}
+
+
+def model_summary(model: ClockModel) -> dict:
+    """The figures align reports per device, JSON-ready (NaN -> null)."""
+    def number(value: float, digits: int) -> float | None:
+        return None if value is None or not math.isfinite(value) else round(float(value), digits)
+
+    return {
+        "method": model.method, "offset_s": number(model.offset_s, 3), "drift_ppm": number(model.drift_ppm, 2),
+        "reference_ns": model.reference_ns, "marks_used": model.marks_used,
+        "median_abs_residual_s": number(model.median_abs_residual_s, 3), "confidence": number(model.confidence, 3),
+        "outlying_marks": model.outlying_marks, "warnings": list(model.warnings),
+    }

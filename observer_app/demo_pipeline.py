@@ -13,17 +13,17 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
                               "truth":     {"offset_s", "drift_ppm", "reference"} -- planted by the
                                            generator, copied from DIR/truth.json (the only copied figures)
                               "recovered": the align step's stored model (`fieldmark align`, default
-                                           method: sync marks): {"method", "offset_s", "drift_ppm",
-                                           "reference_ns", "marks_used", "median_abs_residual_s",
-                                           "confidence", "outlying_marks", "warnings", "versus_truth"}
+                                           method: sync marks), stated at the truth's reference time:
+                                           {"method", "offset_s", "drift_ppm", "reference_ns",
+                                           "marks_used", "median_abs_residual_s", "confidence",
+                                           "outlying_marks", "warnings", "versus_truth"}
                               "recovered_automatic": the same from the automatic scan (no marks)
-                              "versus_truth" (in both): {"planted_offset_at_reference_s",
-                                           "offset_error_s", "drift_error_ppm"}: recovered minus planted,
-                                           both at the model's reference time
+                              "versus_truth" (in both): {"offset_error_s", "drift_error_ppm"}:
+                                           recovered minus planted, at the same reference time
     dimensions      object  per scheme dimension, from the agree step (agreement/, as `fieldmark agree`):
-                            "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and
-                            "percent_agreement", each {"value", "low", "high"} (95 % cluster-bootstrap
-                            interval over learners), "band" (Landis & Koch) and "units" (paired windows)
+                            "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and "percent_agreement", each
+                            {"value", "low", "high"} (95 % cluster-bootstrap interval over learners), "band"
+                            (Landis & Koch) and "units" (paired windows compared)
     coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
                             {"kappa", "percent_correct", "windows"}: scikit-learn's Cohen's kappa of the
                             simulated coder's codes against the generator's true states
@@ -52,9 +52,12 @@ from demo_sessions.generate import Generated, check_output_folder, generate_demo
 from demo_sessions.truth_check import coder_vs_truth
 from demo_sessions.truth_files import read_truth
 from observer_app import demo_report as report
+from observer_app.alignment import align_study, model_summary
 from observer_app.reliability_data import study_units
 from observer_app.store import Store
 from observer_app.study import Study, load_study
+from sync.clock import ClockModel
+from sync.residual_plot import residual_figure
 
 SUMMARY_FILE = "summary.json"
 REPORT_FILE = "report.html"
@@ -78,7 +81,7 @@ class DemoRun:
     generated: Generated | None = None
     study: Study | None = None
     observations: pd.DataFrame | None = None
-    clock_models: dict = field(default_factory=dict)  # device -> sync.clock.ClockModel, from the align step
+    clock_models: dict[str, ClockModel] = field(default_factory=dict)  # from the align step, stored in the study
 
 
 def step_generate(run: DemoRun) -> None:
@@ -152,55 +155,46 @@ def step_coder_vs_truth(run: DemoRun) -> None:
     ))
 
 
-def planted_offset_at(planted: dict, reference_ns: int) -> float:
-    """The generator's offset (truth.json) carried to another reference time through its drift."""
-    since_s = (reference_ns - pd.Timestamp(planted["reference"]).value) / 1e9
-    return planted["offset_s"] + planted["drift_ppm"] * 1e-6 * since_s
-
-
-def versus_truth(model_figures: dict, planted: dict) -> dict:
-    """Recovered minus planted, both at the recovered model's reference time."""
-    at_reference = planted_offset_at(planted, model_figures["reference_ns"])
-    return {"planted_offset_at_reference_s": round(at_reference, 3),
-            "offset_error_s": round(model_figures["offset_s"] - at_reference, 3),
-            "drift_error_ppm": round(model_figures["drift_ppm"] - planted["drift_ppm"], 2)}
+def versus_truth(model: ClockModel, truth: dict) -> dict:
+    """Recovered minus planted; ``model`` already stated at the truth's reference time."""
+    return {"offset_error_s": round(model.offset_s - truth["offset_s"], 3),
+            "drift_error_ppm": round(model.drift_ppm - truth["drift_ppm"], 2)}
 
 
 def step_align(run: DemoRun) -> None:
-    """Each laptop's clock model, as `fieldmark align STUDY` fits it: the automatic scan (for comparison),
-    then the default method (sync marks when a device has enough), which is stored and used downstream."""
-    from observer_app.alignment import align_study
-    from observer_app.commands.align import model_summary
-    from sync.residual_plot import residual_figure
+    """The align step: each laptop's clock model, stored in the study (sync marks when there are enough).
 
+    The automatic scan (no marks) runs first, for comparison only; the default method runs
+    last, so its models are the stored ones every later step uses.
+    """
     assert run.study is not None
     automatic = align_study(run.study, "auto").models
-    chosen = align_study(run.study, "best").models
-    run.clock_models = chosen
-    header, _, _ = read_truth(run.out)
+    alignment = align_study(run.study, "best")
+    run.clock_models = alignment.models
     rows = []
-    for device, entry in run.summary["devices"].items():
-        planted = header["devices"][device]
-        for key, models in (("recovered", chosen), ("recovered_automatic", automatic)):
-            if device not in models:
-                continue
-            figures = model_summary(models[device])
-            entry[key] = {**figures, "versus_truth": versus_truth(figures, planted)}
-            rows.append({"device": device, "method": figures["method"], "offset_s": figures["offset_s"],
-                         "drift_ppm": figures["drift_ppm"],
-                         "reference": pd.Timestamp(figures["reference_ns"], tz="UTC").isoformat(),
-                         "marks used": figures["marks_used"], "median |residual| s": figures["median_abs_residual_s"],
-                         "confidence": figures["confidence"], **{f"{name} (vs truth)": value
-                                                                 for name, value in entry[key]["versus_truth"].items()}})
+    for key, models in (("recovered", alignment.models), ("recovered_automatic", automatic)):
+        for device, model in models.items():
+            truth = run.summary["devices"].get(device, {}).get("truth")
+            entry = run.summary["devices"].setdefault(device, {"truth": None, "recovered": None,
+                                                               "recovered_automatic": None})
+            if truth:  # the same fitted line, stated at the planted reference so the figures compare
+                model = model.at_reference(pd.Timestamp(truth["reference"]).value)
+            entry[key] = {**model_summary(model), "versus_truth": versus_truth(model, truth) if truth else None}
+            rows.append({"device": device, "method": model.method, "offset_s": model.offset_s,
+                         "drift_ppm": model.drift_ppm, "marks_used": model.marks_used,
+                         "median_abs_residual_s": model.median_abs_residual_s, "confidence": model.confidence,
+                         "planted offset_s (truth)": truth and truth["offset_s"],
+                         "planted drift_ppm (truth)": truth and truth["drift_ppm"]})
     run.sections.append(report.section(
-        "Clock alignment (fieldmark align)",
-        report.paragraph("Each laptop's clock model fitted against the simulator logs: first the automatic scan "
-                         "(no sync marks), then the default method, which uses the sync marks and is the model stored "
-                         "in the study for every later step.  Offsets are at each model's reference time; the "
-                         "columns marked (vs truth) compare with the generator's planted clock."),
+        "Clocks: each laptop on the log's clock",
+        report.paragraph(f"Read {alignment.read_report.rows} log events. Device time = log time + offset + drift x "
+                         "(log time - reference); offsets are stated at the generator's reference time. The "
+                         "automatic scan (method auto) is shown for comparison; the stored model (marks) is what "
+                         "every later step uses. The planted columns are the generator's truth, shown for "
+                         "comparison only."),
         report.table_html(pd.DataFrame(rows)),
         *(report.figure_html(residual_figure(model), f"clock fit of {device}")
-          for models in (chosen, automatic) for device, model in models.items()),
+          for models in (alignment.models, automatic) for device, model in models.items()),
     ))
 
 

@@ -349,6 +349,11 @@ class LiveSession:
         if turn.learner is None or turn.end <= self._start_elapsed or turn.slot in self._recorded_slots:
             return
         if window is not None and window.has_row:
+            if turn.end < window.turn.end:  # solo: finished early, so the window really ended now
+                try:
+                    self.store.record_window_end(window.observation_id, self._wall(turn.end))
+                except sqlite3.Error as error:
+                    self._error = f"NOT SAVED: window end of {self._labels.get(turn.learner, turn.learner)} ({error})"
             return
         try:
             self.store.record_no_code(session_id=self.session_id, learner=turn.learner,

@@ -19,7 +19,7 @@ import pandas as pd
 
 from observer_app.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 # Forward migrations: MIGRATIONS[n] takes a store from version n to n + 1.
 MIGRATIONS: tuple[str, ...] = (
@@ -69,12 +69,22 @@ MIGRATIONS: tuple[str, ...] = (
         for table in ("sessions", "session_ends", "observations", "codes", "notes", "sync_marks",
                       "absences", "adjudications", "clock_models")
     ),
+    # 1 -> 2: a solo window that the coder finished early records its real end.
+    """
+    CREATE TABLE window_closures (
+        closure_id TEXT PRIMARY KEY, observation_id TEXT NOT NULL REFERENCES observations,
+        window_end_ns INTEGER NOT NULL);
+    CREATE TRIGGER window_closures_no_update BEFORE UPDATE ON window_closures
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER window_closures_no_delete BEFORE DELETE ON window_closures
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    """,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
-    "adjudications", "clock_models", "imports",
+    "adjudications", "clock_models", "imports", "window_closures",
 )
 
 
@@ -274,6 +284,13 @@ class Store:
             cursor.executemany("INSERT OR IGNORE INTO notes VALUES (?,?,?,?)", note_rows)
         return added
 
+    def record_window_end(self, observation_id: str, window_end: datetime) -> str:
+        """The window really ended here (solo mode: every dimension coded before time ran out)."""
+        closure_id = new_id()
+        with self._transaction() as cursor:
+            cursor.execute("INSERT INTO window_closures VALUES (?,?,?)", (closure_id, observation_id, to_ns(window_end)))
+        return closure_id
+
     def record_note(self, observation_id: str, text: str, entered_at: datetime) -> str:
         note_id = new_id()
         with self._transaction() as cursor:
@@ -325,9 +342,10 @@ class Store:
         counts: dict[str, int] = {}
         self._connection.execute("ATTACH DATABASE ? AS other", (str(other),))
         try:
+            present = {row[0] for row in self._connection.execute("SELECT name FROM other.sqlite_master WHERE type = 'table'")}
             with self._transaction() as cursor:
                 for table in APPEND_ONLY_TABLES:
-                    if table == "imports":
+                    if table == "imports" or table not in present:  # an older store lacks newer tables
                         continue
                     before = cursor.connection.total_changes
                     cursor.execute(f"INSERT OR IGNORE INTO main.{table} SELECT * FROM other.{table} ORDER BY rowid")
@@ -366,8 +384,12 @@ class Store:
         """
         base = self._frame(
             "SELECT o.observation_id, o.session_id, s.coder, s.device, s.mode, s.paired_start_ns, o.learner, "
-            "o.slot, o.clip, o.window_start_ns, o.window_end_ns, o.created_ns, o.no_code, o.scheme_hash "
-            "FROM observations o JOIN sessions s USING (session_id) ORDER BY o.window_start_ns, o.rowid")
+            "o.slot, o.clip, o.window_start_ns, COALESCE(w.window_end_ns, o.window_end_ns) AS window_end_ns, "
+            "o.created_ns, o.no_code, o.scheme_hash "
+            "FROM observations o JOIN sessions s USING (session_id) "
+            "LEFT JOIN (SELECT observation_id, window_end_ns FROM window_closures WHERE rowid IN "
+            "(SELECT max(rowid) FROM window_closures GROUP BY observation_id)) w USING (observation_id) "
+            "ORDER BY o.window_start_ns, o.rowid")
         codes = self._frame(
             "SELECT c.observation_id, c.dimension, c.code, c.entered_ns, "
             "(SELECT count(*) FROM codes d WHERE d.observation_id = c.observation_id AND d.dimension = c.dimension) AS versions "

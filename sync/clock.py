@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 
@@ -55,6 +55,10 @@ class ClockModel:
     scan_offsets_s: tuple[float, ...] = ()
     scan_scores: tuple[float, ...] = ()
 
+    def __post_init__(self) -> None:
+        if self.method not in METHODS:
+            raise ValueError(f"method must be one of {METHODS}, got {self.method!r}")
+
     @property
     def outlying_marks(self) -> list[str]:
         """mark ids the fit set aside as outliers."""
@@ -77,6 +81,12 @@ class ClockModel:
         since = log_ns - np.int64(self.reference_ns)
         shift = np.round(self.offset_s * 1e9 + self.drift_ppm * 1e-6 * since).astype(np.int64)
         return np.where(log_ns == NAT, NAT, log_ns + shift)
+
+    def at_reference(self, reference_ns: int) -> "ClockModel":
+        """The same clock line written with another reference time (offset re-expressed
+        there), e.g. to compare with a model stated at a different reference."""
+        offset = self.offset_s + self.drift_ppm * 1e-6 * (reference_ns - self.reference_ns) / 1e9
+        return replace(self, offset_s=offset, reference_ns=int(reference_ns))
 
     def to_json(self) -> str:
         """JSON text for the store; NaN becomes null."""

@@ -272,7 +272,8 @@ def _drift(curve, start: np.ndarray, estimate: float, reference: int,
     if len(chunks) < 2 or span_s < MIN_DRIFT_SPAN_S:
         offset = locate_peak(fine, curve(np.arange(len(start)), fine), window_s)[0] if len(start) else estimate
         return offset, 0.0, float("nan"), [
-            "drift not estimated (needs observations spread over at least an hour); assumed 0 ppm"]
+            f"drift not estimated (needs two or more groups of {MIN_CHUNK_OBSERVATIONS} observations spread over "
+            f"{MIN_DRIFT_SPAN_S / 3600:.0f} hour or more); assumed 0 ppm"]
     centres, offsets = [], []
     for rows in chunks:
         offset, _, _ = locate_peak(fine, curve(rows, fine), window_s)

@@ -17,7 +17,6 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-NAT = np.iinfo(np.int64).min
 
 
 @dataclass(frozen=True)

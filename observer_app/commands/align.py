@@ -6,9 +6,8 @@ import json
 import math
 import sys
 
-from observer_app.alignment import METHODS, align_study
+from observer_app.alignment import METHODS, align_study, model_summary
 from observer_app.study import load_study
-from sync.clock import ClockModel
 from sync.errors import InputError
 
 
@@ -40,19 +39,6 @@ def parse_offsets(texts: list[str]) -> dict[str, float]:
             raise InputError(None, "--set-offset", f"{text!r} is not DEVICE=SECONDS, e.g. laptop-a=31.5")
         offsets[device.strip()] = value
     return offsets
-
-
-def model_summary(model: ClockModel) -> dict:
-    """The figures align prints, as JSON-ready values (NaN -> null)."""
-    def number(value: float, digits: int) -> float | None:
-        return None if value is None or not math.isfinite(value) else round(float(value), digits)
-
-    return {
-        "method": model.method, "offset_s": number(model.offset_s, 3), "drift_ppm": number(model.drift_ppm, 2),
-        "reference_ns": model.reference_ns, "marks_used": model.marks_used,
-        "median_abs_residual_s": number(model.median_abs_residual_s, 3), "confidence": number(model.confidence, 3),
-        "outlying_marks": model.outlying_marks, "warnings": list(model.warnings),
-    }
 
 
 def run(args: argparse.Namespace) -> int:

@@ -81,7 +81,7 @@ class CodeTile(QWidget):
         self.scale = 1.0
         self._on_click = on_click
         self.setFocusPolicy(Qt.FocusPolicy.NoFocus)
-        self.setMinimumHeight(54)
+        self.setMinimumHeight(46)
         self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Expanding)
         self.setToolTip(f"key {code.key.upper()}: {code.label}")
 
@@ -110,13 +110,13 @@ class CodeTile(QWidget):
         painter.setBrush(strip_colour.darker(125) if self.selected else strip_colour)
         painter.drawPath(strip)
         painter.drawRect(QRectF(box.left() + 8, box.top(), 8, box.height()))
-        side = min(box.height() - 14, 46.0)
+        side = min(box.height() - 8, 46.0)
         badge = QRectF(box.left() + 26, box.top() + (box.height() - side) / 2, side, side)
         painter.setPen(QPen(QColor(theme.quiet_text), 1.5))
         painter.setBrush(QColor(theme.background))
         painter.drawRoundedRect(badge, 6, 6)
         key_font = QFont(self.font())
-        key_font.setPointSizeF(looks.KEY_POINTS * self.scale)
+        key_font.setPixelSize(max(12, round(side * looks.KEY_SHARE_OF_BADGE)))
         key_font.setBold(True)
         painter.setFont(key_font)
         painter.setPen(QColor(theme.text))
@@ -208,7 +208,7 @@ class ObservingScreen(QWidget):
 
     ended = Signal(object)  # the SessionSummary, once the end row is written
 
-    def __init__(self, session: LiveSession, theme: Theme = looks.LIGHT, *, run_timer: bool = True) -> None:
+    def __init__(self, session: LiveSession, theme: Theme = looks.LIGHT) -> None:
         super().__init__()
         self.session = session
         self.theme = theme
@@ -283,8 +283,7 @@ class ObservingScreen(QWidget):
         self.timer = QTimer(self)
         self.timer.setInterval(TICK_MILLISECONDS)
         self.timer.timeout.connect(session.tick)
-        if run_timer:
-            self.timer.start()
+        self.timer.start()
         self.set_theme(theme)
 
     # -- drawing -----------------------------------------------------------------------

@@ -10,14 +10,22 @@ import zoneinfo
 import pandas as pd
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
-from PySide6.QtWidgets import (QAbstractItemView, QFrame, QGridLayout, QHeaderView, QLabel, QTableWidget,
-                               QTableWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QFrame, QGridLayout, QHeaderView, QLabel, QScrollArea,
+                               QSizePolicy, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from observer_app.live_session import InterruptedSession, find_interrupted_session
 from observer_app.store import Store
 from observer_app.study import Study
 from observer_app.study_overview import code_counts, session_table, window_counts
 from observer_app.ui.cautions import cautions_html
+
+
+SCROLL_KEYS = {
+    Qt.Key.Key_Down: QAbstractSlider.SliderAction.SliderSingleStepAdd,
+    Qt.Key.Key_Up: QAbstractSlider.SliderAction.SliderSingleStepSub,
+    Qt.Key.Key_PageDown: QAbstractSlider.SliderAction.SliderPageStepAdd,
+    Qt.Key.Key_PageUp: QAbstractSlider.SliderAction.SliderPageStepSub,
+}
 
 
 def _table(headers: list[str], rows: list[list[str]]) -> QTableWidget:
@@ -70,7 +78,18 @@ class StudyOverview(QWidget):
         self.store = store
         self.interrupted: InterruptedSession | None = None
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
-        self._layout = QVBoxLayout(self)
+        scroller = QScrollArea()
+        scroller.setWidgetResizable(True)
+        scroller.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.scroller = scroller
+        scroller.setFrameShape(QFrame.Shape.NoFrame)
+        scroller.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        content = QWidget()
+        scroller.setWidget(content)
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(0, 0, 0, 0)
+        outer.addWidget(scroller)
+        self._layout = QVBoxLayout(content)
         self._layout.setContentsMargins(32, 24, 32, 16)
         self.refresh()
 
@@ -95,11 +114,14 @@ class StudyOverview(QWidget):
         if self.interrupted is not None:
             zone = zoneinfo.ZoneInfo(study.timezone)
             started = self.interrupted.started_at.astimezone(zone)
+            kind = "paired run" if self.interrupted.paired_start is not None else "solo"
             self.resume_banner.setText(
-                f"<b>A session was interrupted</b> (coder {self.interrupted.coder}, device {self.interrupted.device}, "
-                f"started {started:%Y-%m-%d %H:%M}, {self.interrupted.codes_saved} codes saved). "
+                f"<b>A session was interrupted</b> ({kind}, coder {self.interrupted.coder}, "
+                f"device {self.interrupted.device}, "
+                f"started {started:%Y-%m-%d %H:%M}, codes saved: {self.interrupted.codes_saved}). "
                 f"Press <b>R</b> to resume it at the right slot.")
             self.resume_banner.setProperty("role", "warning")
+            self.resume_banner.setWordWrap(True)
             self.resume_banner.setStyleSheet("font-size: 15pt; padding: 8px;")
             self._layout.addWidget(self.resume_banner)
 
@@ -107,6 +129,7 @@ class StudyOverview(QWidget):
         grid.setHorizontalSpacing(24)
         roster = study.roster
         self.roster_table = _table(list(roster.columns), roster.astype(str).values.tolist())
+        self.roster_table.setMinimumHeight(150)
         grid.addWidget(self._section("Roster", self.roster_table), 0, 0)
         scheme_lines = []
         for dimension in study.scheme.dimensions:
@@ -122,6 +145,7 @@ class StudyOverview(QWidget):
         cautions.setStyleSheet("font-size: 11pt;")
         panel = QFrame()
         panel.setProperty("role", "panel")
+        panel.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Minimum)
         QVBoxLayout(panel).addWidget(cautions)
         grid.addWidget(panel, 2, 0)
         sessions = session_table(self.store)
@@ -135,6 +159,7 @@ class StudyOverview(QWidget):
         observations = self.store.observations(study.scheme.dimension_names)
         self.counts_table = count_table(study, code_counts(observations, study.scheme.dimension_names),
                                         window_counts(observations))
+        self.counts_table.setMinimumHeight(300)
         grid.addWidget(self._section("Observations per learner and code", self.counts_table), 1, 1, 2, 1)
         grid.setColumnStretch(0, 3)
         grid.setColumnStretch(1, 6)
@@ -145,7 +170,8 @@ class StudyOverview(QWidget):
         keys = "<b>S</b> start a session"
         if self.interrupted is not None:
             keys += "  ·  <b>R</b> resume the interrupted session"
-        keys += "  ·  <b>O</b> open another study  ·  <b>F6</b> discreet mode  ·  <b>Ctrl+Q</b> quit"
+        keys += ("  ·  <b>O</b> open another study  ·  <b>Page Up/Down</b> scroll  ·  <b>F6</b> discreet mode"
+                 "  ·  <b>Ctrl+Q</b> quit")
         hint = QLabel(keys)
         hint.setProperty("role", "caption")
         self._layout.addWidget(hint)
@@ -168,5 +194,7 @@ class StudyOverview(QWidget):
             self.resume_requested.emit(self.interrupted.session_id)
         elif event.key() == Qt.Key.Key_O:
             self.open_requested.emit()
+        elif event.key() in SCROLL_KEYS:
+            self.scroller.verticalScrollBar().triggerAction(SCROLL_KEYS[event.key()])
         else:
             super().keyPressEvent(event)

@@ -171,3 +171,32 @@ def test_by_pair_and_certification(study):
 
 def test_level_option_is_refused_for_a_study(study):
     assert_user_error(call_cli("agree", study, "--level", "ordinal"), "--level")
+
+
+def test_time_pairing_uses_the_logs_clock_once_devices_are_aligned(tmp_path):
+    """Solo sessions on two laptops, ben's clock 30 s ahead: pairs by time only after alignment."""
+    from sync.clock import manual_model
+
+    folder = tmp_path / "solo"
+    assert call_cli("init", folder).returncode == 0
+    with Store(folder / "observations.sqlite") as store:
+        for coder, offset in (("ann", 0), ("ben", 30)):
+            session = store.start_session(coder=coder, device=f"laptop-{coder}", mode="live", started_at=START,
+                                          monotonic_start=0.0, window_seconds=20, order="fixed", seed=1,
+                                          scheme_hash="test")
+            for index in range(12):
+                start = START + timedelta(seconds=20 * index + offset)
+                store.record_observation(session_id=session, learner=f"L{index + 1:02d}", window_start=start,
+                                         window_end=start + timedelta(seconds=20),
+                                         coded_at=start + timedelta(seconds=19),
+                                         codes={"activity": ACTIVITY[index % 5], "affect": "focused"},
+                                         scheme_hash="test")
+    before = json.loads(call_cli("agree", folder, "--json", "--resamples", "20").stdout)
+    assert before["pairing"]["units"] == 0 and before["pairing"]["clock"] == "device"
+    with Store(folder / "observations.sqlite") as store:
+        for coder, offset in (("ann", 0.0), ("ben", 30.0)):
+            # sync.clock convention: device time = log time + offset_s
+            store.record_clock_model(f"laptop-{coder}", manual_model(f"laptop-{coder}", offset).to_json(), START)
+    after = json.loads(call_cli("agree", folder, "--json", "--resamples", "20").stdout)
+    assert after["pairing"]["units"] == 12 and after["pairing"]["clock"] == "log"
+    assert after["dimensions"]["activity"]["percent_agreement"]["value"] == 1.0

@@ -157,6 +157,11 @@ def test_interrupted_session_is_offered_and_resumed_from_the_overview(qtbot, tmp
     qtbot.addWidget(window)
     window.show()
     assert "interrupted" in window.overview.resume_banner.text()
+    ARTIFACTS.mkdir(exist_ok=True)
+    window.overview.grab().save(str(ARTIFACTS / "overview_resume_offer.png"))
+    scroll = window.overview.scroller.verticalScrollBar()
+    press(qtbot, window, Qt.Key.Key_PageDown)
+    assert scroll.maximum() == 0 or scroll.value() > 0  # the overview scrolls from the keyboard
     press(qtbot, window, Qt.Key.Key_R)
     screen = window.page
     assert isinstance(screen, ObservingScreen)

@@ -68,6 +68,6 @@ def test_killed_session_resumes_at_the_right_slot_with_every_acknowledged_code(t
             assert slots == list(range(slots[0], expected_slot))  # windows missed while down: no-code rows
     with Store(study.store_path) as store:
         session = LiveSession.reopen(study, store, clock, interrupted.session_id)
-        assert session.press("2")
-        assert session.state().coded == {"activity": "task_talk"}
+        assert session.press("4")
+        assert session.state().coded == {"activity": "rapid_guessing"}
         assert session.state().saved_count == len(stored) + 1

@@ -44,6 +44,10 @@ def test_solo_advances_as_soon_as_every_dimension_is_coded(study, store, clock):
     assert state.time_left == pytest.approx(20.0)  # a fresh full window from the moment of advance
     rows = raw(study, "SELECT o.learner, c.dimension, c.code FROM codes c JOIN observations o USING (observation_id) ORDER BY c.rowid")
     assert rows == [("L01", "activity", "on_task"), ("L01", "affect", "focused")]
+    # the window really ended when the last code went in (5 s), not at the planned 20 s
+    view = store.observations(["activity", "affect"])
+    first = view[view["learner"] == "L01"].iloc[0]
+    assert (first["window_end"] - first["window_start"]).total_seconds() == pytest.approx(5.0)
 
 
 def test_solo_window_that_ends_uncoded_is_an_explicit_no_code_row(study, store, clock):
@@ -129,11 +133,11 @@ def test_recoding_a_dimension_supersedes_the_earlier_code(study, store, clock):
 
 def test_could_not_observe_key_codes_every_remaining_dimension(study, store, clock):
     session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1")
-    session.press("2")
+    session.press("4")
     session.code_remaining_not_observed()
     assert session.state().learner == "L02"
     assert raw(study, "SELECT dimension, code FROM codes ORDER BY rowid") == [
-        ("activity", "task_talk"), ("affect", "unclear")]  # "unclear": scheme.toml's could_not_observe for affect
+        ("activity", "rapid_guessing"), ("affect", "unclear")]  # "unclear": scheme.toml's could_not_observe for affect
 
 
 def test_absent_learner_is_skipped_and_returned_learner_is_picked_up(study, store, clock):
@@ -327,7 +331,7 @@ def test_reopening_resumes_an_interrupted_session(study, clock, paired):
             session.tick()
     session.mark_absent("L06")
     clock.advance(2)
-    session.press("2")  # fifth learner half coded, then the app dies
+    session.press("4")  # fifth learner half coded, then the app dies
     store.close()
     clock.advance(47)
     store = Store(study.store_path)
@@ -344,7 +348,7 @@ def test_reopening_resumes_an_interrupted_session(study, clock, paired):
         assert raw(study, "SELECT slot, no_code FROM observations WHERE slot >= 4 ORDER BY slot") == [(4, 0), (5, 1)]
     else:
         assert state.slot == 4 and state.learner == "L05"
-        assert state.coded == {"activity": "task_talk"} and state.missing == ("affect",)
+        assert state.coded == {"activity": "rapid_guessing"} and state.missing == ("affect",)
         assert state.time_left == pytest.approx(20)
         resumed.press("w")
         assert resumed.state().learner == "L01"  # L06 is still absent after the resume

@@ -11,7 +11,7 @@ from observer_app.session_clock import FakeClock
 from observer_app.store import Store
 from observer_app.ui.end_screen import EndScreen
 
-ACTIVITY_KEYS = {"1": "on_task", "2": "task_talk", "3": "off_task"}
+ACTIVITY_KEYS = {"1": "on_task", "3": "off_task", "4": "rapid_guessing"}
 AFFECT_KEYS = {"q": "focused", "w": "confused", "e": "frustrated", "r": "bored"}
 
 

@@ -2,6 +2,8 @@
 of two generator outputs (text byte for byte, Parquet and SQLite by their contents)."""
 from __future__ import annotations
 
+import shutil
+import tempfile
 from pathlib import Path
 
 import pandas as pd
@@ -26,7 +28,10 @@ def _contents(path: Path) -> object:
     if path.suffix == ".parquet":
         return pd.read_parquet(path)
     if path.suffix == ".sqlite":
-        with Store(path) as store:
+        # read a copy: opening a store may migrate it, and the committed copy must stay untouched
+        scratch = Path(tempfile.mkdtemp()) / path.name
+        shutil.copy(path, scratch)
+        with Store(scratch) as store:
             return {"sessions": store.sessions(), "observations": store.observations(),
                     "sync_marks": store.sync_marks(), "codes": store.codes_log(), "absences": store.absences()}
     return path.read_bytes()

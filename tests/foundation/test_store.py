@@ -121,3 +121,33 @@ def test_merging_another_device_is_idempotent_and_keeps_correction_order(tmp_pat
     assert sum(again.values()) == 0
     assert view.loc[0, "activity"] == "away"
     assert marks.loc[0, "device"] == "laptop-a"
+
+
+def test_a_version_1_store_migrates_forward_and_keeps_its_rows(tmp_path: Path) -> None:
+    from observer_app.store import MIGRATIONS, _statements
+    path = tmp_path / "old.sqlite"
+    connection = sqlite3.connect(path)
+    for statement in _statements(MIGRATIONS[0]):
+        connection.execute(statement)
+    connection.execute("PRAGMA user_version = 1")
+    connection.execute("INSERT INTO sessions VALUES ('s1','ana','laptop-a','live',NULL,0,0.0,20,'fixed',1,'h1','')")
+    connection.execute("INSERT INTO observations VALUES ('o1','s1','L01',0,'',0,20000000000,1,0,'h1')")
+    connection.execute("INSERT INTO codes VALUES ('c1','o1','activity','on_task',1,NULL)")
+    connection.commit()
+    connection.close()
+    with Store(path) as store:
+        assert store.schema_version == SCHEMA_VERSION == 2
+        assert store.observations(["activity"]).loc[0, "activity"] == "on_task"
+        store.record_window_end("o1", datetime(1970, 1, 1, 0, 0, 7, tzinfo=timezone.utc))
+        assert store.observations(["activity"]).loc[0, "window_end"] == pd.Timestamp("1970-01-01T00:00:07Z")
+    with Store(tmp_path / "study.sqlite") as study:  # a newer store imports an older one's rows
+        assert study.merge_from(path)["codes"] == 1
+
+
+def test_an_early_window_end_replaces_the_planned_end_exactly(tmp_path: Path) -> None:
+    with Store(tmp_path / "o.sqlite") as store:
+        code(store, session(store), "o1", "activity", "on_task", 2)
+        early = T0 + timedelta(seconds=7, microseconds=123457)
+        store.record_window_end("o1", early)
+        view = store.observations(["activity"])
+    assert view.loc[0, "window_end"] == pd.Timestamp(early)  # nanosecond-exact, no float rounding

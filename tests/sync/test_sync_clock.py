@@ -145,3 +145,19 @@ def test_likelihood_ratio_matches_statsmodels_poisson_glm():
     full = sm.GLM(counts, design, family=sm.families.Poisson(), offset=np.log(seconds)).fit()
     null = sm.GLM(counts, np.ones((300, 1)), family=sm.families.Poisson(), offset=np.log(seconds)).fit()
     assert ours == pytest.approx(null.deviance - full.deviance, rel=1e-9)
+
+
+def test_residual_plot_is_a_png_for_every_kind_of_model(planted):
+    from sync.residual_plot import residual_plot_png
+    marks = fit_from_marks(planted.marks, planted.events)
+    for model in (marks, manual_model("laptop-c", 1.0),
+                  ClockModel(device="d", method="auto", offset_s=1.0, scan_offsets_s=(0.0, 0.5, 1.0),
+                             scan_scores=(1.0, 3.0, 2.0))):
+        png = residual_plot_png(model)
+        # PNG signature (ISO/IEC 15948 / RFC 2083, section 3.1).
+        assert png[:8] == b"\x89PNG\r\n\x1a\n" and len(png) > 2000
+
+
+def test_unknown_method_is_refused():
+    with pytest.raises(ValueError):
+        ClockModel(device="d", method="guess", offset_s=0.0)

@@ -207,3 +207,22 @@ def test_xapi_duration_lands_in_duration_s(tmp_path):
     actor = {"account": {"homePage": "https://sim.example.org", "name": "n-0001"}}
     events, _ = read_xapi(tmp_path, [statement(actor, result={"duration": "PT1M30.5S"})])
     assert events["duration_s"].iloc[0] == 90.5
+
+
+def test_parquet_epoch_numbers_by_magnitude_or_by_declaration(tmp_path):
+    # 1772438400 s = 2026-03-02T08:00:00Z (standard library reference below).
+    table = pa.table({"who": ["n-0001", "n-0002"], "s": [1772438400, 1772438401],
+                      "ms": pa.array([1772438400000, 1772438400500], pa.int64())})
+    pq.write_table(table, tmp_path / "epoch.parquet")
+
+    def read(column, time_format):
+        spec = log_spec_from_toml({"path": "epoch.parquet", "format": "parquet", "time_format": time_format,
+                                   "columns": {"learner": "who", "time": column}}, tmp_path, 1)
+        return list(read_logs([spec])[0]["time_ns"])
+
+    second = utc_ns(2026, 3, 2, 8, 0, 0)
+    assert read("s", "auto") == [second, second + 10**9]
+    assert read("ms", "auto") == [second, second + 500_000_000]
+    assert read("s", "epoch_ms") == [second // 1000, (second + 10**9) // 1000]  # declared, so believed
+    with pytest.raises(InputError, match="holds numbers"):
+        read("s", "iso")

@@ -1,0 +1,88 @@
+"""Observations -> windows on the log clock (sync/windows.py), with literal expected
+instants worked out by hand from the convention in sync/tables.py."""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from sync.clock import ClockModel, manual_model
+from sync.tables import WINDOW_EXTRA_COLUMNS
+from sync.windows import observations_to_windows
+
+ROSTER = pd.DataFrame({"learner": ["L01", "L02"], "label": ["Bench 1", "Bench 2"], "log_id": ["n-0001", "n-0002"]})
+
+
+def ns(text: str) -> int:
+    return pd.Timestamp(text).value
+
+
+def observations(rows):
+    frame = pd.DataFrame(rows, columns=["observation_id", "device", "learner", "window_start", "window_end",
+                                        "coded_at", "activity"])
+    for column in ("window_start", "window_end", "coded_at"):
+        frame[column] = pd.to_datetime(frame[column], utc=True)
+    return frame
+
+
+def test_default_window_is_the_observed_window_moved_by_the_offset():
+    obs = observations([("o1", "laptop-a", "L01", "2026-03-10T09:00:30Z", "2026-03-10T09:00:50Z",
+                         "2026-03-10T09:00:48Z", "on_task")])
+    windows = observations_to_windows(obs, {"laptop-a": manual_model("laptop-a", 30.0)}, ROSTER)
+    # A device 30 s ahead: its 09:00:30-09:00:50 is the log's 09:00:00-09:00:20.
+    row = windows.iloc[0]
+    assert (row["log_id"], row["start_ns"], row["end_ns"], row["coded_ns"]) == (
+        "n-0001", ns("2026-03-10T09:00:00Z"), ns("2026-03-10T09:00:20Z"), ns("2026-03-10T09:00:18Z"))
+    assert list(windows.columns) == list(obs.columns) + list(WINDOW_EXTRA_COLUMNS)
+
+
+def test_drift_is_applied_by_the_convention():
+    # device = log + 10 s + 100 ppm * (log - 08:00).  At log 10:00 (7200 s later) the
+    # device reads 10:00:10.72; so device 10:00:10.72 maps back to log 10:00:00 exactly.
+    model = ClockModel(device="d", method="marks", offset_s=10.0, drift_ppm=100.0, reference_ns=ns("2026-03-10T08:00:00Z"))
+    obs = observations([("o1", "d", "L02", "2026-03-10T10:00:10.72Z", "2026-03-10T10:00:30.722Z",
+                         "2026-03-10T10:00:30.722Z", "away")])
+    row = observations_to_windows(obs, {"d": model}, ROSTER).iloc[0]
+    assert row["start_ns"] == ns("2026-03-10T10:00:00Z")
+    assert row["end_ns"] == ns("2026-03-10T10:00:20Z")  # 20 s of log time last 20.002 s on the device
+
+
+def test_coded_anchor_with_before_and_after():
+    obs = observations([("o1", "laptop-a", "L01", "2026-03-10T09:00:30Z", "2026-03-10T09:00:50Z",
+                         "2026-03-10T09:00:45Z", "on_task")])
+    models = {"laptop-a": manual_model("laptop-a", 30.0)}
+    row = observations_to_windows(obs, models, ROSTER, anchor="coded", before_s=10, after_s=2).iloc[0]
+    assert (row["start_ns"], row["end_ns"]) == (ns("2026-03-10T09:00:05Z"), ns("2026-03-10T09:00:17Z"))
+    row = observations_to_windows(obs, models, ROSTER, anchor="start", before_s=5, after_s=10).iloc[0]
+    assert (row["start_ns"], row["end_ns"]) == (ns("2026-03-10T08:59:55Z"), ns("2026-03-10T09:00:10Z"))
+
+
+def test_device_without_model_and_learner_without_log_id_are_reported():
+    obs = observations([
+        ("o1", "laptop-z", "L01", "2026-03-10T09:00:00Z", "2026-03-10T09:00:20Z", "2026-03-10T09:00:19Z", "on_task"),
+        ("o2", "laptop-z", "L99", "2026-03-10T09:00:20Z", "2026-03-10T09:00:40Z", None, None),
+    ])
+    windows = observations_to_windows(obs, {}, ROSTER)
+    assert windows["start_ns"].tolist() == [ns("2026-03-10T09:00:00Z"), ns("2026-03-10T09:00:20Z")]
+    assert windows["log_id"].tolist() == ["n-0001", ""]
+    assert windows["coded_ns"].isna().tolist() == [False, True]
+    warnings = " ".join(windows.attrs["warnings"])
+    assert "laptop-z" in warnings and "no clock model" in warnings and "L99" in warnings
+
+
+def test_back_to_back_windows_share_no_instant():
+    obs = observations([
+        ("o1", "d", "L01", "2026-03-10T09:00:00Z", "2026-03-10T09:00:20Z", "2026-03-10T09:00:19Z", "on_task"),
+        ("o2", "d", "L01", "2026-03-10T09:00:20Z", "2026-03-10T09:00:40Z", "2026-03-10T09:00:39Z", "on_task"),
+    ])
+    windows = observations_to_windows(obs, {"d": manual_model("d", -3.25)}, ROSTER)
+    event = np.int64(windows["end_ns"].iloc[0])  # an event exactly on the shared bound
+    inside = (windows["start_ns"] <= event) & (event < windows["end_ns"])
+    assert inside.tolist() == [False, True]
+
+
+@pytest.mark.parametrize(("anchor", "before", "after"), [("middle", 0, None), ("coded", 0, None), ("start", 5, -5)])
+def test_impossible_window_requests_are_refused(anchor, before, after):
+    obs = observations([("o1", "d", "L01", "2026-03-10T09:00:00Z", "2026-03-10T09:00:20Z", "2026-03-10T09:00:19Z", "x")])
+    with pytest.raises(ValueError):
+        observations_to_windows(obs, {}, ROSTER, anchor=anchor, before_s=before, after_s=after)
