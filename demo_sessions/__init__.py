@@ -16,3 +16,10 @@ each named after what it decides:
     generate.py       one run, in order, into a temporary name then renamed
 copy/ holds a small generated copy (``--size small --seed 1``) the app can open at once.
 """
+
+from pathlib import Path
+
+
+def committed_copy() -> Path:
+    """The small generated demo study shipped with fieldmark, ready to open in the app."""
+    return Path(__file__).resolve().parent / "copy" / "study"

@@ -12,10 +12,16 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
     devices         object  per coder device:
                               "truth":     {"offset_s", "drift_ppm", "reference"} -- planted by the
                                            generator, copied from DIR/truth.json (the only copied figures)
-                              "recovered": {"method", "offset_s", "drift_ppm", ...} from the align
-                                           step, or null while that step does not exist
+                              "recovered": the align step's stored model (`fieldmark align`, default
+                                           method: sync marks), stated at the truth's reference time:
+                                           {"method", "offset_s", "drift_ppm", "reference_ns",
+                                           "marks_used", "median_abs_residual_s", "confidence",
+                                           "outlying_marks", "warnings", "versus_truth"}
+                              "recovered_automatic": the same from the automatic scan (no marks)
+                              "versus_truth" (in both): {"offset_error_s", "drift_error_ppm"}:
+                                           recovered minus planted, at the same reference time
     dimensions      object  per scheme dimension, from the agree step (agreement/, as `fieldmark agree`):
-                            "kappa" (Cohen's), "alpha" (Krippendorff's) and "percent_agreement", each
+                            "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and "percent_agreement", each
                             {"value", "low", "high"} (95 % cluster-bootstrap interval over learners), "band"
                             (Landis & Koch) and "units" (paired windows compared)
     coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
@@ -55,6 +61,7 @@ from observer_app.reliability_data import study_units
 from observer_app.store import Store
 from observer_app.window_export import export_study
 from observer_app.study import Study, load_study
+from sync.clock import ClockModel
 from sync.residual_plot import residual_figure
 
 SUMMARY_FILE = "summary.json"
@@ -80,6 +87,7 @@ class DemoRun:
     generated: Generated | None = None
     study: Study | None = None
     observations: pd.DataFrame | None = None
+    clock_models: dict[str, ClockModel] = field(default_factory=dict)  # from the align step, stored in the study
 
 
 def step_generate(run: DemoRun) -> None:
@@ -93,7 +101,7 @@ def step_generate(run: DemoRun) -> None:
     run.summary["generated"] = {"learners": run.generated.learners, "events": run.generated.events,
                                 "observations": run.generated.observations, "sync_marks": run.generated.sync_marks}
     run.summary["devices"] = {device: {"truth": {key: planted[key] for key in ("offset_s", "drift_ppm", "reference")},
-                                       "recovered": None}
+                                       "recovered": None, "recovered_automatic": None}
                               for device, planted in header["devices"].items()}
     clocks = pd.DataFrame([{"device": d, "coder": p["coder"], "offset_s": p["offset_s"], "drift_ppm": p["drift_ppm"]}
                            for d, p in header["devices"].items()])
@@ -124,10 +132,19 @@ def step_coder_vs_truth(run: DemoRun) -> None:
     paired = run.observations[run.observations["paired_start"].notna()]
     shown = sorted(paired["learner"].unique())[:TIMELINE_LEARNERS]
     activity = run.study.scheme.dimensions[0]
-    origin = paired["window_start"].min()
     codes = run.observations[run.observations["learner"].isin(shown) & run.observations[activity.name].notna()]
+    middle = codes["window_start"] + (codes["window_end"] - codes["window_start"]) / 2
+    clock = "each laptop's own clock"
+    if run.clock_models:
+        middle = pd.Series(middle.to_numpy(dtype="datetime64[ns]").astype("int64"), index=codes.index)
+        for device, model in run.clock_models.items():
+            mine = codes["device"] == device
+            middle[mine] = model.to_log_ns(middle[mine].to_numpy())
+        middle = pd.to_datetime(middle, unit="ns", utc=True)
+        clock = "the log's clock, through the aligned clock models"
     codes = pd.DataFrame({"learner": codes["learner"], "coder": codes["coder"], "code": codes[activity.name],
-                          "time": codes["window_start"] + (codes["window_end"] - codes["window_start"]) / 2})
+                          "time": middle})
+    origin = codes["time"].min()
     day = states[(states["dimension"] == activity.name) & states["learner"].isin(shown)
                  & (states["start"] < origin + pd.Timedelta(hours=2)) & (states["end"] > origin - pd.Timedelta(minutes=5))]
     run.sections.append(report.section(
@@ -138,35 +155,52 @@ def step_coder_vs_truth(run: DemoRun) -> None:
         report.figure_html(report.timeline_figure(
             day, codes, activity, origin,
             f"True {activity.name} (bands, truth) and coded {activity.name} (markers: circles first coder, triangles "
-            "second), codes at the window middle on each laptop's own clock"), "latent-state timeline"),
+            f"second) at the window middle on {clock}"), "latent-state timeline"),
         *(report.figure_html(report.codes_per_learner_figure(run.observations, dimension), f"{dimension.name} per learner")
           for dimension in run.study.scheme.dimensions),
     ))
 
 
+def versus_truth(model: ClockModel, truth: dict) -> dict:
+    """Recovered minus planted; ``model`` already stated at the truth's reference time."""
+    return {"offset_error_s": round(model.offset_s - truth["offset_s"], 3),
+            "drift_error_ppm": round(model.drift_ppm - truth["drift_ppm"], 2)}
+
+
 def step_align(run: DemoRun) -> None:
-    """The align step: each laptop's clock model (sync marks when there are enough), stored in the study."""
+    """The align step: each laptop's clock model, stored in the study (sync marks when there are enough).
+
+    The automatic scan (no marks) runs first, for comparison only; the default method runs
+    last, so its models are the stored ones every later step uses.
+    """
     assert run.study is not None
+    automatic = align_study(run.study, "auto").models
     alignment = align_study(run.study, "best")
+    run.clock_models = alignment.models
     rows = []
-    for device, model in alignment.models.items():
-        truth = run.summary["devices"].get(device, {}).get("truth")
-        if truth:  # the same fitted line, stated at the planted reference so the figures compare
-            model = model.at_reference(pd.Timestamp(truth["reference"]).value)
-        run.summary["devices"].setdefault(device, {"truth": None})["recovered"] = model_summary(model)
-        rows.append({"device": device, "method": model.method, "offset_s": model.offset_s,
-                     "drift_ppm": model.drift_ppm, "marks_used": model.marks_used,
-                     "median_abs_residual_s": model.median_abs_residual_s, "confidence": model.confidence,
-                     "planted offset_s (truth)": truth and truth["offset_s"],
-                     "planted drift_ppm (truth)": truth and truth["drift_ppm"]})
+    for key, models in (("recovered", alignment.models), ("recovered_automatic", automatic)):
+        for device, model in models.items():
+            truth = run.summary["devices"].get(device, {}).get("truth")
+            entry = run.summary["devices"].setdefault(device, {"truth": None, "recovered": None,
+                                                               "recovered_automatic": None})
+            if truth:  # the same fitted line, stated at the planted reference so the figures compare
+                model = model.at_reference(pd.Timestamp(truth["reference"]).value)
+            entry[key] = {**model_summary(model), "versus_truth": versus_truth(model, truth) if truth else None}
+            rows.append({"device": device, "method": model.method, "offset_s": model.offset_s,
+                         "drift_ppm": model.drift_ppm, "marks_used": model.marks_used,
+                         "median_abs_residual_s": model.median_abs_residual_s, "confidence": model.confidence,
+                         "planted offset_s (truth)": truth and truth["offset_s"],
+                         "planted drift_ppm (truth)": truth and truth["drift_ppm"]})
     run.sections.append(report.section(
         "Clocks: each laptop on the log's clock",
         report.paragraph(f"Read {alignment.read_report.rows} log events. Device time = log time + offset + drift x "
-                         "(log time - reference); offsets are stated at the generator's reference time. The planted "
-                         "columns are the generator's truth, shown for comparison only."),
+                         "(log time - reference); offsets are stated at the generator's reference time. The "
+                         "automatic scan (method auto) is shown for comparison; the stored model (marks) is what "
+                         "every later step uses. The planted columns are the generator's truth, shown for "
+                         "comparison only."),
         report.table_html(pd.DataFrame(rows)),
         *(report.figure_html(residual_figure(model), f"clock fit of {device}")
-          for device, model in alignment.models.items()),
+          for models in (alignment.models, automatic) for device, model in models.items()),
     ))
 
 
@@ -240,8 +274,8 @@ def step_check(run: DemoRun) -> None:
 
 STEPS: tuple[tuple[str, Callable[[DemoRun], None]], ...] = (
     ("generate", step_generate),
-    ("coder_vs_truth", step_coder_vs_truth),
     ("align", step_align),
+    ("coder_vs_truth", step_coder_vs_truth),
     ("agree", step_agree),
     ("export", step_export),
     ("check", step_check),

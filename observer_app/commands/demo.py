@@ -35,9 +35,15 @@ def human_summary(summary: dict) -> str:
              f"{generated['observations']} coded windows)"]
     for device, figures in summary["devices"].items():
         truth, recovered = figures["truth"], figures["recovered"]
-        found = (f"recovered {recovered['offset_s']:+.2f} s, {recovered['drift_ppm']:+.1f} ppm" if recovered
-                 else "not aligned (no align step yet)")
-        lines.append(f"  {device}: truth {truth['offset_s']:+.2f} s, {truth['drift_ppm']:+.1f} ppm; {found}")
+        lines.append(f"  {device}: truth {truth['offset_s']:+.2f} s at {truth['reference']}, {truth['drift_ppm']:+.1f} ppm")
+        for key, label in (("recovered", "aligned"), ("recovered_automatic", "automatic scan")):
+            model = figures.get(key)
+            if model:
+                error = model["versus_truth"]
+                lines.append(f"    {label} ({model['method']}): {model['offset_s']:+.2f} s, {model['drift_ppm']:+.1f} ppm "
+                             f"(error {error['offset_error_s']:+.2f} s, {error['drift_error_ppm']:+.1f} ppm)")
+        if not recovered:
+            lines.append("    not aligned (no align step)")
     for dimension, figures in (summary["dimensions"] or {}).items():
         kappa, alpha = figures["kappa"], figures["alpha"]
         lines.append(f"  coder agreement, {dimension}: Cohen's kappa {_estimate(kappa)}, "

@@ -2,13 +2,12 @@
 from __future__ import annotations
 
 import json
-from pathlib import Path
 
+from demo_sessions import committed_copy
 from demo_sessions.__main__ import main
 from observer_app.study import load_study
 
-ROOT = Path(__file__).resolve().parents[2]
-COPY = ROOT / "demo_sessions" / "copy"
+COPY = committed_copy().parent
 
 
 def test_regenerating_with_the_copys_seed_reproduces_it(tmp_path, same_output, capsys):

@@ -42,11 +42,35 @@ def test_summary_has_the_documented_keys_and_labels_the_truth(demo_run):
     planted = json.loads((out / "truth.json").read_text())["devices"]
     assert set(summary["devices"]) == set(planted)
     for device, figures in summary["devices"].items():
-        assert set(figures) == {"truth", "recovered"}
+        assert set(figures) == {"truth", "recovered", "recovered_automatic"}
         assert figures["truth"]["offset_s"] == planted[device]["offset_s"]
         assert figures["truth"]["drift_ppm"] == planted[device]["drift_ppm"]
-    assert [step["name"] for step in summary["steps"]][:2] == ["generate", "coder_vs_truth"]
+    assert [step["name"] for step in summary["steps"]][:4] == ["generate", "align", "coder_vs_truth", "agree"]
     assert (out / "study" / "study.toml").is_file()
+
+
+def test_aligned_clocks_recover_the_planted_ones(demo_run):
+    """The align step's stored models, compared with truth.json at the planted reference time.
+
+    Bounds from the sync issue: offset within 1 s, drift within 10 ppm, by sync marks.
+    """
+    out, _, _ = demo_run
+    summary = json.loads((out / "summary.json").read_text())
+    planted = json.loads((out / "truth.json").read_text())["devices"]
+    with Store(out / "study" / "observations.sqlite") as store:
+        rows = store.clock_models()
+    stored = {device: json.loads(text) for device, text in zip(rows["device"], rows["model_json"])}
+    for device, figures in summary["devices"].items():
+        recovered, model, truth = figures["recovered"], stored[device], planted[device]
+        assert recovered["method"] == "marks" == model["method"]
+        # the stored line, restated at the planted reference (device = log + offset + drift * (log - reference))
+        reference = pd.Timestamp(truth["reference"]).value
+        restated = model["offset_s"] + model["drift_ppm"] * 1e-6 * (reference - model["reference_ns"]) / 1e9
+        assert recovered["offset_s"] == pytest.approx(restated, abs=1e-3)  # computed from the store, not copied
+        assert recovered["versus_truth"]["offset_error_s"] == pytest.approx(restated - truth["offset_s"], abs=2e-3)
+        assert abs(restated - truth["offset_s"]) < 1.0
+        assert abs(model["drift_ppm"] - truth["drift_ppm"]) < 10.0
+        assert figures["recovered_automatic"]["method"] == "auto"
 
 
 def test_coder_vs_truth_figures_are_computed_from_the_study(demo_run):
