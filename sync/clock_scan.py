@@ -9,11 +9,18 @@ needs no hints about which code means a busy or a quiet log.  Counting is exact 
 vectorised over all offsets at once: each event near a window adds +1 on the run of grid
 offsets that would put it inside, in per-code difference arrays summed by np.bincount.
 
-Drift: the observations are cut into time-ordered chunks, each chunk's offset is found by
-a fine scan (0.1 s) near the overall estimate, and a Theil-Sen slope through the chunk
-offsets gives the drift; a last fine scan of all observations with the drift taken out
-gives the offset at the reference time.  Its standard error comes from split samples
-(the offset found in each of 8 random groups of observations).
+This coarse scan finds the offset to within a few seconds.  The fine stage
+(sync/clock_refine.py) then reads the log around each window with a hidden-state chain
+and scores offsets 0.1 s apart by how well each code names the state at the window's
+middle, where a coder's "what filled most of the window" is decided.
+
+Drift: the observations are cut into time-ordered chunks (each coding session apart from
+the others when there are two or more, otherwise parts of the one session), each chunk's
+offset is found by the fine stage near the overall estimate, and a Theil-Sen slope
+through the chunk offsets gives the drift; a last fine scan of all observations with the
+drift taken out gives the offset at the reference time.  Its standard error comes from
+split samples (the offset found in each of 8 random groups of observations), and the
+drift's from that over the chunks' spread in time.
 """
 from __future__ import annotations
 
@@ -23,6 +30,7 @@ from scipy.special import xlogy
 from scipy.stats import theilslopes
 
 from sync.clock import ClockModel
+from sync.clock_refine import middle_states
 from sync.event_table import learner_blocks
 from sync.time_column import datetime_column_ns
 
@@ -37,12 +45,14 @@ ROUGH_DRIFT_CHUNKS = 4
 SPLITS = 8
 MIN_SPLIT_OBSERVATIONS = 30
 UNCERTAIN_OFFSET_S = 1.0
+UNCERTAIN_DRIFT_PPM = 10.0
 MIN_DRIFT_SPAN_S = 3600.0
 AMBIGUOUS_BELOW = 0.25
 CLEAR_PEAK_SPREADS = 20.0  # a peak this many noise spreads above the far level is clear
 INFORMATIVE_SHARE = 0.5  # dimensions at least half as prominent as the best one are used
 SEPARATION_WINDOWS = 3.0  # rivals are offsets more than 3 window lengths beyond the peak
 PAIRS_PER_BLOCK = 4_000_000
+LIKELIHOOD_INTERVAL = 0.5  # log-likelihood units: about one standard error either side of the best offset
 PEAK_REGION = 0.3  # the peak region: scores within 30% of the peak's height above the median
 
 
@@ -251,17 +261,32 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
     if left_out:
         warnings.append(f"left out of the scan, their codes do not follow log activity: {', '.join(left_out)}")
     reference = int(np.median(start)) - int(round(estimate * 1e9)) if len(start) else 0
-    offset, drift, residual, drift_warnings = _drift(curve, start, estimate, reference, window_s)
+    middle = start + (end - start) // 2
+    rates = [total[:, 0] / np.maximum(exposure, 1e-9) for total, exposure in zip(
+        code_event_totals(event_ns, blocks, learners, start, end, np.array([int(round(estimate * 1e9))]),
+                          labels[:, informative], [sizes[column] for column in informative]),
+        _seconds_per_code(labels[:, informative], seconds, [sizes[column] for column in informative]))]
+    states = middle_states(event_ns, blocks, learners, middle - int(round(estimate * 1e9)), labels[:, informative],
+                           [sizes[column] for column in informative], rates)
+
+    def fine(rows: np.ndarray, offsets_s: np.ndarray, shift_ns: np.ndarray | int = 0) -> np.ndarray:
+        """The fine stage's log-likelihood (sync/clock_refine.py) of the windows ``rows``."""
+        return states.score(rows, offsets_s, middle, shift_ns)
+
+    offset, drift, residual, lever_s, drift_warnings = _drift(fine, start, estimate, reference)
     # Final offset from all observations at once, with the drift taken out of the windows
     # (device - drift * (device - reference); the error, drift * offset, is microseconds).
     shift = np.round(drift * 1e-6 * (start - reference)).astype(np.int64)
     final = _fine_grid(offset)
-    if drift:
-        offset = locate_peak(final, curve(everyone, final, shift), window_s)[0]
-    standard_error = _split_sample_error(curve, len(start), final, shift, window_s)
+    offset = likelihood_peak(final, fine(everyone, final, shift))
+    standard_error = _split_sample_error(fine, len(start), final, shift)
     if standard_error > UNCERTAIN_OFFSET_S:
         warnings.append(f"offset uncertain: standard error {standard_error:.1f} s (few windows show the "
                         "learner's activity change); sync marks pin it down")
+    drift_error = _drift_error_ppm(standard_error, len(_time_chunks(start)), lever_s)
+    if drift_error > UNCERTAIN_DRIFT_PPM:
+        warnings.append(f"drift uncertain: standard error about {drift_error:.0f} ppm (the groups' offsets are "
+                        f"not known well enough over {lever_s / 3600:.1f} h); sync marks pin it down")
     return ClockModel(
         device=str(devices[0]), method="auto", offset_s=offset, drift_ppm=drift, reference_ns=reference,
         marks_used=0, median_abs_residual_s=residual, confidence=confidence, offset_standard_error_s=standard_error,
@@ -270,20 +295,35 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
     )
 
 
-def _drift(curve, start: np.ndarray, estimate: float, reference: int,
-           window_s: float) -> tuple[float, float, float, list[str]]:
-    """(offset at reference, drift ppm, median abs chunk residual s, warnings) from chunk scans."""
-    fine = _fine_grid(estimate)
+def likelihood_peak(offsets_s: np.ndarray, scores: np.ndarray) -> float:
+    """The middle of the contiguous run of offsets whose log-likelihood is within
+    LIKELIHOOD_INTERVAL of the best (the apex, or the centre of a flat top)."""
+    best = int(np.argmax(scores))
+    inside = scores >= scores[best] - LIKELIHOOD_INTERVAL
+    left = right = best
+    while left > 0 and inside[left - 1]:
+        left -= 1
+    while right < len(scores) - 1 and inside[right + 1]:
+        right += 1
+    return float((offsets_s[left] + offsets_s[right]) / 2)
+
+
+def _drift(fine, start: np.ndarray, estimate: float,
+           reference: int) -> tuple[float, float, float, float, list[str]]:
+    """(offset at reference, drift ppm, median abs chunk residual s, lever arm s, warnings)
+    from chunk scans; the lever arm is sqrt(sum of squared chunk-time deviations), which
+    sets how well the slope is known (0 when no drift is fitted)."""
+    grid = _fine_grid(estimate)
     chunks = _time_chunks(start)
     span_s = (start.max() - start.min()) / 1e9 if len(start) else 0.0
     if len(chunks) < 2 or span_s < MIN_DRIFT_SPAN_S:
-        offset = locate_peak(fine, curve(np.arange(len(start)), fine), window_s)[0] if len(start) else estimate
-        return offset, 0.0, float("nan"), [
+        offset = likelihood_peak(grid, fine(np.arange(len(start)), grid)) if len(start) else estimate
+        return offset, 0.0, float("nan"), 0.0, [
             f"drift not estimated (needs two or more groups of {MIN_CHUNK_OBSERVATIONS} observations spread over "
             f"{MIN_DRIFT_SPAN_S / 3600:.0f} hour or more); assumed 0 ppm"]
     centres, offsets = [], []
     for rows in chunks:
-        offset, _, _ = locate_peak(fine, curve(rows, fine), window_s)
+        offset = likelihood_peak(grid, fine(rows, grid))
         centres.append((np.median(start[rows]) - reference) / 1e9 - offset)
         offsets.append(offset)
     centres, offsets = np.asarray(centres), np.asarray(offsets)
@@ -295,10 +335,20 @@ def _drift(curve, start: np.ndarray, estimate: float, reference: int,
     if len(chunks) < ROUGH_DRIFT_CHUNKS:
         warnings.append(f"drift rests on only {len(chunks)} groups of observations; treat it as rough "
                         "(sync marks pin it down)")
-    return intercept, float(slope * 1e6), residual, warnings
+    lever = float(np.sqrt(np.sum((centres - centres.mean()) ** 2)))
+    return intercept, float(slope * 1e6), residual, lever, warnings
 
 
-def _split_sample_error(curve, count: int, grid: np.ndarray, shift: np.ndarray, window_s: float) -> float:
+def _drift_error_ppm(standard_error_s: float, chunks: int, lever_s: float) -> float:
+    """Standard error of the drift: each of ``chunks`` groups holds about 1/chunks of the
+    observations, so its offset is known to about standard_error_s * sqrt(chunks), and a
+    least-squares slope through them to that over the lever arm.  NaN when not fitted."""
+    if lever_s <= 0 or not np.isfinite(standard_error_s):
+        return float("nan")
+    return standard_error_s * np.sqrt(chunks) / lever_s * 1e6
+
+
+def _split_sample_error(fine, count: int, grid: np.ndarray, shift: np.ndarray) -> float:
     """Standard error of the offset by split samples: the observations are dealt at random
     (fixed seed) into SPLITS groups, each group's offset is found on ``grid``, and
     SE = sd(group offsets) / sqrt(SPLITS).  NaN when there are too few observations."""
@@ -306,7 +356,7 @@ def _split_sample_error(curve, count: int, grid: np.ndarray, shift: np.ndarray, 
     if splits < 2:
         return float("nan")
     groups = np.random.default_rng(0).permutation(count) % splits
-    offsets = [locate_peak(grid, curve(np.flatnonzero(groups == group), grid, shift), window_s)[0]
+    offsets = [likelihood_peak(grid, fine(np.flatnonzero(groups == group), grid, shift))
                for group in range(splits)]
     return float(np.std(offsets, ddof=1) / np.sqrt(splits))
 
@@ -318,10 +368,11 @@ def _time_chunks(start: np.ndarray) -> list[np.ndarray]:
     give an offset of their own are left out."""
     order = np.argsort(start, kind="stable")
     breaks = np.flatnonzero(np.diff(start[order]) > SESSION_GAP_S * 1e9) + 1
+    sessions = [session for session in np.split(order, breaks) if len(session) >= MIN_CHUNK_OBSERVATIONS]
+    if len(sessions) >= 2:
+        return sessions
     chunks = []
-    for session in np.split(order, breaks):
-        if len(session) < MIN_CHUNK_OBSERVATIONS:
-            continue
+    for session in sessions:
         parts = max(1, min(len(session) // MIN_CHUNK_OBSERVATIONS, int(np.ceil(CHUNKS * len(session) / len(start)))))
         chunks.extend(np.array_split(session, parts))
     return chunks

@@ -1,0 +1,140 @@
+"""The automatic clock scan's fine stage: the offset under which each window's code names
+the state the learner's log shows at the window's middle.
+
+The coarse scan (sync/clock_scan.py) treats a code as a rate over the whole window, but a
+coder codes what filled MOST of the window, so a window whose state changed part-way is
+scored as if the change were not there, and the curve is a broad hump a few seconds
+wide.  The information about the offset sits exactly in those changes.  So here each
+learner's log around each window is read on its own: a hidden-state (Markov) chain over
+the window's codes, one Poisson event rate per code (measured at the coarse offset),
+gives per half second the probability of each code given the events before and after
+(forward-backward).  The state at a window's middle is the one that filled most of it
+unless it changed twice inside, so the score of offset o is
+
+    sum over windows and dimensions of log(CODE_ERROR + (1 - CODE_ERROR) * P(code at middle - o))
+
+-- the log-likelihood of the codes when a coder reports the state at the middle, or
+any code by mistake.  The probabilities are computed once per window on a neighbourhood
+of CONTEXT_S either side of where the coarse offset puts its middle; each offset then
+only reads them (linear interpolation between bins), vectorised over all offsets.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+BIN_S = 0.5
+CONTEXT_S = 120.0        # log read either side of a window's middle: the fine range plus a minute or two of lead-in
+STATE_SECONDS = 60.0     # typical time in one state before a change (common practice: classroom states last minutes)
+CODE_ERROR = 0.2         # chance a code is not the state at the middle (coder error, two changes in a window)
+RATE_FLOOR_SHARE = 0.01  # a code with no events in its windows still gets 1% of the overall rate
+ROWS_PER_BLOCK = 2000    # windows per forward-backward pass, so the arrays stay a few tens of megabytes
+
+
+@dataclass(frozen=True)
+class MiddleStates:
+    """Per dimension, per window: the probability of the window's own code at each bin of
+    its neighbourhood (NaN rows for windows not coded in that dimension)."""
+
+    first_ns: np.ndarray                # (windows,) log time where each neighbourhood's first bin starts
+    probability: tuple[np.ndarray, ...]  # per dimension, (windows x bins)
+
+    def score(self, rows: np.ndarray, offsets_s: np.ndarray, middle_ns: np.ndarray,
+              shift_ns: np.ndarray | int = 0) -> np.ndarray:
+        """The log-likelihood above per offset, for windows ``rows`` whose middles
+        (device clock) are ``middle_ns`` moved by ``shift_ns``.  Offsets must stay within
+        CONTEXT_S of the coarse offset the neighbourhoods were cut at."""
+        shift = shift_ns if np.isscalar(shift_ns) else np.asarray(shift_ns)[rows]
+        # Position of each (window, offset) middle in bins from its neighbourhood's start.
+        log_ns = (middle_ns[rows] - shift)[:, None] - np.round(np.asarray(offsets_s) * 1e9).astype(np.int64)[None, :]
+        position = (log_ns - self.first_ns[rows][:, None]) / (BIN_S * 1e9) - 0.5
+        bins = self.probability[0].shape[1] if self.probability else 0
+        position = np.clip(position, 0.0, bins - 1.0)
+        low = np.floor(position).astype(np.int64)
+        high = np.minimum(low + 1, bins - 1)
+        weight = position - low
+        total = np.zeros(len(offsets_s))
+        for probability in self.probability:
+            chosen = probability[rows]
+            coded = ~np.isnan(chosen[:, 0])
+            if not coded.any():
+                continue
+            picked = chosen[coded]
+            index = np.arange(len(picked))[:, None]
+            at = (1.0 - weight[coded]) * picked[index, low[coded]] + weight[coded] * picked[index, high[coded]]
+            total += np.log(CODE_ERROR + (1.0 - CODE_ERROR) * at).sum(axis=0)
+        return total
+
+
+def middle_states(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learners: np.ndarray,
+                  middle_ns: np.ndarray, labels: np.ndarray, sizes: list[int],
+                  rates: list[np.ndarray]) -> MiddleStates:
+    """Code probabilities around every window (see the module docstring).
+
+    ``middle_ns``: each window's middle on the log clock at the coarse offset; ``labels``
+    (windows x dimensions) code numbers, -1 = not coded, ``sizes[d]`` codes in dimension
+    d; ``rates[d]`` events per second under each code of dimension d.
+    """
+    bins = int(round(2 * CONTEXT_S / BIN_S))
+    bin_ns = int(round(BIN_S * 1e9))
+    first = middle_ns - bins // 2 * bin_ns
+    counts = _bin_counts(event_ns, blocks, np.asarray(learners).astype(str), first, bins, bin_ns)
+    probabilities = []
+    for dimension, size in enumerate(sizes):
+        code = labels[:, dimension]
+        result = np.full((len(middle_ns), bins), np.nan)
+        coded = np.flatnonzero(code >= 0)
+        rate = np.maximum(rates[dimension], RATE_FLOOR_SHARE * max(float(np.mean(rates[dimension])), 1e-9))
+        for begin in range(0, len(coded), ROWS_PER_BLOCK):
+            rows = coded[begin:begin + ROWS_PER_BLOCK]
+            posterior = _forward_backward(counts[rows], rate * BIN_S, BIN_S / STATE_SECONDS)
+            result[rows] = posterior[np.arange(len(rows)), :, code[rows]]
+        probabilities.append(result)
+    return MiddleStates(first_ns=first, probability=tuple(probabilities))
+
+
+def _bin_counts(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learners: np.ndarray,
+                first_ns: np.ndarray, bins: int, bin_ns: int) -> np.ndarray:
+    """(windows x bins) events of each window's learner per bin, by np.searchsorted on
+    that learner's slice of the sorted event times."""
+    counts = np.zeros((len(first_ns), bins), dtype=np.int64)
+    edges_from_first = np.arange(bins + 1, dtype=np.int64) * bin_ns
+    for learner in np.unique(learners):
+        if learner not in blocks:
+            continue
+        rows = np.flatnonzero(learners == learner)
+        begin, stop = blocks[learner]
+        edges = first_ns[rows][:, None] + edges_from_first[None, :]
+        counts[rows] = np.diff(np.searchsorted(event_ns[begin:stop], edges, side="left"), axis=1)
+    return counts
+
+
+def _forward_backward(counts: np.ndarray, expected: np.ndarray, switch: float) -> np.ndarray:
+    """(rows x bins x codes) posterior code probabilities of a Markov chain that leaves its
+    code with probability ``switch`` per bin (to any other alike), Poisson counts with
+    mean ``expected[code]`` per bin, starting from equal odds.  Scaled at every step."""
+    rows, bins = counts.shape
+    codes = len(expected)
+    if codes < 2:
+        return np.ones((rows, bins, codes))
+    log_emission = counts[:, :, None] * np.log(expected)[None, None, :] - expected[None, None, :]
+    emission = np.exp(log_emission - log_emission.max(axis=2, keepdims=True))
+    move = switch / (codes - 1)
+    keep = 1.0 - switch - move  # p(next) = keep * p + move * sum(p), as sum(p) = 1 after scaling
+    forward = np.empty((rows, bins, codes))
+    current = emission[:, 0] / emission[:, 0].sum(axis=1, keepdims=True)
+    forward[:, 0] = current
+    for step in range(1, bins):
+        current = (keep * current + move) * emission[:, step]
+        current /= current.sum(axis=1, keepdims=True)
+        forward[:, step] = current
+    posterior = np.empty_like(forward)
+    backward = np.ones((rows, codes))
+    for step in range(bins - 1, -1, -1):
+        joint = forward[:, step] * backward
+        posterior[:, step] = joint / joint.sum(axis=1, keepdims=True)
+        carried = emission[:, step] * backward
+        backward = keep * carried + move * carried.sum(axis=1, keepdims=True)
+        backward /= backward.sum(axis=1, keepdims=True)
+    return posterior
