@@ -16,7 +16,9 @@ unless it changed twice inside, so the score of offset o is
 -- the log-likelihood of the codes when a coder reports the state at the middle, or
 any code by mistake.  The probabilities are computed once per window on a neighbourhood
 of CONTEXT_S either side of where the coarse offset puts its middle; each offset then
-only reads them (linear interpolation between bins), vectorised over all offsets.
+only reads them (linear interpolation between bins), vectorised over all offsets, and
+each window's term is kept so any set of windows (a session, a split sample) is scored
+by a sum.
 """
 from __future__ import annotations
 
@@ -25,11 +27,11 @@ from dataclasses import dataclass
 import numpy as np
 
 BIN_S = 0.5
-CONTEXT_S = 120.0        # log read either side of a window's middle: the fine range plus a minute or two of lead-in
+CONTEXT_S = 80.0         # log read either side of a window's middle: the fine range plus about a minute of lead-in
 STATE_SECONDS = 60.0     # typical time in one state before a change (common practice: classroom states last minutes)
 CODE_ERROR = 0.2         # chance a code is not the state at the middle (coder error, two changes in a window)
 RATE_FLOOR_SHARE = 0.01  # a code with no events in its windows still gets 1% of the overall rate
-ROWS_PER_BLOCK = 2000    # windows per forward-backward pass, so the arrays stay a few tens of megabytes
+ROWS_PER_BLOCK = 5000    # windows per pass, so the arrays stay a few tens of megabytes
 
 
 @dataclass(frozen=True)
@@ -40,31 +42,34 @@ class MiddleStates:
     first_ns: np.ndarray                # (windows,) log time where each neighbourhood's first bin starts
     probability: tuple[np.ndarray, ...]  # per dimension, (windows x bins)
 
-    def score(self, rows: np.ndarray, offsets_s: np.ndarray, middle_ns: np.ndarray,
-              shift_ns: np.ndarray | int = 0) -> np.ndarray:
-        """The log-likelihood above per offset, for windows ``rows`` whose middles
-        (device clock) are ``middle_ns`` moved by ``shift_ns``.  Offsets must stay within
-        CONTEXT_S of the coarse offset the neighbourhoods were cut at."""
-        shift = shift_ns if np.isscalar(shift_ns) else np.asarray(shift_ns)[rows]
-        # Position of each (window, offset) middle in bins from its neighbourhood's start.
-        log_ns = (middle_ns[rows] - shift)[:, None] - np.round(np.asarray(offsets_s) * 1e9).astype(np.int64)[None, :]
-        position = (log_ns - self.first_ns[rows][:, None]) / (BIN_S * 1e9) - 0.5
+    def window_scores(self, offsets_s: np.ndarray, middle_ns: np.ndarray,
+                      shift_ns: np.ndarray | int = 0) -> np.ndarray:
+        """(windows x offsets) each window's term of the log-likelihood above, summed over
+        dimensions, for windows whose middles (device clock) are ``middle_ns`` moved by
+        ``shift_ns``; the score of a set of windows is the sum of their rows.  Offsets must
+        stay within CONTEXT_S of the coarse offset the neighbourhoods were cut at."""
+        windows = len(middle_ns)
         bins = self.probability[0].shape[1] if self.probability else 0
-        position = np.clip(position, 0.0, bins - 1.0)
-        low = np.floor(position).astype(np.int64)
-        high = np.minimum(low + 1, bins - 1)
-        weight = position - low
-        total = np.zeros(len(offsets_s))
-        for probability in self.probability:
-            chosen = probability[rows]
-            coded = ~np.isnan(chosen[:, 0])
-            if not coded.any():
-                continue
-            picked = chosen[coded]
-            index = np.arange(len(picked))[:, None]
-            at = (1.0 - weight[coded]) * picked[index, low[coded]] + weight[coded] * picked[index, high[coded]]
-            total += np.log(CODE_ERROR + (1.0 - CODE_ERROR) * at).sum(axis=0)
-        return total
+        scores = np.zeros((windows, len(offsets_s)), dtype=np.float32)
+        offsets_ns = np.round(np.asarray(offsets_s) * 1e9).astype(np.int64)
+        shift = np.broadcast_to(np.asarray(shift_ns, dtype=np.int64), (windows,))
+        for begin in range(0, windows, ROWS_PER_BLOCK):
+            rows = np.arange(begin, min(begin + ROWS_PER_BLOCK, windows))
+            # Position of each (window, offset) middle in bins from its neighbourhood's
+            # start, measured to bin centres.
+            log_ns = (middle_ns[rows] - shift[rows] - self.first_ns[rows])[:, None] - offsets_ns[None, :]
+            position = np.clip(log_ns / (BIN_S * 1e9) - 0.5, 0.0, bins - 1.0)
+            low = np.floor(position).astype(np.int64)
+            weight = position - low
+            high = np.minimum(low + 1, bins - 1)
+            for probability in self.probability:
+                chosen = probability[rows]
+                coded = ~np.isnan(chosen[:, 0])
+                index = np.arange(len(rows))[:, None]
+                at = (1.0 - weight) * chosen[index, low] + weight * chosen[index, high]
+                term = np.log(CODE_ERROR + (1.0 - CODE_ERROR) * at)
+                scores[rows[coded]] += term[coded].astype(np.float32)
+        return scores
 
 
 def middle_states(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learners: np.ndarray,
@@ -113,28 +118,29 @@ def _bin_counts(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learne
 def _forward_backward(counts: np.ndarray, expected: np.ndarray, switch: float) -> np.ndarray:
     """(rows x bins x codes) posterior code probabilities of a Markov chain that leaves its
     code with probability ``switch`` per bin (to any other alike), Poisson counts with
-    mean ``expected[code]`` per bin, starting from equal odds.  Scaled at every step."""
+    mean ``expected[code]`` per bin, starting from equal odds.  Scaled at every step; the
+    arrays are laid out bin-major so each step reads one contiguous slice."""
     rows, bins = counts.shape
     codes = len(expected)
     if codes < 2:
         return np.ones((rows, bins, codes))
-    log_emission = counts[:, :, None] * np.log(expected)[None, None, :] - expected[None, None, :]
+    by_bin = np.ascontiguousarray(counts.T)
+    log_emission = by_bin[:, :, None] * np.log(expected)[None, None, :] - expected[None, None, :]
     emission = np.exp(log_emission - log_emission.max(axis=2, keepdims=True))
     move = switch / (codes - 1)
     keep = 1.0 - switch - move  # p(next) = keep * p + move * sum(p), as sum(p) = 1 after scaling
-    forward = np.empty((rows, bins, codes))
-    current = emission[:, 0] / emission[:, 0].sum(axis=1, keepdims=True)
-    forward[:, 0] = current
+    forward = np.empty((bins, rows, codes))
+    current = emission[0] / emission[0].sum(axis=1, keepdims=True)
+    forward[0] = current
     for step in range(1, bins):
-        current = (keep * current + move) * emission[:, step]
+        current = (keep * current + move) * emission[step]
         current /= current.sum(axis=1, keepdims=True)
-        forward[:, step] = current
-    posterior = np.empty_like(forward)
+        forward[step] = current
     backward = np.ones((rows, codes))
     for step in range(bins - 1, -1, -1):
-        joint = forward[:, step] * backward
-        posterior[:, step] = joint / joint.sum(axis=1, keepdims=True)
-        carried = emission[:, step] * backward
+        joint = forward[step] * backward
+        forward[step] = joint / joint.sum(axis=1, keepdims=True)  # now the posterior
+        carried = emission[step] * backward
         backward = keep * carried + move * carried.sum(axis=1, keepdims=True)
         backward /= backward.sum(axis=1, keepdims=True)
-    return posterior
+    return forward.transpose(1, 0, 2)

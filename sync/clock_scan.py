@@ -269,17 +269,16 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
     states = middle_states(event_ns, blocks, learners, middle - int(round(estimate * 1e9)), labels[:, informative],
                            [sizes[column] for column in informative], rates)
 
-    def fine(rows: np.ndarray, offsets_s: np.ndarray, shift_ns: np.ndarray | int = 0) -> np.ndarray:
-        """The fine stage's log-likelihood (sync/clock_refine.py) of the windows ``rows``."""
-        return states.score(rows, offsets_s, middle, shift_ns)
-
-    offset, drift, residual, lever_s, drift_warnings = _drift(fine, start, estimate, reference)
+    near = _fine_grid(estimate)
+    offset, drift, residual, lever_s, drift_warnings = _drift(states.window_scores(near, middle), near, start,
+                                                              reference)
     # Final offset from all observations at once, with the drift taken out of the windows
     # (device - drift * (device - reference); the error, drift * offset, is microseconds).
     shift = np.round(drift * 1e-6 * (start - reference)).astype(np.int64)
     final = _fine_grid(offset)
-    offset = likelihood_peak(final, fine(everyone, final, shift))
-    standard_error = _split_sample_error(fine, len(start), final, shift)
+    per_window = states.window_scores(final, middle, shift)
+    offset = likelihood_peak(final, per_window.sum(axis=0))
+    standard_error = _split_sample_error(per_window, final)
     if standard_error > UNCERTAIN_OFFSET_S:
         warnings.append(f"offset uncertain: standard error {standard_error:.1f} s (few windows show the "
                         "learner's activity change); sync marks pin it down")
@@ -308,22 +307,22 @@ def likelihood_peak(offsets_s: np.ndarray, scores: np.ndarray) -> float:
     return float((offsets_s[left] + offsets_s[right]) / 2)
 
 
-def _drift(fine, start: np.ndarray, estimate: float,
+def _drift(per_window: np.ndarray, grid: np.ndarray, start: np.ndarray,
            reference: int) -> tuple[float, float, float, float, list[str]]:
     """(offset at reference, drift ppm, median abs chunk residual s, lever arm s, warnings)
-    from chunk scans; the lever arm is sqrt(sum of squared chunk-time deviations), which
-    sets how well the slope is known (0 when no drift is fitted)."""
-    grid = _fine_grid(estimate)
+    from chunk scans; ``per_window`` holds each window's fine-stage score on ``grid``, the
+    fine grid around the coarse estimate.  The lever arm is sqrt(sum of squared chunk-time
+    deviations), which sets how well the slope is known (0 when no drift is fitted)."""
     chunks = _time_chunks(start)
     span_s = (start.max() - start.min()) / 1e9 if len(start) else 0.0
     if len(chunks) < 2 or span_s < MIN_DRIFT_SPAN_S:
-        offset = likelihood_peak(grid, fine(np.arange(len(start)), grid)) if len(start) else estimate
+        offset = likelihood_peak(grid, per_window.sum(axis=0)) if len(start) else float(np.mean(grid))
         return offset, 0.0, float("nan"), 0.0, [
             f"drift not estimated (needs two or more groups of {MIN_CHUNK_OBSERVATIONS} observations spread over "
             f"{MIN_DRIFT_SPAN_S / 3600:.0f} hour or more); assumed 0 ppm"]
     centres, offsets = [], []
     for rows in chunks:
-        offset = likelihood_peak(grid, fine(rows, grid))
+        offset = likelihood_peak(grid, per_window[rows].sum(axis=0))
         centres.append((np.median(start[rows]) - reference) / 1e9 - offset)
         offsets.append(offset)
     centres, offsets = np.asarray(centres), np.asarray(offsets)
@@ -348,15 +347,17 @@ def _drift_error_ppm(standard_error_s: float, chunks: int, lever_s: float) -> fl
     return standard_error_s * np.sqrt(chunks) / lever_s * 1e6
 
 
-def _split_sample_error(fine, count: int, grid: np.ndarray, shift: np.ndarray) -> float:
+def _split_sample_error(per_window: np.ndarray, grid: np.ndarray) -> float:
     """Standard error of the offset by split samples: the observations are dealt at random
-    (fixed seed) into SPLITS groups, each group's offset is found on ``grid``, and
+    (fixed seed) into SPLITS groups, each group's offset is found on ``grid`` from the sum of its rows of
+    ``per_window`` (each window's fine-stage score), and
     SE = sd(group offsets) / sqrt(SPLITS).  NaN when there are too few observations."""
+    count = len(per_window)
     splits = min(SPLITS, count // MIN_SPLIT_OBSERVATIONS)
     if splits < 2:
         return float("nan")
     groups = np.random.default_rng(0).permutation(count) % splits
-    offsets = [likelihood_peak(grid, fine(np.flatnonzero(groups == group), grid, shift))
+    offsets = [likelihood_peak(grid, per_window[groups == group].sum(axis=0))
                for group in range(splits)]
     return float(np.std(offsets, ddof=1) / np.sqrt(splits))
 
