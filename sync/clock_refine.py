@@ -124,23 +124,24 @@ def _forward_backward(counts: np.ndarray, expected: np.ndarray, switch: float) -
     codes = len(expected)
     if codes < 2:
         return np.ones((rows, bins, codes))
-    by_bin = np.ascontiguousarray(counts.T)
-    log_emission = by_bin[:, :, None] * np.log(expected)[None, None, :] - expected[None, None, :]
-    emission = np.exp(log_emission - log_emission.max(axis=2, keepdims=True))
+    by_bin = np.ascontiguousarray(counts.T, dtype=np.float32)
+    rate = np.asarray(expected, dtype=np.float32)
+    log_emission = by_bin[:, :, None] * np.log(rate)[None, None, :] - rate[None, None, :]
+    emission = np.exp(log_emission - log_emission.max(axis=2, keepdims=True))  # float32 halves memory traffic
     move = switch / (codes - 1)
     keep = 1.0 - switch - move  # p(next) = keep * p + move * sum(p), as sum(p) = 1 after scaling
-    forward = np.empty((bins, rows, codes))
+    forward = np.empty((bins, rows, codes), dtype=np.float32)
     current = emission[0] / emission[0].sum(axis=1, keepdims=True)
     forward[0] = current
     for step in range(1, bins):
-        current = (keep * current + move) * emission[step]
+        current = (np.float32(keep) * current + np.float32(move)) * emission[step]
         current /= current.sum(axis=1, keepdims=True)
         forward[step] = current
-    backward = np.ones((rows, codes))
+    backward = np.ones((rows, codes), dtype=np.float32)
     for step in range(bins - 1, -1, -1):
         joint = forward[step] * backward
         forward[step] = joint / joint.sum(axis=1, keepdims=True)  # now the posterior
         carried = emission[step] * backward
-        backward = keep * carried + move * carried.sum(axis=1, keepdims=True)
+        backward = np.float32(keep) * carried + np.float32(move) * carried.sum(axis=1, keepdims=True)
         backward /= backward.sum(axis=1, keepdims=True)
     return forward.transpose(1, 0, 2)
