@@ -282,10 +282,12 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
     if standard_error > UNCERTAIN_OFFSET_S:
         warnings.append(f"offset uncertain: standard error {standard_error:.1f} s (few windows show the "
                         "learner's activity change); sync marks pin it down")
-    drift_error = _drift_error_ppm(standard_error, len(_time_chunks(start)), lever_s)
+    chunks = len(_time_chunks(start))
+    drift_error = _drift_error_ppm(standard_error, chunks, lever_s)
     if drift_error > UNCERTAIN_DRIFT_PPM:
-        warnings.append(f"drift uncertain: standard error about {drift_error:.0f} ppm (the groups' offsets are "
-                        f"not known well enough over {lever_s / 3600:.1f} h); sync marks pin it down")
+        warnings.append(f"drift uncertain: standard error about {drift_error:.0f} ppm (each of the {chunks} groups "
+                        f"of observations gives its offset only to about {standard_error * np.sqrt(chunks):.1f} s); "
+                        "sync marks pin it down")
     return ClockModel(
         device=str(devices[0]), method="auto", offset_s=offset, drift_ppm=drift, reference_ns=reference,
         marks_used=0, median_abs_residual_s=residual, confidence=confidence, offset_standard_error_s=standard_error,
