@@ -1,8 +1,10 @@
 """The demo pipeline: build the demo study, then run every fieldmark step on it.
 
 ``STEPS`` is the list, in order; each step reads what the earlier ones left in the
-``DemoRun``, adds its figures to the summary and one section to the report.  A step that
-lands in fieldmark later (align, agree, export, check) adds itself here.
+``DemoRun``, adds its figures to the summary and one section to the report.  The steps:
+generate, align, coder_vs_truth, agree, export, check; a new fieldmark verb adds its step here.
+Every figure is computed by the pipeline from the study and the files it writes; only the
+"truth" entries (and the "versus_truth" differences) use DIR/truth.json, and say so.
 
 DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
     seed            int     the generator's seed
@@ -21,9 +23,9 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
                               "versus_truth" (in both): {"offset_error_s", "drift_error_ppm"}:
                                            recovered minus planted, at the same reference time
     dimensions      object  per scheme dimension, from the agree step (agreement/, as `fieldmark agree`):
-                            "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and "percent_agreement", each
-                            {"value", "low", "high"} (95 % cluster-bootstrap interval over learners), "band"
-                            (Landis & Koch) and "units" (paired windows compared)
+                            "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and
+                            "percent_agreement", each {"value", "low", "high"} (95 % cluster-bootstrap
+                            interval over learners), "band" (Landis & Koch) and "units" (paired windows)
     coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
                             {"kappa", "percent_correct", "windows"}: scikit-learn's Cohen's kappa of the
                             simulated coder's codes against the generator's true states
