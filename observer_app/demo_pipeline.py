@@ -53,7 +53,7 @@ from agreement.figures import assess_agreement, headline_kappa
 from agreement.report import confusion_figure, drift_figure
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
 from agreement.views import rolling_kappa
-from demo_sessions.generate import Generated, check_output_folder, generate_demo
+from demo_sessions.generate import Generated, check_output_folder, check_seed, generate_demo
 from demo_sessions.truth_check import coder_vs_truth
 from demo_sessions.truth_files import read_truth
 from export.detector_check import check_windows
@@ -292,6 +292,7 @@ def _write_atomically(path: Path, text: str) -> None:
 
 def run_demo(out: str | Path, seed: int, size: str = "full", progress: bool = True) -> dict:
     """Run every step into ``out``; write summary.json and report.html; return the summary."""
+    check_seed(seed)
     check_output_folder(Path(out))
     run = DemoRun(out=Path(out), seed=seed, size=size)
     run.summary = dict.fromkeys(SUMMARY_KEYS)

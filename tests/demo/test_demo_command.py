@@ -148,6 +148,11 @@ def test_demo_into_a_folder_holding_a_demo_is_refused_in_one_line(demo_run):
     assert_user_error(call_cli("demo", "--out", out / "study" / "study.toml"), "is a file")
 
 
+def test_a_negative_seed_is_refused_in_one_line(tmp_path):
+    assert_user_error(call_cli("demo", "--out", tmp_path, "--seed", "-3"), "--seed")
+    assert not any(tmp_path.iterdir())  # nothing half-written
+
+
 def test_human_summary_names_each_device_and_the_outputs(demo_run):
     out, _, _ = demo_run
     text = human_summary(json.loads((out / "summary.json").read_text()))
