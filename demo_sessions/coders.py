@@ -15,6 +15,8 @@ the log's clock) seen through a confusion matrix: correct with the coder's accur
 otherwise one of the neighbouring states a coder could mistake it for.  Some windows
 cannot be observed, a few end with nothing coded.  Affect cannot be read off an empty
 bench, so windows whose true activity is ``away`` get the affect could-not-observe code.
+Now and then the first activity key pressed is a slip (another code) that the coder
+corrects a few seconds later: the store keeps both, and the correction wins.
 Sync marks: now and then the coder presses the mark key on seeing a learner's isolated
 wiring attempt; the mark is the device's reading of the event time plus a human delay.
 """
@@ -74,6 +76,8 @@ class CodingRecord:
     observations: pd.DataFrame  # observation_id, session_id, device, learner, slot, window_start,
                                 # window_end, coded_at, <dimensions>
     marks: pd.DataFrame         # mark_id, session_id, device, learner, marked_at, event_ns
+    corrections: pd.DataFrame   # observation_id, dimension, first_code (the slip), corrected_at;
+                                # the observation's final code is the one in ``observations``
     truth: pd.DataFrame         # observation_id, coder, device, learner, activity, affect,
                                 # log_start_ns, log_end_ns
 
@@ -215,7 +219,22 @@ def _code_turns(rng: np.random.Generator, scenario: Scenario, seed: int, clocks:
     }).astype({c: "string" for c in ("observation_id", "coder", "device", "learner", "activity", "affect")})
     marks = _sync_marks(rng, scenario, seed, clocks, events, chains, coder_index, session_id, learner,
                         log_ns["start"], log_ns["coded"])
-    return CodingRecord(sessions=pd.DataFrame(session_rows), observations=observations, marks=marks, truth=truth)
+    return CodingRecord(sessions=pd.DataFrame(session_rows), observations=observations, marks=marks, truth=truth,
+                        corrections=_slips(rng, scenario, observations))
+
+
+def _slips(rng: np.random.Generator, scenario: Scenario, observations: pd.DataFrame) -> pd.DataFrame:
+    """Coded windows whose first activity key was another code, corrected 2-8 s later."""
+    coded = observations["activity"].notna() & observations["activity"].ne(ACTIVITY_NOT_SEEN)
+    chosen = observations[coded.to_numpy() & (rng.random(len(observations)) < scenario.corrections)]
+    final = chosen["activity"].map(ACTIVITY_STATES.index).to_numpy(dtype=np.int64)
+    shift = rng.integers(1, len(ACTIVITY_STATES), size=len(chosen))  # never the final code itself
+    return pd.DataFrame({
+        "observation_id": chosen["observation_id"].to_numpy(), "dimension": "activity",
+        "first_code": np.asarray(ACTIVITY_STATES)[(final + shift) % len(ACTIVITY_STATES)],
+        "corrected_at": chosen["coded_at"].reset_index(drop=True) + pd.to_timedelta(
+            np.round(rng.uniform(2.0, 8.0, len(chosen)), 3), unit="s"),
+    })
 
 
 def _sync_marks(rng: np.random.Generator, scenario: Scenario, seed: int, clocks: tuple[DeviceClock, ...],
