@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from agreement.dimensions import Dimension
+from agreement.long_format import read_text_csv
 from agreement.tables import ADJUDICATION_INPUT_COLUMNS, DISAGREEMENT_COLUMNS
 from sync.errors import InputError
 
@@ -59,13 +60,7 @@ def list_disagreements(units: pd.DataFrame, dimensions: list[Dimension],
 def read_adjudications(path: str | Path, dimensions: list[Dimension], known_units: set[str]) -> pd.DataFrame:
     """The adjudication CSV (unit, dimension, code, adjudicator, reason), every row checked."""
     path = Path(path)
-    try:
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
-    except FileNotFoundError:
-        raise InputError(path, None, "file not found") from None
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as error:
-        raise InputError(path, None, f"not a readable CSV file ({str(error).splitlines()[0]})") from None
-    frame.columns = [str(column).strip() for column in frame.columns]
+    frame = read_text_csv(path)
     missing = [column for column in ADJUDICATION_INPUT_COLUMNS if column not in frame.columns]
     if missing:
         raise InputError(path, "header", f"missing column {missing[0]!r}; columns are "

@@ -16,6 +16,18 @@ from agreement.tables import LONG_FORMAT_KEY_COLUMNS, LONG_FORMAT_OPTIONAL_COLUM
 from sync.errors import InputError
 
 
+def read_text_csv(path: Path) -> pd.DataFrame:
+    """A CSV a person wrote, every cell as text ("" when empty), header names stripped."""
+    try:
+        frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
+    except FileNotFoundError:
+        raise InputError(path, None, "file not found") from None
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as error:
+        raise InputError(path, None, f"not a readable CSV file ({str(error).splitlines()[0]})") from None
+    frame.columns = [str(column).strip() for column in frame.columns]
+    return frame
+
+
 def _is_number(text: str) -> bool:
     try:
         float(text)
@@ -46,13 +58,7 @@ def read_long_csv(path: str | Path, level: str | None = None,
     level = level or "nominal"
     if level not in LEVELS:
         raise InputError(None, "--level", f"unknown level {level!r}; use one of {', '.join(LEVELS)}")
-    try:
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
-    except FileNotFoundError:
-        raise InputError(path, None, "file not found") from None
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as error:
-        raise InputError(path, None, f"not a readable CSV file ({str(error).splitlines()[0]})") from None
-    frame.columns = [str(column).strip() for column in frame.columns]
+    frame = read_text_csv(path)
     for column in LONG_FORMAT_KEY_COLUMNS:
         if column not in frame.columns:
             raise InputError(path, "header", f"missing column {column!r}; a long-format file needs unit, coder "

@@ -57,6 +57,9 @@ def confusion_figure(result: DimensionAgreement) -> plt.Figure:
     return figure
 
 
+SESSION_BREAK_MINUTES = 60
+
+
 def drift_figure(rolling: dict[str, pd.DataFrame], window: int) -> plt.Figure | None:
     """Rolling kappa per dimension (ROLLING tables); None when no dimension has a window."""
     drawable = {name: frame for name, frame in rolling.items() if len(frame)}
@@ -66,15 +69,28 @@ def drift_figure(rolling: dict[str, pd.DataFrame], window: int) -> plt.Figure | 
     # Dimensions differ in which units count (could-not-observe is left out), so a shared
     # clock axis is comparable and unit numbers are not; CSVs without times fall back.
     timed = all(pd.notna(frame["time"]).all() for frame in drawable.values())
-    for name, frame in drawable.items():
-        axes.plot(pd.to_datetime(frame["time"]) if timed else frame["position"], frame["kappa"], label=name)
-    axes.axhline(0.6, color="#888", linestyle="--", linewidth=1, label="0.6")
+    breaks: list[float] = []
     if timed:
-        figure.autofmt_xdate()
-    axes.set_xlabel(f"{'window start (UTC)' if timed else 'unit (file order)'}; kappa over the last {window} units")
+        # Coding happens in sessions hours or days apart; on a plain clock axis each session
+        # would be a sliver.  Minutes of coding time, with each long pause shown as a line.
+        stamps = pd.to_datetime(pd.concat([frame["time"] for frame in drawable.values()])).sort_values().unique()
+        steps = np.diff(stamps.astype("int64")) / 60e9
+        paused = steps > SESSION_BREAK_MINUTES
+        minutes = np.concatenate([[0.0], np.cumsum(np.where(paused, 1.0, steps))])
+        breaks = list(minutes[1:][paused] - 0.5)
+        lookup = pd.Series(minutes, index=pd.DatetimeIndex(stamps))
+    for name, frame in drawable.items():
+        x = lookup.loc[pd.to_datetime(frame["time"])].to_numpy() if timed else frame["position"]
+        axes.plot(x, frame["kappa"], label=name)
+    for place in breaks:
+        axes.axvline(place, color="#bbb", linestyle=":", linewidth=1)
+    axes.axhline(0.6, color="#888", linestyle="--", linewidth=1, label="0.6")
+    where = "minutes of coding (dotted: a pause of over an hour)" if timed else "unit (file order)"
+    axes.set_xlabel(f"{where}; kappa over the last {window} units")
     axes.set_ylabel("kappa")
     axes.set_ylim(-0.2, 1.05)
     axes.legend(loc="lower left", fontsize=8)
+    figure.tight_layout()
     return figure
 
 

@@ -24,7 +24,6 @@ from sync.clock_marks import fit_from_marks
 from sync.clock_scan import scan_offset
 from sync.errors import InputError
 from sync.event_table import empty_events
-from sync.log_spec import log_spec_from_toml
 from sync.logs import ReadReport, read_logs
 
 METHODS: tuple[str, ...] = ("best", "marks", "auto")
@@ -92,11 +91,10 @@ def _observable(observations: pd.DataFrame, study: Study) -> pd.DataFrame:
 
 def read_study_logs(study: Study) -> tuple[pd.DataFrame, ReadReport]:
     """The study's [[logs]] as one EVENTS table (sync/tables.py), learners checked against the roster."""
-    if not study.log_entries:
+    if not study.logs:
         raise InputError(study.dir / "study.toml", "[[logs]]", "no logs declared; add a [[logs]] entry, "
                          "or give every device's offset with --set-offset DEVICE=SECONDS")
-    specs = [log_spec_from_toml(entry, study.dir, number) for number, entry in enumerate(study.log_entries, start=1)]
-    return read_logs(specs, known_log_ids=study.roster["log_id"].astype(str))
+    return read_logs(study.logs, known_log_ids=study.roster["log_id"].astype(str))
 
 
 def stored_clock_models(study: Study) -> dict[str, ClockModel]:

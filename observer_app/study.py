@@ -13,6 +13,7 @@ import pandas as pd
 from observer_app.roster import load_roster
 from observer_app.scheme import Scheme, load_scheme, read_toml
 from sync.errors import InputError
+from sync.log_spec import LogSpec, log_spec_from_toml
 
 STUDY_FILE = "study.toml"
 SCHEME_FILE = "scheme.toml"
@@ -35,7 +36,7 @@ class Study:
     seed: int
     scheme: Scheme
     roster: pd.DataFrame
-    log_entries: tuple[dict, ...]
+    logs: tuple[LogSpec, ...]
     warnings: tuple[str, ...] = field(default=())
 
     @property
@@ -90,9 +91,10 @@ def load_study(directory: str | Path) -> Study:
     logs = raw.get("logs", [])
     if not isinstance(logs, list) or not all(isinstance(entry, dict) for entry in logs):
         raise InputError(path, "logs", "each log must be a [[logs]] table")
+    specs = tuple(log_spec_from_toml(entry, directory, number) for number, entry in enumerate(logs, start=1))
     scheme = load_scheme(directory / SCHEME_FILE)
     roster, warnings = load_roster(directory / ROSTER_FILE)
     return Study(
         dir=directory, name=str(name), timezone=timezone, window_seconds=float(window), order=order,
-        seed=seed, scheme=scheme, roster=roster, log_entries=tuple(logs), warnings=tuple(warnings),
+        seed=seed, scheme=scheme, roster=roster, logs=specs, warnings=tuple(warnings),
     )

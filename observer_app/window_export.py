@@ -24,7 +24,6 @@ from observer_app.store import Store
 from observer_app.study import ROSTER_FILE, SCHEME_FILE, load_study
 from sync.clock import ClockModel
 from sync.errors import InputError
-from sync.log_spec import log_spec_from_toml
 from sync.logs import read_logs
 from sync.windows import observations_to_windows
 
@@ -69,10 +68,9 @@ def export_study(
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
-        specs = [log_spec_from_toml(entry, study.dir, index) for index, entry in enumerate(study.log_entries)]
-        if not specs:
+        if not study.logs:
             raise InputError(study.dir / "study.toml", "logs", "no [[logs]] entries; export needs the learning logs")
-        events, read_report = read_logs(specs, study.roster["log_id"].dropna().astype(str))
+        events, read_report = read_logs(study.logs, study.roster["log_id"].dropna().astype(str))
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
@@ -95,7 +93,7 @@ def export_study(
 
         bar.set_postfix_str(STEPS[5])
         inputs = [(path, path.relative_to(study.dir).as_posix() if path.is_relative_to(study.dir) else path.name)
-                  for spec in specs for path in spec.files()]
+                  for spec in study.logs for path in spec.files()]
         inputs += [(study.dir / name, name) for name in (SCHEME_FILE, ROSTER_FILE)]
         parameters = {
             **settings.parameters(),

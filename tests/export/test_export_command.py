@@ -15,7 +15,6 @@ from demo_sessions.generate import generate_demo
 from export.writer import manifest_path
 from observer_app.cli import main
 from observer_app.study import load_study
-from sync.log_spec import log_spec_from_toml
 from sync.logs import read_logs
 from tests.conftest import assert_user_error, run_cli
 
@@ -77,7 +76,7 @@ def test_exported_features_match_duckdb_on_the_same_windows(study, tmp_path, cap
     capsys.readouterr()
     table = pd.read_parquet(out)
     loaded = load_study(study)
-    events, _ = read_logs([log_spec_from_toml(entry, loaded.dir, index) for index, entry in enumerate(loaded.log_entries)])
+    events, _ = read_logs(loaded.logs)
     connection = duckdb.connect()
     connection.register("events", events.astype({"learner": str, "outcome": str, "action": str}))
     connection.register("windows", table[["window_id", "log_id", "start_ns", "end_ns"]])

@@ -134,3 +134,9 @@ def test_not_a_study_folder(tmp_path: Path) -> None:
     csv = tmp_path / "x.csv"
     csv.write_text("coder,learner,time,activity\n")
     assert_user_error(call_cli("import", tmp_path / "nowhere", csv), "nowhere", "fieldmark init")
+
+
+def test_a_bad_logs_entry_is_caught_when_the_study_loads(study: Path) -> None:
+    # caught at the boundary, before any command reads a log
+    replace(study / "study.toml", 'format = "csv"', 'format = "excel"')
+    check(study, "study.toml", "[[logs]] #1", "format")
