@@ -29,7 +29,7 @@ import numpy as np
 import pandas as pd
 
 from demo_sessions.clocks import DeviceClock
-from demo_sessions.latent_states import LatentStates
+from demo_sessions.latent_states import LatentStates, draw_categorical
 from demo_sessions.scenario import ACTIVITY_STATES, AFFECT_STATES, Scenario
 from demo_sessions.simulator_log import ATTEMPT
 from observer_app.schedule import RoundRobin
@@ -90,11 +90,6 @@ def confusion_matrix(states: tuple[str, ...], neighbours: dict[str, tuple[str, .
         for other in neighbours[state]:
             matrix[row, states.index(other)] = (1.0 - accuracy) / len(neighbours[state])
     return matrix
-
-
-def _draw(rng: np.random.Generator, probabilities: np.ndarray) -> np.ndarray:
-    cumulative = np.cumsum(probabilities, axis=1)
-    return (rng.random((len(probabilities), 1)) > cumulative / cumulative[:, -1:]).sum(axis=1)
 
 
 def _stable_id(*parts: object) -> str:
@@ -194,8 +189,8 @@ def _code_turns(rng: np.random.Generator, scenario: Scenario, seed: int, clocks:
         mine = coder_index == index
         activity_matrix = confusion_matrix(ACTIVITY_STATES, ACTIVITY_NEIGHBOURS, scenario.accuracy[index])
         affect_matrix = confusion_matrix(AFFECT_STATES, AFFECT_NEIGHBOURS, scenario.affect_accuracy[index])
-        activity_codes[mine] = np.asarray(ACTIVITY_STATES)[_draw(rng, activity_matrix[true_activity[mine]])]
-        affect_codes[mine] = np.asarray(AFFECT_STATES)[_draw(rng, affect_matrix[true_affect[mine]])]
+        activity_codes[mine] = np.asarray(ACTIVITY_STATES)[draw_categorical(rng, activity_matrix[true_activity[mine]])]
+        affect_codes[mine] = np.asarray(AFFECT_STATES)[draw_categorical(rng, affect_matrix[true_affect[mine]])]
     unseen = rng.random(count) < scenario.could_not_observe
     activity_codes[unseen] = ACTIVITY_NOT_SEEN
     affect_codes[unseen | (true_activity == ACTIVITY_STATES.index("away"))] = AFFECT_NOT_SEEN
