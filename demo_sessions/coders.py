@@ -15,6 +15,8 @@ the log's clock) seen through a confusion matrix: correct with the coder's accur
 otherwise one of the neighbouring states a coder could mistake it for.  Some windows
 cannot be observed, a few end with nothing coded.  Affect cannot be read off an empty
 bench, so windows whose true activity is ``away`` get the affect could-not-observe code.
+Now and then the first activity key pressed is a slip (another code) that the coder
+corrects a few seconds later: the store keeps both, and the correction wins.
 Sync marks: now and then the coder presses the mark key on seeing a learner's isolated
 wiring attempt; the mark is the device's reading of the event time plus a human delay.
 """
@@ -27,7 +29,7 @@ import numpy as np
 import pandas as pd
 
 from demo_sessions.clocks import DeviceClock
-from demo_sessions.latent_states import LatentStates
+from demo_sessions.latent_states import LatentStates, draw_categorical
 from demo_sessions.scenario import ACTIVITY_STATES, AFFECT_STATES, Scenario
 from demo_sessions.simulator_log import ATTEMPT
 from observer_app.schedule import RoundRobin
@@ -74,6 +76,8 @@ class CodingRecord:
     observations: pd.DataFrame  # observation_id, session_id, device, learner, slot, window_start,
                                 # window_end, coded_at, <dimensions>
     marks: pd.DataFrame         # mark_id, session_id, device, learner, marked_at, event_ns
+    corrections: pd.DataFrame   # observation_id, dimension, first_code (the slip), corrected_at;
+                                # the observation's final code is the one in ``observations``
     truth: pd.DataFrame         # observation_id, coder, device, learner, activity, affect,
                                 # log_start_ns, log_end_ns
 
@@ -86,11 +90,6 @@ def confusion_matrix(states: tuple[str, ...], neighbours: dict[str, tuple[str, .
         for other in neighbours[state]:
             matrix[row, states.index(other)] = (1.0 - accuracy) / len(neighbours[state])
     return matrix
-
-
-def _draw(rng: np.random.Generator, probabilities: np.ndarray) -> np.ndarray:
-    cumulative = np.cumsum(probabilities, axis=1)
-    return (rng.random((len(probabilities), 1)) > cumulative / cumulative[:, -1:]).sum(axis=1)
 
 
 def _stable_id(*parts: object) -> str:
@@ -190,8 +189,8 @@ def _code_turns(rng: np.random.Generator, scenario: Scenario, seed: int, clocks:
         mine = coder_index == index
         activity_matrix = confusion_matrix(ACTIVITY_STATES, ACTIVITY_NEIGHBOURS, scenario.accuracy[index])
         affect_matrix = confusion_matrix(AFFECT_STATES, AFFECT_NEIGHBOURS, scenario.affect_accuracy[index])
-        activity_codes[mine] = np.asarray(ACTIVITY_STATES)[_draw(rng, activity_matrix[true_activity[mine]])]
-        affect_codes[mine] = np.asarray(AFFECT_STATES)[_draw(rng, affect_matrix[true_affect[mine]])]
+        activity_codes[mine] = np.asarray(ACTIVITY_STATES)[draw_categorical(rng, activity_matrix[true_activity[mine]])]
+        affect_codes[mine] = np.asarray(AFFECT_STATES)[draw_categorical(rng, affect_matrix[true_affect[mine]])]
     unseen = rng.random(count) < scenario.could_not_observe
     activity_codes[unseen] = ACTIVITY_NOT_SEEN
     affect_codes[unseen | (true_activity == ACTIVITY_STATES.index("away"))] = AFFECT_NOT_SEEN
@@ -215,7 +214,22 @@ def _code_turns(rng: np.random.Generator, scenario: Scenario, seed: int, clocks:
     }).astype({c: "string" for c in ("observation_id", "coder", "device", "learner", "activity", "affect")})
     marks = _sync_marks(rng, scenario, seed, clocks, events, chains, coder_index, session_id, learner,
                         log_ns["start"], log_ns["coded"])
-    return CodingRecord(sessions=pd.DataFrame(session_rows), observations=observations, marks=marks, truth=truth)
+    return CodingRecord(sessions=pd.DataFrame(session_rows), observations=observations, marks=marks, truth=truth,
+                        corrections=_slips(rng, scenario, observations))
+
+
+def _slips(rng: np.random.Generator, scenario: Scenario, observations: pd.DataFrame) -> pd.DataFrame:
+    """Coded windows whose first activity key was another code, corrected 2-8 s later."""
+    coded = observations["activity"].notna() & observations["activity"].ne(ACTIVITY_NOT_SEEN)
+    chosen = observations[coded.to_numpy() & (rng.random(len(observations)) < scenario.corrections)]
+    final = chosen["activity"].map(ACTIVITY_STATES.index).to_numpy(dtype=np.int64)
+    shift = rng.integers(1, len(ACTIVITY_STATES), size=len(chosen))  # never the final code itself
+    return pd.DataFrame({
+        "observation_id": chosen["observation_id"].to_numpy(), "dimension": "activity",
+        "first_code": np.asarray(ACTIVITY_STATES)[(final + shift) % len(ACTIVITY_STATES)],
+        "corrected_at": chosen["coded_at"].reset_index(drop=True) + pd.to_timedelta(
+            np.round(rng.uniform(2.0, 8.0, len(chosen)), 3), unit="s"),
+    })
 
 
 def _sync_marks(rng: np.random.Generator, scenario: Scenario, seed: int, clocks: tuple[DeviceClock, ...],

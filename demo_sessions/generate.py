@@ -59,6 +59,12 @@ def _utc_ns(day: str, clock_time: str, timezone: str) -> int:
     return int(pd.Timestamp(local).value)
 
 
+def check_seed(seed: int) -> None:
+    """InputError unless ``seed`` is a whole number numpy's SeedSequence accepts (0 or more)."""
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
+        raise InputError(None, "--seed", f"{seed!r} is not a whole number 0 or more")
+
+
 def check_output_folder(out: Path) -> None:
     """InputError unless ``out`` is new or holds none of the generator's outputs."""
     if out.exists() and not out.is_dir():
@@ -72,6 +78,7 @@ def generate_demo(out: str | Path, seed: int, size: str = "full") -> Generated:
     """Build the demo under ``out`` (see the module docstring); InputError if ``out`` already holds one."""
     out = Path(out)
     scenario = SIZES[size]
+    check_seed(seed)
     check_output_folder(out)
     out.mkdir(parents=True, exist_ok=True)
     building = out / f".building-{seed}"

@@ -1,7 +1,8 @@
 """What each apprentice is really doing, second by second: two linked semi-Markov chains.
 
 Apparent affect (focused, confused, frustrated, bored) follows its own chain; activity
-(on_task, task_talk, off_task, rapid_guessing, away) follows a chain whose next state
+(on_task, task_talk, off_task, rapid_guessing, away; state indices follow
+scenario.ACTIVITY_STATES and AFFECT_STATES) follows a chain whose next state
 leans on the current affect: frustration breeds rapid trial and error, boredom breeds
 off-task time and trips away, confusion breeds talk about the task.  Each state lasts a
 gamma-distributed number of whole seconds (at least ``MIN_DWELL``), so states persist as
@@ -17,7 +18,6 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from demo_sessions.scenario import ACTIVITY_STATES, AFFECT_STATES
 
 MIN_DWELL = 5  # seconds; shorter episodes would be invisible to a coder anyway
 
@@ -65,8 +65,8 @@ class LatentStates:
         return int(self.activity.shape[1])
 
 
-def _draw_next(rng: np.random.Generator, weights: np.ndarray) -> np.ndarray:
-    """One categorical draw per row of ``weights`` (rows need not be normalised)."""
+def draw_categorical(rng: np.random.Generator, weights: np.ndarray) -> np.ndarray:
+    """One categorical draw per row of ``weights`` (rows need not be normalised), vectorised."""
     cumulative = np.cumsum(weights, axis=1)
     cumulative /= cumulative[:, -1:]
     return (rng.random((weights.shape[0], 1)) > cumulative).sum(axis=1)
@@ -88,18 +88,18 @@ def _fill_grid(states: list[np.ndarray], durations: list[np.ndarray], seconds: i
 
 def simulate_latent_states(rng: np.random.Generator, learners: int, seconds: int) -> LatentStates:
     """Affect first, then activity leaning on affect; both as (learners x seconds) grids."""
-    state = _draw_next(rng, np.tile(AFFECT_START, (learners, 1)))
+    state = draw_categorical(rng, np.tile(AFFECT_START, (learners, 1)))
     states, durations, clock = [], [], np.zeros(learners, dtype=np.int64)
     while (clock < seconds).any():
         duration = _dwell(rng, AFFECT_DWELL[state])
         states.append(state)
         durations.append(duration)
         clock = clock + duration
-        state = _draw_next(rng, AFFECT_NEXT[state])
+        state = draw_categorical(rng, AFFECT_NEXT[state])
     affect = _fill_grid(states, durations, seconds)
 
     rows = np.arange(learners)
-    state = _draw_next(rng, np.tile(ACTIVITY_START, (learners, 1)))
+    state = draw_categorical(rng, np.tile(ACTIVITY_START, (learners, 1)))
     states, durations, clock = [], [], np.zeros(learners, dtype=np.int64)
     while (clock < seconds).any():
         duration = _dwell(rng, ACTIVITY_DWELL[state])
@@ -107,7 +107,7 @@ def simulate_latent_states(rng: np.random.Generator, learners: int, seconds: int
         durations.append(duration)
         clock = clock + duration
         current_affect = affect[rows, np.minimum(clock, seconds - 1)]
-        state = _draw_next(rng, ACTIVITY_NEXT[state] * ACTIVITY_PULL[current_affect])
+        state = draw_categorical(rng, ACTIVITY_NEXT[state] * ACTIVITY_PULL[current_affect])
     activity = _fill_grid(states, durations, seconds)
     return LatentStates(activity=activity, affect=affect)
 

@@ -46,6 +46,7 @@ class Scenario:
     affect_accuracy: tuple[float, ...] = (0.80, 0.83)
     could_not_observe: float = 0.05                  # share of windows the coder cannot see
     no_code: float = 0.01                            # windows that end with nothing coded
+    corrections: float = 0.03                        # coded windows whose first activity key was a slip, corrected
     early_finish: float = 0.4                        # solo turns the coder closes before the window ends
     marks_per_session: int = 8                       # sync marks per coder and coding session
     # The first device's clock runs ahead by tens of seconds and drifts by tens of ppm;

@@ -61,7 +61,8 @@ def write_study_files(directory: Path, scenario: Scenario, seed: int, roster: pd
 
 
 def write_device_store(path: Path, device: str, record: CodingRecord, scheme_hash: str) -> None:
-    """One laptop's observations.sqlite: its sessions, coded windows, sync marks and session ends."""
+    """One laptop's observations.sqlite: its sessions, coded windows (a slip first, then its
+    correction, where the coder made one), sync marks and session ends."""
     path.parent.mkdir(parents=True, exist_ok=True)
     sessions = record.sessions[record.sessions["device"] == device]
     observations = record.observations[record.observations["device"] == device].copy()
@@ -69,6 +70,10 @@ def write_device_store(path: Path, device: str, record: CodingRecord, scheme_has
     observations["clip"] = ""
     observations["note"] = ""
     marks = record.marks[record.marks["device"] == device] if len(record.marks) else record.marks
+    slips = record.corrections[record.corrections["observation_id"].isin(observations["observation_id"])]
+    corrected = observations.set_index("observation_id").loc[slips["observation_id"]]
+    first_codes = dict(zip(slips["observation_id"], slips["first_code"]))
+    observations["activity"] = observations["observation_id"].map(first_codes).fillna(observations["activity"])
     with Store(path) as store:
         for session in sessions.itertuples(index=False):
             store.start_session(
@@ -79,6 +84,13 @@ def write_device_store(path: Path, device: str, record: CodingRecord, scheme_has
                 paired_start=None if pd.isna(session.paired_start) else pd.Timestamp(int(session.paired_start), tz="UTC"),
             )
         store.record_observations(pd.DataFrame(), observations, DIMENSIONS)
+        for slip, window in zip(slips.itertuples(index=False), corrected.itertuples()):
+            store.record_code(
+                observation_id=slip.observation_id, session_id=window.session_id, learner=window.learner,
+                window_start=window.window_start, window_end=window.window_end, dimension=slip.dimension,
+                code=window.activity, entered_at=slip.corrected_at, scheme_hash=scheme_hash,
+                slot=int(window.slot), supersedes=f"{slip.observation_id}:{slip.dimension}",
+                code_id=f"{slip.observation_id}:{slip.dimension}:corrected")
         for mark in marks.itertuples(index=False):
             store.record_sync_mark(session_id=mark.session_id, marked_at=mark.marked_at, learner=mark.learner,
                                    note="attempt seen", mark_id=mark.mark_id)

@@ -1,8 +1,10 @@
 """The demo pipeline: build the demo study, then run every fieldmark step on it.
 
 ``STEPS`` is the list, in order; each step reads what the earlier ones left in the
-``DemoRun``, adds its figures to the summary and one section to the report.  A step that
-lands in fieldmark later (align, agree, export, check) adds itself here.
+``DemoRun``, adds its figures to the summary and one section to the report.  The steps:
+generate, align, coder_vs_truth, agree, export, check; a new fieldmark verb adds its step here.
+Every figure is computed by the pipeline from the study and the files it writes; only the
+"truth" entries (and the "versus_truth" differences) use DIR/truth.json, and say so.
 
 DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
     seed            int     the generator's seed
@@ -21,9 +23,9 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
                               "versus_truth" (in both): {"offset_error_s", "drift_error_ppm"}:
                                            recovered minus planted, at the same reference time
     dimensions      object  per scheme dimension, from the agree step (agreement/, as `fieldmark agree`):
-                            "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and "percent_agreement", each
-                            {"value", "low", "high"} (95 % cluster-bootstrap interval over learners), "band"
-                            (Landis & Koch) and "units" (paired windows compared)
+                            "kappa" (Cohen's for two coders), "alpha" (Krippendorff's) and
+                            "percent_agreement", each {"value", "low", "high"} (95 % cluster-bootstrap
+                            interval over learners), "band" (Landis & Koch) and "units" (paired windows)
     coder_vs_truth  object  demo-quality check, NOT the agreement step: per dimension and coder,
                             {"kappa", "percent_correct", "windows"}: scikit-learn's Cohen's kappa of the
                             simulated coder's codes against the generator's true states
@@ -51,7 +53,7 @@ from agreement.figures import assess_agreement, headline_kappa
 from agreement.report import confusion_figure, drift_figure
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
 from agreement.views import rolling_kappa
-from demo_sessions.generate import Generated, check_output_folder, generate_demo
+from demo_sessions.generate import Generated, check_output_folder, check_seed, generate_demo
 from demo_sessions.truth_check import coder_vs_truth
 from demo_sessions.truth_files import read_truth
 from export.detector_check import check_windows
@@ -290,6 +292,7 @@ def _write_atomically(path: Path, text: str) -> None:
 
 def run_demo(out: str | Path, seed: int, size: str = "full", progress: bool = True) -> dict:
     """Run every step into ``out``; write summary.json and report.html; return the summary."""
+    check_seed(seed)
     check_output_folder(Path(out))
     run = DemoRun(out=Path(out), seed=seed, size=size)
     run.summary = dict.fromkeys(SUMMARY_KEYS)

@@ -28,6 +28,10 @@ def _estimate(figure: dict) -> str:
     return f"{figure['value']:.2f} [{figure['low']:.2f}, {figure['high']:.2f}]"
 
 
+def _number(value: float | None) -> str:
+    return "undefined" if value is None else f"{value:.2f}"
+
+
 def human_summary(summary: dict) -> str:
     """The few lines printed at the end: what was built, what each step found."""
     generated = summary["generated"]
@@ -53,6 +57,11 @@ def human_summary(summary: dict) -> str:
         lines.append(f"  coder vs truth (demo check), {dimension}: kappa {shown}")
     if summary["windows"]:
         lines.append(f"  windows written: {summary['windows']['written']} -> {summary['windows']['path']}")
+    for dimension, check in (summary["detector"] or {}).items():
+        model, baseline = check["model"], check["majority_baseline"]
+        lines.append(f"  detector check, {dimension}: kappa {_number(model['kappa'])}, AUC {_number(model['auc'])} "
+                     f"(majority baseline {_number(baseline['kappa'])}, {_number(baseline['auc'])}; "
+                     f"{check['learners']} learners in {check['folds']} folds)")
     out = Path(summary["study"]).parent
     lines.append(f"wrote {out / 'summary.json'} and {out / 'report.html'} in {summary['seconds']:.1f} s")
     return "\n".join(lines)

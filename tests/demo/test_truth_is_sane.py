@@ -168,3 +168,15 @@ def test_study_store_holds_exactly_what_the_devices_wrote(demo):
             counts.append(len(store.observations()))
     assert sum(counts) == len(demo["observations"])
     assert np.all(np.array(counts) > 250)
+
+
+def test_slips_are_corrected_and_the_audit_trail_keeps_both(demo):
+    with Store(demo["root"] / "study/observations.sqlite") as store:
+        log = store.codes_log()
+    corrections = log[log["supersedes"].notna()]
+    first = log.set_index("code_id").loc[corrections["supersedes"], "code"].to_numpy()
+    assert (first != corrections["code"].to_numpy()).all()  # a slip, then another code
+    final = demo["observations"].set_index("observation_id").loc[corrections["observation_id"], "activity"]
+    assert (final.to_numpy() == corrections["code"].to_numpy()).all()  # the newest code wins
+    assert demo["observations"]["corrected"].sum() == len(corrections)
+    assert 0.005 <= len(corrections) / len(demo["observations"]) <= 0.06
