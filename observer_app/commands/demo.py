@@ -44,8 +44,10 @@ def human_summary(summary: dict) -> str:
             model = figures.get(key)
             if model:
                 error = model["versus_truth"]
+                flagged = [w.split(":")[0] for w in model.get("warnings") or [] if "uncertain" in w]
                 lines.append(f"    {label} ({model['method']}): {model['offset_s']:+.2f} s, {model['drift_ppm']:+.1f} ppm "
-                             f"(error {error['offset_error_s']:+.2f} s, {error['drift_error_ppm']:+.1f} ppm)")
+                             f"(error {error['offset_error_s']:+.2f} s, {error['drift_error_ppm']:+.1f} ppm)"
+                             + (f"; align warned: {', '.join(flagged)}" if flagged else ""))
         if not recovered:
             lines.append("    not aligned (no align step)")
     for dimension, figures in (summary["dimensions"] or {}).items():
