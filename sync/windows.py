@@ -5,7 +5,9 @@ What a window covers is decided here and nowhere else:
       itself when before_s is 0 -- or [window_start - before_s, window_start + after_s)
       when after_s is given;
   anchor="coded": [coded_at - before_s, coded_at + after_s) (after_s defaults to 0).
-Bounds are mapped through the device's clock model; start is inclusive, end exclusive,
+Bounds of live observations are mapped through the device's clock model; replay
+observations (mode "replay") were coded against the log itself, so their window times
+are already log times and are taken as they are.  Start is inclusive, end exclusive,
 so back-to-back windows never share an event.
 """
 from __future__ import annotations
@@ -53,12 +55,14 @@ def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, 
     window_start, window_end, coded_at = (datetime_column_ns(result[column]) for column in ("window_start", "window_end", "coded_at"))
     before, after = round(before_s * 1e9), None if after_s is None else round(after_s * 1e9)
     devices = result["device"].astype(str).to_numpy()
-    for device in np.unique(devices):
-        rows = devices == device
-        model = clock_models.get(device)
+    replay = (result["mode"].astype(str) == "replay").to_numpy() if "mode" in result else np.zeros(len(result), bool)
+    for device, replayed in {(d, r) for d, r in zip(devices, replay)}:
+        rows = (devices == device) & (replay == replayed)
+        model = None if replayed else clock_models.get(device)
         if model is None:
             model = identity_model(device)
-            warnings.extend(model.warnings)
+            if not replayed:
+                warnings.extend(model.warnings)
         if anchor == "start":
             begin = window_start[rows] - before
             finish = window_end[rows] if after is None else window_start[rows] + after

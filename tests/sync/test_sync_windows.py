@@ -86,3 +86,18 @@ def test_impossible_window_requests_are_refused(anchor, before, after):
     obs = observations([("o1", "d", "L01", "2026-03-10T09:00:00Z", "2026-03-10T09:00:20Z", "2026-03-10T09:00:19Z", "x")])
     with pytest.raises(ValueError):
         observations_to_windows(obs, {}, ROSTER, anchor=anchor, before_s=before, after_s=after)
+
+
+def test_replay_windows_are_already_on_the_log_clock():
+    # a replayed clip is coded against the log itself: its times are log times, so the
+    # device's clock model must not move them (the live row from the same device is moved)
+    obs = observations([("o1", "laptop-a", "L01", "2026-03-10T09:00:30Z", "2026-03-10T09:00:50Z",
+                         "2026-03-10T09:00:48Z", "on_task"),
+                        ("o2", "laptop-a", "L02", "2026-03-10T09:00:30Z", "2026-03-10T09:00:50Z",
+                         "2026-03-10T09:00:48Z", "on_task")])
+    obs["mode"] = ["live", "replay"]
+    windows = observations_to_windows(obs, {"laptop-a": manual_model("laptop-a", 30.0)}, ROSTER)
+    live, replay = windows.iloc[0], windows.iloc[1]
+    assert live["start_ns"] == ns("2026-03-10T09:00:00Z")
+    assert (replay["start_ns"], replay["end_ns"]) == (ns("2026-03-10T09:00:30Z"), ns("2026-03-10T09:00:50Z"))
+    assert windows.attrs["warnings"] == []
