@@ -19,6 +19,9 @@ and every built-in definition: export/tables.py.
 """
 from __future__ import annotations
 
+import hashlib
+import re
+
 from collections.abc import Callable, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
@@ -283,7 +286,8 @@ def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
     ranked = sorted(range(len(action.names)), key=lambda code: (-totals[code], str(action.names[code])))
     top = np.asarray([code for code in ranked if totals[code] > 0][: view.settings.top_actions], dtype=np.int64)
     table = _counts_by_code(view, action, top)
-    return {f"action_{action.names[code]}": table[:, column] for column, code in enumerate(top)}
+    names = column_names("action", [str(action.names[code]) for code in top])
+    return {name: table[:, column] for column, name in enumerate(names)}
 
 
 @feature
@@ -293,7 +297,23 @@ def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
     present = np.flatnonzero(outcome.counts(view.member))
     present = present[np.argsort(outcome.names[present].astype(str), kind="stable")]
     table = _counts_by_code(view, outcome, present)
-    return {f"outcome_{outcome.names[code]}": table[:, column] for column, code in enumerate(present)}
+    names = column_names("outcome", [str(outcome.names[code]) for code in present])
+    return {name: table[:, column] for column, name in enumerate(names)}
+
+
+def column_names(prefix: str, values: list[str]) -> list[str]:
+    """``prefix_<value>`` column names a data scientist can type.
+
+    An IRI (an xAPI verb id such as http://adlnet.gov/expapi/verbs/attempted) is named by
+    its last path segment; anything but letters, digits and _ becomes _.  When two values
+    would get the same name, each keeps a short hash of its full text so none is lost.
+    """
+    short = [re.sub(r"\W+", "_", value.rstrip("/").rsplit("/", 1)[-1].rsplit("#", 1)[-1]).strip("_").lower() or "blank"
+             for value in values]
+    clashes = {name for name in short if short.count(name) > 1}
+    return [f"{prefix}_{name}" if name not in clashes
+            else f"{prefix}_{name}_{hashlib.sha1(value.encode()).hexdigest()[:6]}"
+            for name, value in zip(short, values)]
 
 
 @feature

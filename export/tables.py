@@ -31,6 +31,9 @@ FEATURES -- one column per figure, float64 (counts too, so NaN can mean "undefin
                                 only window events choose the columns)
     outcome_<name>              events with that outcome in the window, one per outcome seen in
                                 any window
+                                (<name>: the value lower-cased with non-word characters as _; an IRI
+                                such as an xAPI verb id by its last path segment; a short hash is
+                                added when two values would share a name)
     error_rate                  error outcomes / attempts in the window (NaN without attempts)
     help_requests               events whose action is a help action (defaults: "hint",
                                 "help", "help_request", "hint_request"; xAPI logs carry

@@ -135,3 +135,12 @@ def test_the_feature_decorator_registers_under_the_function_name() -> None:
         assert compute_features(EVENTS, windows([("a", 0, S)]))["always_one"].iloc[0] == 1
     finally:
         FEATURES.pop("always_one", None)
+
+
+def test_feature_column_names_are_typeable_and_never_collide():
+    from export.features import column_names
+    # xAPI verb ids are IRIs (xAPI 1.0.3 Part Two, 2.4.3 Verb: "id" is an IRI); the column keeps the last segment
+    names = column_names("action", ["http://adlnet.gov/expapi/verbs/attempted", "help request", "Attempt"])
+    assert names == ["action_attempted", "action_help_request", "action_attempt"]
+    clashing = column_names("action", ["http://a.example/verbs/asked", "http://b.example/verbs/asked"])
+    assert len(set(clashing)) == 2 and all(name.startswith("action_asked_") for name in clashing)
