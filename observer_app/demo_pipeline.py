@@ -54,7 +54,10 @@ from agreement.report import confusion_figure, drift_figure
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
 from agreement.views import rolling_kappa
 from demo_sessions.generate import Generated, check_output_folder, check_seed, generate_demo
+from demo_sessions.log_files import SOUTH_VERBS
 from demo_sessions.truth_check import coder_vs_truth
+from export.features import FeatureSettings
+from export.labelled_windows import ExportSettings
 from demo_sessions.truth_files import read_truth
 from export.detector_check import check_windows
 from observer_app import demo_report as report
@@ -242,7 +245,9 @@ def step_export(run: DemoRun) -> None:
     """The export step: labelled, de-identified windows with their log features."""
     assert run.study is not None
     path = run.out / WINDOWS_FILE
-    exported = export_study(run.study.dir, path, progress=False)
+    # the south centre's xAPI log names help requests with a verb IRI; say so, as a lab would
+    features = FeatureSettings(help_actions=FeatureSettings().help_actions + (SOUTH_VERBS["help_request"],))
+    exported = export_study(run.study.dir, path, settings=ExportSettings(features=features), progress=False)
     run.summary["windows"] = {"written": exported["rows"], "path": str(path)}
     counts = pd.DataFrame([{"dimension": dimension, "code": code, "windows": count}
                            for dimension, codes in exported["rows_per_label"].items() for code, count in codes.items()])
