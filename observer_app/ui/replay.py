@@ -110,6 +110,7 @@ class ReplayScreen(QWidget):
         self.events_table.setStyleSheet(
             f"QTableWidget {{ font-size: {looks.TILE_POINTS * scale}pt; background: {theme.surface};"
             f" color: {theme.text}; gridline-color: {theme.background}; }}"
+            f"QTableWidget::item {{ padding-left: 8px; }}"
             f"QHeaderView::section {{ font-size: {looks.STATUS_POINTS * scale}pt; color: {theme.quiet_text};"
             f" background: {theme.background}; padding: 4px; border: none; }}")
         self.status_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * scale}pt;")
@@ -143,13 +144,13 @@ class ReplayScreen(QWidget):
             self.range_label.setText("")
         events = state.events
         self.events_table.setRowCount(len(events))
-        columns = (events["offset_s"].map("{:.1f}".format), events["action"].astype(str),
+        columns = (events["offset_s"].map("{:.1f} s".format), events["action"].astype(str),
                    events["outcome"].astype(str), events["item"].astype(str))
         for column, values in enumerate(columns):
             for row, value in enumerate(values):
                 item = QTableWidgetItem(value)
                 if column == 0:
-                    item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                    item.setTextAlignment(Qt.AlignmentFlag.AlignCenter)
                 self.events_table.setItem(row, column, item)
         for pad in self.pads:
             pad.show_code(state.coded.get(pad.dimension.name), theme, self._scale)
