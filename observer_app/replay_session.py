@@ -20,7 +20,8 @@ Rules this module decides (one home each):
 - A clip ends as soon as every dimension is coded; the next clip follows.  Skipping a
   clip with nothing coded writes a no-code row.  Undo retracts the newest code still in
   effect (a retraction row; nothing is deleted) and, when that code belongs to an
-  earlier clip, goes back to that clip so it can be coded again.
+  earlier clip, goes back to that clip so it can be coded again; once it is coded again
+  the coder returns to the furthest clip reached.
 - Window bounds written to the store are the clip's bounds on the log's clock (tz-aware
   UTC); slot is NULL, clip is the clip id.  Entry times are the device's wall clock.
 - Resume: a replay session without an end row continues after the last clip (in list
@@ -150,6 +151,7 @@ class ReplaySession:
         self._key_map = study.scheme.key_map()
         self._dimensions = study.scheme.dimension_names
         self._position = 0
+        self._furthest = 0  # the furthest clip reached: where coding goes on after going back
         self._observation_ids: dict[int, str] = {}
         self._coded: dict[int, dict[str, tuple[str, str]]] = {}
         self._undo: list[_UndoEntry] = []
@@ -217,7 +219,7 @@ class ReplaySession:
         if self._observation_ids:
             last = max(self._observation_ids)
             partly = 0 < len(self._coded[last]) < len(self._dimensions)
-            self._position = last if partly else last + 1
+            self._position = self._furthest = last if partly else last + 1
         self._message = f"Resumed at clip {min(self._position + 1, len(self.clips))} of {len(self.clips)}"
 
     # -- listening -----------------------------------------------------------------------
@@ -275,7 +277,7 @@ class ReplaySession:
         label = self.study.scheme.dimension(dimension).code(code).label
         self._message = f"Saved {dimension}: {label}" + (" (corrected)" if previous else "")
         if not self.missing:
-            self._position += 1
+            self._move_on()
         self._emit()
         return True
 
@@ -308,10 +310,15 @@ class ReplaySession:
                 self._error = f"NOT SAVED: skipped clip ({error})"
                 self._emit()
                 return False
-        self._position += 1
+        self._move_on()
         self._message = f"Skipped clip {position + 1}"
         self._emit()
         return True
+
+    def _move_on(self) -> None:
+        """The current clip is done: the next one, or back to the furthest clip reached."""
+        self._position = max(self._position + 1, self._furthest)
+        self._furthest = self._position
 
     def _write(self, position: int, dimension: str, code: str | None, supersedes: str | None) -> str | None:
         clip = self.clips.iloc[position]

@@ -126,3 +126,21 @@ def test_the_start_form_replay_choice_opens_the_replay_screen_and_resumes(qtbot,
     resumed = start_replay()
     assert resumed.session.session_id == replay.session.session_id
     assert resumed.session.state().position == 2 and "Resumed at clip 3" in resumed.message_label.text()
+
+
+def test_a_log_that_cannot_be_read_is_one_line_on_the_start_form(qtbot, tmp_path):
+    from tests.app.conftest import make_study
+
+    folder = make_study(tmp_path / "study")  # declares logs/centre_north.csv, which is not there
+    window = MainWindow(folder, clock=FakeClock(), device="laptop-r")
+    qtbot.addWidget(window)
+    window.show()
+    qtbot.waitExposed(window)
+    qtbot.keyClick(window.page, Qt.Key.Key_S)
+    form = window.page
+    qtbot.keyClicks(form.coder, "rhea")
+    form.mode.setCurrentIndex(2)  # replay
+    qtbot.keyClick(form.coder, Qt.Key.Key_Return)
+    assert window.page is form and "centre_north.csv" in form.error.text() and "\n" not in form.error.text()
+    with Store(load_study(folder).store_path) as store:
+        assert store.sessions().empty  # nothing half-written

@@ -134,3 +134,18 @@ def test_two_coders_replaying_the_same_clips_are_paired_by_clip(demo):
     rhea = ["on_task", "on_task", "off_task", "task_talk"]
     sol = ["on_task", "task_talk", "off_task", "task_talk"]
     assert activity["cohen_kappa"]["value"] == pytest.approx(cohen_kappa_score(rhea, sol), abs=1e-9)
+
+
+def test_undo_into_an_earlier_clip_goes_back_to_it_then_on_to_the_furthest_clip(demo):
+    with Store(demo.store_path) as store:
+        session = ReplaySession.start(demo, store, FakeClock(), coder="ann", device="laptop-r", learners=["L06"])
+        for key in "1q2w3":  # clips 1 and 2 coded, clip 3 half coded
+            session.press(key)
+        assert session.state().position == 2
+        session.undo()  # the 3 of clip 3
+        session.undo()  # the w of clip 2: back to clip 2
+        assert session.state().position == 1 and session.state().coded == {"activity": "task_talk"}
+        session.press("e")  # clip 2 complete again
+        assert session.state().position == 2 and session.state().missing == ("activity", "affect")
+        current = store.observations(demo.scheme.dimension_names).set_index("clip")
+    assert current.loc[session.clips["clip"][1], ["activity", "affect"]].tolist() == ["task_talk", "frustrated"]
