@@ -1,4 +1,4 @@
-"""``fieldmark app [STUDY]``: the desktop app for live coding.
+"""``fieldmark app [STUDY]``: the desktop app for live coding and replay coding.
 
 The study folder is validated before any window opens, so a mistake in it is one
 line and exit 2 like every other verb.  Qt is imported only when the app runs.
@@ -14,7 +14,7 @@ from observer_app.study import load_study
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
-        "app", help="the desktop app: live round-robin coding with the keyboard",
+        "app", help="the desktop app: live round-robin coding, or coding replayed log clips, with the keyboard",
         description="Open the desktop app. With STUDY it opens that study folder; without, it asks for one "
                     "or creates a new one. Everything works from the keyboard; F1 lists the keys.")
     parser.add_argument("study", type=Path, nargs="?", help="study folder (default: choose in the app)")

@@ -2,7 +2,8 @@
 
 Flow: choose or create a study -> overview -> start form -> clock check -> observing
 -> end of session -> overview.  From the overview an interrupted session resumes
-straight into observing.  Closing the window during a session leaves it open in the
+straight into observing.  A replay start (start form, mode "Replay") opens the replay
+screen instead, resuming the coder's unfinished replay session if there is one.  Closing the window during a session leaves it open in the
 store (no end row), so the next start offers to resume it.
 """
 from __future__ import annotations
@@ -14,6 +15,7 @@ from PySide6.QtGui import QKeyEvent, QKeySequence, QShortcut
 from PySide6.QtWidgets import QFileDialog, QLabel, QMainWindow, QStackedWidget, QVBoxLayout, QWidget
 
 from observer_app.live_session import LiveSession, SessionSummary
+from observer_app.replay_session import ReplaySession, find_open_replay
 from observer_app.session_agreement import partner_agreement
 from observer_app.session_clock import Clock, SystemClock
 from observer_app.store import Store
@@ -25,6 +27,7 @@ from observer_app.ui.clock_check import ClockCheck
 from observer_app.ui.end_screen import EndScreen
 from observer_app.ui.observing import ObservingScreen
 from observer_app.ui.overview import StudyOverview
+from observer_app.ui.replay import ReplayScreen
 from observer_app.ui.start_form import StartChoice, StartForm
 from sync.errors import InputError
 
@@ -159,12 +162,28 @@ class MainWindow(QMainWindow):
         form.coder.setFocus()
 
     def start_session(self, choice: StartChoice) -> None:
+        if choice.replay:
+            self.start_replay(choice)
+            return
         self.session = LiveSession.start(self.study, self.store, self.clock, coder=choice.coder, device=choice.device,
                                          paired_start=choice.paired_start, present=choice.present)
         check = ClockCheck(self.session)
         check.set_theme(self.theme)
         check.done.connect(self.show_observing)
         self._show(check)
+
+    def start_replay(self, choice: StartChoice) -> None:
+        open_session = find_open_replay(self.study, self.store, choice.coder)
+        try:
+            replay = (ReplaySession.reopen(self.study, self.store, self.clock, open_session) if open_session else
+                      ReplaySession.start(self.study, self.store, self.clock, coder=choice.coder,
+                                          device=choice.device, learners=choice.present))
+        except InputError as error:
+            self.page.error.setText(error.line())
+            return
+        screen = ReplayScreen(replay, self.theme)
+        screen.ended.connect(lambda _: self.show_overview())
+        self._show(screen)
 
     def resume_session(self, session_id: str) -> None:
         self.session = LiveSession.reopen(self.study, self.store, self.clock, session_id)

@@ -1,4 +1,4 @@
-"""Start-session form: coder, device label, solo or paired (with the shared start), who is present.
+"""Start-session form: coder, device label, solo, paired (with the shared start) or replay, who is present.
 
 Tab moves between fields, Space ticks a learner, Enter starts, Escape goes back.
 The window length is the study's (study.toml); it is shown, not chosen here, so
@@ -20,6 +20,7 @@ from observer_app.study import Study
 from sync.errors import InputError
 
 SOLO, PAIRED = "Solo - I code alone", "Paired - another coder codes the same learners"
+REPLAY = "Replay - code clips of the ticked learners' logs"
 
 
 @dataclass(frozen=True)
@@ -28,6 +29,7 @@ class StartChoice:
     device: str
     paired_start: datetime | None
     present: tuple[str, ...]
+    replay: bool = False  # code replayed log clips of the ticked learners instead of watching live
 
 
 class StartForm(QWidget):
@@ -49,7 +51,7 @@ class StartForm(QWidget):
         self.coder.setPlaceholderText("your coder name or initials")
         self.device = QLineEdit(device or socket.gethostname())
         self.mode = QComboBox()
-        self.mode.addItems([SOLO, PAIRED])
+        self.mode.addItems([SOLO, PAIRED, REPLAY])
         self.shared_start = QComboBox()
         self.shared_start.setEditable(True)
         self.shared_start.setToolTip("Both coders type or pick the same time (study time zone)")
@@ -121,4 +123,5 @@ class StartForm(QWidget):
             return
         self.error.setText("")
         self.started.emit(StartChoice(coder=coder, device=self.device.text().strip() or socket.gethostname(),
-                                      paired_start=paired_start, present=present))
+                                      paired_start=paired_start, present=present,
+                                      replay=self.mode.currentText() == REPLAY))

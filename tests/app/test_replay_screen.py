@@ -1,0 +1,146 @@
+"""The replay screen, driven by the keyboard alone (offscreen Qt)."""
+from __future__ import annotations
+
+import shutil
+import zoneinfo
+from pathlib import Path
+
+import pytest
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QApplication
+
+from demo_sessions import committed_copy
+from observer_app.replay_session import ReplaySession
+from observer_app.session_clock import FakeClock
+from observer_app.store import Store
+from observer_app.study import load_study
+from observer_app.ui.main_window import MainWindow
+from observer_app.ui.replay import ReplayScreen
+
+ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
+
+
+@pytest.fixture
+def demo(tmp_path):
+    """A private copy of the committed demo study (never opened in place)."""
+    return load_study(shutil.copytree(committed_copy(), tmp_path / "study"))
+
+
+@pytest.fixture
+def screen(qtbot, demo):
+    store = Store(demo.store_path)
+    session = ReplaySession.start(demo, store, FakeClock(), coder="rhea", device="laptop-r",
+                                  learners=["L02", "L09"], sample=4, seed=11)
+    widget = ReplayScreen(session)
+    qtbot.addWidget(widget)
+    widget.resize(1280, 860)
+    widget.show()
+    qtbot.waitExposed(widget)
+    widget.setFocus()
+    yield widget
+    store.close()
+
+
+def test_a_whole_replay_coded_with_the_keyboard(qtbot, screen):
+    session = screen.session
+    clips = session.clips
+    first = session.state()
+    assert screen.learner_label.text() == first.label == session.label(str(clips["learner"][0]))
+    assert screen.events_table.rowCount() == clips["events"][0] == len(first.events)
+    for key in "1q":
+        qtbot.keyClick(screen, key)
+    qtbot.keyClick(screen, "2")
+    qtbot.keyClick(screen, Qt.Key.Key_Backspace)  # undo the 2: a retraction row
+    assert "Undone activity" in screen.message_label.text()
+    for key in "3w":
+        qtbot.keyClick(screen, key)
+    qtbot.keyClick(screen, Qt.Key.Key_Return)  # a note for clip 3
+    qtbot.keyClicks(screen.note_edit, "checked the meter twice")
+    qtbot.keyClick(screen.note_edit, Qt.Key.Key_Return)
+    qtbot.keyClick(screen, Qt.Key.Key_F8)  # clip 3: could not observe, both dimensions
+    qtbot.keyClick(screen, Qt.Key.Key_PageDown)  # clip 4 skipped
+    assert session.state().finished and "EVERY CLIP IS DONE" in screen.caption.text()
+    qtbot.keyClick(screen, Qt.Key.Key_F10)
+    with qtbot.waitSignal(screen.ended, timeout=1000):
+        qtbot.keyClick(screen, Qt.Key.Key_F10)
+    store = session.store
+    rows = store.observations(session.study.scheme.dimension_names).set_index("clip")
+    assert rows.loc[clips["clip"][0], ["activity", "affect"]].tolist() == ["on_task", "focused"]
+    assert rows.loc[clips["clip"][1], ["activity", "affect"]].tolist() == ["off_task", "confused"]
+    assert rows.loc[clips["clip"][2], ["activity", "affect"]].tolist() == ["not_visible", "unclear"]
+    assert rows.loc[clips["clip"][2], "note"] == "checked the meter twice"
+    assert bool(rows.loc[clips["clip"][3], "no_code"])
+    log = store.codes_log()
+    retracted = log[log["code"].isna()]
+    assert len(retracted) == 1
+    assert log.loc[log["code_id"] == retracted["supersedes"].iloc[0], "code"].iloc[0] == "task_talk"
+
+
+def test_the_replay_screen_screenshot(qtbot, screen):
+    """Saved to tests/artifacts/ so anyone can look at it (not committed)."""
+    qtbot.keyClick(screen, "1")
+    state = screen.session.state()
+    assert screen.status_label.text().count("still to code: Affect") == 1
+    # The clip's range is shown in the study's zone (zoneinfo, IANA tz database), on the log's clock.
+    zone = zoneinfo.ZoneInfo(screen.session.study.timezone)
+    local_start, local_end = state.start.astimezone(zone), state.end.astimezone(zone)
+    assert f"{local_start:%H:%M:%S} – {local_end:%H:%M:%S}" in screen.range_label.text()
+    assert (state.end - state.start).total_seconds() == screen.session.study.window_seconds
+    ARTIFACTS.mkdir(exist_ok=True)
+    screen.grab().save(str(ARTIFACTS / "replay.png"))
+    qtbot.keyClick(screen, Qt.Key.Key_F1)
+    assert screen.help.isVisible() and "PgDn" in screen.help.text()
+    screen.grab().save(str(ARTIFACTS / "replay_keys.png"))
+
+
+def test_the_start_form_replay_choice_opens_the_replay_screen_and_resumes(qtbot, tmp_path):
+    folder = shutil.copytree(committed_copy(), tmp_path / "study")
+    window = MainWindow(folder, clock=FakeClock(), device="laptop-r")
+    qtbot.addWidget(window)
+    window.show()
+    qtbot.waitExposed(window)
+    window.activateWindow()
+
+    def start_replay() -> ReplayScreen:
+        qtbot.keyClick(window.page, Qt.Key.Key_S)  # overview -> start form
+        form = window.page
+        qtbot.keyClicks(form.coder, "rhea")
+        form.mode.setFocus()
+        qtbot.keyClick(form.mode, Qt.Key.Key_Down)
+        qtbot.keyClick(form.mode, Qt.Key.Key_Down)  # solo -> paired -> replay
+        qtbot.keyClick(QApplication.focusWidget() or form, Qt.Key.Key_Return)
+        assert isinstance(window.page, ReplayScreen)
+        return window.page
+
+    replay = start_replay()
+    assert len(replay.session.clips) > 100  # every learner ticked: every clip with an event
+    for key in "1q2w":
+        qtbot.keyClick(replay, key)
+    assert replay.session.state().position == 2
+    window.close()  # no end row: the replay stays open in the store
+
+    window = MainWindow(folder, clock=FakeClock(), device="laptop-r")
+    qtbot.addWidget(window)
+    window.show()
+    qtbot.waitExposed(window)
+    resumed = start_replay()
+    assert resumed.session.session_id == replay.session.session_id
+    assert resumed.session.state().position == 2 and "Resumed at clip 3" in resumed.message_label.text()
+
+
+def test_a_log_that_cannot_be_read_is_one_line_on_the_start_form(qtbot, tmp_path):
+    from tests.app.conftest import make_study
+
+    folder = make_study(tmp_path / "study")  # declares logs/centre_north.csv, which is not there
+    window = MainWindow(folder, clock=FakeClock(), device="laptop-r")
+    qtbot.addWidget(window)
+    window.show()
+    qtbot.waitExposed(window)
+    qtbot.keyClick(window.page, Qt.Key.Key_S)
+    form = window.page
+    qtbot.keyClicks(form.coder, "rhea")
+    form.mode.setCurrentIndex(2)  # replay
+    qtbot.keyClick(form.coder, Qt.Key.Key_Return)
+    assert window.page is form and "centre_north.csv" in form.error.text() and "\n" not in form.error.text()
+    with Store(load_study(folder).store_path) as store:
+        assert store.sessions().empty  # nothing half-written
