@@ -39,6 +39,19 @@ COMMAND_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
 TICK_MILLISECONDS = 100
 
 
+def key_list_html(scheme, command_keys, closing: str) -> str:
+    """The F1 key list: every code's key by dimension, then the screen's command keys."""
+    codes = []
+    for dimension in scheme.dimensions:
+        codes.append(f"<tr><td colspan='2'><br><b>{_title(dimension.name).upper()}</b></td></tr>")
+        codes += [f"<tr><td><b>{c.key.upper()}</b></td><td>{c.label}</td></tr>" for c in dimension.codes]
+    commands = [f"<tr><td><b>{key}</b></td><td>{what}</td></tr>" for _, key, what, _ in command_keys]
+    return ("<h2>Keys</h2><table width='100%'><tr>"
+            f"<td valign='top' width='45%'><table cellspacing='5'>{''.join(codes)}</table></td>"
+            f"<td valign='top'><table cellspacing='5'><tr><td colspan='2'><br><b>COMMANDS</b></td></tr>"
+            f"{''.join(commands)}</table></td></tr></table><p>{closing}</p>")
+
+
 def _title(name: str) -> str:
     return name.replace("_", " ").capitalize()
 
@@ -360,17 +373,8 @@ class ObservingScreen(QWidget):
         self.time_bar.update()
 
     def _render_help(self) -> None:
-        codes = []
-        for dimension in self.session.study.scheme.dimensions:
-            codes.append(f"<tr><td colspan='2'><br><b>{_title(dimension.name).upper()}</b></td></tr>")
-            codes += [f"<tr><td><b>{c.key.upper()}</b></td><td>{c.label}</td></tr>" for c in dimension.codes]
-        commands = [f"<tr><td><b>{key}</b></td><td>{what}</td></tr>" for _, key, what, _ in COMMAND_KEYS]
-        self.help.setText(
-            "<h2>Keys</h2><table width='100%'><tr>"
-            f"<td valign='top' width='45%'><table cellspacing='5'>{''.join(codes)}</table></td>"
-            f"<td valign='top'><table cellspacing='5'><tr><td colspan='2'><br><b>COMMANDS</b></td></tr>"
-            f"{''.join(commands)}</table></td></tr></table>"
-            "<p>Esc or F1 closes this list. The app makes no sound.</p>")
+        self.help.setText(key_list_html(self.session.study.scheme, COMMAND_KEYS,
+                                        "Esc or F1 closes this list. The app makes no sound."))
 
     def resizeEvent(self, event) -> None:  # noqa: N802
         super().resizeEvent(event)

@@ -16,7 +16,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QHBoxLayout, QHeaderView, QLab
 
 from observer_app.replay_session import ReplaySession
 from observer_app.ui import theme as looks
-from observer_app.ui.observing import DimensionPad, NoteEdit
+from observer_app.ui.observing import DimensionPad, NoteEdit, key_list_html
 from observer_app.ui.theme import Theme
 
 # (Qt key, how the key is written on screen, what it does, the short form for the hint line)
@@ -162,16 +162,7 @@ class ReplayScreen(QWidget):
                                   f"of {state.clips} · {len(events)} events · still to code: {missing}")
 
     def _render_help(self) -> None:
-        codes = []
-        for dimension in self.session.study.scheme.dimensions:
-            codes.append(f"<tr><td colspan='2'><br><b>{_title(dimension.name).upper()}</b></td></tr>")
-            codes += [f"<tr><td><b>{c.key.upper()}</b></td><td>{c.label}</td></tr>" for c in dimension.codes]
-        commands = [f"<tr><td><b>{key}</b></td><td>{what}</td></tr>" for _, key, what, _ in REPLAY_KEYS]
-        self.help.setText(
-            "<h2>Keys</h2><table width='100%'><tr>"
-            f"<td valign='top' width='45%'><table cellspacing='5'>{''.join(codes)}</table></td>"
-            f"<td valign='top'><table cellspacing='5'><tr><td colspan='2'><br><b>COMMANDS</b></td></tr>"
-            f"{''.join(commands)}</table></td></tr></table><p>Esc or F1 closes this list.</p>")
+        self.help.setText(key_list_html(self.session.study.scheme, REPLAY_KEYS, "Esc or F1 closes this list."))
 
     def resizeEvent(self, event) -> None:  # noqa: N802
         super().resizeEvent(event)
