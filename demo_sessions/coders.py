@@ -40,9 +40,9 @@ AFFECT_NOT_SEEN = "unclear"
 # States a coder may mistake each state for (common practice: confusions happen between
 # behaviours that look alike from the back of the room).
 ACTIVITY_NEIGHBOURS = {
-    "on_task": ("task_talk", "rapid_guessing"),
-    "task_talk": ("on_task", "off_task"),
-    "off_task": ("task_talk", "away"),
+    "on_task": ("task_discussion", "rapid_guessing"),
+    "task_discussion": ("on_task", "off_task"),
+    "off_task": ("task_discussion", "away"),
     "rapid_guessing": ("on_task",),
     "away": ("off_task",),
 }

@@ -1,10 +1,10 @@
 """What each apprentice is really doing, second by second: two linked semi-Markov chains.
 
 Apparent affect (focused, confused, frustrated, bored) follows its own chain; activity
-(on_task, task_talk, off_task, rapid_guessing, away; state indices follow
+(on_task, task_discussion, off_task, rapid_guessing, away; state indices follow
 scenario.ACTIVITY_STATES and AFFECT_STATES) follows a chain whose next state
 leans on the current affect: frustration breeds rapid trial and error, boredom breeds
-off-task time and trips away, confusion breeds talk about the task.  Each state lasts a
+off-task time and trips away, confusion breeds discussion of the task.  Each state lasts a
 gamma-distributed number of whole seconds (at least ``MIN_DWELL``), so states persist as
 they do in a room, instead of flickering every second as a plain Markov chain would.
 
@@ -30,9 +30,9 @@ AFFECT_START = np.array([0.7, 0.15, 0.05, 0.1])
 
 # Where a state goes next (rows: from, columns: to; the diagonal is never used).
 ACTIVITY_NEXT = np.array([
-    # on_task task_talk off_task rapid away
+    # on_task task_discussion off_task rapid away
     [0.00, 0.45, 0.25, 0.15, 0.15],   # on_task
-    [0.75, 0.00, 0.20, 0.05, 0.00],   # task_talk
+    [0.75, 0.00, 0.20, 0.05, 0.00],   # task_discussion
     [0.60, 0.15, 0.00, 0.05, 0.20],   # off_task
     [0.70, 0.10, 0.15, 0.00, 0.05],   # rapid_guessing
     [0.75, 0.10, 0.15, 0.00, 0.00],   # away

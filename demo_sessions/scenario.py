@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-ACTIVITY_STATES: tuple[str, ...] = ("on_task", "task_talk", "off_task", "rapid_guessing", "away")
+ACTIVITY_STATES: tuple[str, ...] = ("on_task", "task_discussion", "off_task", "rapid_guessing", "away")
 AFFECT_STATES: tuple[str, ...] = ("focused", "confused", "frustrated", "bored")
 
 

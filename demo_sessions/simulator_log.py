@@ -15,7 +15,7 @@ import pandas as pd
 
 from demo_sessions.latent_states import LatentStates
 
-# Actions per second by activity (on_task, task_talk, off_task, rapid_guessing, away).
+# Actions per second by activity (on_task, task_discussion, off_task, rapid_guessing, away).
 ACTION_RATE = np.array([0.12, 0.03, 0.01, 0.6, 0.0])
 # Multiplier of that rate by affect (focused, confused, frustrated, bored).
 AFFECT_RATE = np.array([1.0, 0.7, 1.1, 0.8])

@@ -16,7 +16,7 @@ from observer_app.store import Store
 from tests.conftest import assert_user_error, call_cli, run_cli
 
 START = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)
-ACTIVITY = ("on_task", "task_talk", "off_task", "rapid_guessing", "away")
+ACTIVITY = ("on_task", "task_discussion", "off_task", "rapid_guessing", "away")
 
 
 @pytest.fixture(scope="module")

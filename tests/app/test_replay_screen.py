@@ -73,7 +73,7 @@ def test_a_whole_replay_coded_with_the_keyboard(qtbot, screen):
     log = store.codes_log()
     retracted = log[log["code"].isna()]
     assert len(retracted) == 1
-    assert log.loc[log["code_id"] == retracted["supersedes"].iloc[0], "code"].iloc[0] == "task_talk"
+    assert log.loc[log["code_id"] == retracted["supersedes"].iloc[0], "code"].iloc[0] == "task_discussion"
 
 
 def test_the_replay_screen_screenshot(qtbot, screen):

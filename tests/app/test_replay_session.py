@@ -100,7 +100,7 @@ def test_coding_writes_clip_bounds_undo_retracts_skip_leaves_a_no_code_row_and_r
     assert by_clip.loc[clips["clip"][3], ["activity", "affect"]].tolist() == ["not_visible", "unclear"]
     retraction = log[log["code"].isna()]
     assert len(retraction) == 1 and retraction["dimension"].iloc[0] == "activity"
-    assert log.loc[log["code_id"] == retraction["supersedes"].iloc[0], "code"].iloc[0] == "task_talk"
+    assert log.loc[log["code_id"] == retraction["supersedes"].iloc[0], "code"].iloc[0] == "task_discussion"
 
     with Store(demo.store_path) as store:
         again = ReplaySession.reopen(demo, store, clock, session.session_id)
@@ -131,8 +131,8 @@ def test_two_coders_replaying_the_same_clips_are_paired_by_clip(demo):
     activity = figures["dimensions"]["activity"]
     assert activity["units"] == 4
     # Reference: scikit-learn's Cohen's kappa on the same four pairs (Cohen 1960).
-    rhea = ["on_task", "on_task", "off_task", "task_talk"]
-    sol = ["on_task", "task_talk", "off_task", "task_talk"]
+    rhea = ["on_task", "on_task", "off_task", "task_discussion"]
+    sol = ["on_task", "task_discussion", "off_task", "task_discussion"]
     assert activity["cohen_kappa"]["value"] == pytest.approx(cohen_kappa_score(rhea, sol), abs=1e-9)
 
 
@@ -144,8 +144,8 @@ def test_undo_into_an_earlier_clip_goes_back_to_it_then_on_to_the_furthest_clip(
         assert session.state().position == 2
         session.undo()  # the 3 of clip 3
         session.undo()  # the w of clip 2: back to clip 2
-        assert session.state().position == 1 and session.state().coded == {"activity": "task_talk"}
+        assert session.state().position == 1 and session.state().coded == {"activity": "task_discussion"}
         session.press("e")  # clip 2 complete again
         assert session.state().position == 2 and session.state().missing == ("activity", "affect")
         current = store.observations(demo.scheme.dimension_names).set_index("clip")
-    assert current.loc[session.clips["clip"][1], ["activity", "affect"]].tolist() == ["task_talk", "frustrated"]
+    assert current.loc[session.clips["clip"][1], ["activity", "affect"]].tolist() == ["task_discussion", "frustrated"]

@@ -130,10 +130,10 @@ def test_log_activity_follows_the_latent_state(demo):
     activity = states[states["dimension"] == "activity"]
     seconds = (activity["end"] - activity["start"]).dt.total_seconds().groupby(activity["state"]).sum()
     rate = events.groupby("state").size().reindex(seconds.index, fill_value=0) / seconds
-    # Intended direction: bursts when guessing, steady work on task, little while talking,
+    # Intended direction: bursts when guessing, steady work on task, little while discussing,
     # almost nothing off task, silence when away.
-    assert rate["rapid_guessing"] > 2 * rate["on_task"] > 2 * rate["task_talk"]
-    assert rate["task_talk"] > rate["off_task"] > rate["away"] == 0
+    assert rate["rapid_guessing"] > 2 * rate["on_task"] > 2 * rate["task_discussion"]
+    assert rate["task_discussion"] > rate["off_task"] > rate["away"] == 0
     attempts = events[events["action"] == "attempt"]
     failure = attempts["outcome"].eq("fail").groupby(attempts["state"]).mean()
     assert failure["rapid_guessing"] > failure["on_task"] + 0.3

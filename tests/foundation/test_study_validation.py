@@ -61,7 +61,7 @@ def test_unknown_key_in_study(study: Path) -> None:
 
 
 def test_duplicate_code_name(study: Path) -> None:
-    replace(study / "scheme.toml", 'name = "task_talk"', 'name = "on_task"')
+    replace(study / "scheme.toml", 'name = "task_discussion"', 'name = "on_task"')
     check(study, "scheme.toml", "activity", "duplicate code name 'on_task'")
 
 

@@ -22,7 +22,7 @@ from agreement.figures import assess_agreement, cluster_numbers, figures_from_ta
 UNITS = 10_000
 LEARNERS = 200
 RESAMPLES = 1000
-CODES = ("on_task", "task_talk", "off_task", "rapid_guessing", "away")
+CODES = ("on_task", "task_discussion", "off_task", "rapid_guessing", "away")
 ACTIVITY = Dimension("activity", "nominal", CODES)
 
 
