@@ -40,8 +40,19 @@ class Alignment:
 
 
 def align_study(study: Study, method: str = "best", manual_offsets: dict[str, float] | None = None,
-                progress: bool = False) -> Alignment:
+                progress: bool = False, logs: tuple[pd.DataFrame, ReadReport] | None = None) -> Alignment:
     """Fit (or take by hand) a clock model per device and record each in the study's store."""
+    alignment = fit_clock_models(study, method, manual_offsets, progress, logs)
+    with Store(study.store_path) as store:
+        at = now_utc()
+        for device, model in alignment.models.items():
+            store.record_clock_model(device, model.to_json(), at)
+    return alignment
+
+
+def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[str, float] | None = None,
+                     progress: bool = False, logs: tuple[pd.DataFrame, ReadReport] | None = None) -> Alignment:
+    """A clock model per device, without recording it; ``logs`` saves a second read of the logs."""
     manual_offsets = manual_offsets or {}
     with Store(study.store_path) as store:
         observations = store.observations(study.scheme.dimension_names)
@@ -54,7 +65,10 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
     if not devices:
         raise InputError(study.store_path, None, "holds no coding sessions yet; import observations first")
     to_fit = [device for device in devices if device not in manual_offsets]
-    events, report = read_study_logs(study) if to_fit else (empty_events(), ReadReport())
+    if not to_fit:
+        events, report = empty_events(), ReadReport()
+    else:
+        events, report = logs if logs is not None else read_study_logs(study)
     log_ids = dict(zip(study.roster["learner"].astype(str), study.roster["log_id"].astype(str)))
     observations = observations.assign(log_id=observations["learner"].astype(str).map(log_ids).fillna(""))
     marks = marks.assign(log_id=marks["learner"].astype(str).map(log_ids).fillna(""))
@@ -73,10 +87,6 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
             models[device] = scan_offset(_observable(live, study), events, list(study.scheme.dimension_names))
         else:
             skipped[device] = "no live observations to scan"
-    with Store(study.store_path) as store:
-        at = now_utc()
-        for device, model in sorted(models.items()):
-            store.record_clock_model(device, model.to_json(), at)
     return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped)
 
 

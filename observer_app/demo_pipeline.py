@@ -61,7 +61,7 @@ from export.labelled_windows import ExportSettings
 from demo_sessions.truth_files import read_truth
 from export.detector_check import check_windows
 from observer_app import demo_report as report
-from observer_app.alignment import align_study, model_summary
+from observer_app.alignment import align_study, fit_clock_models, model_summary, read_study_logs
 from observer_app.reliability_data import study_units
 from observer_app.store import Store
 from observer_app.window_export import export_study
@@ -179,8 +179,9 @@ def step_align(run: DemoRun) -> None:
     last, so its models are the stored ones every later step uses.
     """
     assert run.study is not None
-    automatic = align_study(run.study, "auto").models
-    alignment = align_study(run.study, "best")
+    logs = read_study_logs(run.study)  # read once, used by both fits
+    automatic = fit_clock_models(run.study, "auto", logs=logs).models
+    alignment = align_study(run.study, "best", logs=logs)
     run.clock_models = alignment.models
     rows = []
     for key, models in (("recovered", alignment.models), ("recovered_automatic", automatic)):
