@@ -43,7 +43,7 @@ def key_list_html(scheme, command_keys, closing: str) -> str:
     """The F1 key list: every code's key by dimension, then the screen's command keys."""
     codes = []
     for dimension in scheme.dimensions:
-        codes.append(f"<tr><td colspan='2'><br><b>{_title(dimension.name).upper()}</b></td></tr>")
+        codes.append(f"<tr><td colspan='2'><br><b>{dimension_title(dimension.name).upper()}</b></td></tr>")
         codes += [f"<tr><td><b>{c.key.upper()}</b></td><td>{c.label}</td></tr>" for c in dimension.codes]
     commands = [f"<tr><td><b>{key}</b></td><td>{what}</td></tr>" for _, key, what, _ in command_keys]
     return ("<h2>Keys</h2><table width='100%'><tr>"
@@ -52,7 +52,8 @@ def key_list_html(scheme, command_keys, closing: str) -> str:
             f"{''.join(commands)}</table></td></tr></table><p>{closing}</p>")
 
 
-def _title(name: str) -> str:
+def dimension_title(name: str) -> str:
+    """A dimension or code name as the screen writes it: 'rapid_guessing' -> 'Rapid guessing'."""
     return name.replace("_", " ").capitalize()
 
 
@@ -155,7 +156,7 @@ class DimensionPad(QFrame):
         layout.setContentsMargins(14, 10, 14, 12)
         layout.setSpacing(4)
         header = QHBoxLayout()
-        self.title = QLabel(_title(dimension.name).upper())
+        self.title = QLabel(dimension_title(dimension.name).upper())
         self.state = QLabel("")
         self.state.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         self.title.setSizePolicy(QSizePolicy.Policy.Minimum, QSizePolicy.Policy.Preferred)
@@ -216,7 +217,34 @@ class PresenceList(QListWidget):
             super().keyPressEvent(event)
 
 
-class ObservingScreen(QWidget):
+class CodingKeysMixin:
+    """What both coding screens (live and replay) do the same way with pads, notes and F10.
+
+    The screen provides ``session``, ``note_edit``, ``message_label`` and ``_confirm_end``.
+    """
+
+    def _clicked(self, dimension: str, code: str) -> None:
+        self.session.code(dimension, code)
+        self.setFocus()
+
+    def _save_note(self) -> None:
+        self.session.note(self.note_edit.text())
+        self._close_note()
+
+    def _close_note(self) -> None:
+        self.note_edit.hide()
+        self.setFocus()
+
+    def _confirmed_end(self) -> bool:
+        """F10 pressed: True on the second press in a row, else ask for it."""
+        if self._confirm_end:
+            return True
+        self._confirm_end = True
+        self.message_label.setText("Press F10 again to end the session; any other key keeps it going.")
+        return False
+
+
+class ObservingScreen(CodingKeysMixin, QWidget):
     """The screen a coder watches during a live session."""
 
     ended = Signal(object)  # the SessionSummary, once the end row is written
@@ -357,7 +385,7 @@ class ObservingScreen(QWidget):
         if state.error:
             self.message_label.setText(state.error)
         last = "-" if state.last_saved_at is None else f"{state.last_saved_at.astimezone(self._zone):%H:%M:%S}"
-        missing = ", ".join(_title(d) for d in state.missing) or "nothing"
+        missing = ", ".join(dimension_title(d) for d in state.missing) or "nothing"
         absent = f" · absent: {', '.join(self.session.label(a) for a in state.absent)}" if state.absent else ""
         self.status_label.setText(f"Saved: <b>{state.saved_count}</b> · last save {last} · "
                                   f"slot {state.slot + 1} · still to code: {missing}{absent}")
@@ -421,25 +449,10 @@ class ObservingScreen(QWidget):
         elif not (event.text() and session.press(event.text())):
             super().keyPressEvent(event)
 
-    def _clicked(self, dimension: str, code: str) -> None:
-        self.session.code(dimension, code)
-        self.setFocus()
-
     def _end_pressed(self) -> None:
-        if self._confirm_end:
+        if self._confirmed_end():
             self.timer.stop()
             self.ended.emit(self.session.end())
-            return
-        self._confirm_end = True
-        self.message_label.setText("Press F10 again to end the session; any other key keeps it going.")
-
-    def _save_note(self) -> None:
-        self.session.note(self.note_edit.text())
-        self._close_note()
-
-    def _close_note(self) -> None:
-        self.note_edit.hide()
-        self.setFocus()
 
     def _open_presence(self) -> None:
         self.presence.clear()

@@ -16,7 +16,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QHBoxLayout, QHeaderView, QLab
 
 from observer_app.replay_session import ReplaySession
 from observer_app.ui import theme as looks
-from observer_app.ui.observing import DimensionPad, NoteEdit, key_list_html
+from observer_app.ui.observing import CodingKeysMixin, DimensionPad, NoteEdit, dimension_title, key_list_html
 from observer_app.ui.theme import Theme
 
 # (Qt key, how the key is written on screen, what it does, the short form for the hint line)
@@ -31,11 +31,7 @@ REPLAY_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
 EVENT_HEADERS = ("Seconds into clip", "Action", "Outcome", "Item")
 
 
-def _title(name: str) -> str:
-    return name.replace("_", " ").capitalize()
-
-
-class ReplayScreen(QWidget):
+class ReplayScreen(CodingKeysMixin, QWidget):
     """The screen a coder codes replayed log clips on."""
 
     ended = Signal(str)  # the session id, once the end row is written
@@ -157,7 +153,7 @@ class ReplayScreen(QWidget):
         colour = theme.warning if state.error else theme.text
         self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt; color: {colour};")
         self.message_label.setText(state.error or state.message)
-        missing = ", ".join(_title(d) for d in state.missing) or "nothing"
+        missing = ", ".join(dimension_title(d) for d in state.missing) or "nothing"
         self.status_label.setText(f"Saved: <b>{state.saved_count}</b> · clip {min(state.position + 1, state.clips)} "
                                   f"of {state.clips} · {len(events)} events · still to code: {missing}")
 
@@ -197,22 +193,7 @@ class ReplayScreen(QWidget):
         elif not (event.text() and session.press(event.text())):
             super().keyPressEvent(event)
 
-    def _clicked(self, dimension: str, code: str) -> None:
-        self.session.code(dimension, code)
-        self.setFocus()
-
     def _end_pressed(self) -> None:
-        if self._confirm_end:
+        if self._confirmed_end():
             self.session.end()
             self.ended.emit(self.session.session_id)
-            return
-        self._confirm_end = True
-        self.message_label.setText("Press F10 again to end the session; any other key keeps it going.")
-
-    def _save_note(self) -> None:
-        self.session.note(self.note_edit.text())
-        self._close_note()
-
-    def _close_note(self) -> None:
-        self.note_edit.hide()
-        self.setFocus()
