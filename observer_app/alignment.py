@@ -99,12 +99,18 @@ def _observable(observations: pd.DataFrame, study: Study) -> pd.DataFrame:
     return observations
 
 
-def read_study_logs(study: Study) -> tuple[pd.DataFrame, ReadReport]:
-    """The study's [[logs]] as one EVENTS table (sync/tables.py), learners checked against the roster."""
+NO_LOGS_FOR_ALIGN = ("no logs declared; add a [[logs]] entry, "
+                     "or give every device's offset with --set-offset DEVICE=SECONDS")
+
+
+def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN) -> tuple[pd.DataFrame, ReadReport]:
+    """The study's [[logs]] as one EVENTS table (sync/tables.py), learners checked against the roster.
+
+    ``if_missing`` is what to tell the user when study.toml declares no logs.
+    """
     if not study.logs:
-        raise InputError(study.dir / "study.toml", "[[logs]]", "no logs declared; add a [[logs]] entry, "
-                         "or give every device's offset with --set-offset DEVICE=SECONDS")
-    return read_logs(study.logs, known_log_ids=study.roster["log_id"].astype(str))
+        raise InputError(study.dir / "study.toml", "[[logs]]", if_missing)
+    return read_logs(study.logs, known_log_ids=study.roster["log_id"].dropna().astype(str))
 
 
 def stored_clock_models(study: Study) -> dict[str, ClockModel]:

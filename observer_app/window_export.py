@@ -20,11 +20,11 @@ from export.pseudonyms import read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
+from observer_app.alignment import read_study_logs, stored_clock_models
 from observer_app.store import Store
 from observer_app.study import ROSTER_FILE, SCHEME_FILE, load_study
 from sync.clock import ClockModel
 from sync.errors import InputError
-from sync.logs import read_logs
 from sync.windows import observations_to_windows
 
 CLOCK_SUMMARY_KEYS = ("device", "method", "offset_s", "drift_ppm", "reference_ns", "marks_used",
@@ -62,19 +62,16 @@ def export_study(
         with Store(study.store_path) as store:
             observations = store.observations(dimensions)
             adjudications = store.adjudications()
-            stored_models = store.clock_models()
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
-        if not study.logs:
-            raise InputError(study.dir / "study.toml", "logs", "no [[logs]] entries; export needs the learning logs")
-        events, read_report = read_logs(study.logs, study.roster["log_id"].dropna().astype(str))
+        events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs")
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
-        models = {str(row.device): ClockModel.from_json(row.model_json) for row in stored_models.itertuples()}
+        models = stored_clock_models(study)
         try:
             windows = observations_to_windows(observations, models, study.roster, window.anchor, window.before_s,
                                               window.after_s)
