@@ -35,16 +35,18 @@ def manifest_path(path: Path) -> Path:
     return Path(path).with_suffix(".manifest.json")
 
 
+def file_sha256(path: Path) -> str:
+    """Hex SHA-256 of a file's bytes, read in 1 MiB blocks (logs can be large)."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
 def file_digests(paths: Iterable[Path], names: Iterable[str]) -> dict[str, str]:
-    """name -> "sha256:<hex>" of each file's bytes, read in 1 MiB blocks."""
-    digests = {}
-    for path, name in zip(paths, names, strict=True):
-        digest = hashlib.sha256()
-        with open(path, "rb") as handle:
-            for block in iter(lambda: handle.read(1 << 20), b""):
-                digest.update(block)
-        digests[name] = "sha256:" + digest.hexdigest()
-    return digests
+    """name -> "sha256:<hex>" of each file's bytes."""
+    return {name: "sha256:" + file_sha256(path) for path, name in zip(paths, names, strict=True)}
 
 
 def build_manifest(
@@ -147,6 +149,12 @@ def load_windows(path: Path, dimension: str | None = None) -> tuple[pd.DataFrame
     ``dimension`` defaults to the first label column.  Rows without a label for it are left out.
     """
     table, manifest = read_windows(path)
+    return windows_xy(table, manifest, path, dimension)
+
+
+def windows_xy(table: pd.DataFrame, manifest: dict, path: Path,
+               dimension: str | None = None) -> tuple[pd.DataFrame, pd.Series, pd.Series]:
+    """``load_windows`` on a table already read, so several dimensions share one read."""
     labels = manifest["label_columns"]
     dimension = labels[0] if dimension is None else dimension
     if dimension not in labels:

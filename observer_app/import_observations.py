@@ -8,7 +8,6 @@ content (coder, device, learner, time), so importing a file twice adds nothing.
 """
 from __future__ import annotations
 
-import hashlib
 import sqlite3
 import uuid
 from dataclasses import dataclass, field
@@ -16,6 +15,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from export.writer import file_sha256
 from observer_app.scheme import Scheme
 from observer_app.store import SCHEMA_VERSION, Store, now_utc
 from observer_app.study import Study
@@ -34,14 +34,6 @@ class ImportResult:
     added: dict[str, int] = field(default_factory=dict)
     skipped: list[str] = field(default_factory=list)
     already_imported: bool = False
-
-
-def file_hash(path: Path) -> str:
-    digest = hashlib.sha256()
-    with path.open("rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
 
 
 def import_file(study: Study, store: Store, path: Path, *, skip_bad: bool = False) -> ImportResult:
@@ -96,7 +88,7 @@ def _code_problem(scheme: Scheme, dimension: str, code: str) -> str | None:
 
 # -- CSV --------------------------------------------------------------------------
 def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> ImportResult:
-    content_hash = file_hash(path)
+    content_hash = file_sha256(path)
     try:
         frame = pd.read_csv(path, dtype="string", keep_default_na=False, skipinitialspace=True)
     except pd.errors.EmptyDataError:

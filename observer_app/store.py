@@ -325,10 +325,6 @@ class Store:
             cursor.execute("INSERT INTO clock_models VALUES (?,?,?,?)", (model_id, device, model_json, to_ns(at)))
         return model_id
 
-    def has_import(self, content_hash: str) -> bool:
-        row = self._connection.execute("SELECT 1 FROM imports WHERE content_hash = ?", (content_hash,)).fetchone()
-        return row is not None
-
     def record_import(self, content_hash: str, source: str, at: datetime) -> None:
         with self._transaction() as cursor:
             cursor.execute("INSERT OR IGNORE INTO imports VALUES (?,?,?)", (content_hash, source, to_ns(at)))
