@@ -26,7 +26,7 @@ from sklearn.model_selection import StratifiedGroupKFold
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from export.writer import load_windows, read_manifest
+from export.writer import read_windows, windows_xy
 from sync.errors import InputError
 
 DEFAULT_FOLDS = 5
@@ -125,10 +125,10 @@ def check_dimension(
 
 def check_windows(path: Path, dimensions: list[str] | None = None, folds: int = DEFAULT_FOLDS, seed: int = 0) -> list[DimensionCheck]:
     """Check every (or the named) dimension of an exported windows file."""
-    manifest = read_manifest(path)
+    table, manifest = read_windows(path)  # one read for every dimension
     results = []
     for dimension in dimensions or manifest["label_columns"]:
-        features, labels, groups = load_windows(path, dimension)
+        features, labels, groups = windows_xy(table, manifest, path, dimension)
         if groups.nunique() < 2:
             raise InputError(path, dimension, "needs labelled windows of at least two learners for grouped folds")
         results.append(check_dimension(features, labels, groups, dimension, folds, seed))
