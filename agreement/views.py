@@ -11,6 +11,7 @@ from agreement import coefficients
 from agreement.count_tables import count_tables
 from agreement.dimensions import Dimension
 from agreement.figures import Agreement, Estimate, assess_agreement
+from agreement.tables import ROLLING_COLUMNS
 
 # Common practice: kappa of at least 0.6 (Landis & Koch's "substantial" starts above
 # it) on at least 50 paired observations before a coder's codes are used.
@@ -73,7 +74,7 @@ def rolling_kappa(units: pd.DataFrame, dimension: Dimension, window: int = ROLLI
     contingency = contingency[paired]
     times = first_time.loc[order.index].to_numpy()[paired]
     if len(contingency) == 0:
-        return pd.DataFrame({"position": [], "time": [], "units": [], "kappa": []})
+        return pd.DataFrame({column: [] for column in ROLLING_COLUMNS})
     size = min(window, len(contingency))
     running = np.cumsum(contingency, axis=0)
     windows = running[size - 1:] - np.concatenate([np.zeros((1,) + running.shape[1:]), running[:-size]])

@@ -128,7 +128,7 @@ def _coarse_model(device_ns: np.ndarray, learners: np.ndarray, blocks: dict[str,
         pair_votes = votes[:-1] + votes[1:]
         top = int(np.argmax(pair_votes))
         if pair_votes[top] > best[0]:
-            best = (int(pair_votes[top]), float((top - 1 + 1) * VOTE_BIN_S - SEARCH_RANGE_S), float(drift))
+            best = (int(pair_votes[top]), float(top * VOTE_BIN_S - SEARCH_RANGE_S), float(drift))
     return best[1], best[2], reference
 
 

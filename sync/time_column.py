@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from sync.clock import NAT
 from sync.errors import InputError
 from sync.local_time import LocalTimeCounts, local_to_utc_ns
 
@@ -43,7 +44,7 @@ def parse_time_column(values: pd.Series, time_format: str, timezone: str | None,
         result, counts = _epoch_ns(values.to_numpy(dtype=np.float64, na_value=np.nan), time_format), LocalTimeCounts()
     else:
         result, counts = _parse_text(values.astype("str"), time_format, timezone, file, column)
-    missing = result == np.iinfo(np.int64).min
+    missing = result == NAT
     if missing.any():
         _raise_bad_rows(values, missing, rows, file, column, row_word)
     return result, counts
@@ -64,7 +65,7 @@ def _epoch_ns(numbers: np.ndarray, time_format: str) -> np.ndarray:
         scale = 1e6 if in_ms else 1e9
     else:
         scale = 1e6 if time_format == "epoch_ms" else 1e9
-    result = np.full(numbers.shape, np.iinfo(np.int64).min, dtype=np.int64)
+    result = np.full(numbers.shape, NAT, dtype=np.int64)
     finite = np.isfinite(numbers)
     result[finite] = np.round(numbers[finite] * scale).astype(np.int64)
     return result
@@ -79,7 +80,7 @@ def _parse_text(text: pd.Series, time_format: str, timezone: str | None, file: s
     ):
         numbers = pd.to_numeric(text.where(present), errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
         return _epoch_ns(numbers, time_format), LocalTimeCounts()
-    result = np.full(len(text), np.iinfo(np.int64).min, dtype=np.int64)
+    result = np.full(len(text), NAT, dtype=np.int64)
     has_offset = (text.str.contains(_OFFSET_PATTERN, regex=True) & present).to_numpy(dtype=bool)
     if has_offset.any():
         aware = pd.to_datetime(text[has_offset], format="ISO8601", utc=True, errors="coerce")
@@ -88,7 +89,7 @@ def _parse_text(text: pd.Series, time_format: str, timezone: str | None, file: s
     counts = LocalTimeCounts()
     if naive_rows.any():
         naive = pd.to_datetime(text[naive_rows], format="ISO8601", errors="coerce").dt.as_unit("ns").array.asi8
-        parsed = naive != np.iinfo(np.int64).min
+        parsed = naive != NAT
         if parsed.any():
             utc, counts = local_to_utc_ns(naive, _require_timezone(timezone, file, column))
             naive = np.where(parsed, utc, naive)
