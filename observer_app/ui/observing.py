@@ -220,8 +220,36 @@ class PresenceList(QListWidget):
 class CodingKeysMixin:
     """What both coding screens (live and replay) do the same way with pads, notes and F10.
 
-    The screen provides ``session``, ``note_edit``, ``message_label`` and ``_confirm_end``.
+    The screen provides ``session``, ``help``, ``note_edit``, ``message_label``, ``_confirm_end``
+    and ``_end_pressed``.
     """
+
+    def _handled_common_key(self, event: QKeyEvent) -> bool:
+        """Keys both screens share (auto-repeat, F1, Backspace, Enter, F8, F10); True when handled."""
+        key = event.key()
+        if event.isAutoRepeat():
+            return True
+        if self.help.isVisible() and key in (Qt.Key.Key_Escape, Qt.Key.Key_F1):
+            self.help.hide()
+            return True
+        if key != Qt.Key.Key_F10:
+            self._confirm_end = False
+        if key == Qt.Key.Key_F1:
+            self.help.raise_()
+            self.help.show()
+        elif key == Qt.Key.Key_Backspace:
+            self.session.undo()
+        elif key in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
+            self.note_edit.clear()
+            self.note_edit.show()
+            self.note_edit.setFocus()
+        elif key == Qt.Key.Key_F8:
+            self.session.code_remaining_not_observed()
+        elif key == Qt.Key.Key_F10:
+            self._end_pressed()
+        else:
+            return False
+        return True
 
     def _clicked(self, dimension: str, code: str) -> None:
         self.session.code(dimension, code)
@@ -417,36 +445,17 @@ class ObservingScreen(CodingKeysMixin, QWidget):
     # -- input -------------------------------------------------------------------------
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
         key = event.key()
-        if event.isAutoRepeat():
+        if self._handled_common_key(event):
             return
-        if self.help.isVisible() and key in (Qt.Key.Key_Escape, Qt.Key.Key_F1):
-            self.help.hide()
-            return
-        if key != Qt.Key.Key_F10:
-            self._confirm_end = False
-        session = self.session
-        if key == Qt.Key.Key_F1:
-            self.help.raise_()
-            self.help.show()
-        elif key == Qt.Key.Key_Space:
-            session.toggle_pause()
-        elif key == Qt.Key.Key_Backspace:
-            session.undo()
-        elif key in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
-            self.note_edit.clear()
-            self.note_edit.show()
-            self.note_edit.setFocus()
+        if key == Qt.Key.Key_Space:
+            self.session.toggle_pause()
         elif key == Qt.Key.Key_F3:
-            session.mark_absent()
+            self.session.mark_absent()
         elif key == Qt.Key.Key_F4:
             self._open_presence()
         elif key == Qt.Key.Key_F5:
-            session.sync_mark()
-        elif key == Qt.Key.Key_F8:
-            session.code_remaining_not_observed()
-        elif key == Qt.Key.Key_F10:
-            self._end_pressed()
-        elif not (event.text() and session.press(event.text())):
+            self.session.sync_mark()
+        elif not (event.text() and self.session.press(event.text())):
             super().keyPressEvent(event)
 
     def _end_pressed(self) -> None:

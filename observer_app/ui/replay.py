@@ -166,31 +166,11 @@ class ReplayScreen(CodingKeysMixin, QWidget):
 
     # -- input -------------------------------------------------------------------------
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
-        key = event.key()
-        if event.isAutoRepeat():
+        if self._handled_common_key(event):
             return
-        if self.help.isVisible() and key in (Qt.Key.Key_Escape, Qt.Key.Key_F1):
-            self.help.hide()
-            return
-        if key != Qt.Key.Key_F10:
-            self._confirm_end = False
-        session = self.session
-        if key == Qt.Key.Key_F1:
-            self.help.raise_()
-            self.help.show()
-        elif key == Qt.Key.Key_Backspace:
-            session.undo()
-        elif key == Qt.Key.Key_PageDown:
-            session.skip()
-        elif key in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
-            self.note_edit.clear()
-            self.note_edit.show()
-            self.note_edit.setFocus()
-        elif key == Qt.Key.Key_F8:
-            session.code_remaining_not_observed()
-        elif key == Qt.Key.Key_F10:
-            self._end_pressed()
-        elif not (event.text() and session.press(event.text())):
+        if event.key() == Qt.Key.Key_PageDown:
+            self.session.skip()
+        elif not (event.text() and self.session.press(event.text())):
             super().keyPressEvent(event)
 
     def _end_pressed(self) -> None:
