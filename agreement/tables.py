@@ -1,6 +1,6 @@
 """Column contracts of the tables agreement/ produces and consumes.  One place, on purpose.
 
-Input: the OBSERVATIONS table documented in observer_app/tables.py (one column per
+Input: the OBSERVATIONS table documented in observer_app/study/tables.py (one column per
 scheme dimension holding code names, NA when not coded), or a long-format CSV read
 by ``agreement.long_format.read_long_csv``.
 

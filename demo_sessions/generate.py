@@ -31,8 +31,8 @@ from demo_sessions.scenario import ACTIVITY_STATES, AFFECT_STATES, SIZES, Scenar
 from demo_sessions.simulator_log import simulate_log
 from demo_sessions.study_writer import import_devices, write_device_store, write_study_files
 from demo_sessions.truth_files import TRUTH_JSON, TRUTH_STATES, TRUTH_WINDOWS, write_truth
-from observer_app.scheme import load_scheme
-from observer_app.study import SCHEME_FILE
+from observer_app.study.scheme import load_scheme
+from observer_app.study.folder import SCHEME_FILE
 from sync.errors import InputError
 
 STUDY_DIR = "study"

@@ -19,9 +19,9 @@ import pandas as pd
 from demo_sessions.coders import CodingRecord
 from demo_sessions.log_files import NORTH_COLUMNS
 from demo_sessions.scenario import Scenario
-from observer_app.import_observations import import_file
-from observer_app.store import Store
-from observer_app.study import KEY_FILE, ROSTER_FILE, SCHEME_FILE, STORE_FILE, STUDY_FILE, load_study
+from observer_app.study.importing import import_file
+from observer_app.study.store import Store
+from observer_app.study.folder import KEY_FILE, ROSTER_FILE, SCHEME_FILE, STORE_FILE, STUDY_FILE, load_study
 
 DIMENSIONS = ("activity", "affect")
 
@@ -52,7 +52,7 @@ def write_study_files(directory: Path, scenario: Scenario, seed: int, roster: pd
     """Everything in the study folder except the logs and the store."""
     (directory / "logs").mkdir(parents=True)
     (directory / STUDY_FILE).write_text(study_toml(scenario, seed), encoding="utf-8")
-    scheme = resources.files("observer_app.templates").joinpath(SCHEME_FILE).read_text(encoding="utf-8")
+    scheme = resources.files("observer_app.study.templates").joinpath(SCHEME_FILE).read_text(encoding="utf-8")
     (directory / SCHEME_FILE).write_text(scheme, encoding="utf-8")
     roster.to_csv(directory / ROSTER_FILE, index=False, lineterminator="\n")
     descriptor = os.open(directory / KEY_FILE, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)

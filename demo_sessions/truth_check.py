@@ -11,7 +11,7 @@ from __future__ import annotations
 import pandas as pd
 from sklearn.metrics import cohen_kappa_score
 
-from observer_app.scheme import Scheme
+from observer_app.study.scheme import Scheme
 
 
 def coder_vs_truth(observations: pd.DataFrame, truth: pd.DataFrame, scheme: Scheme) -> dict[str, dict[str, dict]]:

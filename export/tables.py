@@ -5,13 +5,13 @@ INPUT -- what the caller hands in:
              ``time_ns`` UTC ns on the log's clock.  Sorted by (learner, time_ns) is
              expected; unsorted input is sorted once.
     WINDOWS  (sync/tables.py) one row per observation: the OBSERVATIONS columns
-             (observer_app/tables.py; one column per scheme dimension holding the code
+             (observer_app/study/tables.py; one column per scheme dimension holding the code
              name) plus ``log_id``, ``start_ns`` (inclusive), ``end_ns`` (exclusive),
              ``coded_ns``; optionally
     unit     string   agreement's pairing: observations with the same unit are different
                       coders' codes of the same window.  Absent -> each observation is
                       its own unit.
-    ADJUDICATIONS (observer_app/tables.py) unit, dimension, code, at ... ; the newest per
+    ADJUDICATIONS (observer_app/study/tables.py) unit, dimension, code, at ... ; the newest per
              (unit, dimension) wins.
     ROSTER   learner, label, log_id, then attribute columns (site, cohort ...).  ``label``
              and ``log_id`` are never exported.

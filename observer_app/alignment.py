@@ -17,8 +17,8 @@ from dataclasses import dataclass, field
 import pandas as pd
 from tqdm import tqdm
 
-from observer_app.store import Store, now_utc
-from observer_app.study import Study
+from observer_app.study.store import Store, now_utc
+from observer_app.study.folder import Study
 from sync.clock import ClockModel, manual_model
 from sync.clock_marks import fit_from_marks
 from sync.clock_scan import scan_offset

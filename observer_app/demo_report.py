@@ -13,7 +13,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 import pandas as pd  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 
-from observer_app.scheme import Dimension  # noqa: E402
+from observer_app.study.scheme import Dimension  # noqa: E402
 
 STYLE = """
 body { font-family: system-ui, sans-serif; max-width: 1100px; margin: 2em auto; color: #222; }

@@ -46,9 +46,9 @@ import pandas as pd
 
 from observer_app.schedule import RoundRobin, Turn
 from observer_app.session_clock import Clock
-from observer_app.store import Store, new_id
-from observer_app.study import Study
-from observer_app.study_overview import code_counts, window_counts
+from observer_app.study.store import Store, new_id
+from observer_app.study.folder import Study
+from observer_app.study.counts import code_counts, window_counts
 
 CHANGED = "changed"  # anything a listener should redraw
 TICK = "tick"  # only the time moved

@@ -15,9 +15,9 @@ import pandas as pd
 from agreement.dimensions import Dimension
 from agreement.pairing import pair_observations
 from observer_app.alignment import stored_clock_models
-from observer_app.scheme import Scheme
-from observer_app.store import Store
-from observer_app.study import Study, load_study
+from observer_app.study.scheme import Scheme
+from observer_app.study.store import Store
+from observer_app.study.folder import Study, load_study
 from sync.clock import ClockModel
 from sync.time_column import datetime_column_ns
 

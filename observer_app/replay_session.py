@@ -39,8 +39,8 @@ import pandas as pd
 
 from observer_app.alignment import read_study_logs
 from observer_app.session_clock import Clock
-from observer_app.store import Store, new_id
-from observer_app.study import Study
+from observer_app.study.store import Store, new_id
+from observer_app.study.folder import Study
 
 CHANGED = "changed"
 ALL_CLIPS = "time"

@@ -13,8 +13,8 @@ import pandas as pd
 
 from agreement.figures import Estimate, assess_agreement, headline_kappa
 from observer_app.reliability_data import study_units
-from observer_app.store import Store
-from observer_app.study import Study
+from observer_app.study.store import Store
+from observer_app.study.folder import Study
 
 END_SCREEN_RESAMPLES = 200  # enough for a first look; `fieldmark agree` gives the full report
 

@@ -1,6 +1,6 @@
 """Exporting a study's labelled windows: the glue behind `fieldmark export` and the demo.
 
-The study (observer_app.study), the store, the logs (sync.read_logs), the clock models
+The study (observer_app.study.folder), the store, the logs (sync.read_logs), the clock models
 and windows on the log's clock (sync.windows), the pairing of coders into units
 (agreement.pairing), then export/ for features, labels, pseudonyms and the file.  Each
 of those decides its own part; this module only passes the tables along.
@@ -21,8 +21,8 @@ from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
 from observer_app.alignment import read_study_logs, stored_clock_models
-from observer_app.store import Store
-from observer_app.study import ROSTER_FILE, SCHEME_FILE, load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
 from sync.clock import ClockModel
 from sync.errors import InputError
 from sync.windows import observations_to_windows

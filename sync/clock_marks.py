@@ -36,7 +36,7 @@ ROUNDS = 3
 def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame) -> ClockModel:
     """Clock model for ONE device from its sync marks and the EVENTS table.
 
-    ``marks`` has the SYNC MARKS columns (observer_app/tables.py: mark_id, device,
+    ``marks`` has the SYNC MARKS columns (observer_app/study/tables.py: mark_id, device,
     marked_at ...) plus ``log_id``, the marked learner's id in the log (the caller maps
     roster learner -> log_id).  Marks without a log_id, or whose learner has no events,
     are reported in the warnings and not used.  Raises ValueError when no mark is usable.

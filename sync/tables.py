@@ -22,14 +22,14 @@ CLOCK MODEL -- ``sync.clock.ClockModel`` (a dataclass), one per device:
   JSON text of ``ClockModel.to_json()``.
 
 SYNC MARKS for ``sync.clock_marks.fit_from_marks`` -- the store's SYNC MARKS columns
-  (observer_app/tables.py) plus
+  (observer_app/study/tables.py) plus
     log_id      string  roster.log_id of the marked learner ("" when none)
 
 OBSERVATIONS for ``sync.clock_scan.scan_offset`` -- the store's OBSERVATIONS columns
   (at least device, window_start, window_end and the dimensions) plus log_id as above.
 
 WINDOWS -- one row per observation, what export consumes (``sync.windows``):
-    every column of the observations table (observer_app/tables.py) plus
+    every column of the observations table (observer_app/study/tables.py) plus
     log_id      string  roster.log_id of the observed learner ("" when not in the roster)
     start_ns    int64   window start, UTC ns on the log's clock (inclusive)
     end_ns      int64   window end,   UTC ns on the log's clock (exclusive)

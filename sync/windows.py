@@ -27,7 +27,7 @@ def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, 
                             after_s: float | None = None) -> pd.DataFrame:
     """Every observation with log_id, start_ns, end_ns, coded_ns on the log's clock.
 
-    ``observations`` has the OBSERVATIONS columns (observer_app/tables.py); ``roster``
+    ``observations`` has the OBSERVATIONS columns (observer_app/study/tables.py); ``roster``
     the columns learner and log_id.  Devices without a model are mapped with the identity
     model.  Rows without window_start/window_end are left out.  What was assumed or left
     out is listed in ``result.attrs["warnings"]``.  Raises ValueError for an unknown

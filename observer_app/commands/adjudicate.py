@@ -16,7 +16,7 @@ import pandas as pd
 
 from agreement.disagreements import read_adjudications
 from observer_app.reliability_data import load_study_units
-from observer_app.store import Store
+from observer_app.study.store import Store
 from sync.errors import InputError
 
 

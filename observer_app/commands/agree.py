@@ -28,7 +28,7 @@ from agreement.views import (
     units_of_coders,
 )
 from observer_app.reliability_data import load_study_units
-from observer_app.store import Store
+from observer_app.study.store import Store
 from sync.errors import InputError
 
 

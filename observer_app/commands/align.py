@@ -7,7 +7,7 @@ import math
 import sys
 
 from observer_app.alignment import METHODS, align_study, model_summary
-from observer_app.study import load_study
+from observer_app.study.folder import load_study
 from sync.errors import InputError
 
 

@@ -9,7 +9,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from observer_app.study import load_study
+from observer_app.study.folder import load_study
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:

@@ -5,9 +5,9 @@ import argparse
 import json
 from pathlib import Path
 
-from observer_app.import_observations import import_file
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.importing import import_file
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:

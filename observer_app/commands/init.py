@@ -4,8 +4,8 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from observer_app.study import load_study
-from observer_app.study_folder import create_study
+from observer_app.study.folder import load_study
+from observer_app.study.creation import create_study
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:

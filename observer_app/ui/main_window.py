@@ -18,9 +18,9 @@ from observer_app.live_session import LiveSession, SessionSummary
 from observer_app.replay_session import ReplaySession, find_open_replay
 from observer_app.session_agreement import partner_agreement
 from observer_app.session_clock import Clock, SystemClock
-from observer_app.store import Store
-from observer_app.study import Study, load_study
-from observer_app.study_folder import create_study
+from observer_app.study.store import Store
+from observer_app.study.folder import Study, load_study
+from observer_app.study.creation import create_study
 from observer_app.ui import theme as looks
 from observer_app.ui.cautions import cautions_html
 from observer_app.ui.clock_check import ClockCheck

@@ -14,9 +14,9 @@ from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QFrame, QGrid
                                QSizePolicy, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from observer_app.live_session import InterruptedSession, find_interrupted_session
-from observer_app.store import Store
-from observer_app.study import Study
-from observer_app.study_overview import code_counts, session_table, window_counts
+from observer_app.study.store import Store
+from observer_app.study.folder import Study
+from observer_app.study.counts import code_counts, session_table, window_counts
 from observer_app.ui.cautions import cautions_html
 
 

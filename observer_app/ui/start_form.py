@@ -16,7 +16,7 @@ from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QListWi
 
 from observer_app.session_clock import Clock
 from observer_app.shared_start import parse_shared_start, suggested_start_times
-from observer_app.study import Study
+from observer_app.study.folder import Study
 from sync.errors import InputError
 
 SOLO, PAIRED = "Solo - I code alone", "Paired - another coder codes the same learners"

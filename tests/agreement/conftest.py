@@ -1,4 +1,4 @@
-"""Builders of OBSERVATIONS tables (observer_app/tables.py) for agreement tests."""
+"""Builders of OBSERVATIONS tables (observer_app/study/tables.py) for agreement tests."""
 from __future__ import annotations
 
 import pandas as pd

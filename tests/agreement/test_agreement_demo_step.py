@@ -5,8 +5,8 @@ import pytest
 from sklearn.metrics import cohen_kappa_score
 
 from observer_app.demo_pipeline import run_demo
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 
 
 def test_demo_agree_step_matches_scikit_learn(tmp_path):

@@ -12,7 +12,7 @@ import pandas as pd
 import pytest
 from sklearn.metrics import cohen_kappa_score
 
-from observer_app.store import Store
+from observer_app.study.store import Store
 from tests.conftest import assert_user_error, call_cli, run_cli
 
 START = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)

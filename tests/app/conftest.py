@@ -6,9 +6,9 @@ from pathlib import Path
 import pytest
 
 from observer_app.session_clock import FakeClock
-from observer_app.store import Store
-from observer_app.study import load_study
-from observer_app.study_folder import create_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
+from observer_app.study.creation import create_study
 
 ROSTER = "learner,label,log_id,site\n" + "".join(
     f"L{n:02d},Bench {n},n-{n:04d},north\n" for n in range(1, 7))

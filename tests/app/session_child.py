@@ -10,8 +10,8 @@ from datetime import timedelta
 
 from observer_app.live_session import LiveSession
 from observer_app.session_clock import FakeClock
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 
 study = load_study(sys.argv[1])
 store = Store(study.store_path)

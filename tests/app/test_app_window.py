@@ -14,8 +14,8 @@ from PySide6.QtWidgets import QApplication
 
 from observer_app.live_session import LiveSession
 from observer_app.session_clock import FakeClock
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 from observer_app.ui import theme
 from observer_app.ui.clock_check import ClockCheck
 from observer_app.ui.end_screen import EndScreen

@@ -12,8 +12,8 @@ from pathlib import Path
 
 from observer_app.live_session import LiveSession, find_interrupted_session
 from observer_app.session_clock import FakeClock
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 from tests.app.conftest import make_study
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -16,8 +16,8 @@ import pytest
 
 from observer_app.live_session import LiveSession, elapsed_since_start, find_interrupted_session
 from observer_app.session_clock import FakeClock
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 from tests.app.conftest import make_study
 
 ROSTER_ORDER = [f"L{n:02d}" for n in range(1, 7)]  # the order written in conftest.ROSTER

@@ -12,8 +12,8 @@ from demo_sessions import committed_copy
 from observer_app.alignment import read_study_logs
 from observer_app.replay_session import ReplaySession
 from observer_app.session_clock import FakeClock
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 from tests.conftest import call_cli
 
 

@@ -8,7 +8,7 @@ from sklearn.metrics import cohen_kappa_score
 from observer_app.live_session import LiveSession
 from observer_app.session_agreement import partner_agreement
 from observer_app.session_clock import FakeClock
-from observer_app.store import Store
+from observer_app.study.store import Store
 from observer_app.ui.end_screen import EndScreen
 
 ACTIVITY_KEYS = {"1": "on_task", "3": "off_task", "4": "rapid_guessing"}

@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 from demo_sessions.generate import generate_demo
-from observer_app.store import Store
+from observer_app.study.store import Store
 
 SEED = 11  # test_generator_determinism.py relies on this value
 

@@ -5,7 +5,7 @@ import json
 
 from demo_sessions import committed_copy
 from demo_sessions.__main__ import main
-from observer_app.study import load_study
+from observer_app.study.folder import load_study
 
 COPY = committed_copy().parent
 

@@ -12,7 +12,7 @@ from sklearn.metrics import cohen_kappa_score
 
 from observer_app.commands.demo import human_summary
 from observer_app.demo_pipeline import SUMMARY_KEYS
-from observer_app.store import Store
+from observer_app.study.store import Store
 from tests.conftest import assert_user_error, call_cli, run_cli
 
 SEED = 5

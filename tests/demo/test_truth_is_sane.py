@@ -16,8 +16,8 @@ import pandas as pd
 import pytest
 from sklearn.metrics import cohen_kappa_score
 
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 
 
 def _read_logs(study: Path) -> pd.DataFrame:

@@ -14,7 +14,7 @@ import export
 from demo_sessions.generate import generate_demo
 from export.writer import manifest_path
 from observer_app.cli import main
-from observer_app.study import load_study
+from observer_app.study.folder import load_study
 from sync.logs import read_logs
 from tests.conftest import assert_user_error, run_cli
 

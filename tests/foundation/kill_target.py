@@ -8,7 +8,7 @@ from __future__ import annotations
 import sys
 from datetime import datetime, timedelta, timezone
 
-from observer_app.store import Store
+from observer_app.study.store import Store
 
 store = Store(sys.argv[1])
 start = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)

@@ -15,7 +15,7 @@ import sys
 import time
 from pathlib import Path
 
-from observer_app.store import Store
+from observer_app.study.store import Store
 from tests.conftest import ROOT
 
 KILLS = 50

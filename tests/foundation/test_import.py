@@ -7,8 +7,8 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 from tests.conftest import assert_user_error, call_cli, run_cli
 
 GOOD = """coder,learner,time,device,note,activity,affect

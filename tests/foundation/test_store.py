@@ -8,8 +8,8 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from observer_app.store import SCHEMA_VERSION, Store
-from observer_app.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
+from observer_app.study.store import SCHEMA_VERSION, Store
+from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 
 T0 = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)
 
@@ -124,7 +124,7 @@ def test_merging_another_device_is_idempotent_and_keeps_correction_order(tmp_pat
 
 
 def test_a_version_1_store_migrates_forward_and_keeps_its_rows(tmp_path: Path) -> None:
-    from observer_app.store import MIGRATIONS, _statements
+    from observer_app.study.store import MIGRATIONS, _statements
     path = tmp_path / "old.sqlite"
     connection = sqlite3.connect(path)
     for statement in _statements(MIGRATIONS[0]):

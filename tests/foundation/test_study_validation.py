@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from observer_app.study import load_study
+from observer_app.study.folder import load_study
 from tests.conftest import assert_user_error, call_cli, run_cli
 
 

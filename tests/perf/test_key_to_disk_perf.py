@@ -17,8 +17,8 @@ import pytest
 
 from observer_app.live_session import LiveSession
 from observer_app.session_clock import SystemClock
-from observer_app.store import Store
-from observer_app.study import load_study
+from observer_app.study.store import Store
+from observer_app.study.folder import load_study
 from tests.app.conftest import make_study
 
 CODES = 1200

@@ -5,8 +5,8 @@ from importlib import resources
 from pathlib import Path
 
 from export.pseudonyms import create_secret_key
-from observer_app.store import Store
-from observer_app.study import KEY_FILE, ROSTER_FILE, SCHEME_FILE, STORE_FILE, STUDY_FILE
+from observer_app.study.store import Store
+from observer_app.study.folder import KEY_FILE, ROSTER_FILE, SCHEME_FILE, STORE_FILE, STUDY_FILE
 from sync.errors import InputError
 
 TEMPLATES = (STUDY_FILE, SCHEME_FILE, ROSTER_FILE)
@@ -22,7 +22,7 @@ def create_study(directory: Path) -> list[Path]:
     written = []
     for name in TEMPLATES:
         target = directory / name
-        target.write_text(resources.files("observer_app.templates").joinpath(name).read_text(encoding="utf-8"),
+        target.write_text(resources.files("observer_app.study.templates").joinpath(name).read_text(encoding="utf-8"),
                           encoding="utf-8")
         written.append(target)
     Store(directory / STORE_FILE).close()

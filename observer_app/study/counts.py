@@ -9,7 +9,7 @@ from collections.abc import Iterable
 
 import pandas as pd
 
-from observer_app.store import Store
+from observer_app.study.store import Store
 
 
 def code_counts(observations: pd.DataFrame, dimensions: Iterable[str]) -> pd.DataFrame:

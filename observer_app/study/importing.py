@@ -16,9 +16,9 @@ from pathlib import Path
 import pandas as pd
 
 from export.writer import file_sha256
-from observer_app.scheme import Scheme
-from observer_app.store import SCHEMA_VERSION, Store, now_utc
-from observer_app.study import Study
+from observer_app.study.scheme import Scheme
+from observer_app.study.store import SCHEMA_VERSION, Store, now_utc
+from observer_app.study.folder import Study
 from sync.errors import InputError
 
 NAMESPACE = uuid.UUID("6f1c2a3e-9a7b-4d1e-8c55-2b0d3f4e5a61")

@@ -5,7 +5,7 @@ write-ahead log is on disk, so a code is durable before the screen says "saved",
 and a second process (an import) can write beside the app without corrupting it.
 Rows are never updated or deleted (triggers refuse it): a correction is a new code
 row for the same observation and dimension, and the newest row wins.  Column
-contracts of what the read side returns: observer_app/tables.py.
+contracts of what the read side returns: observer_app/study/tables.py.
 """
 from __future__ import annotations
 
@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from observer_app.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
+from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 
 SCHEMA_VERSION = 2
 
@@ -243,7 +243,7 @@ class Store:
         """Many observations in one transaction; returns how many were new.
 
         ``sessions`` has the SESSIONS columns, ``observations`` the OBSERVATIONS columns
-        (observer_app/tables.py); ``sessions`` may be empty when they were started
+        (observer_app/study/tables.py); ``sessions`` may be empty when they were started
         already.  Rows whose ids exist already are left alone, so a
         repeated import adds nothing.  Columns are converted whole, not row by row.
         """

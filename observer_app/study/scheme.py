@@ -12,7 +12,7 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
-from observer_app.tables import RESERVED_COLUMNS
+from observer_app.study.tables import RESERVED_COLUMNS
 from sync.errors import InputError
 
 LEVELS = ("nominal", "ordinal")

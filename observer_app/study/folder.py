@@ -10,8 +10,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from observer_app.roster import load_roster
-from observer_app.scheme import Scheme, load_scheme, read_toml
+from observer_app.study.roster import load_roster
+from observer_app.study.scheme import Scheme, load_scheme, read_toml
 from sync.errors import InputError
 from sync.log_spec import LogSpec, log_spec_from_toml
 
