@@ -1,6 +1,6 @@
 """What the two simulated coders see and record, turn by turn.
 
-Whose turn it is comes from ``observer_app.schedule.RoundRobin`` and nothing else: each
+Whose turn it is comes from ``observer_app.coding.schedule.RoundRobin`` and nothing else: each
 coder runs their own schedule object with the study's window, order and seed.  A coded
 session at a centre has two parts:
 
@@ -32,7 +32,7 @@ from demo_sessions.clocks import DeviceClock
 from demo_sessions.latent_states import LatentStates, draw_categorical
 from demo_sessions.scenario import ACTIVITY_STATES, AFFECT_STATES, Scenario
 from demo_sessions.simulator_log import ATTEMPT
-from observer_app.schedule import RoundRobin
+from observer_app.coding.schedule import RoundRobin
 
 NAMESPACE = uuid.UUID("0b6a61d2-4f3e-5c7a-9e1d-3a2b8c4d5e6f")
 ACTIVITY_NOT_SEEN = "not_visible"

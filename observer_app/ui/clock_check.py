@@ -11,7 +11,7 @@ from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
 
-from observer_app.live_session import LiveSession
+from observer_app.coding.live import LiveSession
 from observer_app.ui import theme as looks
 
 

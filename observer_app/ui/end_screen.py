@@ -7,8 +7,8 @@ from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
 
 from agreement.figures import estimate_text
-from observer_app.live_session import SessionSummary
-from observer_app.session_agreement import PartnerAgreement
+from observer_app.coding.live import SessionSummary
+from observer_app.coding.end_agreement import PartnerAgreement
 from observer_app.study.folder import Study
 from observer_app.ui.overview import count_table
 

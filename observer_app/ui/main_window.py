@@ -14,10 +14,10 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeyEvent, QKeySequence, QShortcut
 from PySide6.QtWidgets import QFileDialog, QLabel, QMainWindow, QStackedWidget, QVBoxLayout, QWidget
 
-from observer_app.live_session import LiveSession, SessionSummary
-from observer_app.replay_session import ReplaySession, find_open_replay
-from observer_app.session_agreement import partner_agreement
-from observer_app.session_clock import Clock, SystemClock
+from observer_app.coding.live import LiveSession, SessionSummary
+from observer_app.coding.replay import ReplaySession, find_open_replay
+from observer_app.coding.end_agreement import partner_agreement
+from observer_app.coding.clock import Clock, SystemClock
 from observer_app.study.store import Store
 from observer_app.study.folder import Study, load_study
 from observer_app.study.creation import create_study

@@ -18,7 +18,7 @@ from PySide6.QtGui import QColor, QFont, QKeyEvent, QPainter, QPainterPath, QPen
 from PySide6.QtWidgets import (QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
                                QSizePolicy, QVBoxLayout, QWidget)
 
-from observer_app.live_session import CHANGED, LiveSession, SessionState
+from observer_app.coding.live import CHANGED, LiveSession, SessionState
 from observer_app.study.scheme import Code, Dimension
 from observer_app.ui import theme as looks
 from observer_app.ui.theme import Theme

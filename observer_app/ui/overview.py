@@ -13,7 +13,7 @@ from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QFrame, QGridLayout, QHeaderView, QLabel, QScrollArea,
                                QSizePolicy, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
-from observer_app.live_session import InterruptedSession, find_interrupted_session
+from observer_app.coding.live import InterruptedSession, find_interrupted_session
 from observer_app.study.store import Store
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, session_table, window_counts

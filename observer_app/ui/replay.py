@@ -14,7 +14,7 @@ from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import (QAbstractItemView, QHBoxLayout, QHeaderView, QLabel, QTableWidget, QTableWidgetItem,
                                QVBoxLayout, QWidget)
 
-from observer_app.replay_session import ReplaySession
+from observer_app.coding.replay import ReplaySession
 from observer_app.ui import theme as looks
 from observer_app.ui.observing import CodingKeysMixin, DimensionPad, NoteEdit, dimension_title, key_list_html
 from observer_app.ui.theme import Theme

@@ -14,8 +14,8 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem, QVBoxLayout, QWidget
 
-from observer_app.session_clock import Clock
-from observer_app.shared_start import parse_shared_start, suggested_start_times
+from observer_app.coding.clock import Clock
+from observer_app.coding.shared_start import parse_shared_start, suggested_start_times
 from observer_app.study.folder import Study
 from sync.errors import InputError
 

@@ -5,7 +5,7 @@ from pathlib import Path
 
 import pytest
 
-from observer_app.session_clock import FakeClock
+from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from observer_app.study.creation import create_study

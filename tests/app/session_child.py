@@ -8,8 +8,8 @@ from __future__ import annotations
 import sys
 from datetime import timedelta
 
-from observer_app.live_session import LiveSession
-from observer_app.session_clock import FakeClock
+from observer_app.coding.live import LiveSession
+from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 

@@ -12,8 +12,8 @@ import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QApplication
 
-from observer_app.live_session import LiveSession
-from observer_app.session_clock import FakeClock
+from observer_app.coding.live import LiveSession
+from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from observer_app.ui import theme

@@ -10,8 +10,8 @@ import sys
 from datetime import datetime, timedelta
 from pathlib import Path
 
-from observer_app.live_session import LiveSession, find_interrupted_session
-from observer_app.session_clock import FakeClock
+from observer_app.coding.live import LiveSession, find_interrupted_session
+from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from tests.app.conftest import make_study

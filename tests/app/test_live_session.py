@@ -14,8 +14,8 @@ from datetime import timedelta
 import pandas as pd
 import pytest
 
-from observer_app.live_session import LiveSession, elapsed_since_start, find_interrupted_session
-from observer_app.session_clock import FakeClock
+from observer_app.coding.live import LiveSession, elapsed_since_start, find_interrupted_session
+from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from tests.app.conftest import make_study

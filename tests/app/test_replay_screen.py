@@ -10,8 +10,8 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QApplication
 
 from demo_sessions import committed_copy
-from observer_app.replay_session import ReplaySession
-from observer_app.session_clock import FakeClock
+from observer_app.coding.replay import ReplaySession
+from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from observer_app.ui.main_window import MainWindow

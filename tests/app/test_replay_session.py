@@ -10,8 +10,8 @@ from sklearn.metrics import cohen_kappa_score
 
 from demo_sessions import committed_copy
 from observer_app.alignment import read_study_logs
-from observer_app.replay_session import ReplaySession
-from observer_app.session_clock import FakeClock
+from observer_app.coding.replay import ReplaySession
+from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from tests.conftest import call_cli

@@ -5,9 +5,9 @@ import numpy as np
 import pytest
 from sklearn.metrics import cohen_kappa_score
 
-from observer_app.live_session import LiveSession
-from observer_app.session_agreement import partner_agreement
-from observer_app.session_clock import FakeClock
+from observer_app.coding.live import LiveSession
+from observer_app.coding.end_agreement import partner_agreement
+from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.ui.end_screen import EndScreen
 

@@ -5,7 +5,7 @@ from datetime import datetime, timezone
 
 import pytest
 
-from observer_app.shared_start import parse_shared_start, suggested_start_times
+from observer_app.coding.shared_start import parse_shared_start, suggested_start_times
 from sync.errors import InputError
 from tests.app.conftest import make_study
 from tests.conftest import assert_user_error, call_cli

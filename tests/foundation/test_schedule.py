@@ -5,7 +5,7 @@ from collections import Counter
 
 import pytest
 
-from observer_app.schedule import RoundRobin
+from observer_app.coding.schedule import RoundRobin
 
 LEARNERS = [f"L{i:02d}" for i in range(1, 25)]
 

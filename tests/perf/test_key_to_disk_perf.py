@@ -15,8 +15,8 @@ import uuid
 import numpy as np
 import pytest
 
-from observer_app.live_session import LiveSession
-from observer_app.session_clock import SystemClock
+from observer_app.coding.live import LiveSession
+from observer_app.coding.clock import SystemClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from tests.app.conftest import make_study

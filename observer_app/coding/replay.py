@@ -38,7 +38,7 @@ import numpy as np
 import pandas as pd
 
 from observer_app.alignment import read_study_logs
-from observer_app.session_clock import Clock
+from observer_app.coding.clock import Clock
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study
 

@@ -1,7 +1,7 @@
 """The live coding session: every decision the observing screen shows, with no Qt in sight.
 
 A ``LiveSession`` owns the round-robin schedule, the observation store and a clock
-(observer_app/session_clock.py).  It decides whose turn it is, how much time is
+(observer_app/coding/clock.py).  It decides whose turn it is, how much time is
 left, what a key press means, when a window ends and what gets written; the Qt view
 only listens (``add_listener``), renders ``state()`` and forwards keys.
 
@@ -44,8 +44,8 @@ from datetime import datetime, timedelta
 
 import pandas as pd
 
-from observer_app.schedule import RoundRobin, Turn
-from observer_app.session_clock import Clock
+from observer_app.coding.schedule import RoundRobin, Turn
+from observer_app.coding.clock import Clock
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, window_counts
