@@ -61,10 +61,10 @@ from export.labelled_windows import ExportSettings
 from demo_sessions.truth_files import read_truth
 from export.detector_check import check_windows
 from observer_app import demo_report as report
-from observer_app.alignment import align_study, fit_clock_models, model_summary, read_study_logs
-from observer_app.reliability_data import study_units
+from observer_app.pipeline.alignment import align_study, fit_clock_models, model_summary, read_study_logs
+from observer_app.pipeline.reliability_data import study_units
 from observer_app.study.store import Store
-from observer_app.window_export import export_study
+from observer_app.pipeline.study_export import export_study
 from observer_app.study.folder import Study, load_study
 from sync.clock import ClockModel
 from sync.residual_plot import residual_figure

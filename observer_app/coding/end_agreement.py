@@ -1,7 +1,7 @@
 """How well a paired session agrees with its partner's, for the end-of-session screen.
 
 The partner's session arrives in this study's store through ``fieldmark import``.
-The study's units come from observer_app.reliability_data (the same pairing as
+The study's units come from observer_app.pipeline.reliability_data (the same pairing as
 ``fieldmark agree``); every figure is agreement/'s (Cohen's kappa, Landis & Koch
 band).  This module only keeps the units this session coded.
 """
@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import pandas as pd
 
 from agreement.figures import Estimate, assess_agreement, headline_kappa
-from observer_app.reliability_data import study_units
+from observer_app.pipeline.reliability_data import study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import Study
 

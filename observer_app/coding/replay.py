@@ -37,7 +37,7 @@ from datetime import datetime
 import numpy as np
 import pandas as pd
 
-from observer_app.alignment import read_study_logs
+from observer_app.pipeline.alignment import read_study_logs
 from observer_app.coding.clock import Clock
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study

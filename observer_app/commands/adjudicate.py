@@ -15,7 +15,7 @@ from pathlib import Path
 import pandas as pd
 
 from agreement.disagreements import read_adjudications
-from observer_app.reliability_data import load_study_units
+from observer_app.pipeline.reliability_data import load_study_units
 from observer_app.study.store import Store
 from sync.errors import InputError
 

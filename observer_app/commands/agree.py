@@ -27,7 +27,7 @@ from agreement.views import (
     CERTIFICATION_KAPPA, CERTIFICATION_PAIRS, ROLLING_WINDOW, by_pair, by_session, certify, rolling_kappa,
     units_of_coders,
 )
-from observer_app.reliability_data import load_study_units
+from observer_app.pipeline.reliability_data import load_study_units
 from observer_app.study.store import Store
 from sync.errors import InputError
 

@@ -6,7 +6,7 @@ import json
 import math
 import sys
 
-from observer_app.alignment import METHODS, align_study, model_summary
+from observer_app.pipeline.alignment import METHODS, align_study, model_summary
 from observer_app.study.folder import load_study
 from sync.errors import InputError
 

@@ -1,6 +1,6 @@
 """``fieldmark export STUDY --out FILE``: labelled, de-identified windows for detector training.
 
-Options are checked here; the work is ``observer_app.window_export.export_study``.
+Options are checked here; the work is ``observer_app.pipeline.study_export.export_study``.
 """
 from __future__ import annotations
 
@@ -13,7 +13,7 @@ from export.features import FeatureSettings
 from export.labelled_windows import ExportSettings
 from export.tables import LABEL_POLICIES
 from export.writer import FORMATS, manifest_path
-from observer_app.window_export import WindowChoice, export_study
+from observer_app.pipeline.study_export import WindowChoice, export_study
 from sync.errors import InputError
 from sync.windows import ANCHORS
 

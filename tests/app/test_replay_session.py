@@ -9,7 +9,7 @@ import pytest
 from sklearn.metrics import cohen_kappa_score
 
 from demo_sessions import committed_copy
-from observer_app.alignment import read_study_logs
+from observer_app.pipeline.alignment import read_study_logs
 from observer_app.coding.replay import ReplaySession
 from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store

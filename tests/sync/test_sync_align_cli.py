@@ -12,7 +12,7 @@ import pytest
 
 from tests.conftest import assert_user_error, call_cli, run_cli
 from demo_sessions.generate import generate_demo
-from observer_app.alignment import stored_clock_models
+from observer_app.pipeline.alignment import stored_clock_models
 from observer_app.study.folder import load_study
 from sync.clock import ClockModel
 

@@ -20,7 +20,7 @@ from export.pseudonyms import read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.alignment import read_study_logs, stored_clock_models
+from observer_app.pipeline.alignment import read_study_logs, stored_clock_models
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
 from sync.clock import ClockModel

@@ -14,7 +14,7 @@ import pandas as pd
 
 from agreement.dimensions import Dimension
 from agreement.pairing import pair_observations
-from observer_app.alignment import stored_clock_models
+from observer_app.pipeline.alignment import stored_clock_models
 from observer_app.study.scheme import Scheme
 from observer_app.study.store import Store
 from observer_app.study.folder import Study, load_study
