@@ -1,8 +1,10 @@
 """The ``fieldmark`` command line: one verb per job, exit codes as in DESIGN.md.
 
-Each verb lives in ``observer_app/commands/<verb>.py`` with ``add_parser(subparsers)``
-and ``run(args) -> int``.  This module only dispatches and turns a user's mistake
-(``InputError``) into one stderr line and exit 2.
+Each verb lives in a module with ``add_parser(subparsers)`` and ``run(args) -> int``:
+``observer_app/commands/<verb>.py``, except ``demo``, which lives beside the demo it
+builds (``demo_sessions/command.py``).  The registry names modules as text, so
+observer_app never imports demo_sessions.  This module only dispatches and turns a
+user's mistake (``InputError``) into one stderr line and exit 2.
 """
 from __future__ import annotations
 
@@ -13,18 +15,18 @@ import sys
 from observer_app import __version__
 from sync.errors import InputError
 
-# Verb modules in the order --help lists them.  Only verbs that work are listed.
+# Verb modules (dotted paths) in the order --help lists them.  Only verbs that work are listed.
 COMMANDS: tuple[str, ...] = (
-    "init",
-    "app",
-    "import_observations",
-    "align",
-    "agree",
-    "adjudicate",
-    "plan",
-    "export_windows",
-    "check",
-    "demo",
+    "observer_app.commands.init",
+    "observer_app.commands.app",
+    "observer_app.commands.import_observations",
+    "observer_app.commands.align",
+    "observer_app.commands.agree",
+    "observer_app.commands.adjudicate",
+    "observer_app.commands.plan",
+    "observer_app.commands.export",
+    "observer_app.commands.check",
+    "demo_sessions.command",
 )
 
 
@@ -32,16 +34,16 @@ COMMANDS: tuple[str, ...] = (
 # one module a run needs (the heavy libraries load in a fraction of a second less per
 # call, which matters on a coder's laptop).  verb module -> (verb, one-line help).
 SUMMARIES: dict[str, tuple[str, str]] = {
-    "init": ("init", "create a new study folder with commented templates"),
-    "app": ("app", "the desktop app: live round-robin coding with the keyboard"),
-    "import_observations": ("import", "add observations from another device's store or a CSV"),
-    "align": ("align", "fit each device's clock model against the logs"),
-    "agree": ("agree", "inter-rater reliability per dimension, coder pair and session"),
-    "adjudicate": ("adjudicate", "record adjudicated codes for disagreeing units"),
-    "plan": ("plan", "paired observations needed for a kappa interval of a given width"),
-    "export_windows": ("export", "labelled, de-identified windows (Parquet or CSV) and a manifest"),
-    "check": ("check", "grouped cross-validated detector check of exported windows"),
-    "demo": ("demo", "build the demo study and run every step on it"),
+    "observer_app.commands.init": ("init", "create a new study folder with commented templates"),
+    "observer_app.commands.app": ("app", "the desktop app: live round-robin coding with the keyboard"),
+    "observer_app.commands.import_observations": ("import", "add observations from another device's store or a CSV"),
+    "observer_app.commands.align": ("align", "fit each device's clock model against the logs"),
+    "observer_app.commands.agree": ("agree", "inter-rater reliability per dimension, coder pair and session"),
+    "observer_app.commands.adjudicate": ("adjudicate", "record adjudicated codes for disagreeing units"),
+    "observer_app.commands.plan": ("plan", "paired observations needed for a kappa interval of a given width"),
+    "observer_app.commands.export": ("export", "labelled, de-identified windows (Parquet or CSV) and a manifest"),
+    "observer_app.commands.check": ("check", "grouped cross-validated detector check of exported windows"),
+    "demo_sessions.command": ("demo", "build the demo study and run every step on it"),
 }
 
 
@@ -56,7 +58,7 @@ class _Parser(argparse.ArgumentParser):
 def _summary(module_name: str) -> tuple[str, str]:
     if module_name in SUMMARIES:
         return SUMMARIES[module_name]
-    module = importlib.import_module(f"observer_app.commands.{module_name}")
+    module = importlib.import_module(module_name)
     probe = _Parser(prog="fieldmark").add_subparsers(parser_class=_Parser)
     module.add_parser(probe)
     verb = next(iter(probe.choices))
@@ -77,7 +79,7 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for module_name, (verb, text) in verbs.items():
         if only is None or verb == only:
-            importlib.import_module(f"observer_app.commands.{module_name}").add_parser(subparsers)
+            importlib.import_module(module_name).add_parser(subparsers)
         else:
             subparsers.add_parser(verb, help=text, add_help=False)
     return parser

@@ -4,7 +4,7 @@ from __future__ import annotations
 import pytest
 from sklearn.metrics import cohen_kappa_score
 
-from observer_app.demo_pipeline import run_demo
+from demo_sessions.pipeline import run_demo
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 

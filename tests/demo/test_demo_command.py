@@ -10,8 +10,8 @@ import pandas as pd
 import pytest
 from sklearn.metrics import cohen_kappa_score
 
-from observer_app.commands.demo import human_summary
-from observer_app.demo_pipeline import SUMMARY_KEYS
+from demo_sessions.command import human_summary
+from demo_sessions.pipeline import SUMMARY_KEYS
 from observer_app.study.store import Store
 from tests.conftest import assert_user_error, call_cli, run_cli
 

@@ -140,7 +140,7 @@ def test_export_without_the_secret_key_asks_for_it_or_for_keep_ids(study, tmp_pa
 
 
 def test_demo_runs_the_export_and_check_steps(tmp_path) -> None:
-    from observer_app.demo_pipeline import run_demo
+    from demo_sessions.pipeline import run_demo
 
     summary = run_demo(tmp_path / "demo", seed=5, size="small", progress=False)
     assert [step["name"] for step in summary["steps"]][-2:] == ["export", "check"]

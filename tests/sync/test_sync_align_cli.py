@@ -105,7 +105,7 @@ def test_bad_logs_entry_via_the_command_line(study):
 def test_align_step_of_the_demo_pipeline_fills_recovered_clocks(tmp_path):
     """`fieldmark demo` runs align: "recovered" is stated at the planted reference, so it
     compares directly with the generator's "truth" (PLANTED) in the summary."""
-    from observer_app.demo_pipeline import STEPS, DemoRun, step_align, step_generate
+    from demo_sessions.pipeline import STEPS, DemoRun, step_align, step_generate
     assert [name for name, _ in STEPS].index("align") > [name for name, _ in STEPS].index("generate")
     run = DemoRun(out=tmp_path / "demo", seed=4, size="small")
     run.summary = {"devices": {}}

@@ -60,7 +60,7 @@ from export.features import FeatureSettings
 from export.labelled_windows import ExportSettings
 from demo_sessions.truth_files import read_truth
 from export.detector_check import check_windows
-from observer_app import demo_report as report
+from demo_sessions import report
 from observer_app.pipeline.alignment import align_study, fit_clock_models, model_summary, read_study_logs
 from observer_app.pipeline.reliability_data import study_units
 from observer_app.study.store import Store

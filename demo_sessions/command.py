@@ -70,7 +70,7 @@ def human_summary(summary: dict) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    from observer_app.demo_pipeline import run_demo
+    from demo_sessions.pipeline import run_demo
 
     summary = run_demo(args.out, args.seed)
     print(json.dumps(summary) if args.json else human_summary(summary))
