@@ -16,7 +16,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
-from agreement.figures import Agreement, DimensionAgreement, estimate_text, headline_kappa  # noqa: E402
+from agreement.statistics import Agreement, DimensionAgreement, estimate_text, headline_kappa  # noqa: E402
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS  # noqa: E402
 
 

@@ -29,7 +29,7 @@ dimension and pair of coders whose codes differ:
 ADJUDICATION INPUT -- the CSV ``fieldmark adjudicate`` reads:
     unit, dimension, code, adjudicator, reason
 
-ROLLING -- ``agreement.views.rolling_kappa``: position (1-based number of the window's
+ROLLING -- ``agreement.breakdowns.rolling_kappa``: position (1-based number of the window's
     last unit in time order), time (of that unit), units (in the window), kappa (float,
     NaN when undefined).
 

@@ -49,10 +49,10 @@ from pathlib import Path
 import pandas as pd
 from tqdm import tqdm
 
-from agreement.figures import assess_agreement, headline_kappa
+from agreement.statistics import assess_agreement, headline_kappa
 from agreement.report import confusion_figure, drift_figure
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
-from agreement.views import rolling_kappa
+from agreement.breakdowns import rolling_kappa
 from demo_sessions.generate import Generated, check_output_folder, check_seed, generate_demo
 from demo_sessions.log_files import SOUTH_VERBS
 from demo_sessions.truth_check import coder_vs_truth

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from agreement.figures import Estimate, assess_agreement, headline_kappa
+from agreement.statistics import Estimate, assess_agreement, headline_kappa
 from observer_app.pipeline.reliability_data import study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import Study

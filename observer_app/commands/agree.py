@@ -20,10 +20,10 @@ from tqdm import tqdm
 from agreement.bootstrap import DEFAULT_RESAMPLES
 from agreement.dimensions import LEVELS, Dimension
 from agreement.disagreements import list_disagreements
-from agreement.figures import Agreement, agreement_json, assess_agreement, estimate_text, headline_kappa
+from agreement.statistics import Agreement, agreement_json, assess_agreement, estimate_text, headline_kappa
 from agreement.long_format import read_long_csv
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
-from agreement.views import (
+from agreement.breakdowns import (
     CERTIFICATION_KAPPA, CERTIFICATION_PAIRS, ROLLING_WINDOW, by_pair, by_session, certify, rolling_kappa,
     units_of_coders,
 )

@@ -6,7 +6,7 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
 
-from agreement.figures import estimate_text
+from agreement.statistics import estimate_text
 from observer_app.coding.live import SessionSummary
 from observer_app.coding.end_agreement import PartnerAgreement
 from observer_app.study.folder import Study

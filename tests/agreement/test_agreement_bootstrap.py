@@ -10,7 +10,7 @@ from sklearn.metrics import cohen_kappa_score
 from agreement.bootstrap import cluster_weights
 from agreement.count_tables import count_tables
 from agreement.dimensions import Dimension
-from agreement.figures import assess_agreement, cluster_numbers, figures_from_tables
+from agreement.statistics import assess_agreement, cluster_numbers, figures_from_tables
 
 CODES = ("on_task", "off_task", "away")
 ACTIVITY = Dimension("activity", "nominal", CODES)

@@ -6,7 +6,7 @@ import json
 import pandas as pd
 
 from agreement.dimensions import Dimension
-from agreement.figures import assess_agreement
+from agreement.statistics import assess_agreement
 from agreement.pairing import pair_observations
 from tests.conftest import call_cli, run_cli
 

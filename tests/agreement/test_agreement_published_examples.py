@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from agreement.dimensions import Dimension
-from agreement.figures import assess_agreement
+from agreement.statistics import assess_agreement
 from tests.conftest import call_cli, run_cli
 
 # Krippendorff, K. (2011). "Computing Krippendorff's Alpha-Reliability", Annenberg

@@ -14,7 +14,7 @@ from statsmodels.stats.inter_rater import fleiss_kappa as statsmodels_fleiss_kap
 
 from agreement.count_tables import count_tables
 from agreement.dimensions import Dimension
-from agreement.figures import assess_agreement, cluster_numbers, figures_from_tables
+from agreement.statistics import assess_agreement, cluster_numbers, figures_from_tables
 
 CODES = ("a", "b", "c", "d")
 

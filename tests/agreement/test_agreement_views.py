@@ -11,7 +11,7 @@ from statsmodels.stats.inter_rater import cohens_kappa
 
 from agreement.dimensions import Dimension
 from agreement.planning import joint_table, pairs_needed
-from agreement.views import by_pair, by_session, rolling_kappa
+from agreement.breakdowns import by_pair, by_session, rolling_kappa
 from tests.conftest import call_cli, run_cli
 
 CODES = ("on_task", "off_task", "away")

@@ -17,7 +17,7 @@ import pytest
 from agreement.bootstrap import cluster_weights
 from agreement.count_tables import count_tables
 from agreement.dimensions import Dimension
-from agreement.figures import assess_agreement, cluster_numbers, figures_from_tables
+from agreement.statistics import assess_agreement, cluster_numbers, figures_from_tables
 
 UNITS = 10_000
 LEARNERS = 200

@@ -10,7 +10,7 @@ import pandas as pd
 from agreement import coefficients
 from agreement.count_tables import count_tables
 from agreement.dimensions import Dimension
-from agreement.figures import Agreement, Estimate, assess_agreement
+from agreement.statistics import Agreement, Estimate, assess_agreement
 from agreement.tables import ROLLING_COLUMNS
 
 # Common practice: kappa of at least 0.6 (Landis & Koch's "substantial" starts above
