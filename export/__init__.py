@@ -11,7 +11,7 @@ __all__ = ["load_windows"]
 def __getattr__(name: str):
     """``export.load_windows`` without loading pyarrow for callers that only need pseudonyms."""
     if name == "load_windows":
-        from export.writer import load_windows
+        from export.reader import load_windows
 
         return load_windows
     raise AttributeError(f"module 'export' has no attribute {name!r}")

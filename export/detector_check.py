@@ -26,7 +26,7 @@ from sklearn.model_selection import StratifiedGroupKFold
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from export.writer import read_windows, windows_xy
+from export.reader import read_windows, windows_xy
 from sync.errors import InputError
 
 DEFAULT_FOLDS = 5

@@ -6,7 +6,7 @@ import json
 import sys
 from pathlib import Path
 
-from export.writer import read_manifest
+from export.reader import read_manifest
 from sync.errors import InputError
 
 

@@ -11,7 +11,7 @@ from sklearn.model_selection import GroupKFold, cross_val_score
 from sklearn.tree import DecisionTreeClassifier
 
 import export
-from export import writer
+from export import reader, writer
 from export.pseudonyms import pseudonym
 from sync.errors import InputError
 
@@ -34,7 +34,7 @@ def every_byte(path) -> bytes:
 def test_no_raw_learner_id_or_roster_label_anywhere_in_the_output(tmp_path, output_format) -> None:
     path, _ = export_file(tmp_path, output_format)
     data = every_byte(path)
-    table, _ = writer.read_windows(path)
+    table, _ = reader.read_windows(path)
     cells = {str(cell) for cell in table.to_numpy().ravel()}
     for identifier in RAW_IDENTIFIERS:
         assert identifier.encode() not in data, identifier
@@ -54,7 +54,7 @@ def test_keep_ids_is_an_explicit_opt_in_that_exports_them(tmp_path, output_forma
 
 def test_roster_attributes_labels_and_sources_are_exported(exported) -> None:
     path, result = exported
-    table, manifest = writer.read_windows(path)
+    table, manifest = reader.read_windows(path)
     assert {"site", "cohort", "activity", "affect", "label_source_activity", "label_source_affect"} <= set(table.columns)
     assert manifest["attribute_columns"] == ["site", "cohort"]
     assert table["window_id"].is_unique and 200 < len(table) <= 10 * 24              # one row per unit, never per coder
