@@ -30,7 +30,8 @@ def _encoding(spec: LogSpec) -> str:
     return "utf-8-sig" if spec.encoding.lower().replace("_", "-") in ("utf-8", "utf8") else spec.encoding
 
 
-def read_csv_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTimeCounts, list[str]]:
+def read_csv_log(spec: LogSpec, path: Path,
+                 only: frozenset[str] | None = None) -> tuple[pd.DataFrame, LocalTimeCounts, list[str], int]:
     """One CSV file -> (EVENTS rows, DST counts, warnings).  Raises InputError on bad input."""
     name = str(path)
     encoding = _encoding(spec)
@@ -65,18 +66,24 @@ def read_csv_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTimeCoun
     if table.empty:
         raise InputError(name, None, "has a header but no rows; export the log again or remove its [[logs]] entry")
     rows = np.arange(1, len(table) + 1, dtype=np.int64)
-    return events_from_columns(table, spec, name, rows)
+    return events_from_columns(table, spec, name, rows, only)
 
 
-def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str,
-                        rows: np.ndarray) -> tuple[pd.DataFrame, LocalTimeCounts, list[str]]:
-    """A table holding the mapped columns -> (EVENTS rows, DST counts, warnings).
+def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str, rows: np.ndarray,
+                        only: frozenset[str] | None = None) -> tuple[pd.DataFrame, LocalTimeCounts, list[str], int]:
+    """A table holding the mapped columns -> (EVENTS rows, DST counts, warnings, rows read).
 
     Shared by the CSV and Parquet readers: it decides what an empty learner or a
-    non-numeric duration means.
+    non-numeric duration means.  ``only`` keeps just those learners (before any time is
+    parsed, so the rest cost nothing more).
     """
     columns = spec.columns
     warnings: list[str] = []
+    rows_read = len(table)
+    if only is not None:
+        learner = table[columns["learner"]]
+        keep = learner.astype("str").str.strip().isin(only).to_numpy(dtype=bool)
+        table, rows = table.loc[keep], rows[keep]
     time_ns, counts = parse_time_column(table[columns["time"]], spec.time_format, spec.timezone,
                                         name, columns["time"], rows)
     duration = None
@@ -95,7 +102,7 @@ def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str,
                         f"(first row {int(rows[np.flatnonzero(no_learner)[0]])})")
         events = events.loc[~no_learner]
         events["learner"] = events["learner"].cat.remove_unused_categories()
-    return events, counts, warnings
+    return events, counts, warnings, rows_read
 
 
 def _durations(values: pd.Series, name: str, column: str, rows: np.ndarray) -> np.ndarray:

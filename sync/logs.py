@@ -12,16 +12,18 @@ from sync.event_table import combine_events
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
 from sync.parquet_reader import read_parquet_log
-from sync.xapi_reader import read_xapi_log
+from sync.xapi_reader import read_xapi_log, resolve_statements
 
-READERS = {"csv": read_csv_log, "parquet": read_parquet_log, "xapi": read_xapi_log}
+READERS = {"csv": read_csv_log, "parquet": read_parquet_log}
 
 
 @dataclass
 class ReadReport:
-    """What reading the logs found: rows per file, DST decisions, learners not in the roster."""
+    """What reading the logs found: rows kept per file (and rows read, before the filter to
+    the observed learners), DST decisions, learners not in the roster."""
 
     rows_per_file: dict[str, int] = field(default_factory=dict)
+    rows_read_per_file: dict[str, int] = field(default_factory=dict)
     ambiguous_local_times: int = 0
     nonexistent_local_times: int = 0
     unknown_learners: dict[str, int] = field(default_factory=dict)
@@ -31,17 +33,26 @@ class ReadReport:
     def rows(self) -> int:
         return sum(self.rows_per_file.values())
 
+    @property
+    def rows_read(self) -> int:
+        return sum(self.rows_read_per_file.values())
 
-def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
+
+def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = None,
+              only_log_ids: Iterable[str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
     """Read every file of every spec into one EVENTS table (sync/tables.py).
 
     ``known_log_ids`` (the roster's log_id column) lets the report name learners the
-    roster does not know, with their event counts; they are kept, not fatal.  Raises
-    ``InputError`` for a missing file or any malformed input.
+    roster does not know, with their event counts; they are kept, not fatal.
+    ``only_log_ids`` keeps just those learners' events, filtered while reading (each
+    learner's whole log is kept, so history figures are unchanged); the report counts
+    rows read and rows kept.  Raises ``InputError`` for a missing file or any malformed
+    input.
     """
     report = ReadReport()
     counts = LocalTimeCounts()
-    parts = []
+    only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
+    parts, statement_parts = [], []
     for spec in specs:
         if not spec.path.exists():
             raise InputError(spec.path, None, "does not exist; fix the path of its [[logs]] entry in study.toml")
@@ -49,11 +60,27 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
         if not files:
             raise InputError(spec.path, None, f"is a folder with no {spec.format} files")
         for path in files:
-            events, file_counts, warnings = READERS[spec.format](spec, path)
+            if spec.format == "xapi":
+                part = read_xapi_log(spec, path, only)
+                statement_parts.append(part)
+                counts = counts + part.counts
+                report.rows_read_per_file[str(path)] = part.rows_read
+                report.warnings.extend(part.warnings)
+                continue
+            events, file_counts, warnings, rows_read = READERS[spec.format](spec, path, only)
             parts.append(events)
             counts = counts + file_counts
             report.rows_per_file[str(path)] = len(events)
+            report.rows_read_per_file[str(path)] = rows_read
             report.warnings.extend(warnings)
+    if statement_parts:
+        statements, warnings = resolve_statements(statement_parts)
+        report.warnings.extend(warnings)
+        kept = statements["source"].value_counts(sort=False) if statements is not None else {}
+        for part in statement_parts:
+            report.rows_per_file[part.source] = int(kept.get(part.source, 0))
+        if statements is not None:
+            parts.append(statements)
     events = combine_events(parts)
     report.ambiguous_local_times = counts.ambiguous
     report.nonexistent_local_times = counts.nonexistent

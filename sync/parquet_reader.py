@@ -24,7 +24,8 @@ def _is_text(arrow_type: pa.DataType) -> bool:
     return pa.types.is_string(arrow_type) or pa.types.is_large_string(arrow_type)
 
 
-def read_parquet_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTimeCounts, list[str]]:
+def read_parquet_log(spec: LogSpec, path: Path,
+                     only: frozenset[str] | None = None) -> tuple[pd.DataFrame, LocalTimeCounts, list[str], int]:
     """One Parquet file -> (EVENTS rows, DST counts, warnings).  Raises InputError on bad input."""
     name = str(path)
     try:
@@ -45,4 +46,4 @@ def read_parquet_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTime
     frame = pd.DataFrame({column: table.column(column).to_pandas() for column in wanted})
     del table
     rows = np.arange(1, len(frame) + 1, dtype=np.int64)
-    return events_from_columns(frame, spec, name, rows)
+    return events_from_columns(frame, spec, name, rows, only)

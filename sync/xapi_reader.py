@@ -1,10 +1,15 @@
 """xAPI statements -> EVENTS, per xAPI 1.0.3 (and 2.0 / IEEE 9274.1.1 where it differs).
 
-A file holds a JSON array of statements, or one statement per line (JSON lines).
+A file holds JSON lines, a JSON array, or pages of results as a learning record store
+hands them over (``{"statements": [...], "more": ...}``), optionally gzipped; a folder
+entry reads every file.  Files are read in blocks (sync/json_blocks.py), decoded by
+msgspec into the few fields below, so memory grows with the events kept, not the file.
 Mapping (section numbers are xAPI 1.0.3 Part Two):
   learner    actor's Inverse Functional Identifier (2.4.2.3): account.name, else mbox
              (the "mailto:" IRI as written), else mbox_sha1sum, else openid.  Identified
              Groups count as one learner; anonymous Groups (members only) are left out.
+             When the logs' accounts come from several homePages, an account learner is
+             written ``homePage|name`` (and a warning says so), so none are merged.
   time_ns    timestamp (2.4.7); when a statement has none, stored (2.4.8) -- counted.
              Stamps without an offset are local to the entry's timezone.
   action     verb.id (2.4.3)
@@ -15,22 +20,31 @@ Mapping (section numbers are xAPI 1.0.3 Part Two):
              fractional seconds.  Years and months have no fixed length, so they are
              refused with the line number.
   source_row the line the statement starts on (JSON lines: its line; array: where the
-             statement's object opens).
+             statement's object opens; a one-line page: the page's line).
+Across all files read together: a statement id seen twice is counted once (the first);
+voided statements (2.3.2) are dropped, and the voiding statements are not events.
 """
 from __future__ import annotations
 
-import json
 import re
+from dataclasses import dataclass, field
 from pathlib import Path
 
+import msgspec
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from sync.errors import InputError
 from sync.event_table import build_events
+from sync.json_blocks import StatementBlocks
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
 from sync.time_column import parse_time_column
+
+VOIDED = "http://adlnet.gov/expapi/verbs/voided"  # xAPI 1.0.3 Part Two 2.3.2
+QUALIFIER = "|"
 
 _DURATION = re.compile(
     r"^P(?:(?P<weeks>\d+(?:[.,]\d+)?)W|(?:(?P<years>\d+(?:[.,]\d+)?)Y)?(?:(?P<months>\d+(?:[.,]\d+)?)M)?"
@@ -55,128 +69,226 @@ def iso_duration_seconds(text: str) -> float:
     return sum(float(parts[name].replace(",", ".")) * scale for name, scale in _SECONDS_PER.items() if parts[name])
 
 
-def _statements(path: Path, encoding: str) -> list[tuple[int, object]]:
-    """(line, statement) pairs from a JSON array or JSON lines file; InputError on bad JSON."""
-    name = str(path)
-    try:
-        text = path.read_text(encoding=encoding)
-    except UnicodeDecodeError as error:
-        raise InputError(name, f"byte {error.start}", f"is not valid {encoding} text; "
-                         "set encoding = \"...\" in its [[logs]] entry") from None
-    stripped = text.lstrip("\ufeff \t\r\n")
-    if not stripped:
-        raise InputError(name, None, "is empty; export the statements again or remove its [[logs]] entry")
-    if stripped.startswith("["):
-        decoder = json.JSONDecoder()
-        start = len(text) - len(stripped)
+
+
+class Account(msgspec.Struct):
+    homePage: str | None = None
+    name: str | None = None
+
+
+class Actor(msgspec.Struct):
+    objectType: str | None = None
+    mbox: str | None = None
+    mbox_sha1sum: str | None = None
+    openid: str | None = None
+    account: Account | None = None
+
+
+class Verb(msgspec.Struct):
+    id: str | None = None
+
+
+class Target(msgspec.Struct):
+    objectType: str | None = None
+    id: str | None = None
+
+
+class Result(msgspec.Struct):
+    success: bool | None = None
+    completion: bool | None = None
+    duration: str | None = None
+
+
+class Statement(msgspec.Struct):
+    """The fields of a statement (2.4) the event table uses; a page of results has ``statements``."""
+
+    id: str | None = None
+    actor: Actor | None = None
+    verb: Verb | None = None
+    target: Target | None = msgspec.field(default=None, name="object")
+    result: Result | None = None
+    timestamp: str | None = None
+    stored: str | None = None
+    statements: list[Statement] | None = None
+
+
+@dataclass
+class StatementPart:
+    """One file's statements before the cross-file rules (ids, voiding, homePages) apply."""
+
+    source: str
+    table: pa.Table
+    voided: set[str] = field(default_factory=set)
+    home_pages: set[str] = field(default_factory=set)
+    counts: LocalTimeCounts = field(default_factory=LocalTimeCounts)
+    warnings: list[str] = field(default_factory=list)
+    rows_read: int = 0
+    used_stored: int = 0
+
+
+def _identity(actor: Actor | None) -> tuple[str | None, str | None]:
+    """(identifier, homePage) of an actor (2.4.2.3); homePage only for accounts."""
+    if actor is None:
+        return None, None
+    account = actor.account
+    if account is not None and account.name:
+        return account.name, account.homePage or ""
+    return actor.mbox or actor.mbox_sha1sum or actor.openid, None
+
+
+def _outcome(result: Result | None) -> int:
+    if result is None:
+        return 0
+    if result.success is True:
+        return 1
+    if result.success is False:
+        return 2
+    return 3 if result.completion is True else 0
+
+
+OUTCOME_NAMES = ["", "correct", "incorrect", "completed"]
+
+
+def _durations(texts: list, name: str, lines: np.ndarray) -> np.ndarray:
+    """ISO 8601 durations -> seconds, parsing each distinct text once."""
+    codes, uniques = pd.factorize(np.asarray(texts, dtype=object))
+    seconds = np.empty(len(uniques) + 1)
+    seconds[-1] = np.nan
+    for position, text in enumerate(uniques):
         try:
-            statements, _ = decoder.raw_decode(text, start)
-        except json.JSONDecodeError as error:
-            raise InputError(name, f"line {error.lineno} column {error.colno}",
-                             f"malformed JSON ({error.msg}); fix the statement there") from None
-        if not isinstance(statements, list):
-            raise InputError(name, "line 1", "must be a JSON array of statements or one statement per line")
-        lines = _array_element_lines(text, start, len(statements))
-        return list(zip(lines, statements))
-    result = []
-    for number, line in enumerate(text.splitlines(), start=1):
-        if not line.strip():
-            continue
-        try:
-            result.append((number, json.loads(line)))
-        except json.JSONDecodeError as error:
-            raise InputError(name, f"line {number} column {error.colno}",
-                             f"malformed JSON ({error.msg}); each line must hold one whole statement") from None
-    return result
+            seconds[position] = iso_duration_seconds(text)
+        except ValueError as error:
+            line = int(lines[np.flatnonzero(codes == position)[0]])
+            raise InputError(name, f"line {line} result.duration", str(error)) from None
+    return seconds[codes]
 
 
-def _array_element_lines(text: str, start: int, count: int) -> list[int]:
-    """The line each top-level element of the JSON array at ``start`` begins on."""
-    decoder = json.JSONDecoder()
-    lines, position = [], start + 1
-    line = text.count("\n", 0, position) + 1
-    whitespace = re.compile(r"[\s,]*")
-    for _ in range(count):
-        skip = whitespace.match(text, position).end()
-        line += text.count("\n", position, skip)
-        lines.append(line)
-        _, end = decoder.raw_decode(text, skip)
-        line += text.count("\n", skip, end)
-        position = end
-    return lines
-
-
-def _learner(actor: object) -> str | None:
-    """The actor's Inverse Functional Identifier (xAPI 1.0.3 Part Two 2.4.2.3), or None."""
-    if not isinstance(actor, dict):
+def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, name: str,
+                 only: frozenset[str] | None, part: StatementPart) -> pa.Table | None:
+    """One block's events as a compact Arrow table (text dictionary-encoded)."""
+    learner, home = zip(*map(_identity, [s.actor for s in statements]))
+    verb = [s.verb.id if s.verb is not None else None for s in statements]
+    targets = [s.target for s in statements]
+    identified = pa.array(learner, pa.string()).is_valid().to_numpy(zero_copy_only=False)
+    verb_ids = pa.array(verb, pa.string())
+    no_verb = identified & ~verb_ids.is_valid().to_numpy(zero_copy_only=False)
+    if no_verb.any():
+        raise InputError(name, f"line {int(lines[np.flatnonzero(no_verb)[0]])}",
+                         "statement has no verb.id (xAPI 1.0.3 Part Two 2.4.3); fix or remove it")
+    voiding = pc.equal(verb_ids, VOIDED).to_numpy(zero_copy_only=False) & identified
+    for position in np.flatnonzero(voiding):
+        target = targets[position]
+        if target is not None and target.objectType == "StatementRef" and target.id:
+            part.voided.add(target.id.lower())
+    part.home_pages.update(page for page in set(home) if page is not None)
+    part.rows_read += int(identified.sum())
+    keep = identified & ~voiding
+    if only is not None:
+        names = pa.array(learner, pa.string())
+        qualified = pc.binary_join_element_wise(pa.array(home, pa.string()), names, QUALIFIER)
+        wanted = pa.array(sorted(only), pa.string())
+        keep &= (pc.is_in(names, wanted).to_numpy(zero_copy_only=False)
+                 | pc.fill_null(pc.is_in(qualified, wanted), False).to_numpy(zero_copy_only=False))
+    kept = np.flatnonzero(keep)
+    if kept.size == 0:
         return None
-    account = actor.get("account")
-    if isinstance(account, dict) and account.get("name"):
-        return str(account["name"])
-    for key in ("mbox", "mbox_sha1sum", "openid"):
-        if actor.get(key):
-            return str(actor[key])
-    return None
+    if kept.size < len(statements):
+        statements = [statements[i] for i in kept]
+        learner = [learner[i] for i in kept]
+        home = [home[i] for i in kept]
+        verb = [verb[i] for i in kept]
+        targets = [targets[i] for i in kept]
+        lines = lines[kept]
+    stamps = [s.timestamp or s.stored for s in statements]
+    part.used_stored += sum(1 for s in statements if not s.timestamp)
+    time_ns, counts = parse_time_column(pd.Series(stamps, dtype="str"), "iso", spec.timezone,
+                                        name, "timestamp", lines, row_word="line")
+    part.counts = part.counts + counts
+    results = [s.result for s in statements]
+    durations = [r.duration if r is not None else None for r in results]
+    return pa.table({
+        "learner": pa.array(learner, pa.string()).dictionary_encode(),
+        "home": pa.array(home, pa.string()).dictionary_encode(),
+        "time_ns": pa.array(time_ns, pa.int64()),
+        "action": pa.array(verb, pa.string()).dictionary_encode(),
+        "outcome": pa.array(np.fromiter(map(_outcome, results), np.int8, len(results))),
+        "item": pa.array([t.id if t is not None and t.id is not None else "" for t in targets],
+                         pa.string()).dictionary_encode(),
+        "duration_s": pa.array(_durations(durations, name, lines), pa.float64()),
+        "id": pa.array([s.id for s in statements], pa.string()),
+        "row": pa.array(lines, pa.int64()),
+    })
 
 
-def _outcome(result: dict) -> str:
-    if result.get("success") is True:
-        return "correct"
-    if result.get("success") is False:
-        return "incorrect"
-    if result.get("completion") is True:
-        return "completed"
-    return ""
+def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None) -> StatementPart:
+    """One file of xAPI statements -> a StatementPart; ``only`` keeps just those learners.
 
-
-def read_xapi_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTimeCounts, list[str]]:
-    """One file of xAPI statements -> (EVENTS rows, DST counts, warnings)."""
+    ``only`` matches a learner's identifier and its ``homePage|name`` form, so it can be
+    given before it is known whether the logs need qualified account names.
+    """
     name = str(path)
-    records = _statements(path, spec.encoding)
-    if not records:
+    part = StatementPart(source=name, table=pa.table({}))
+    tables, anonymous, statements_seen = [], 0, 0
+    for statements, lines in StatementBlocks(path, spec.encoding, Statement):
+        statements_seen += len(statements)
+        before = part.rows_read
+        table = _block_table(statements, lines, spec, name, only, part)
+        anonymous += len(statements) - (part.rows_read - before)
+        if table is not None:
+            tables.append(table)
+    if statements_seen == 0:
         raise InputError(name, None, "holds no statements; export them again or remove its [[logs]] entry")
-    columns: dict[str, list] = {key: [] for key in ("learner", "time", "action", "outcome", "item", "duration", "row")}
-    no_actor = used_stored = 0
-    for line, statement in records:
-        if not isinstance(statement, dict):
-            raise InputError(name, f"line {line}", "is not a statement (a JSON object); fix or remove it")
-        learner = _learner(statement.get("actor"))
-        if learner is None:
-            no_actor += 1
-            continue
-        verb = statement.get("verb")
-        if not isinstance(verb, dict) or not verb.get("id"):
-            raise InputError(name, f"line {line}", "statement has no verb.id (xAPI 1.0.3 Part Two 2.4.3); fix or remove it")
-        stamp = statement.get("timestamp")
-        if not stamp:
-            stamp = statement.get("stored")
-            used_stored += 1
-        target = statement.get("object")
-        result = statement.get("result") if isinstance(statement.get("result"), dict) else {}
-        duration = np.nan
-        if result.get("duration") is not None:
-            try:
-                duration = iso_duration_seconds(result["duration"])
-            except ValueError as error:
-                raise InputError(name, f"line {line} result.duration", str(error)) from None
-        columns["learner"].append(learner)
-        columns["time"].append(stamp if isinstance(stamp, str) else None)
-        columns["action"].append(str(verb["id"]))
-        columns["outcome"].append(_outcome(result))
-        columns["item"].append(str(target.get("id", "")) if isinstance(target, dict) else "")
-        columns["duration"].append(duration)
-        columns["row"].append(line)
-    warnings = []
-    if no_actor:
-        warnings.append(f"{name}: {no_actor} statements left out: actor has no identifier (anonymous group)")
-    if used_stored:
-        warnings.append(f"{name}: {used_stored} statements have no timestamp; their stored time was used")
-    rows = np.asarray(columns["row"], dtype=np.int64)
-    if rows.size == 0:
+    if part.rows_read == 0:
         raise InputError(name, None, "holds no statement with an identified actor")
-    time_ns, counts = parse_time_column(pd.Series(columns["time"], dtype="str"), "iso", spec.timezone,
-                                        name, "timestamp", rows, row_word="line")
-    events = build_events(learner=columns["learner"], time_ns=time_ns, action=columns["action"],
-                          outcome=columns["outcome"], item=columns["item"], skill=None,
-                          duration_s=np.asarray(columns["duration"], dtype=np.float64), source=name, source_row=rows)
-    return events, counts, warnings
+    if anonymous:
+        part.warnings.append(f"{name}: {anonymous} statements left out: actor has no identifier (anonymous group)")
+    if part.used_stored:
+        part.warnings.append(f"{name}: {part.used_stored} statements have no timestamp; their stored time was used")
+    part.table = pa.concat_tables(tables) if tables else None
+    return part
+
+
+def resolve_statements(parts: list[StatementPart]) -> tuple[pd.DataFrame | None, list[str]]:
+    """Apply the cross-file rules to every file's statements -> (EVENTS rows, warnings).
+
+    A statement id seen again is counted once (the first file, first line); a statement
+    some statement voids is dropped; account learners are qualified by homePage when
+    the logs hold more than one.  Unsorted; ``combine_events`` sorts.
+    """
+    warnings: list[str] = []
+    home_pages = set().union(*(part.home_pages for part in parts))
+    tables = [(number, part.table) for number, part in enumerate(parts) if part.table is not None]
+    if not tables:
+        return None, warnings
+    table = pa.concat_tables([t.append_column("file", pa.array(np.full(len(t), n, np.int32))) for n, t in tables])
+    table = table.unify_dictionaries()
+    learner = pc.cast(table["learner"], pa.string())
+    if len(home_pages) > 1:
+        qualified = pc.binary_join_element_wise(pc.cast(table["home"], pa.string()), learner, QUALIFIER)
+        learner = pc.coalesce(qualified, learner)
+        shown = ", ".join(sorted(home_pages)[:3])
+        warnings.append(f"xAPI accounts come from {len(home_pages)} homePages ({shown}): account learners are "
+                        f"written homePage{QUALIFIER}name; use that form in roster.csv's log_id")
+    ids = pc.utf8_lower(table["id"]).to_pandas()
+    keep = ~(ids.notna() & ids.duplicated()).to_numpy()
+    duplicates = int((~keep).sum())
+    voided = set().union(*(part.voided for part in parts))
+    if voided:
+        is_voided = ids.isin(voided).to_numpy()
+        warnings.append(f"{int((is_voided & keep).sum())} voided statements dropped (xAPI 2.3.2)")
+        keep &= ~is_voided
+    if duplicates:
+        warnings.append(f"{duplicates} statements appear more than once (same id); each was counted once")
+    rows = np.flatnonzero(keep)
+    if rows.size < len(table):
+        table, learner = table.take(rows), learner.take(rows)
+    file_codes = table["file"].to_numpy()
+    events = build_events(
+        learner=pd.Categorical(learner.dictionary_encode().to_pandas()) if len(learner) else [],
+        time_ns=table["time_ns"].to_numpy(), action=table["action"].to_pandas(),
+        outcome=pd.Categorical.from_codes(table["outcome"].to_numpy().astype(np.int8), OUTCOME_NAMES),
+        item=table["item"].to_pandas(), skill=None, duration_s=table["duration_s"].to_numpy(),
+        source="", source_row=table["row"].to_numpy())
+    sources, inverse = np.unique([part.source for part in parts], return_inverse=True)
+    events["source"] = pd.Categorical.from_codes(inverse[file_codes], sources)
+    return events, warnings
