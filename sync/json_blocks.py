@@ -125,6 +125,8 @@ class StatementBlocks:
                 buffer += more
             cut = len(buffer) if at_end else buffer.rfind(b"\n") + 1
             if cut == 0:
+                if at_end:
+                    return
                 continue
             chunk, buffer = buffer[:cut], buffer[cut:]
             if chunk:

@@ -26,6 +26,7 @@ voided statements (2.3.2) are dropped, and the voiding statements are not events
 """
 from __future__ import annotations
 
+import gc
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -71,12 +72,12 @@ def iso_duration_seconds(text: str) -> float:
 
 
 
-class Account(msgspec.Struct):
+class Account(msgspec.Struct, gc=False):
     homePage: str | None = None
     name: str | None = None
 
 
-class Actor(msgspec.Struct):
+class Actor(msgspec.Struct, gc=False):
     objectType: str | None = None
     mbox: str | None = None
     mbox_sha1sum: str | None = None
@@ -84,22 +85,22 @@ class Actor(msgspec.Struct):
     account: Account | None = None
 
 
-class Verb(msgspec.Struct):
+class Verb(msgspec.Struct, gc=False):
     id: str | None = None
 
 
-class Target(msgspec.Struct):
+class Target(msgspec.Struct, gc=False):
     objectType: str | None = None
     id: str | None = None
 
 
-class Result(msgspec.Struct):
+class Result(msgspec.Struct, gc=False):
     success: bool | None = None
     completion: bool | None = None
     duration: str | None = None
 
 
-class Statement(msgspec.Struct):
+class Statement(msgspec.Struct, gc=False):
     """The fields of a statement (2.4) the event table uses; a page of results has ``statements``."""
 
     id: str | None = None
@@ -126,14 +127,15 @@ class StatementPart:
     used_stored: int = 0
 
 
-def _identity(actor: Actor | None) -> tuple[str | None, str | None]:
-    """(identifier, homePage) of an actor (2.4.2.3); homePage only for accounts."""
-    if actor is None:
-        return None, None
-    account = actor.account
-    if account is not None and account.name:
-        return account.name, account.homePage or ""
-    return actor.mbox or actor.mbox_sha1sum or actor.openid, None
+def _identities(actors: list[Actor | None]) -> tuple[pa.Array, pa.Array]:
+    """(identifier, homePage) per actor (2.4.2.3); homePage only where the account names it."""
+    accounts = [actor.account if actor is not None else None for actor in actors]
+    names = pa.array([account.name or None if account is not None else None for account in accounts], pa.string())
+    homes = pa.array([account.homePage or "" if account is not None else None for account in accounts], pa.string())
+    others = pa.array([actor.mbox or actor.mbox_sha1sum or actor.openid or None if actor is not None else None
+                       for actor in actors], pa.string())
+    named = names.is_valid()
+    return pc.if_else(named, names, others), pc.if_else(named, homes, pa.scalar(None, pa.string()))
 
 
 def _outcome(result: Result | None) -> int:
@@ -166,11 +168,10 @@ def _durations(texts: list, name: str, lines: np.ndarray) -> np.ndarray:
 def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, name: str,
                  only: frozenset[str] | None, part: StatementPart) -> pa.Table | None:
     """One block's events as a compact Arrow table (text dictionary-encoded)."""
-    learner, home = zip(*map(_identity, [s.actor for s in statements]))
-    verb = [s.verb.id if s.verb is not None else None for s in statements]
+    learner, home = _identities([s.actor for s in statements])
+    verb_ids = pa.array([s.verb.id if s.verb is not None else None for s in statements], pa.string())
     targets = [s.target for s in statements]
-    identified = pa.array(learner, pa.string()).is_valid().to_numpy(zero_copy_only=False)
-    verb_ids = pa.array(verb, pa.string())
+    identified = learner.is_valid().to_numpy(zero_copy_only=False)
     no_verb = identified & ~verb_ids.is_valid().to_numpy(zero_copy_only=False)
     if no_verb.any():
         raise InputError(name, f"line {int(lines[np.flatnonzero(no_verb)[0]])}",
@@ -180,24 +181,21 @@ def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, 
         target = targets[position]
         if target is not None and target.objectType == "StatementRef" and target.id:
             part.voided.add(target.id.lower())
-    part.home_pages.update(page for page in set(home) if page is not None)
+    part.home_pages.update(page for page in pc.unique(home).to_pylist() if page is not None)
     part.rows_read += int(identified.sum())
     keep = identified & ~voiding
     if only is not None:
-        names = pa.array(learner, pa.string())
-        qualified = pc.binary_join_element_wise(pa.array(home, pa.string()), names, QUALIFIER)
+        qualified = pc.binary_join_element_wise(home, learner, QUALIFIER)
         wanted = pa.array(sorted(only), pa.string())
-        keep &= (pc.is_in(names, wanted).to_numpy(zero_copy_only=False)
+        keep &= (pc.fill_null(pc.is_in(learner, wanted), False).to_numpy(zero_copy_only=False)
                  | pc.fill_null(pc.is_in(qualified, wanted), False).to_numpy(zero_copy_only=False))
     kept = np.flatnonzero(keep)
     if kept.size == 0:
         return None
     if kept.size < len(statements):
         statements = [statements[i] for i in kept]
-        learner = [learner[i] for i in kept]
-        home = [home[i] for i in kept]
-        verb = [verb[i] for i in kept]
         targets = [targets[i] for i in kept]
+        learner, home, verb_ids = learner.take(kept), home.take(kept), verb_ids.take(kept)
         lines = lines[kept]
     stamps = [s.timestamp or s.stored for s in statements]
     part.used_stored += sum(1 for s in statements if not s.timestamp)
@@ -207,10 +205,10 @@ def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, 
     results = [s.result for s in statements]
     durations = [r.duration if r is not None else None for r in results]
     return pa.table({
-        "learner": pa.array(learner, pa.string()).dictionary_encode(),
-        "home": pa.array(home, pa.string()).dictionary_encode(),
+        "learner": learner.dictionary_encode(),
+        "home": home.dictionary_encode(),
         "time_ns": pa.array(time_ns, pa.int64()),
-        "action": pa.array(verb, pa.string()).dictionary_encode(),
+        "action": verb_ids.dictionary_encode(),
         "outcome": pa.array(np.fromiter(map(_outcome, results), np.int8, len(results))),
         "item": pa.array([t.id if t is not None and t.id is not None else "" for t in targets],
                          pa.string()).dictionary_encode(),
@@ -229,13 +227,20 @@ def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None)
     name = str(path)
     part = StatementPart(source=name, table=pa.table({}))
     tables, anonymous, statements_seen = [], 0, 0
-    for statements, lines in StatementBlocks(path, spec.encoding, Statement):
-        statements_seen += len(statements)
-        before = part.rows_read
-        table = _block_table(statements, lines, spec, name, only, part)
-        anonymous += len(statements) - (part.rows_read - before)
-        if table is not None:
-            tables.append(table)
+    collecting = gc.isenabled()
+    gc.disable()  # millions of short-lived, acyclic objects: collection passes would only cost time
+    try:
+        for statements, lines in StatementBlocks(path, spec.encoding, Statement):
+            statements_seen += len(statements)
+            before = part.rows_read
+            table = _block_table(statements, lines, spec, name, only, part)
+            anonymous += len(statements) - (part.rows_read - before)
+            if table is not None:
+                tables.append(table)
+            del statements
+    finally:
+        if collecting:
+            gc.enable()
     if statements_seen == 0:
         raise InputError(name, None, "holds no statements; export them again or remove its [[logs]] entry")
     if part.rows_read == 0:
