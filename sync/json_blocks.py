@@ -149,7 +149,7 @@ class StatementBlocks:
         else:  # blank lines: keep the numbers of lines with anything but whitespace
             filled = np.add.reduceat(codes > 32, starts, dtype=np.int64) > 0
             numbers = lines_before + 1 + np.flatnonzero(filled).astype(np.int64)
-        return self._flatten(values, numbers)
+        return self._flatten(values, numbers) if b'"statements"' in chunk else (values, numbers)
 
     def _locate_line_error(self, chunk: bytes, lines_before: int) -> None:
         """Raise the InputError for the first bad line of a block that failed to decode."""

@@ -151,14 +151,22 @@ def _outcome(result: Result | None) -> int:
 OUTCOME_NAMES = ["", "correct", "incorrect", "completed"]
 
 
+_SECONDS_ONLY = r"^PT\d+(?:\.\d+)?S$"  # the common shape, read by Arrow without a regex per text
+
+
 def _durations(texts: list, name: str, lines: np.ndarray) -> np.ndarray:
     """ISO 8601 durations -> seconds, parsing each distinct text once."""
-    codes, uniques = pd.factorize(np.asarray(texts, dtype=object))
-    seconds = np.empty(len(uniques) + 1)
-    seconds[-1] = np.nan
-    for position, text in enumerate(uniques):
+    encoded = pa.array(texts, pa.string()).dictionary_encode()
+    uniques = encoded.dictionary
+    seconds = np.full(len(uniques) + 1, np.nan)
+    simple = pc.match_substring_regex(uniques, _SECONDS_ONLY).to_numpy(zero_copy_only=False)
+    if simple.any():
+        digits = pc.utf8_slice_codeunits(uniques.filter(pa.array(simple)), 2, -1)
+        seconds[np.flatnonzero(simple)] = pc.cast(digits, pa.float64()).to_numpy(zero_copy_only=False)
+    codes = pc.fill_null(encoded.indices, len(uniques)).to_numpy(zero_copy_only=False)
+    for position in np.flatnonzero(~simple):
         try:
-            seconds[position] = iso_duration_seconds(text)
+            seconds[position] = iso_duration_seconds(uniques[position].as_py())
         except ValueError as error:
             line = int(lines[np.flatnonzero(codes == position)[0]])
             raise InputError(name, f"line {line} result.duration", str(error)) from None
@@ -176,7 +184,7 @@ def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, 
     if no_verb.any():
         raise InputError(name, f"line {int(lines[np.flatnonzero(no_verb)[0]])}",
                          "statement has no verb.id (xAPI 1.0.3 Part Two 2.4.3); fix or remove it")
-    voiding = pc.equal(verb_ids, VOIDED).to_numpy(zero_copy_only=False) & identified
+    voiding = pc.fill_null(pc.equal(verb_ids, VOIDED), False).to_numpy(zero_copy_only=False) & identified
     for position in np.flatnonzero(voiding):
         target = targets[position]
         if target is not None and target.objectType == "StatementRef" and target.id:
@@ -274,12 +282,19 @@ def resolve_statements(parts: list[StatementPart]) -> tuple[pd.DataFrame | None,
         shown = ", ".join(sorted(home_pages)[:3])
         warnings.append(f"xAPI accounts come from {len(home_pages)} homePages ({shown}): account learners are "
                         f"written homePage{QUALIFIER}name; use that form in roster.csv's log_id")
-    ids = pc.utf8_lower(table["id"]).to_pandas()
-    keep = ~(ids.notna() & ids.duplicated()).to_numpy()
+    ids = pc.utf8_lower(table["id"]).combine_chunks().dictionary_encode()
+    codes = pc.fill_null(ids.indices, -1).to_numpy(zero_copy_only=False)
+    keep = np.ones(len(codes), dtype=bool)
+    if len(ids.dictionary) < int((codes >= 0).sum()):  # some id seen twice: keep its first row
+        _, first = np.unique(codes, return_index=True)
+        keep[:] = False
+        keep[first] = True
+        keep |= codes < 0
     duplicates = int((~keep).sum())
     voided = set().union(*(part.voided for part in parts))
     if voided:
-        is_voided = ids.isin(voided).to_numpy()
+        hit = pc.is_in(ids.dictionary, pa.array(sorted(voided), pa.string())).to_numpy(zero_copy_only=False)
+        is_voided = np.append(hit, False)[codes]
         warnings.append(f"{int((is_voided & keep).sum())} voided statements dropped (xAPI 2.3.2)")
         keep &= ~is_voided
     if duplicates:
