@@ -1,11 +1,15 @@
-"""CSV logs -> EVENTS: only the mapped columns, read as text, delimiter detected unless given."""
+"""CSV logs -> EVENTS: only the mapped columns, read as text by Arrow, delimiter detected unless given."""
 from __future__ import annotations
 
+import codecs
 import csv
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.csv as pacsv
 
 from sync.errors import InputError
 from sync.event_table import build_events
@@ -15,6 +19,8 @@ from sync.time_column import parse_time_column
 
 DELIMITER_CANDIDATES = ",;\t|"
 SNIFF_BYTES = 64 * 1024
+BLOCK_BYTES = 16 * 1024 * 1024
+TEXT_ROLES: tuple[str, ...] = ("learner", "action", "outcome", "item", "skill")
 
 
 def detect_delimiter(sample: str) -> str:
@@ -32,7 +38,12 @@ def _encoding(spec: LogSpec) -> str:
 
 def read_csv_log(spec: LogSpec, path: Path,
                  only: frozenset[str] | None = None) -> tuple[pd.DataFrame, LocalTimeCounts, list[str], int]:
-    """One CSV file -> (EVENTS rows, DST counts, warnings).  Raises InputError on bad input."""
+    """One CSV file -> (EVENTS rows, DST counts, warnings, rows read).  Raises InputError on bad input.
+
+    Arrow's CSV reader, in blocks: only the mapped columns, text dictionary-encoded;
+    ``only`` keeps just those learners' rows block by block.  Times are parsed by
+    sync/time_column.py (the DST rule of sync/local_time.py, not Arrow's).
+    """
     name = str(path)
     encoding = _encoding(spec)
     try:
@@ -53,20 +64,91 @@ def read_csv_log(spec: LogSpec, path: Path,
     if missing:
         raise InputError(name, "header", f"has no column for {', '.join(missing)}; the file has "
                          f"{', '.join(header) or 'no columns'} -- fix [logs.columns] in study.toml")
-    wanted = sorted(set(spec.columns.values()))
-    try:
-        table = pd.read_csv(path, sep=delimiter, encoding=encoding, usecols=wanted, dtype="str",
-                            keep_default_na=False, skipinitialspace=True)
-    except UnicodeDecodeError as error:
-        raise InputError(name, f"byte {error.start}", f"is not valid {spec.encoding} text; "
-                         "set encoding = \"...\" (e.g. \"cp1252\") in its [[logs]] entry") from None
-    except (pd.errors.ParserError, csv.Error) as error:
-        raise InputError(name, None, f"cannot be read as CSV ({str(error).strip()}); check quotes and "
-                         "delimiters on that line") from None
-    if table.empty:
+    table, rows, rows_read = _read_arrow(spec, path, header, delimiter, only)
+    if rows_read == 0:
         raise InputError(name, None, "has a header but no rows; export the log again or remove its [[logs]] entry")
-    rows = np.arange(1, len(table) + 1, dtype=np.int64)
-    return events_from_columns(table, spec, name, rows, only)
+    frame = pd.DataFrame({column: table.column(column).to_pandas() for column in table.column_names})
+    del table
+    events, counts, warnings, _ = events_from_columns(frame, spec, name, rows)
+    return events, counts, warnings, rows_read
+
+
+def _read_arrow(spec: LogSpec, path: Path, header: list[str], delimiter: str,
+                only: frozenset[str] | None) -> tuple[pa.Table, np.ndarray, int]:
+    """(the mapped columns, their 1-based data row numbers, rows read) by Arrow, block by block.
+
+    A parse error is retried once allowing line breaks inside quoted values (slower, so
+    not the default); then it names the row.
+    """
+    name = str(path)
+    wanted = sorted(set(spec.columns.values()))
+    text_roles = [spec.columns[role] for role in TEXT_ROLES if role in spec.columns]
+    types = {column: pa.dictionary(pa.int32(), pa.string()) if column in text_roles else pa.string()
+             for column in wanted}
+    learner = spec.columns["learner"]
+    wanted_ids = None if only is None else pa.array(sorted(only), pa.string())
+    for newlines_in_values in (False, True):
+        bad_rows: list = []
+
+        def remember(row) -> str:
+            bad_rows.append(row)
+            return "error"
+
+        try:
+            reader = pacsv.open_csv(
+                path,
+                read_options=pacsv.ReadOptions(encoding=spec.encoding if codecs.lookup(spec.encoding).name != "utf-8"
+                                               else "utf8", column_names=header, skip_rows=1,
+                                               block_size=BLOCK_BYTES, use_threads=True),
+                parse_options=pacsv.ParseOptions(delimiter=delimiter, newlines_in_values=newlines_in_values,
+                                                 invalid_row_handler=remember),
+                convert_options=pacsv.ConvertOptions(include_columns=wanted, column_types=types,
+                                                     strings_can_be_null=False, quoted_strings_can_be_null=False))
+            batches, row_blocks, rows_read = [], [], 0
+            for batch in reader:
+                rows = np.arange(rows_read + 1, rows_read + batch.num_rows + 1, dtype=np.int64)
+                rows_read += batch.num_rows
+                if wanted_ids is not None:
+                    keep = _learner_mask(batch.column(batch.schema.get_field_index(learner)), wanted_ids)
+                    batch, rows = batch.filter(pa.array(keep)), rows[keep]
+                batches.append(batch)
+                row_blocks.append(rows)
+            table = pa.Table.from_batches(batches, schema=reader.schema)
+            return table, np.concatenate(row_blocks) if row_blocks else np.zeros(0, np.int64), rows_read
+        except pa.ArrowInvalid as error:
+            message = str(error)
+            if "invalid UTF8" in message:
+                raise InputError(name, _first_bad_byte(path), f"is not valid {spec.encoding} text; "
+                                 "set encoding = \"...\" (e.g. \"cp1252\") in its [[logs]] entry") from None
+            if not newlines_in_values:
+                continue
+            where = f"row {bad_rows[0].number - 1}" if bad_rows and bad_rows[0].number > 0 else None
+            shown = bad_rows[0].text[:60] if bad_rows else message.split(":", 1)[-1].strip()[:60]
+            raise InputError(name, where, f"cannot be read as CSV ({shown!r} has {bad_rows[0].actual_columns if bad_rows else '?'} "
+                             f"fields, the header {len(header)}); check quotes and delimiters on that line") from None
+    raise AssertionError("unreachable")
+
+
+def _learner_mask(column: pa.Array, wanted: pa.Array) -> np.ndarray:
+    """Rows whose learner (spaces trimmed) is one of ``wanted``; decided on the dictionary."""
+    hit = pc.is_in(pc.utf8_trim_whitespace(column.dictionary), wanted).to_numpy(zero_copy_only=False)
+    return np.append(hit, False)[pc.fill_null(column.indices, -1).to_numpy(zero_copy_only=False)]
+
+
+def _first_bad_byte(path: Path) -> str:
+    """Where a file stops being UTF-8: "line L byte B" (read in blocks, for the error path only)."""
+    decoder = codecs.getincrementaldecoder("utf-8")()
+    offset, lines = 0, 1
+    with open(path, "rb") as handle:
+        while block := handle.read(BLOCK_BYTES):
+            try:
+                decoder.decode(block)
+            except UnicodeDecodeError as error:
+                line = lines + block.count(b"\n", 0, error.start)
+                return f"line {line} byte {offset + error.start}"
+            offset += len(block)
+            lines += block.count(b"\n")
+    return f"byte {offset}"
 
 
 def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str, rows: np.ndarray,
