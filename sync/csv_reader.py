@@ -190,6 +190,12 @@ def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str, rows: np.
 def _durations(values: pd.Series, name: str, column: str, rows: np.ndarray) -> np.ndarray:
     if pd.api.types.is_numeric_dtype(values.dtype):
         return values.to_numpy(dtype=np.float64, na_value=np.nan)
+    trimmed = pc.utf8_trim_whitespace(pa.array(values.astype("str")))
+    try:  # Arrow's cast when every text is a number; the exact path below names the first that is not
+        numbers = pc.cast(pc.if_else(pc.equal(trimmed, ""), pa.scalar(None, pa.string()), trimmed), pa.float64())
+        return numbers.to_numpy(zero_copy_only=False)
+    except pa.ArrowInvalid:
+        pass
     text = values.astype("str").str.strip()
     numbers = pd.to_numeric(text.where(text != ""), errors="coerce")
     bad = (numbers.isna() & text.notna() & (text != "")).to_numpy()

@@ -17,9 +17,9 @@ from sync.errors import InputError
 from sync.local_time import LocalTimeCounts, local_to_utc_ns
 
 EPOCH_MS_THRESHOLD = 1e11
-# [ \t] rather than \s: RE2 can run it, so pandas matches it in Arrow, not row by row.
+# [ \t] rather than \s: RE2 can run these, so pandas matches them in Arrow, not row by row.
 _OFFSET_PATTERN = r"\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?[ \t]*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)$"
-_NUMBER_PATTERN = r"^\s*[+-]?\d+(?:\.\d*)?\s*$"
+_NUMBER_PATTERN = r"^[ \t]*[+-]?\d+(?:\.\d*)?[ \t]*$"
 SHOWN_ROWS = 5
 
 
@@ -84,12 +84,13 @@ def _parse_text(text: pd.Series, time_format: str, timezone: str | None, file: s
     result = np.full(len(text), NAT, dtype=np.int64)
     has_offset = (text.str.contains(_OFFSET_PATTERN, regex=True) & present).to_numpy(dtype=bool)
     if has_offset.any():
-        aware = pd.to_datetime(text[has_offset], format="ISO8601", utc=True, errors="coerce")
+        aware = pd.to_datetime(text[has_offset], format="ISO8601", utc=True, errors="coerce", cache=False)
         result[has_offset] = aware.dt.as_unit("ns").array.asi8
     naive_rows = present.to_numpy(dtype=bool) & ~has_offset
     counts = LocalTimeCounts()
     if naive_rows.any():
-        naive = pd.to_datetime(text[naive_rows], format="ISO8601", errors="coerce").dt.as_unit("ns").array.asi8
+        naive = pd.to_datetime(text[naive_rows], format="ISO8601", errors="coerce",
+                               cache=False).dt.as_unit("ns").array.asi8  # its cache costs more than it saves
         parsed = naive != NAT
         if parsed.any():
             utc, counts = local_to_utc_ns(naive, _require_timezone(timezone, file, column))
