@@ -68,9 +68,10 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
                 report.warnings.extend(part.warnings)
                 continue
             events, file_counts, warnings, rows_read = READERS[spec.format](spec, path, only)
-            parts.append(events)
+            if events is not None:
+                parts.append(events)
             counts = counts + file_counts
-            report.rows_per_file[str(path)] = len(events)
+            report.rows_per_file[str(path)] = 0 if events is None else len(events)
             report.rows_read_per_file[str(path)] = rows_read
             report.warnings.extend(warnings)
     if statement_parts:
