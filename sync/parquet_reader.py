@@ -77,7 +77,7 @@ def read_parquet_log(spec: LogSpec, path: Path,
         table = parquet.read_row_groups(holding, columns=wanted) if holding else None
         if table is not None:
             held = np.concatenate([np.arange(group_starts[g], group_starts[g + 1]) for g in holding])
-            table = table.take(pa.array(np.searchsorted(held, keep_rows)))
+            table = _drop_unused_words(table.take(pa.array(np.searchsorted(held, keep_rows))))
         rows = keep_rows + 1
         if table is None or table.num_rows == 0:
             return None, LocalTimeCounts(), [], rows_read
@@ -91,6 +91,22 @@ def read_parquet_log(spec: LogSpec, path: Path,
     del table
     events, counts, warnings, _ = events_from_columns(frame, spec, name, rows, only)
     return events, counts, warnings, rows_read
+
+
+def _drop_unused_words(table: pa.Table) -> pa.Table:
+    """Dictionary columns cut to the words the kept rows use (a platform's 20,000 learner
+    ids would otherwise follow 500 learners' rows into every later step)."""
+    columns = {}
+    for name in table.column_names:
+        column = table.column(name).combine_chunks() if table.num_rows else table.column(name)
+        if isinstance(column, pa.DictionaryArray):
+            indices = pc.fill_null(column.indices, -1).to_numpy(zero_copy_only=False)
+            used = np.unique(indices[indices >= 0])
+            remapped = np.searchsorted(used, indices).astype(np.int32)
+            column = pa.DictionaryArray.from_arrays(
+                pa.array(remapped, mask=indices < 0), column.dictionary.take(pa.array(used, pa.int64())))
+        columns[name] = column
+    return pa.table(columns)
 
 
 def hive_partition_values(spec: LogSpec, path: Path) -> dict[str, str]:
