@@ -19,6 +19,7 @@ import codecs
 import gzip
 import io
 import json
+import os
 import re
 from collections.abc import Iterator
 from pathlib import Path
@@ -29,6 +30,7 @@ import numpy as np
 from sync.errors import InputError
 
 BLOCK_BYTES = 8 * 1024 * 1024
+PARALLEL_MIN_BYTES = 64 * 1024 * 1024  # below this, starting processes costs more than it saves
 _BOM = b"\xef\xbb\xbf"
 _WHITESPACE = b" \t\r\n"
 _DELTA = np.zeros(256, dtype=np.int8)
@@ -46,6 +48,48 @@ def _open(path: Path, encoding: str) -> io.RawIOBase:
     if codecs.lookup(encoding).name == "utf-8":
         return stream
     return _Transcoded(io.TextIOWrapper(stream, encoding=encoding, newline=""))
+
+
+def parallel_stretches(path: Path, encoding: str, parts: int | None = None) -> list[tuple[int, int]]:
+    """Byte stretches [start, end) of a large plain UTF-8 JSON-lines file, cut just after
+    line breaks, one per core; a single stretch (or none) when splitting does not apply."""
+    parts = parts or os.cpu_count() or 1
+    size = path.stat().st_size
+    if parts < 2 or size < PARALLEL_MIN_BYTES or codecs.lookup(encoding).name != "utf-8":
+        return []
+    with open(path, "rb") as handle:
+        head = handle.read(64 * 1024)
+        body = head[len(_BOM):] if head.startswith(_BOM) else head
+        if head[:2] == b"\x1f\x8b" or not body.lstrip(_WHITESPACE).startswith(b"{"):
+            return []
+        first_line = body.lstrip(_WHITESPACE).split(b"\n", 1)[0]
+        try:
+            msgspec.json.decode(first_line)
+        except msgspec.DecodeError:
+            return []  # a pretty-printed document, not JSON lines
+        cuts = [0]
+        for number in range(1, parts):
+            handle.seek(size * number // parts)
+            handle.readline()
+            cuts.append(max(handle.tell(), cuts[-1]))
+    cuts.append(size)
+    return [(start, end) for start, end in zip(cuts[:-1], cuts[1:]) if end > start]
+
+
+class _Range:
+    """The bytes [start, end) of a file, read as a stream."""
+
+    def __init__(self, raw, start: int, end: int) -> None:
+        self.raw, self.left = raw, end - start
+        raw.seek(start)
+
+    def read(self, size: int) -> bytes:
+        data = self.raw.read(min(size, self.left))
+        self.left -= len(data)
+        return data
+
+    def close(self) -> None:
+        self.raw.close()
 
 
 class _Transcoded:
@@ -70,13 +114,17 @@ class StatementBlocks:
     lines, else the page's line.
     """
 
-    def __init__(self, path: Path, encoding: str, single: type, block_bytes: int = BLOCK_BYTES) -> None:
-        self.path, self.name, self.encoding = path, str(path), encoding
+    def __init__(self, path: Path, encoding: str, single: type, block_bytes: int = BLOCK_BYTES,
+                 stretch: tuple[int, int] | None = None) -> None:
+        self.path, self.name, self.encoding, self.stretch = path, str(path), encoding, stretch
         self.single = msgspec.json.Decoder(single)
         self.many = msgspec.json.Decoder(list[single])
         self.block_bytes = block_bytes
 
     def __iter__(self) -> Iterator[tuple[list, np.ndarray]]:
+        if self.stretch is not None:  # a stretch of a JSON-lines file (see parallel_stretches)
+            yield from self._stretch(*self.stretch)
+            return
         stream = _open(self.path, self.encoding)
         try:
             head = self._read(stream, self.block_bytes)
@@ -115,8 +163,21 @@ class StatementBlocks:
         return True
 
     # --- JSON lines -------------------------------------------------------------------
-    def _lines(self, stream, buffer: bytes) -> Iterator[tuple[list, np.ndarray]]:
+    def _stretch(self, start: int, end: int) -> Iterator[tuple[list, np.ndarray]]:
         lines_before = 0
+        with open(self.path, "rb") as handle:  # line numbers count from the file's start
+            while handle.tell() < start:
+                lines_before += handle.read(min(self.block_bytes, start - handle.tell())).count(b"\n")
+        stream = _Range(open(self.path, "rb"), start, end)
+        try:
+            head = self._read(stream, self.block_bytes)
+            if start == 0 and head.startswith(_BOM):
+                head = head[len(_BOM):]
+            yield from self._lines(stream, head, lines_before)
+        finally:
+            stream.close()
+
+    def _lines(self, stream, buffer: bytes, lines_before: int = 0) -> Iterator[tuple[list, np.ndarray]]:
         at_end = False
         while True:
             if not at_end:

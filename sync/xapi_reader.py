@@ -27,8 +27,11 @@ voided statements (2.3.2) are dropped, and the voiding statements are not events
 from __future__ import annotations
 
 import gc
+import multiprocessing
 import re
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
+from itertools import repeat
 from pathlib import Path
 
 import msgspec
@@ -39,7 +42,7 @@ import pyarrow.compute as pc
 
 from sync.errors import InputError
 from sync.event_table import build_events
-from sync.json_blocks import StatementBlocks
+from sync.json_blocks import StatementBlocks, parallel_stretches
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
 from sync.time_column import parse_time_column
@@ -118,13 +121,15 @@ class StatementPart:
     """One file's statements before the cross-file rules (ids, voiding, homePages) apply."""
 
     source: str
-    table: pa.Table
+    table: pa.Table | None
     voided: set[str] = field(default_factory=set)
     home_pages: set[str] = field(default_factory=set)
     counts: LocalTimeCounts = field(default_factory=LocalTimeCounts)
     warnings: list[str] = field(default_factory=list)
     rows_read: int = 0
     used_stored: int = 0
+    statements_seen: int = 0
+    anonymous: int = 0
 
 
 def _identities(actors: list[Actor | None]) -> tuple[pa.Array, pa.Array]:
@@ -230,33 +235,57 @@ def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None)
     """One file of xAPI statements -> a StatementPart; ``only`` keeps just those learners.
 
     ``only`` matches a learner's identifier and its ``homePage|name`` form, so it can be
-    given before it is known whether the logs need qualified account names.
+    given before it is known whether the logs need qualified account names.  A large
+    plain JSON-lines file is split at line breaks into one stretch per core, read in
+    parallel processes (decoding holds Python's lock, so threads would not help).
     """
     name = str(path)
-    part = StatementPart(source=name, table=pa.table({}))
-    tables, anonymous, statements_seen = [], 0, 0
+    stretches = parallel_stretches(path, spec.encoding)
+    if len(stretches) > 1:
+        with ProcessPoolExecutor(len(stretches), mp_context=multiprocessing.get_context("fork")) as pool:
+            pieces = list(pool.map(_read_stretch, repeat(spec), repeat(path), repeat(only), stretches))
+    else:
+        pieces = [_read_stretch(spec, path, only, None)]
+    part = StatementPart(source=name, table=None)
+    for piece in pieces:
+        part.voided |= piece.voided
+        part.home_pages |= piece.home_pages
+        part.counts = part.counts + piece.counts
+        for counter in ("rows_read", "used_stored", "statements_seen", "anonymous"):
+            setattr(part, counter, getattr(part, counter) + getattr(piece, counter))
+    tables = [piece.table for piece in pieces if piece.table is not None]
+    part.table = pa.concat_tables(tables) if tables else None
+    if part.statements_seen == 0:
+        raise InputError(name, None, "holds no statements; export them again or remove its [[logs]] entry")
+    if part.rows_read == 0:
+        raise InputError(name, None, "holds no statement with an identified actor")
+    if part.anonymous:
+        part.warnings.append(f"{name}: {part.anonymous} statements left out: actor has no identifier (anonymous group)")
+    if part.used_stored:
+        part.warnings.append(f"{name}: {part.used_stored} statements have no timestamp; their stored time was used")
+    return part
+
+
+def _read_stretch(spec: LogSpec, path: Path, only: frozenset[str] | None,
+                  stretch: tuple[int, int] | None) -> StatementPart:
+    """The statements of the whole file, or of the bytes [start, end) of a JSON-lines file."""
+    name = str(path)
+    part = StatementPart(source=name, table=None)
+    tables = []
     collecting = gc.isenabled()
     gc.disable()  # millions of short-lived, acyclic objects: collection passes would only cost time
     try:
-        for statements, lines in StatementBlocks(path, spec.encoding, Statement):
-            statements_seen += len(statements)
+        for statements, lines in StatementBlocks(path, spec.encoding, Statement, stretch=stretch):
+            part.statements_seen += len(statements)
             before = part.rows_read
             table = _block_table(statements, lines, spec, name, only, part)
-            anonymous += len(statements) - (part.rows_read - before)
+            part.anonymous += len(statements) - (part.rows_read - before)
             if table is not None:
                 tables.append(table)
             del statements
     finally:
         if collecting:
             gc.enable()
-    if statements_seen == 0:
-        raise InputError(name, None, "holds no statements; export them again or remove its [[logs]] entry")
-    if part.rows_read == 0:
-        raise InputError(name, None, "holds no statement with an identified actor")
-    if anonymous:
-        part.warnings.append(f"{name}: {anonymous} statements left out: actor has no identifier (anonymous group)")
-    if part.used_stored:
-        part.warnings.append(f"{name}: {part.used_stored} statements have no timestamp; their stored time was used")
     part.table = pa.concat_tables(tables) if tables else None
     return part
 

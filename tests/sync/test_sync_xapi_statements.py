@@ -245,3 +245,20 @@ def test_only_the_observed_learners_are_kept_and_counted(tmp_path):
     assert kept["time_ns"].tolist() == reference["time_ns"].tolist()
     assert kept["source_row"].tolist() == reference["source_row"].tolist()
     assert report.rows_read == 30 and report.rows == 10
+
+
+def test_a_large_file_read_in_parallel_stretches_gives_the_same_events_and_lines(tmp_path, monkeypatch):
+    import sync.json_blocks as json_blocks
+
+    statements = tricky_statements(400)
+    write_lines(tmp_path / "statements.jsonl", statements)
+    serial, _ = read(tmp_path)
+    monkeypatch.setattr(json_blocks, "PARALLEL_MIN_BYTES", 1)
+    assert len(json_blocks.parallel_stretches(tmp_path / "statements.jsonl", "utf-8", 2)) == 2
+    parallel, _ = read(tmp_path)
+    assert parallel.equals(serial)
+    lines = [json.dumps(s) for s in statements]
+    lines[350] = lines[350].replace('"success": true', '"success": "yes"')
+    (tmp_path / "statements.jsonl").write_text("\n".join(lines))
+    with pytest.raises(InputError, match=r"statements.jsonl: line 351: result.success"):
+        read(tmp_path)
