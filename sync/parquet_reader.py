@@ -65,22 +65,21 @@ def read_parquet_log(spec: LogSpec, path: Path,
     group_starts = np.cumsum([0] + [parquet.metadata.row_group(g).num_rows for g in groups])
     rows_read = int(parquet.metadata.num_rows)
     if only is not None and learner in schema.names:
+        # Row groups the statistics cannot rule out, read one at a time (memory bounded by
+        # a row group) and cut to the wanted learners' rows at once.
         groups = _groups_that_may_hold(parquet, schema.names.index(learner), sorted(only))
-        learners = parquet.read_row_groups(groups, columns=[learner]).column(learner) \
-            if groups else pa.chunked_array([], pa.dictionary(pa.int32(), pa.string()))
-        rows_read = len(learners)
-        local = np.flatnonzero(_in(learners, only))
-        offsets = np.concatenate([np.arange(group_starts[g], group_starts[g + 1]) for g in groups]) \
-            if groups else np.zeros(0, np.int64)
-        keep_rows = offsets[local] if len(local) else np.zeros(0, np.int64)
-        holding = sorted(set(np.searchsorted(group_starts, keep_rows, side="right") - 1))
-        table = parquet.read_row_groups(holding, columns=wanted) if holding else None
-        if table is not None:
-            held = np.concatenate([np.arange(group_starts[g], group_starts[g + 1]) for g in holding])
-            table = _drop_unused_words(table.take(pa.array(np.searchsorted(held, keep_rows))))
-        rows = keep_rows + 1
-        if table is None or table.num_rows == 0:
+        pieces, row_pieces, rows_read = [], [], 0
+        for group in groups:
+            piece = parquet.read_row_group(group, columns=wanted)
+            rows_read += piece.num_rows
+            local = np.flatnonzero(_in(piece.column(learner), only))
+            if local.size:
+                pieces.append(piece.take(pa.array(local)))
+                row_pieces.append(group_starts[group] + local + 1)
+        if not pieces:
             return None, LocalTimeCounts(), [], rows_read
+        table = _drop_unused_words(pa.concat_tables(pieces).unify_dictionaries())
+        rows = np.concatenate(row_pieces).astype(np.int64)
     else:
         table = parquet.read(columns=wanted)
         rows = np.arange(1, table.num_rows + 1, dtype=np.int64)
