@@ -87,21 +87,32 @@ def _read_arrow(spec: LogSpec, path: Path, header: list[str], delimiter: str,
              for column in wanted}
     learner = spec.columns["learner"]
     wanted_ids = None if only is None else pa.array(sorted(only), pa.string())
+    # Naive ISO 8601 stamps are parsed by Arrow (in C++, on every core) as wall-clock
+    # readings; sync/time_column.py then applies our DST rule.  Any other stamp (an
+    # offset, epoch numbers, a bad value) makes Arrow refuse, and the column is read as text.
+    time_types = [pa.timestamp("ns"), pa.string()] if spec.time_format in ("auto", "iso") else [pa.string()]
+    for time_type in time_types:
+        types[spec.columns["time"]] = time_type
+        try:
+            return _read_blocks(spec, path, header, delimiter, types, learner, wanted_ids)
+        except pa.ArrowInvalid as error:
+            if time_type == pa.string() or "timestamp" not in str(error):
+                raise
+    raise AssertionError("unreachable")
+
+
+def _read_blocks(spec: LogSpec, path: Path, header: list[str], delimiter: str, types: dict,
+                 learner: str, wanted_ids: pa.Array | None) -> tuple[pa.Table, np.ndarray, int]:
+    name = str(path)
+    wanted = sorted(types)
     for newlines_in_values in (False, True):
-        bad_rows: list = []
-
-        def remember(row) -> str:
-            bad_rows.append(row)
-            return "error"
-
         try:
             reader = pacsv.open_csv(
                 path,
                 read_options=pacsv.ReadOptions(encoding=spec.encoding if codecs.lookup(spec.encoding).name != "utf-8"
                                                else "utf8", column_names=header, skip_rows=1,
                                                block_size=BLOCK_BYTES, use_threads=True),
-                parse_options=pacsv.ParseOptions(delimiter=delimiter, newlines_in_values=newlines_in_values,
-                                                 invalid_row_handler=remember),
+                parse_options=pacsv.ParseOptions(delimiter=delimiter, newlines_in_values=newlines_in_values),
                 convert_options=pacsv.ConvertOptions(include_columns=wanted, column_types=types,
                                                      strings_can_be_null=False, quoted_strings_can_be_null=False))
             batches, row_blocks, rows_read = [], [], 0
@@ -120,13 +131,30 @@ def _read_arrow(spec: LogSpec, path: Path, header: list[str], delimiter: str,
             if "invalid UTF8" in message:
                 raise InputError(name, _first_bad_byte(path), f"is not valid {spec.encoding} text; "
                                  "set encoding = \"...\" (e.g. \"cp1252\") in its [[logs]] entry") from None
-            if not newlines_in_values:
+            if "conversion error" in message or newlines_in_values is False:
+                if "conversion error" in message:
+                    raise
                 continue
-            where = f"row {bad_rows[0].number - 1}" if bad_rows and bad_rows[0].number > 0 else None
-            shown = bad_rows[0].text[:60] if bad_rows else message.split(":", 1)[-1].strip()[:60]
-            raise InputError(name, where, f"cannot be read as CSV ({shown!r} has {bad_rows[0].actual_columns if bad_rows else '?'} "
-                             f"fields, the header {len(header)}); check quotes and delimiters on that line") from None
+            row, shown, fields = _first_bad_record(path, _encoding(spec), delimiter, len(header))
+            raise InputError(name, f"row {row}" if row else None, f"cannot be read as CSV ({shown[:60]!r} has "
+                             f"{fields} fields, the header {len(header)}); check quotes and delimiters on that line") from None
     raise AssertionError("unreachable")
+
+
+def _first_bad_record(path: Path, encoding: str, delimiter: str, width: int) -> tuple[int | None, str, int]:
+    """(data row, its text, its field count) of the first record whose width is not the
+    header's -- the error path only, read with the csv module as a stream."""
+    with open(path, encoding=encoding, newline="") as handle:
+        records = csv.reader(handle, delimiter=delimiter)
+        next(records, None)
+        number = 0
+        for record in records:
+            if not record:
+                continue  # blank lines are not rows (Arrow skips them too)
+            number += 1
+            if len(record) != width:
+                return number, delimiter.join(record), len(record)
+    return None, "", 0
 
 
 def _learner_mask(column: pa.Array, wanted: pa.Array) -> np.ndarray:
