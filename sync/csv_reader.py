@@ -131,9 +131,9 @@ def _read_blocks(spec: LogSpec, path: Path, header: list[str], delimiter: str, t
             if "invalid UTF8" in message:
                 raise InputError(name, _first_bad_byte(path), f"is not valid {spec.encoding} text; "
                                  "set encoding = \"...\" (e.g. \"cp1252\") in its [[logs]] entry") from None
-            if "conversion error" in message or newlines_in_values is False:
-                if "conversion error" in message:
-                    raise
+            if "conversion error" in message:
+                raise  # a time column Arrow would not read as naive stamps: _read_arrow retries as text
+            if not newlines_in_values:
                 continue
             row, shown, fields = _first_bad_record(path, _encoding(spec), delimiter, len(header))
             raise InputError(name, f"row {row}" if row else None, f"cannot be read as CSV ({shown[:60]!r} has "
