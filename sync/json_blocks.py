@@ -50,23 +50,40 @@ def _open(path: Path, encoding: str) -> io.RawIOBase:
     return _Transcoded(io.TextIOWrapper(stream, encoding=encoding, newline=""))
 
 
+def plain_json_lines(path: Path, encoding: str) -> bool:
+    """Is the file uncompressed UTF-8 JSON lines (its first line one whole object)?"""
+    if codecs.lookup(encoding).name != "utf-8":
+        return False
+    with open(path, "rb") as handle:
+        head = handle.read(64 * 1024)
+    body = head[len(_BOM):] if head.startswith(_BOM) else head
+    if head[:2] == b"\x1f\x8b" or not body.startswith(b"{"):
+        return False
+    try:
+        msgspec.json.decode(body.split(b"\n", 1)[0])
+    except msgspec.DecodeError:
+        return False  # a pretty-printed document, not JSON lines
+    return True
+
+
+def count_lines(path: Path) -> int:
+    """Lines in a file (a last line without a line break counts)."""
+    lines, last = 0, b"\n"
+    with open(path, "rb") as handle:
+        while block := handle.read(BLOCK_BYTES):
+            lines += block.count(b"\n")
+            last = block[-1:]
+    return lines + (last != b"\n")
+
+
 def parallel_stretches(path: Path, encoding: str, parts: int | None = None) -> list[tuple[int, int]]:
     """Byte stretches [start, end) of a large plain UTF-8 JSON-lines file, cut just after
     line breaks, one per core; a single stretch (or none) when splitting does not apply."""
     parts = parts or os.cpu_count() or 1
     size = path.stat().st_size
-    if parts < 2 or size < PARALLEL_MIN_BYTES or codecs.lookup(encoding).name != "utf-8":
+    if parts < 2 or size < PARALLEL_MIN_BYTES or not plain_json_lines(path, encoding):
         return []
     with open(path, "rb") as handle:
-        head = handle.read(64 * 1024)
-        body = head[len(_BOM):] if head.startswith(_BOM) else head
-        if head[:2] == b"\x1f\x8b" or not body.lstrip(_WHITESPACE).startswith(b"{"):
-            return []
-        first_line = body.lstrip(_WHITESPACE).split(b"\n", 1)[0]
-        try:
-            msgspec.json.decode(first_line)
-        except msgspec.DecodeError:
-            return []  # a pretty-printed document, not JSON lines
         cuts = [0]
         for number in range(1, parts):
             handle.seek(size * number // parts)

@@ -39,10 +39,11 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
+import pyarrow.json as pajson
 
 from sync.errors import InputError
 from sync.event_table import build_events
-from sync.json_blocks import StatementBlocks, parallel_stretches
+from sync.json_blocks import BLOCK_BYTES, StatementBlocks, count_lines, parallel_stretches, plain_json_lines
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
 from sync.time_column import parse_time_column
@@ -159,9 +160,9 @@ OUTCOME_NAMES = ["", "correct", "incorrect", "completed"]
 _SECONDS_ONLY = r"^PT\d+(?:\.\d+)?S$"  # the common shape, read by Arrow without a regex per text
 
 
-def _durations(texts: list, name: str, lines: np.ndarray) -> np.ndarray:
+def _durations(texts: list | pa.Array, name: str, lines: np.ndarray) -> np.ndarray:
     """ISO 8601 durations -> seconds, parsing each distinct text once."""
-    encoded = pa.array(texts, pa.string()).dictionary_encode()
+    encoded = (texts if isinstance(texts, pa.Array) else pa.array(texts, pa.string())).dictionary_encode()
     uniques = encoded.dictionary
     seconds = np.full(len(uniques) + 1, np.nan)
     simple = pc.match_substring_regex(uniques, _SECONDS_ONLY).to_numpy(zero_copy_only=False)
@@ -231,6 +232,116 @@ def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, 
     })
 
 
+_TEXT = pa.string()
+ARROW_SCHEMA = pa.schema([
+    ("id", _TEXT),
+    ("actor", pa.struct([("mbox", _TEXT), ("mbox_sha1sum", _TEXT), ("openid", _TEXT),
+                         ("account", pa.struct([("homePage", _TEXT), ("name", _TEXT)]))])),
+    ("verb", pa.struct([("id", _TEXT)])),
+    ("object", pa.struct([("objectType", _TEXT), ("id", _TEXT)])),
+    ("result", pa.struct([("success", pa.bool_()), ("completion", pa.bool_()), ("duration", _TEXT)])),
+    ("timestamp", _TEXT),
+    ("stored", _TEXT),
+])
+
+
+def _field(column: pa.Array, *path: str) -> pa.Array:
+    """A nested text field with "" read as missing (as the exact path reads it)."""
+    value = column
+    for name in path:
+        value = pc.struct_field(value, name)
+    return pc.if_else(pc.equal(value, ""), pa.scalar(None, value.type), value) if value.type == _TEXT else value
+
+
+def _read_with_arrow(spec: LogSpec, path: Path, only: frozenset[str] | None) -> StatementPart | None:
+    """The fast path: a plain JSON-lines file whose every line is one statement of the
+    usual shape, read by Arrow's JSON reader (C++, every core, in blocks).
+
+    Returns None -- and the exact path (msgspec, line by line) reads the file -- when
+    anything is unusual: another layout, a blank line, a field of another type, an
+    actor without identifier, a statement without verb, any error to report.
+    """
+    name = str(path)
+    if not plain_json_lines(path, spec.encoding):
+        return None
+    part = StatementPart(source=name, table=None)
+    tables, rows = [], 0
+    try:
+        reader = pajson.open_json(path, read_options=pajson.ReadOptions(block_size=BLOCK_BYTES),
+                                  parse_options=pajson.ParseOptions(explicit_schema=ARROW_SCHEMA,
+                                                                    unexpected_field_behavior="ignore"))
+        for batch in reader:
+            lines = np.arange(rows + 1, rows + batch.num_rows + 1, dtype=np.int64)
+            rows += batch.num_rows
+            table = _arrow_block(batch, lines, spec, name, only, part)
+            if table is False:
+                return None
+            if table is not None:
+                tables.append(table)
+    except (pa.ArrowInvalid, InputError):
+        return None
+    if rows == 0 or rows != count_lines(path):
+        return None
+    part.statements_seen = rows
+    part.table = pa.concat_tables(tables) if tables else None
+    return part
+
+
+def _arrow_block(batch: pa.RecordBatch, lines: np.ndarray, spec: LogSpec, name: str,
+                 only: frozenset[str] | None, part: StatementPart) -> pa.Table | None | bool:
+    """One Arrow block -> the same table as ``_block_table``; False sends the file to the exact path."""
+    actor, verb, target, result = (batch.column(key) for key in ("actor", "verb", "object", "result"))
+    names = _field(actor, "account", "name")
+    named = names.is_valid()
+    learner = pc.if_else(named, names, pc.coalesce(_field(actor, "mbox"), _field(actor, "mbox_sha1sum"),
+                                                    _field(actor, "openid")))
+    verb_ids = _field(verb, "id")
+    if learner.null_count or verb_ids.null_count:
+        return False
+    home = pc.if_else(named, pc.coalesce(_field(actor, "account", "homePage"), ""), pa.scalar(None, _TEXT))
+    voiding = pc.equal(verb_ids, VOIDED).to_numpy(zero_copy_only=False)
+    if voiding.any():
+        refs = batch.filter(pa.array(voiding)).column("object")
+        is_ref = pc.fill_null(pc.equal(pc.struct_field(refs, "objectType"), "StatementRef"), False)
+        part.voided.update(text.lower() for text in _field(refs, "id").filter(is_ref).to_pylist() if text)
+    part.home_pages.update(page for page in pc.unique(home).to_pylist() if page is not None)
+    part.rows_read += batch.num_rows
+    keep = ~voiding
+    if only is not None:
+        wanted = pa.array(sorted(only), _TEXT)
+        qualified = pc.binary_join_element_wise(home, learner, QUALIFIER)
+        keep &= (pc.is_in(learner, wanted).to_numpy(zero_copy_only=False)
+                 | pc.fill_null(pc.is_in(qualified, wanted), False).to_numpy(zero_copy_only=False))
+    if not keep.all():
+        mask = pa.array(keep)
+        batch, lines = batch.filter(mask), lines[keep]
+        learner, home, verb_ids = learner.filter(mask), home.filter(mask), verb_ids.filter(mask)
+        target, result = batch.column("object"), batch.column("result")
+    if batch.num_rows == 0:
+        return None
+    timestamp = _field(batch.column("timestamp"))
+    part.used_stored += timestamp.null_count
+    stamps = pc.coalesce(timestamp, _field(batch.column("stored")))
+    time_ns, counts = parse_time_column(stamps.to_pandas(), "iso", spec.timezone, name, "timestamp", lines,
+                                        row_word="line")
+    part.counts = part.counts + counts
+    success = pc.struct_field(result, "success").to_numpy(zero_copy_only=False)
+    completion = pc.struct_field(result, "completion").to_numpy(zero_copy_only=False)
+    outcome = np.where(success == True, 1, np.where(success == False, 2,  # noqa: E712 (None compares False)
+                                                    np.where(completion == True, 3, 0))).astype(np.int8)  # noqa: E712
+    return pa.table({
+        "learner": learner.dictionary_encode(),
+        "home": home.dictionary_encode(),
+        "time_ns": pa.array(time_ns, pa.int64()),
+        "action": verb_ids.dictionary_encode(),
+        "outcome": pa.array(outcome),
+        "item": pc.fill_null(_field(target, "id"), "").dictionary_encode(),
+        "duration_s": pa.array(_durations(pc.struct_field(result, "duration"), name, lines), pa.float64()),
+        "id": batch.column("id"),
+        "row": pa.array(lines, pa.int64()),
+    })
+
+
 def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None) -> StatementPart:
     """One file of xAPI statements -> a StatementPart; ``only`` keeps just those learners.
 
@@ -240,12 +351,11 @@ def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None)
     parallel processes (decoding holds Python's lock, so threads would not help).
     """
     name = str(path)
-    stretches = parallel_stretches(path, spec.encoding)
-    if len(stretches) > 1:
-        with ProcessPoolExecutor(len(stretches), mp_context=multiprocessing.get_context("fork")) as pool:
-            pieces = list(pool.map(_read_stretch, repeat(spec), repeat(path), repeat(only), stretches))
+    part = _read_with_arrow(spec, path, only)
+    if part is not None:
+        pieces = [part]
     else:
-        pieces = [_read_stretch(spec, path, only, None)]
+        pieces = _read_exactly(spec, path, only)
     part = StatementPart(source=name, table=None)
     for piece in pieces:
         part.voided |= piece.voided
@@ -264,6 +374,17 @@ def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None)
     if part.used_stored:
         part.warnings.append(f"{name}: {part.used_stored} statements have no timestamp; their stored time was used")
     return part
+
+
+def _read_exactly(spec: LogSpec, path: Path, only: frozenset[str] | None) -> list[StatementPart]:
+    """The exact path: msgspec block by block, in parallel stretches for a large file."""
+    stretches = parallel_stretches(path, spec.encoding)
+    if len(stretches) > 1:
+        with ProcessPoolExecutor(len(stretches), mp_context=multiprocessing.get_context("fork")) as pool:
+            pieces = list(pool.map(_read_stretch, repeat(spec), repeat(path), repeat(only), stretches))
+    else:
+        pieces = [_read_stretch(spec, path, only, None)]
+    return pieces
 
 
 def _read_stretch(spec: LogSpec, path: Path, only: frozenset[str] | None,

@@ -262,3 +262,36 @@ def test_a_large_file_read_in_parallel_stretches_gives_the_same_events_and_lines
     (tmp_path / "statements.jsonl").write_text("\n".join(lines))
     with pytest.raises(InputError, match=r"statements.jsonl: line 351: result.success"):
         read(tmp_path)
+
+
+def test_arrows_fast_path_and_the_exact_path_give_the_same_events(tmp_path, monkeypatch):
+    import sync.xapi_reader as xapi_reader
+
+    statements = []
+    actors = [{"account": {"homePage": "https://sim.example.org", "name": "n-0001"}}, {"mbox": "mailto:a@example.org"},
+              {"mbox_sha1sum": "ebd31e95054c018b10727ccffd2ef2ec3a016ee9"}, {"openid": "http://id.example.org/7"}]
+    results = [None, {"success": True}, {"success": False, "duration": "PT4H35M59.14S"}, {"completion": True},
+               {"duration": "PT12.5S"}]
+    for number in range(40):
+        statement = copy.deepcopy(ATTEMPTED)
+        statement["id"] = f"00000000-0000-4000-8000-{number:012d}"
+        statement["actor"] = actors[number % 4]
+        statement["timestamp"] = f"2026-03-02T09:{number:02d}:00{'Z' if number % 2 else '+01:00'}"
+        if results[number % 5] is None:
+            del statement["result"]
+        else:
+            statement["result"] = results[number % 5]
+        if number % 7 == 0:
+            statement["stored"] = statement.pop("timestamp")
+        statements.append(statement)
+    voiding = copy.deepcopy(VOIDING)
+    voiding["object"]["id"] = statements[3]["id"]
+    write_lines(tmp_path / "statements.jsonl", statements + [voiding, statements[5]])
+    spec = log_spec_from_toml({"path": "statements.jsonl", "format": "xapi"}, tmp_path, 1)
+    assert xapi_reader._read_with_arrow(spec, tmp_path / "statements.jsonl", None) is not None
+    fast, fast_report = read(tmp_path)
+    monkeypatch.setattr(xapi_reader, "_read_with_arrow", lambda *arguments: None)
+    exact, exact_report = read(tmp_path)
+    assert fast.equals(exact)
+    assert fast_report.warnings == exact_report.warnings
+    assert len(fast) == 39  # one voided, one repeated id
