@@ -101,6 +101,7 @@ def _observable(observations: pd.DataFrame, study: Study) -> pd.DataFrame:
     return observations
 
 
+PARSED_LOGS_DIR = "parsed_logs"  # sync/log_cache.py: owner-only, keyed by digest, never exported
 NO_LOGS_FOR_ALIGN = ("no logs declared; add a [[logs]] entry, "
                      "or give every device's offset with --set-offset DEVICE=SECONDS")
 
@@ -115,7 +116,7 @@ def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
     if not study.logs:
         raise InputError(study.dir / "study.toml", "[[logs]]", if_missing)
     return read_logs(study.logs, known_log_ids=study.roster["log_id"].dropna().astype(str),
-                     only_log_ids=only_log_ids)
+                     only_log_ids=only_log_ids, cache_dir=study.dir / PARSED_LOGS_DIR)
 
 
 def stored_clock_models(study: Study) -> dict[str, ClockModel]:
