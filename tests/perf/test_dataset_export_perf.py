@@ -26,9 +26,6 @@ import time
 from pathlib import Path
 
 import numpy as np
-import pytest
-
-pytestmark = pytest.mark.skipif(os.environ.get("FIELDMARK_PERF") != "1", reason="benchmark: set FIELDMARK_PERF=1")
 
 CACHE = Path(os.environ.get("FIELDMARK_PERF_CACHE", "/tmp/fieldmark-perf"))
 EVENTS = int(float(os.environ.get("FIELDMARK_DATASET_EVENTS", "100e6")))
