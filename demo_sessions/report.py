@@ -7,13 +7,13 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Rectangle
 
 from observer_app.reports.html import figure_html, page, paragraph, section, table_html
-from observer_app.study.scheme import Dimension
+from observer_app.study.scheme import SchemeDimension
 
 __all__ = ["figure_html", "page", "paragraph", "section", "table_html", "timeline_figure",
            "codes_per_learner_figure"]
 
 
-def timeline_figure(states: pd.DataFrame, codes: pd.DataFrame, dimension: Dimension, origin: pd.Timestamp,
+def timeline_figure(states: pd.DataFrame, codes: pd.DataFrame, dimension: SchemeDimension, origin: pd.Timestamp,
                     caption: str) -> Figure:
     """Latent-state bands per learner with each coder's codes as markers above them.
 
@@ -46,7 +46,7 @@ def timeline_figure(states: pd.DataFrame, codes: pd.DataFrame, dimension: Dimens
     return figure
 
 
-def codes_per_learner_figure(observations: pd.DataFrame, dimension: Dimension) -> Figure:
+def codes_per_learner_figure(observations: pd.DataFrame, dimension: SchemeDimension) -> Figure:
     """Stacked bars: how often each learner got each code of ``dimension``."""
     counts = (observations.groupby(["learner", dimension.name]).size().unstack(fill_value=0)
               .reindex(columns=list(dimension.code_names), fill_value=0))
