@@ -91,9 +91,11 @@ class ClockModel:
 
     def at_reference(self, reference_ns: int) -> "ClockModel":
         """The same clock line written with another reference time (offset re-expressed
-        there), e.g. to compare with a model stated at a different reference."""
-        offset = self.offset_s + self.drift_ppm * 1e-6 * (reference_ns - self.reference_ns) / 1e9
-        return replace(self, offset_s=offset, reference_ns=int(reference_ns))
+        there), e.g. to compare with a model stated at a different reference.  The automatic
+        scan's candidate offsets move with it, so its curve still peaks at ``offset_s``."""
+        shift = self.drift_ppm * 1e-6 * (reference_ns - self.reference_ns) / 1e9
+        return replace(self, offset_s=self.offset_s + shift, reference_ns=int(reference_ns),
+                       scan_offsets_s=tuple(offset + shift for offset in self.scan_offsets_s))
 
     def to_json(self) -> str:
         """JSON text for the store; NaN becomes null."""

@@ -39,7 +39,7 @@ from observer_app.study.folder import Study
 from sync.clock import ClockModel, manual_model
 from sync.clock_marks import fit_from_marks
 from sync.clock_scan import scan_offset
-from sync.clock_sessions import model_for, models_by_session
+from sync.clock_sessions import clock_key, model_for, session_model, sessions_apart
 from sync.errors import InputError
 from sync.event_table import empty_events
 from sync.logs import ReadReport, read_logs
@@ -197,14 +197,25 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
 
 def _fit_marks_by_session(marks: pd.DataFrame, events: pd.DataFrame, live: pd.DataFrame) -> dict[str, ClockModel]:
     """One device's marks fitted together and per session (sessions with MIN_MARKS_PER_SESSION
-    usable marks), combined or kept apart by sync.clock_sessions."""
+    usable marks); sessions whose clock was corrected keep their own model (sync/clock_sessions.py)
+    and the device's model is refitted from the rest."""
     combined = fit_from_marks(marks, events, _observed_span(live))
     per_session = {
         str(session_id): fit_from_marks(group, events, _observed_span(live[live["session_id"] == session_id]))
         for session_id, group in marks.groupby("session_id", sort=True)
         if len(group) >= MIN_MARKS_PER_SESSION
     }
-    return models_by_session(combined, per_session)
+    apart = sessions_apart(combined, per_session)
+    if not apart:
+        return {combined.device: combined}
+    sessions = set(marks["session_id"].astype(str)) | set(live["session_id"].astype(str))
+    models = {clock_key(combined.device, session_id): session_model(per_session[session_id], len(sessions))
+              for session_id in apart}
+    rest = marks[~marks["session_id"].astype(str).isin(apart)]
+    if len(rest):
+        models[combined.device] = fit_from_marks(rest, events,
+                                                 _observed_span(live[~live["session_id"].astype(str).isin(apart)]))
+    return models
 
 
 def _observed_span(live: pd.DataFrame) -> tuple[int, int] | None:
