@@ -180,7 +180,7 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
     known = set(events["learner"].cat.categories.astype(str))
     models = {device: manual_model(device, offset) for device, offset in manual_offsets.items()}
     skipped: dict[str, str] = {}
-    for device in tqdm(to_fit, desc="aligning devices", unit="device", disable=not progress):
+    for device in tqdm(to_fit, desc="aligning devices", unit="device", disable=None if progress else True):
         device_marks = marks[(marks["device"] == device) & marks["log_id"].isin(known)]
         live = observations[(observations["device"] == device) & (observations["mode"] == "live")]
         use_marks = method == "marks" or (method == "best" and len(device_marks) >= MIN_MARKS_FOR_BEST)
