@@ -18,6 +18,7 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
                                            method: sync marks), stated at the truth's reference time:
                                            {"method", "offset_s", "drift_ppm", "reference_ns",
                                            "marks_used", "median_abs_residual_s", "confidence",
+                                           "offset_standard_error_s", "span_standard_error_s",
                                            "outlying_marks", "warnings", "versus_truth"}
                               "recovered_automatic": the same from the automatic scan (no marks)
                               "versus_truth" (in both): {"offset_error_s", "drift_error_ppm"}:
