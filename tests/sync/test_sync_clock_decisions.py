@@ -232,3 +232,45 @@ def test_a_clock_corrected_between_days_gets_a_model_per_session(tmp_path, offse
         assert np.abs(model.to_log_ns(device_ns) - planted).max() < 1e9, (session, model)
     exported = call_cli("export", study, "--out", tmp_path / "windows.parquet", "--json")
     assert exported.returncode == 0, exported.stderr
+
+
+@pytest.fixture(scope="module")
+def planted_marks():
+    from tests.sync import sync_planted_clock as planted
+    return planted.build(seed=5)
+
+
+def test_one_day_of_marks_alone_recovers_the_planted_clock(planted_marks):
+    """A session's own fit rests on few marks: each mark votes once per offset, so a busy
+    learner's burst of events cannot outvote the marks that agree (PLANTED: the clock of
+    tests/sync/sync_planted_clock.py, 37.4 s ahead, 45 ppm)."""
+    from sync.clock_marks import fit_from_marks
+    from tests.sync import sync_planted_clock as planted
+
+    built = planted_marks
+    first_day = pd.to_datetime(built.marks["marked_at"]) < planted.REFERENCE + pd.Timedelta(days=1)
+    model = fit_from_marks(built.marks[first_day], built.events)
+    truth = planted.TRUTH.at_reference(model.reference_ns)
+    assert abs(model.offset_s - truth.offset_s) < 0.5, (model.offset_s, truth.offset_s)
+
+
+def test_span_standard_error_is_the_line_s_prediction_error_at_the_span_s_ends(planted_marks):
+    """Reference: statsmodels OLS, standard error of the fitted mean at a new x
+    (get_prediction().se_mean), which is sigma * sqrt(x0' (X'X)^-1 x0); with the robust SD
+    of the kept residuals in place of the OLS sigma it must equal span_standard_error_s."""
+    import statsmodels.api as sm
+
+    from sync.clock_marks import _robust_sd, fit_from_marks
+    built = planted_marks
+    span = (int(built.observations["window_start"].min().value), int(built.observations["window_end"].max().value))
+    model = fit_from_marks(built.marks, built.events, span)
+    kept = [r for r in model.residuals if not r.outlier]
+    since = np.array([(r.event_ns - model.reference_ns) / 1e9 for r in kept])
+    residual = np.array([r.residual_s for r in kept])
+    gap = np.array([(r.device_ns - r.event_ns) / 1e9 for r in kept])
+    ols = sm.OLS(gap, sm.add_constant(since)).fit()
+    ends = (model.to_log_ns(np.array(span)) - model.reference_ns) / 1e9
+    se_mean = ols.get_prediction(sm.add_constant(ends, has_constant="add")).se_mean
+    expected = float(np.max(se_mean / np.sqrt(ols.scale) * _robust_sd(residual)))
+    assert model.span_standard_error_s == pytest.approx(expected, rel=1e-4)  # residuals are kept to 1 microsecond
+    assert model.span_standard_error_s > model.offset_standard_error_s  # drift grows it away from the marks
