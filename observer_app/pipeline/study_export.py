@@ -1,9 +1,10 @@
 """Exporting a study's labelled windows: the glue behind `fieldmark export` and the demo.
 
-The study (observer_app.study.folder), the store, the logs (sync.read_logs), the clock models
-and windows on the log's clock (sync.windows), the pairing of coders into units
-(agreement.pairing), then export/ for features, labels, pseudonyms and the file.  Each
-of those decides its own part; this module only passes the tables along.
+The study (observer_app.study.folder), the store, the logs (sync.read_logs), the study's
+units (observer_app.pipeline.units: observations on the log's clock, paired exactly as
+``fieldmark agree`` pairs them, adjudications placed by the observations they settle),
+windows on the log's clock (sync.windows), then export/ for features, labels, pseudonyms
+and the file.  Each of those decides its own part; this module only passes the tables along.
 """
 from __future__ import annotations
 
@@ -14,13 +15,13 @@ from pathlib import Path
 
 from tqdm import tqdm
 
-from agreement.pairing import pair_observations
 from export.labelled_windows import ExportSettings, label_windows
 from export.pseudonyms import read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.pipeline.alignment import read_study_logs, stored_clock_models
+from observer_app.pipeline.alignment import read_study_logs
+from observer_app.pipeline.units import require_placed, study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
 from sync.clock import ClockModel
@@ -64,6 +65,8 @@ def export_study(
             adjudications = store.adjudications()
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
+        found = study_units(study, observations)
+        placed = require_placed(found, adjudications)
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
@@ -71,7 +74,7 @@ def export_study(
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
-        models = stored_clock_models(study)
+        models = found.clock_models
         try:
             windows = observations_to_windows(observations, models, study.roster, window.anchor, window.before_s,
                                               window.after_s)
@@ -80,12 +83,12 @@ def export_study(
         bar.update()
 
         bar.set_postfix_str(STEPS[3])
-        units, pairing = pair_observations(observations, dimensions, tolerance_s=study.window_seconds / 2.0)
+        units = found.units
         windows[UNIT] = windows["observation_id"].map(units.set_index("observation_id")[UNIT]) if len(units) else None
         bar.update()
 
         bar.set_postfix_str(STEPS[4])
-        result = label_windows(events, windows, study.roster, dimensions, could_not_observe, key, adjudications, settings)
+        result = label_windows(events, windows, study.roster, dimensions, could_not_observe, key, placed, settings)
         bar.update()
 
         bar.set_postfix_str(STEPS[5])
@@ -95,7 +98,7 @@ def export_study(
         parameters = {
             **settings.parameters(),
             "window": {"anchor": window.anchor, "before_s": window.before_s, "after_s": window.after_s},
-            "pairing_tolerance_s": study.window_seconds / 2.0,
+            "pairing_tolerance_s": found.report["pairing_tolerance_s"],
         }
         manifest = build_manifest(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
@@ -107,7 +110,7 @@ def export_study(
     return {
         "out": str(out), "manifest": str(beside), "format": output_format, "rows": manifest["rows"],
         "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
-        "observations": int(len(observations)), "units": pairing.units,
+        "observations": int(len(observations)), "units": found.report["units"],
         "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])),
     }
 
