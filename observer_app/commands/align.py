@@ -6,7 +6,8 @@ import json
 import math
 import sys
 
-from observer_app.pipeline.alignment import METHODS, align_study, model_summary
+from observer_app.pipeline.alignment import METHODS, align_study, model_summary, read_study_logs
+from observer_app.pipeline.coverage import coverage_lines, coverage_report, study_coverage
 from observer_app.study.folder import load_study
 from sync.errors import InputError
 
@@ -44,8 +45,10 @@ def parse_offsets(texts: list[str]) -> dict[str, float]:
 def run(args: argparse.Namespace) -> int:
     offsets = parse_offsets(args.set_offset)
     study = load_study(args.study)
-    alignment = align_study(study, args.method, offsets, progress=not args.json)
+    logs = read_study_logs(study) if study.logs else None  # read once: for the fit and the coverage
+    alignment = align_study(study, args.method, offsets, progress=not args.json, logs=logs)
     report = alignment.read_report
+    coverage = study_coverage(study, logs[0], alignment.models) if logs is not None else None
     if args.json:
         payload = {
             "study": str(study.dir),
@@ -54,6 +57,7 @@ def run(args: argparse.Namespace) -> int:
             "logs": {"rows_per_file": report.rows_per_file, "ambiguous_local_times": report.ambiguous_local_times,
                      "nonexistent_local_times": report.nonexistent_local_times,
                      "unknown_learners": report.unknown_learners, "warnings": report.warnings},
+            "coverage": None if coverage is None else coverage_report(coverage),
         }
         sys.stdout.write(json.dumps(payload) + "\n")
         return 0
@@ -73,6 +77,8 @@ def run(args: argparse.Namespace) -> int:
             print(f"  {device}: {warning}")
     for device, reason in alignment.skipped.items():
         print(f"{device:<16}skipped: {reason}")
+    for line in coverage_lines(coverage_report(coverage)) if coverage is not None else []:
+        print(line)
     print("stored the chosen model per device in the study")
     return 0
 

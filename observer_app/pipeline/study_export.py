@@ -21,10 +21,12 @@ from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
 from observer_app.pipeline.alignment import read_study_logs
+from observer_app.pipeline.coverage import coverage_report
 from observer_app.pipeline.units import require_placed, study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
 from sync.clock import ClockModel
+from sync.coverage import Coverage, learner_coverage, unmatched_log_ids_problem
 from sync.errors import InputError
 from sync.windows import observations_to_windows
 
@@ -48,7 +50,7 @@ def export_study(
     settings: ExportSettings = ExportSettings(), progress: bool | None = None,
 ) -> dict:
     """Write the study's labelled windows and manifest to ``out``; return a JSON-ready summary
-    (out, manifest, format, rows, rows_per_label, events, observations, units, warnings).
+    (out, manifest, format, rows, rows_per_label, events, observations, units, coverage, warnings).
 
     ``progress``: None shows a bar only on a terminal.  Raises InputError for the user's mistakes.
     """
@@ -80,6 +82,10 @@ def export_study(
                                               window.after_s)
         except ValueError as error:
             raise InputError(None, "--before/--after", str(error)) from None
+        coverage = learner_coverage(events, windows)
+        problem = unmatched_log_ids_problem(coverage)
+        if problem:
+            raise InputError(study.dir / ROSTER_FILE, "column log_id", problem)
         bar.update()
 
         bar.set_postfix_str(STEPS[3])
@@ -105,14 +111,23 @@ def export_study(
             clock_models=[clock_summary(model) for model in models.values()],
             inputs=file_digests(*zip(*inputs)), output_format=output_format,
         )
+        manifest["coverage"] = coverage.summary()
         beside = write_windows(result, out, manifest)
         bar.update()
     return {
         "out": str(out), "manifest": str(beside), "format": output_format, "rows": manifest["rows"],
         "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
         "observations": int(len(observations)), "units": found.report["units"],
-        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])),
+        "coverage": coverage_report(coverage),
+        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + outside_warnings(coverage),
     }
+
+
+def outside_warnings(coverage: Coverage) -> list[str]:
+    """One warning per observed learner whose log events all fall outside their observed windows."""
+    return [f"learner {row.learner} (log_id {row.log_id!r}) has {row.events_in_logs} log events but none in any of "
+            f"their {row.windows} observed windows; check the clock models (fieldmark align) and the log's timezone"
+            for row in coverage.outside.itertuples()]
 
 
 def clock_summary(model: ClockModel) -> dict:
