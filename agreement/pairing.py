@@ -90,14 +90,14 @@ def _pairing_key(live: pd.DataFrame) -> pd.Series:
     """The paired run a live row belongs to: its pairing_id when filled, else its paired start; NA when solo."""
     started = live["paired_start"]
     key = pd.Series(pd.NA, index=live.index, dtype="string")
-    key[started.notna()] = "start:" + datetime_ns(started[started.notna()]).astype(str)
+    key[started.notna()] = "start:" + _datetime_ns(started[started.notna()]).astype(str)
     if "pairing_id" in live:
         given = live["pairing_id"].astype("string").fillna("").str.strip()
         key = key.mask(given.ne(""), "id:" + given)
     return key
 
 
-def datetime_ns(values: pd.Series) -> pd.Series:
+def _datetime_ns(values: pd.Series) -> pd.Series:
     """A UTC datetime column as int64 ns (same index)."""
     return pd.Series(pd.to_datetime(values, utc=True).dt.as_unit("ns").array.asi8, index=values.index)
 
