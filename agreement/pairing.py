@@ -1,7 +1,8 @@
 """How two coders' observations are paired into units: the one home of that decision.
 
 Rules, in order:
-1. Live observations of a paired run: same ``paired_start``, ``slot`` and learner.
+1. Live observations of a paired run: same run (``pairing_id`` when given, else
+   ``paired_start``), ``slot`` and learner.
 2. Other live observations: same learner, window starts at most ``tolerance_s`` apart,
    one to one, nearest first (a unit never holds two rows of one coder, and all its
    window starts lie within the tolerance of each other).
@@ -124,9 +125,13 @@ def pair_observations(observations: pd.DataFrame, dimensions: list[str],
     observations = observations.reset_index(drop=True)
     live = observations[observations["mode"] == "live"]
     replay = observations[(observations["mode"] == "replay") & (observations["clip"].fillna("") != "")]
-    slotted = live[live["paired_start"].notna() & live["slot"].notna()]
+    # the run's key: its pairing id when the sessions have one (signal starts), else its shared start
+    run_key = live["paired_start"].astype("string")
+    if "pairing_id" in live:
+        run_key = live["pairing_id"].astype("string").fillna(run_key)
+    slotted = live[run_key.notna() & live["slot"].notna()].assign(_run=run_key)
 
-    slot_groups = _group_by_key(slotted, ["paired_start", "slot", "learner"])
+    slot_groups = _group_by_key(slotted, ["_run", "slot", "learner"])
     clip_groups = _group_by_key(replay, ["clip"])
     loose = live.loc[live.index.difference(slot_groups.index)]
     time_group = _match_by_time(loose.reset_index(drop=True), tolerance_ns) if len(loose) else np.array([], int)

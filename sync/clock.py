@@ -15,7 +15,7 @@ from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 
-METHODS: tuple[str, ...] = ("manual", "marks", "auto", "identity")
+METHODS: tuple[str, ...] = ("manual", "marks", "borrowed", "auto", "identity")
 NAT = np.iinfo(np.int64).min
 
 
@@ -53,6 +53,7 @@ class ClockModel:
     median_abs_residual_s: float = math.nan
     confidence: float = math.nan
     offset_standard_error_s: float = math.nan
+    span_standard_error_s: float = math.nan
     warnings: tuple[str, ...] = ()
     residuals: tuple[MarkResidual, ...] = ()
     scan_offsets_s: tuple[float, ...] = ()
@@ -101,7 +102,7 @@ class ClockModel:
     def from_json(cls, text: str) -> "ClockModel":
         """The inverse of :meth:`to_json`."""
         data = json.loads(text)
-        for key in ("median_abs_residual_s", "confidence", "offset_standard_error_s"):
+        for key in ("median_abs_residual_s", "confidence", "offset_standard_error_s", "span_standard_error_s"):
             if data.get(key) is None:
                 data[key] = math.nan
         data["warnings"] = tuple(data.get("warnings", ()))

@@ -51,6 +51,8 @@ def run(args: argparse.Namespace) -> int:
             "study": str(study.dir),
             "devices": {device: model_summary(model) for device, model in alignment.models.items()},
             "skipped": alignment.skipped,
+            "borrowed": {device: borrowing.as_dict() for device, borrowing in alignment.borrowed.items()},
+            "typed_clock_differences": alignment.typed_differences,
             "logs": {"rows_per_file": report.rows_per_file, "ambiguous_local_times": report.ambiguous_local_times,
                      "nonexistent_local_times": report.nonexistent_local_times,
                      "unknown_learners": report.unknown_learners, "warnings": report.warnings},
@@ -71,6 +73,13 @@ def run(args: argparse.Namespace) -> int:
               f"{_shown(figures['median_abs_residual_s'], '.3f'):>15}{_shown(figures['confidence'], '.2f'):>12}")
         for warning in model.warnings:
             print(f"  {device}: {warning}")
+    for device, borrowing in alignment.borrowed.items():
+        print(f"{device:<16}borrowed {borrowing.partner}'s model: {borrowing.relative_offset_s:+.3f} s relative, "
+              f"from {borrowing.marks_used} paired signal marks")
+    for check in alignment.typed_differences:
+        if check["agrees"] is False:
+            print(f"  warning: {check['device']}'s coders typed a clock difference of {check['typed_s']:+.1f} s to "
+                  f"{check['partner']}, but the paired signals measured {check['measured_s']:+.3f} s")
     for device, reason in alignment.skipped.items():
         print(f"{device:<16}skipped: {reason}")
     print("stored the chosen model per device in the study")
