@@ -24,7 +24,12 @@ from scipy.stats import theilslopes
 # so the difference of two has about 0.15 s).  It floors every standard error below,
 # because two marks cannot show their own scatter.
 REACTION_DIFFERENCE_SD_S = 0.15
-MIN_DRIFT_SPAN_S = 600.0  # signals closer than this tell the offset only; drift assumed 0
+# Drift is fitted only from signals at least this far apart: over a 30-minute run two
+# presses each off by up to 0.4 s would give a "drift" of hundreds of ppm, while quartz
+# clocks drift by tens of ppm (common practice).  Three hours bring the reaction-time
+# error of the drift, sqrt(2) * 0.15 s / span, under 20 ppm; below it the offset is the
+# median difference and drift is taken as 0 (it moves a 30-minute run by ~0.1 s at most).
+MIN_DRIFT_SPAN_S = 3 * 3600.0
 
 RELATIVE_OFFSET_COLUMNS: tuple[str, ...] = (
     "device_a", "device_b", "offset_s", "drift_ppm", "standard_error_s", "marks_used", "reference_ns", "pairing_ids",

@@ -82,23 +82,30 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
     known = set(events["learner"].cat.categories.astype(str))
     models = {device: manual_model(device, offset) for device, offset in manual_offsets.items()}
     skipped: dict[str, str] = {}
+    to_scan = []
     for device in tqdm(to_fit, desc="aligning devices", unit="device", disable=not progress):
         device_marks = marks[(marks["device"] == device) & marks["log_id"].isin(known)]
-        live = observations[(observations["device"] == device) & (observations["mode"] == "live")]
         use_marks = method == "marks" or (method == "best" and len(device_marks) >= MIN_MARKS_FOR_BEST)
         if use_marks and len(device_marks):
             models[device] = fit_from_marks(device_marks, events)
         elif use_marks:
             skipped[device] = "no sync marks that name a learner with log events"
-        elif len(live):
-            models[device] = scan_offset(_observable(live, study), events, list(study.scheme.dimension_names))
         else:
-            skipped[device] = "no live observations to scan"
+            to_scan.append(device)
+    # a device without its own marks borrows a paired partner's model before any automatic scan
     relative = paired_relative_offsets(study)
-    borrowed = borrowings(models, study, relative)
+    borrowed = borrowings(models, study, relative) if method != "auto" else {}
     for device, borrowing in borrowed.items():
         models[device] = borrowing.model
         skipped.pop(device, None)
+    for device in to_scan:
+        live = observations[(observations["device"] == device) & (observations["mode"] == "live")]
+        if device in borrowed:
+            continue
+        if len(live):
+            models[device] = scan_offset(_observable(live, study), events, list(study.scheme.dimension_names))
+        else:
+            skipped[device] = "no live observations to scan"
     return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped, borrowed=borrowed,
                      typed_differences=typed_difference_checks(study, relative))
 

@@ -99,6 +99,10 @@ _SESSION_COLUMNS = ("session_id, coder, device, mode, paired_start_ns, started_n
                     "schedule_order, seed, scheme_hash, present, pairing_id, typed_clock_difference_s")
 SIGNAL_START, SIGNAL_END = "signal start", "signal end"
 MARK_KINDS: tuple[str, ...] = ("", SIGNAL_START, SIGNAL_END)
+# Where slot 0 of a paired run began on the device's clock: the typed shared start, or
+# the coder's key press on the start signal (its first mark; nothing while it is awaited).
+_PAIRED_START_NS = ("COALESCE(s.paired_start_ns, (SELECT min(m.marked_ns) FROM sync_marks m "
+                    f"WHERE m.session_id = s.session_id AND m.kind = '{SIGNAL_START}'))")
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
@@ -400,7 +404,8 @@ class Store:
 
     def sessions(self) -> pd.DataFrame:
         frame = self._frame(
-            "SELECT s.session_id, s.coder, s.device, s.mode, s.paired_start_ns, s.started_ns, s.monotonic_start, "
+            f"SELECT s.session_id, s.coder, s.device, s.mode, {_PAIRED_START_NS} AS paired_start_ns, s.started_ns, "
+            "s.monotonic_start, "
             "s.window_seconds, s.schedule_order AS \"order\", s.seed, s.scheme_hash, s.present, e.ended_ns, "
             "s.pairing_id, s.typed_clock_difference_s "
             "FROM sessions s LEFT JOIN session_ends e USING (session_id) ORDER BY s.started_ns, s.rowid")
@@ -424,7 +429,8 @@ class Store:
         every dimension that has ever been coded, sorted.
         """
         base = self._frame(
-            "SELECT o.observation_id, o.session_id, s.coder, s.device, s.mode, s.paired_start_ns, s.pairing_id, o.learner, "
+            f"SELECT o.observation_id, o.session_id, s.coder, s.device, s.mode, {_PAIRED_START_NS} AS paired_start_ns, "
+            "s.pairing_id, o.learner, "
             "o.slot, o.clip, o.window_start_ns, COALESCE(w.window_end_ns, o.window_end_ns) AS window_end_ns, "
             "o.created_ns, o.no_code, o.scheme_hash "
             "FROM observations o JOIN sessions s USING (session_id) "

@@ -150,7 +150,7 @@ def test_interrupted_session_is_offered_and_resumed_from_the_overview(qtbot, tmp
     study = load_study(folder)
     clock = FakeClock()
     with Store(study.store_path) as store:
-        session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=clock.now_utc())
+        session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=clock.now_utc())
         session.press("1")
     clock.advance(50)
     window = MainWindow(folder, clock=clock, device="laptop-1")
