@@ -57,7 +57,9 @@ import pandas as pd
 
 from observer_app.coding.schedule import RoundRobin, Turn
 from observer_app.coding.clock import Clock
-from observer_app.coding.shared_start import TYPED_START_BOUND_S, read_clock_difference, schedule_check_code
+from observer_app.coding.shared_start import (
+    TYPED_START_BOUND_S, Countdown, read_clock_difference, schedule_check_code,
+)
 from observer_app.study.store import SIGNAL_END, SIGNAL_START, Store, new_id
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, window_counts
@@ -117,6 +119,7 @@ class SessionState:
     pairing_id: str = ""  # the code both devices of a paired run share ("" when solo)
     check_code: str = ""  # paired, started: equal on both screens when both are in step
     skipped: bool = False  # paired: the current learner is absent, their slot is skipped
+    countdown: str = ""  # the countdown word to read aloud now ("" when none is running)
 
 
 @dataclass(frozen=True)
@@ -225,6 +228,7 @@ class LiveSession:
         self._error: str | None = None
         self.pairing_id = pairing_id
         self._awaiting_signal = awaiting_signal
+        self.countdown = Countdown(clock.monotonic)  # "3, 2, 1, now" for the coder who reads it aloud
 
     # -- creation ----------------------------------------------------------------------
     @classmethod
@@ -709,6 +713,7 @@ class LiveSession:
             absent=tuple(learner for learner in self.schedule.learners if learner not in self.schedule.present),
             message=self._message, error=self._error, awaiting_signal=self._awaiting_signal,
             pairing_id=self.pairing_id or "", check_code=check_code, skipped=turn.skipped,
+            countdown=self.countdown.word(),
         )
 
     def summary(self) -> SessionSummary:
