@@ -232,3 +232,33 @@ def test_align_lets_a_device_without_log_marks_borrow_its_partner_s_model(tmp_pa
                     / 1e9 - (clocks[0].device_seconds(reference_s) - reference_s))
     assert abs(model_b["offset_s"] - truth_b) < own_error + 0.5
     assert model_b["marks_used"] == 2
+
+
+def test_align_checks_a_typed_clock_difference_against_the_closing_signal(tmp_path):
+    """The coders typed +0.5 s, but laptop-b's clock is really 28 s ahead: align says so."""
+    truth = TrueTime()
+    studies = [load_study(make_study(tmp_path / name)) for name in ("a", "b")]
+    stores = [Store(s.store_path) for s in studies]
+    clocks = [DriftingClock(truth, 1.0, 0.0, 50.0), DriftingClock(truth, 1.0, OFFSET_B, 9.0)]
+    sessions = []
+    for study, store, clock, typed, device in zip(studies, stores, clocks, (0.5, -0.5), ("laptop-a", "laptop-b")):
+        start = clock.now_utc() + timedelta(minutes=1)  # each reads "the next minute" off its own clock
+        sessions.append(LiveSession.start(study, store, clock, coder=device, device=device, paired_start=start,
+                                          pairing_id="QT4MZ", typed_clock_difference_s=typed))
+    truth.t = 600.0
+    for session, reaction in zip(sessions, (0.0, 0.2)):
+        truth.t = 600.0 + reaction
+        assert session.signal_end()
+    for session, store in zip(sessions, stores):
+        session.end()
+        store.close()
+    assert call_cli("import", str(studies[0].dir), str(studies[1].store_path)).returncode == 0
+    result = call_cli("align", str(studies[0].dir), "--set-offset", "laptop-a=0", "--set-offset", "laptop-b=28",
+                      "--json")
+    assert result.returncode == 0, result.stderr
+    checks = {check["device"]: check for check in json.loads(result.stdout)["typed_clock_differences"]}
+    assert checks["laptop-a"]["typed_s"] == 0.5 and checks["laptop-a"]["agrees"] is False
+    assert abs(checks["laptop-a"]["measured_s"] - OFFSET_B) < 0.5
+    assert abs(checks["laptop-b"]["measured_s"] + OFFSET_B) < 0.5
+    text = call_cli("align", str(studies[0].dir), "--set-offset", "laptop-a=0", "--set-offset", "laptop-b=28")
+    assert "typed a clock difference of +0.5 s" in text.stdout
