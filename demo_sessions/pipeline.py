@@ -51,7 +51,7 @@ import pandas as pd
 from tqdm import tqdm
 
 from agreement.statistics import assess_agreement, headline_kappa
-from agreement.report import confusion_figure, drift_figure
+from agreement.plots import confusion_figure, drift_figure
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
 from agreement.breakdowns import rolling_kappa
 from demo_sessions.generate import Generated, check_output_folder, check_seed, generate_demo
