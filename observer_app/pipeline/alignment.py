@@ -126,9 +126,15 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
         verb = "refitted" if device in refit else "stored"
         reason = _evidence(model) + (f"; above the bound of {max_standard_error_s:g} s, accepted with "
                                      "--accept-uncertain" if uncertain else "")
-        if device not in decisions or decisions[device].decision != "refused":
-            decisions[device] = ClockDecision(device, "refused" if uncertain and not accept_uncertain else verb,
-                                              reason, uncertain_accepted=uncertain and accept_uncertain)
+        earlier = decisions.get(device)
+        if earlier is not None:  # a device whose sessions got their own models: one reason per clock
+            reason = f"{earlier.reason} | {key}: {reason}"
+        elif key != device:
+            reason = f"{key}: {reason}"
+        refused_here = uncertain and not accept_uncertain
+        decisions[device] = ClockDecision(
+            device, "refused" if refused_here or (earlier and earlier.decision == "refused") else verb, reason,
+            uncertain_accepted=(uncertain and accept_uncertain) or bool(earlier and earlier.uncertain_accepted))
     for device, why in alignment.skipped.items():
         decisions.setdefault(device, ClockDecision(device, "skipped", why))
     alignment.decisions = dict(sorted(decisions.items()))
