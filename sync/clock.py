@@ -36,7 +36,10 @@ class ClockModel:
     """Offset and drift of one device's clock relative to the log, with the evidence.
 
     offset_standard_error_s: the offset's standard error (marks: robust SD of the kept
-    residuals / sqrt(kept marks); auto: split samples); NaN when not known.
+    residuals / sqrt(kept marks); auto: bootstrap over windows, see sync/clock_scan.py);
+    NaN when not known.  span_standard_error_s: the standard error of device -> log time
+    over the device's whole observed span, drift included (the largest over the span);
+    NaN when not known.
     confidence is in [0, 1]: for "marks" the share of marks that agree with the fit
     (within max(1 s, 5 robust SD)); for "auto" how clearly the best offset beats the
     next-best separate candidate (1 = unrivalled, 0 = a tie); NaN for "manual" and
@@ -53,6 +56,7 @@ class ClockModel:
     median_abs_residual_s: float = math.nan
     confidence: float = math.nan
     offset_standard_error_s: float = math.nan
+    span_standard_error_s: float = math.nan
     warnings: tuple[str, ...] = ()
     residuals: tuple[MarkResidual, ...] = ()
     scan_offsets_s: tuple[float, ...] = ()
@@ -101,7 +105,7 @@ class ClockModel:
     def from_json(cls, text: str) -> "ClockModel":
         """The inverse of :meth:`to_json`."""
         data = json.loads(text)
-        for key in ("median_abs_residual_s", "confidence", "offset_standard_error_s"):
+        for key in ("median_abs_residual_s", "confidence", "offset_standard_error_s", "span_standard_error_s"):
             if data.get(key) is None:
                 data[key] = math.nan
         data["warnings"] = tuple(data.get("warnings", ()))
