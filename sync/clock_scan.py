@@ -29,6 +29,7 @@ import pandas as pd
 from scipy.special import xlogy
 
 from sync.clock import ClockModel
+from sync.clock_gross import gross_mistake, gross_totals
 from sync.clock_refine import fit_clock_line, middle_states
 from sync.event_table import learner_blocks
 from sync.time_column import datetime_column_ns
@@ -44,6 +45,7 @@ CLEAR_PEAK_SPREADS = 20.0  # a peak this many noise spreads above the far level 
 INFORMATIVE_SHARE = 0.5  # dimensions at least half as prominent as the best one are used
 SEPARATION_WINDOWS = 3.0  # rivals are offsets more than 3 window lengths beyond the peak
 PAIRS_PER_BLOCK = 4_000_000
+GROSS_WINS = 2.0  # a far offset must score twice the best near one to move the scan there
 PEAK_REGION = 0.3  # the peak region: scores within 30% of the peak's height above the median
 
 
@@ -210,7 +212,8 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
     devices = observations["device"].unique()
     if len(devices) != 1:
         raise ValueError(f"scan_offset takes one device's observations, got {list(devices)}")
-    candidates = default_candidates() if candidates is None else np.asarray(candidates, dtype=np.float64)
+    gross = candidates is None
+    candidates = default_candidates() if gross else np.asarray(candidates, dtype=np.float64)
     if len(candidates) > 2 and not np.allclose(np.diff(candidates), candidates[1] - candidates[0]):
         raise ValueError("candidates must be an evenly spaced ascending grid")
     usable = observations.dropna(subset=["window_start", "window_end"])
@@ -239,15 +242,16 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
 
     everyone = np.arange(len(start))
     separation_s = SEPARATION_WINDOWS * window_s
+    if gross and len(start):
+        candidates = candidates + _gross_shift(event_ns, blocks, learners, start, end, labels, sizes)
     per_dimension = curves(everyone, candidates, list(range(len(dimensions))))
     informative = _informative_dimensions(candidates, per_dimension, separation_s)
 
-    def curve(rows: np.ndarray, offsets_s: np.ndarray, shift_ns: np.ndarray | int = 0) -> np.ndarray:
-        """The summed score of the informative dimensions."""
-        return np.sum(curves(rows, offsets_s, informative, shift_ns), axis=0)
-
     scores = np.sum([per_dimension[column] for column in informative], axis=0)
     estimate, confidence, warnings = locate_peak(candidates, scores, separation_s)
+    mistake = gross_mistake(estimate) if gross else None
+    if mistake:
+        warnings.append(mistake)
     left_out = [dimensions[column] for column in range(len(dimensions)) if column not in informative]
     if left_out:
         warnings.append(f"left out of the scan, their codes do not follow log activity: {', '.join(left_out)}")
@@ -274,6 +278,20 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
         warnings=tuple(warnings) + line.warnings,
         scan_offsets_s=tuple(float(x) for x in candidates), scan_scores=tuple(round(float(s), 6) for s in scores),
     )
+
+
+def _gross_shift(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learners: np.ndarray,
+                 start: np.ndarray, end: np.ndarray, labels: np.ndarray, sizes: list[int]) -> float:
+    """Where to centre the ±DEFAULT_RANGE_S scan: 0, or the gross stage's best offset
+    (sync/clock_gross.py) when it lies beyond that range and scores at least
+    GROSS_WINS times the best score within it (rounded to the scan's step)."""
+    offsets_s, totals, exposures = gross_totals(event_ns, blocks, learners, start, end, labels, sizes)
+    scores = likelihood_ratio_curve(totals, exposures)
+    near = np.abs(offsets_s) <= DEFAULT_RANGE_S
+    best = int(np.argmax(scores))
+    if near[best] or scores[best] < GROSS_WINS * max(float(scores[near].max()), 0.0) or scores[best] <= 0:
+        return 0.0
+    return float(np.round(offsets_s[best] / DEFAULT_STEP_S) * DEFAULT_STEP_S)
 
 
 def _code_numbers(observations: pd.DataFrame, dimensions: list[str]) -> tuple[np.ndarray, list[int]]:
