@@ -53,7 +53,7 @@ def gross_totals(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learn
         enter = np.rint((start_ns[rows] - origin) / step).astype(np.int64)
         leave = np.maximum(np.rint((end_ns[rows] - origin) / step).astype(np.int64), enter + 1)
         length = int(leave.max())
-        cover = np.zeros((codes, length + 1))
+        cover = np.zeros((codes, length + 1), dtype=np.float32)
         for dimension in range(len(sizes)):
             code = labels[rows, dimension]
             coded = code >= 0
@@ -68,7 +68,8 @@ def gross_totals(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learn
         times = event_ns[begin:stop]
         low = origin - lags * step
         times = times[(times >= low) & (times < low + (length + 2 * lags) * step)]
-        binned = np.bincount((times - low) // step, minlength=length + 2 * lags).astype(np.float64)
+        # float32: counts stay exact to well under 0.5 after the transforms, at half the work.
+        binned = np.bincount((times - low) // step, minlength=length + 2 * lags).astype(np.float32)
         used = np.flatnonzero(cover.any(axis=1))
         if len(used) and binned.any():
             totals[used] += fftconvolve(binned[None, :], cover[used, ::-1], mode="valid", axes=1)[:, ::-1]

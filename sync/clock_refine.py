@@ -254,12 +254,12 @@ def _group_offset(per_window: np.ndarray, grid: np.ndarray, rows: np.ndarray,
                   rng: np.random.Generator) -> tuple[float, float]:
     """(offset, bootstrap standard error) of the windows ``rows``: the peak of their summed
     score, and the SD of the peaks of BOOTSTRAP_REPLICATES resamples (NaN for one window)."""
-    scores = per_window[rows].astype(np.float64)
-    offset = float(likelihood_peaks(grid, scores.sum(axis=0))[0])
+    scores = per_window[rows]
+    offset = float(likelihood_peaks(grid, scores.sum(axis=0, dtype=np.float64))[0])
     if len(rows) < 2:
         return offset, float("nan")
     counts = rng.multinomial(len(rows), np.full(len(rows), 1.0 / len(rows)), size=BOOTSTRAP_REPLICATES)
-    return offset, float(np.std(likelihood_peaks(grid, counts @ scores), ddof=1))
+    return offset, float(np.std(likelihood_peaks(grid, counts.astype(np.float32) @ scores), ddof=1))
 
 
 def time_chunks(start_ns: np.ndarray) -> list[np.ndarray]:
