@@ -80,11 +80,11 @@ def gross_totals(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learn
 
 def gross_mistake(offset_s: float) -> str | None:
     """The warning for an offset a laptop clock cannot drift to: which mistake it looks
-    like (a whole, half or quarter hour, plus the clock's own seconds), or None when it is
-    within one quarter hour's tolerance of zero."""
+    like (a whole, half or quarter hour, plus the clock's own seconds), or None within
+    half a quarter hour of zero (a plain unsynchronised clock)."""
     quarters = int(round(offset_s / QUARTER_HOUR_S))
     rest = offset_s - quarters * QUARTER_HOUR_S
-    if quarters == 0 and abs(rest) <= MISTAKE_TOLERANCE_S:
+    if quarters == 0:
         return None
     way = "ahead of" if offset_s > 0 else "behind"
     fix = "correct the times at their source or set the offset with --set-offset"
