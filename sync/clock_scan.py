@@ -9,18 +9,22 @@ needs no hints about which code means a busy or a quiet log.  Counting is exact 
 vectorised over all offsets at once: each event near a window adds +1 on the run of grid
 offsets that would put it inside, in per-code difference arrays summed by np.bincount.
 
+Before it, a gross stage (sync/clock_gross.py) scores every offset within ±14 h on a
+10 s grid; when its best offset lies beyond ±300 s and clearly beats everything within,
+the scan is centred there instead, and the model's warning names the mistake it looks
+like (a clock set in the wrong hour by hand, a wrong UTC offset in imported times).
+
 This coarse scan finds the offset to within a few seconds.  The fine stage
 (sync/clock_refine.py) then reads the log around each window with a hidden-state chain
 and scores offsets 0.1 s apart by how well each code names the state at the window's
 middle, where a coder's "what filled most of the window" is decided.
 
-Drift: the observations are cut into time-ordered chunks (each coding session apart from
-the others when there are two or more, otherwise parts of the one session), each chunk's
-offset is found by the fine stage near the overall estimate, and a Theil-Sen slope
-through the chunk offsets gives the drift; a last fine scan of all observations with the
-drift taken out gives the offset at the reference time.  Its standard error comes from
-split samples (the offset found in each of 8 random groups of observations), and the
-drift's from that over the chunks' spread in time.
+Drift and errors (``sync.clock_refine.fit_clock_line``): the observations are cut into
+time-ordered groups (each coding session apart from the others when there are two or
+more, otherwise parts of the one session); each group's offset is the fine stage's peak
+with a bootstrap standard error, and a weighted least-squares line through them gives
+the offset at the reference time, the drift, and their covariance -- hence the offset's
+standard error and the largest standard error over the observed span, drift included.
 """
 from __future__ import annotations
 
