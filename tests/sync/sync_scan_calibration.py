@@ -40,6 +40,7 @@ class Recovered:
     offset_standard_error_s: float
     span_error_s: float
     span_standard_error_s: float
+    warnings: tuple[str, ...]
 
 
 def recovered_clocks(seed: int, folder: Path, size: str = "full") -> list[Recovered]:
@@ -65,5 +66,6 @@ def recovered_clocks(seed: int, folder: Path, size: str = "full") -> list[Recove
         ends = truth.to_log_ns(np.array([start.min(), start.max()]))
         span_error = np.abs(model.to_device_ns(ends) - truth.to_device_ns(ends)).max() / 1e9
         rows.append(Recovered(seed, device, model.offset_s - truth.at_reference(model.reference_ns).offset_s,
-                              model.offset_standard_error_s, float(span_error), model.span_standard_error_s))
+                              model.offset_standard_error_s, float(span_error), model.span_standard_error_s,
+                              model.warnings))
     return rows
