@@ -80,6 +80,7 @@ class Alignment:
     decisions: dict[str, ClockDecision] = field(default_factory=dict)
     borrowed: dict[str, "Borrowing"] = field(default_factory=dict)
     typed_differences: list[dict] = field(default_factory=list)
+    events: pd.DataFrame | None = None  # the EVENTS read for the fits; None when no fit needed the logs
 
 
 def gate_error(model: ClockModel) -> float:
@@ -214,7 +215,8 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
         else:
             skipped[device] = "no live observations to scan"
     return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped, borrowed=borrowed,
-                     typed_differences=typed_difference_checks(study, relative))
+                     typed_differences=typed_difference_checks(study, relative),
+                     events=events if to_fit else None)
 
 
 @dataclass(frozen=True)
