@@ -98,7 +98,7 @@ def run(args: argparse.Namespace) -> int:
     for warning in report.warnings:
         print(f"  note: {warning}")
     print(f"offsets at {reference_text(reference)} (the hour the study's first live session began); "
-          "se_s: standard error over the device's observed span")
+          f"se_s: standard error over the device's observed span, fits stored only below {args.max_standard_error:g} s")
     print(f"{'clock':<16}{'method':<9}{'offset_s':>10}{'se_s':>7}{'drift_ppm':>11}{'marks':>7}{'median|res|_s':>15}"
           f"{'confidence':>12}  decision")
     for key, model in alignment.models.items():

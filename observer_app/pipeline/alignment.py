@@ -78,9 +78,9 @@ class Alignment:
     read_report: ReadReport
     skipped: dict[str, str] = field(default_factory=dict)
     decisions: dict[str, ClockDecision] = field(default_factory=dict)
+    events: pd.DataFrame | None = None  # the EVENTS read for the fits; None when no fit needed the logs
     borrowed: dict[str, "Borrowing"] = field(default_factory=dict)
     typed_differences: list[dict] = field(default_factory=list)
-    events: pd.DataFrame | None = None  # the EVENTS read for the fits; None when no fit needed the logs
 
 
 def gate_error(model: ClockModel) -> float:
@@ -116,6 +116,7 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
         decisions[device] = ClockDecision(device, "kept hand-set",
                                           f"a hand-set offset is a person's decision; pass --refit {device} to replace it")
     refused: list[tuple[str, str, float]] = []
+    accepted: set[str] = set()
     for key, model in alignment.models.items():
         device = model.device
         if model.method == "manual":
@@ -126,12 +127,20 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
         uncertain = not (error < max_standard_error_s)
         if uncertain and not accept_uncertain:
             refused.append((key, model.method, error))
+        elif uncertain:
+            accepted.add(key)
         verb = "refitted" if device in refit else "borrowed" if model.method == "borrowed" else "stored"
         reason = _evidence(model) + (f"; above the bound of {max_standard_error_s:g} s, accepted with "
                                      "--accept-uncertain" if uncertain else "")
-        if device not in decisions or decisions[device].decision != "refused":
-            decisions[device] = ClockDecision(device, "refused" if uncertain and not accept_uncertain else verb,
-                                              reason, uncertain_accepted=uncertain and accept_uncertain)
+        earlier = decisions.get(device)
+        if earlier is not None:  # a device whose sessions got their own models: one reason per clock
+            reason = f"{earlier.reason} | {key}: {reason}"
+        elif key != device:
+            reason = f"{key}: {reason}"
+        refused_here = uncertain and not accept_uncertain
+        decisions[device] = ClockDecision(
+            device, "refused" if refused_here or (earlier and earlier.decision == "refused") else verb, reason,
+            uncertain_accepted=(uncertain and accept_uncertain) or bool(earlier and earlier.uncertain_accepted))
     for device, why in alignment.skipped.items():
         decisions.setdefault(device, ClockDecision(device, "skipped", why))
     alignment.decisions = dict(sorted(decisions.items()))
@@ -148,13 +157,20 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
         raise problem
     rows = [dict(device=model.device, model_key=key, model_json=model.to_json(), method=model.method,
                  command=command, evidence=_evidence(model),
-                 replaces_earlier=model.device in refit,
-                 uncertain_accepted=decisions[model.device].uncertain_accepted)
+                 replaces_earlier=model.device in refit, uncertain_accepted=key in accepted)
             for key, model in alignment.models.items()]
     if rows:
         with Store(study.store_path) as store:
             store.record_clock_models(rows, now_utc())
-    kept_models = {key: model for key, model in stored_clock_models(study).items() if key.split("/")[0] in kept}
+    in_effect = stored_clock_decisions(study)
+    for device, method_, fitted in zip(in_effect["device"].astype(str), in_effect["method"], in_effect["at"]):
+        decision = alignment.decisions.get(device)
+        stored_method = next((m.method for m in alignment.models.values() if m.device == device), None)
+        if decision and decision.decision in ("stored", "refitted") and stored_method not in (None, method_):
+            alignment.decisions[device] = ClockDecision(
+                device, decision.decision, f"{decision.reason}; the {method_} model fitted {fitted:%Y-%m-%dT%H:%M:%SZ} "
+                "ranks higher and stays in effect", decision.uncertain_accepted)
+    kept_models = {key: model for key, model in stored_clock_models(study).items() if model.device in kept}
     alignment.models = dict(sorted({**alignment.models, **kept_models}.items()))
     return alignment
 
@@ -215,8 +231,7 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
         else:
             skipped[device] = "no live observations to scan"
     return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped, borrowed=borrowed,
-                     typed_differences=typed_difference_checks(study, relative),
-                     events=events if to_fit else None)
+                     typed_differences=typed_difference_checks(study, relative), events=events if to_fit else None)
 
 
 @dataclass(frozen=True)

@@ -54,9 +54,10 @@ def test_a_paired_run_stays_in_step_on_the_log_clock(demo):
     for edge in ("log_start", "log_end"):
         apart = (wide[(edge, "laptop-a")] - wide[(edge, "laptop-b")]).dt.total_seconds().abs()
         assert apart.max() < 0.5, apart.max()
-    # the one pairing, on the generator's true log-clock windows: every slot both coded is one unit
-    on_log = observations.merge(truth[["observation_id", "log_start", "log_end"]], on="observation_id")
-    on_log = on_log.assign(log_start_ns=on_log["log_start"].astype("int64"), log_end_ns=on_log["log_end"].astype("int64"))
+    # pairing reads windows on the log's clock: here the generator's true log times
+    on_log = observations.merge(truth[["observation_id", "log_start", "log_end"]], on="observation_id", how="left")
+    on_log["log_start_ns"] = on_log.pop("log_start").astype("int64")
+    on_log["log_end_ns"] = on_log.pop("log_end").astype("int64")
     units, report = pair_observations(on_log, ["activity", "affect"], tolerance_s=10.0)
     by_slot = units[units["matched_by"] == "slot"]["unit"].nunique()
     assert by_slot == len(wide)
