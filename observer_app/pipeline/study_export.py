@@ -85,6 +85,10 @@ def export_study(
         observed_log_ids = roster.loc[roster["learner"].astype(str).isin(observed), "log_id"].astype(str)
         events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs",
                                               only_log_ids=observed_log_ids)
+        if not set(observed_log_ids) <= set(events["learner"].astype(str).unique()):
+            # Some observed id is not in the logs: read them whole, so that the coverage
+            # check can show the ids the logs do use (it refuses the export either way).
+            events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs")
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
