@@ -83,6 +83,9 @@ def test_export_refuses_an_adjudication_no_unit_holds(tmp_path: Path) -> None:
     adjudicate_every_disagreement(study, tmp_path)
     # A refit that puts ben's laptop a minute off splits every unit: nothing holds the decisions any more.
     assert call_cli("align", study, "--set-offset", "laptop-a=0", "--set-offset", "laptop-b=88").returncode == 0
+    assert agree_json(study)["pairing"]["unplaced_adjudications"] > 0
+    assert "adjudications settle observations that are no longer one unit" in call_cli(
+        "agree", study, "--resamples", "20").stdout
     out = tmp_path / "windows.parquet"
     result = call_cli("export", study, "--out", out)
     assert_user_error(result, "observations.sqlite", "adjudications", "no longer one unit", "lead",
