@@ -7,10 +7,11 @@ What a window covers is decided here and nowhere else:
   anchor="coded": [coded_at - before_s, coded_at + after_s) (after_s defaults to 0).
 How device time maps onto the log's clock is also decided here, once, for every verb
 (``observations_on_log_clock``; agree, adjudicate, export and the demo all pair and cut
-windows from its columns): live observations go through their device's clock model;
-replay observations (mode "replay") were coded against the log itself, so their window
-times are already log times and are taken as they are.  Start is inclusive, end
-exclusive, so back-to-back windows never share an event.
+windows from its columns): live observations go through their session's clock model
+(key ``device/session_id``) or else their device's (key ``device``),
+sync/clock_sessions.py; replay observations (mode "replay") were coded against the log
+itself, so their window times are already log times and are taken as they are.  Start
+is inclusive, end exclusive, so back-to-back windows never share an event.
 """
 from __future__ import annotations
 
@@ -18,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from sync.clock import NAT, ClockModel, identity_model
+from sync.clock_sessions import model_for
 from sync.tables import WINDOW_EXTRA_COLUMNS
 from sync.time_column import datetime_column_ns
 
@@ -26,22 +28,25 @@ ANCHORS: tuple[str, ...] = ("start", "coded")
 
 def _models_per_row(observations: pd.DataFrame, clock_models: dict[str, ClockModel],
                     warnings: list[str]) -> list[tuple[np.ndarray, ClockModel | None]]:
-    """(row mask, model) per device; model None for replay rows (already on the log's clock).
+    """(row mask, model) per device and session (``sync.clock_sessions.model_for``); model
+    None for replay rows (already on the log's clock).
 
-    Live devices without a model get the identity model, and its warning is added.
+    Live devices without a model get the identity model, and its warning is added once.
     """
     devices = observations["device"].astype(str).to_numpy()
+    sessions = (observations["session_id"].astype(str).to_numpy() if "session_id" in observations
+                else np.full(len(observations), ""))
     replay = ((observations["mode"].astype(str) == "replay").to_numpy()
               if "mode" in observations else np.zeros(len(observations), bool))
     groups: list[tuple[np.ndarray, ClockModel | None]] = []
     if replay.any():
         groups.append((replay, None))
-    for device in sorted(set(devices[~replay])):
-        model = clock_models.get(device)
+    for device, session_id in sorted(set(zip(devices[~replay], sessions[~replay]))):
+        model = model_for(clock_models, device, session_id)
         if model is None:
             model = identity_model(device)
-            warnings.extend(model.warnings)
-        groups.append(((devices == device) & ~replay, model))
+            warnings.extend(w for w in model.warnings if w not in warnings)
+        groups.append(((devices == device) & (sessions == session_id) & ~replay, model))
     return groups
 
 
@@ -53,9 +58,11 @@ def observations_on_log_clock(observations: pd.DataFrame, clock_models: dict[str
     """``observations`` (OBSERVATIONS of observer_app/study/tables.py) plus log_start_ns and
     log_end_ns: each window's bounds as int64 UTC ns on the log's clock.
 
-    The one mapping of device time onto the log's clock.  Replay rows are already on the
+    The one mapping of device time onto the log's clock; ``clock_models`` is keyed
+    ``device`` or ``device/session_id`` (sync/tables.py).  Replay rows are already on the
     log's clock.  Live rows of a device without a model keep their device times (identity
-    model), and ``result.attrs["warnings"]`` says so.  Rows without window bounds get the
+    model; callers that must not guess refuse them first), and ``result.attrs["warnings"]``
+    says so.  Rows without window bounds get the
     int64-minimum NaT sentinel.
     """
     warnings: list[str] = []
@@ -77,8 +84,9 @@ def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, 
     """Every observation with log_id, start_ns, end_ns, coded_ns on the log's clock.
 
     ``observations`` has the OBSERVATIONS columns (observer_app/study/tables.py); ``roster``
-    the columns learner and log_id.  Devices without a model are mapped with the identity
-    model.  Rows without window_start/window_end are left out.  What was assumed or left
+    the columns learner and log_id; ``clock_models`` is keyed ``device`` or
+    ``device/session_id`` (sync/tables.py).  Devices without a model are mapped with the
+    identity model (callers that must not guess refuse them first).  Rows without window_start/window_end are left out.  What was assumed or left
     out is listed in ``result.attrs["warnings"]``.  Raises ValueError for an unknown
     anchor or a window that would not have positive length.
     """

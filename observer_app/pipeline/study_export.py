@@ -20,7 +20,7 @@ from export.pseudonyms import read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.pipeline.alignment import read_study_logs
+from observer_app.pipeline.alignment import read_study_logs, require_clock_models, stored_clock_decisions
 from observer_app.pipeline.coverage import coverage_report
 from observer_app.pipeline.units import require_placed, study_units
 from observer_app.study.store import Store
@@ -31,7 +31,7 @@ from sync.errors import InputError
 from sync.windows import observations_to_windows
 
 CLOCK_SUMMARY_KEYS = ("device", "method", "offset_s", "drift_ppm", "reference_ns", "marks_used",
-                      "median_abs_residual_s", "confidence")
+                      "median_abs_residual_s", "confidence", "span_standard_error_s")
 STEPS = ("read the study", "read the logs", "put observations on the log's clock", "pair coders",
          "features and labels", "write")
 
@@ -68,7 +68,12 @@ def export_study(
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
         found = study_units(study, observations)
+        models = found.clock_models
+        require_clock_models(study, observations, models)
         placed = require_placed(found, adjudications)
+        decisions = stored_clock_decisions(study)
+        uncertain = dict(zip(decisions["model_key"].astype(str), decisions["uncertain_accepted"].astype(bool))) \
+            if len(decisions) else {}
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
@@ -76,7 +81,6 @@ def export_study(
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
-        models = found.clock_models
         try:
             windows = observations_to_windows(observations, models, study.roster, window.anchor, window.before_s,
                                               window.after_s)
@@ -108,18 +112,23 @@ def export_study(
         }
         manifest = build_manifest(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
-            clock_models=[clock_summary(model) for model in models.values()],
+            clock_models=[{**clock_summary(model), "clock": key, "uncertain_accepted": uncertain.get(key, False)}
+                          for key, model in models.items()],
             inputs=file_digests(*zip(*inputs)), output_format=output_format,
         )
         manifest["coverage"] = coverage.summary()
         beside = write_windows(result, out, manifest)
         bar.update()
+    accepted = sorted(key for key, flag in uncertain.items() if flag and key in models)
+    clock_warnings = [f"clock {key} was stored above the uncertainty bound (--accept-uncertain); its windows may be "
+                      "misplaced" for key in accepted]
     return {
         "out": str(out), "manifest": str(beside), "format": output_format, "rows": manifest["rows"],
         "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
         "observations": int(len(observations)), "units": found.report["units"],
         "coverage": coverage_report(coverage),
-        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + outside_warnings(coverage),
+        "warnings": (list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + clock_warnings
+                     + outside_warnings(coverage)),
     }
 
 

@@ -19,11 +19,12 @@ import pandas as pd
 from agreement.dimensions import Dimension
 from agreement.disagreements import place_adjudications
 from agreement.pairing import pair_observations, pairing_tolerance_s
-from observer_app.pipeline.alignment import stored_clock_models
+from observer_app.pipeline.alignment import require_clock_models, stored_clock_models
 from observer_app.study.folder import Study, load_study
 from observer_app.study.scheme import Scheme
 from observer_app.study.store import Store
 from sync.clock import ClockModel
+from sync.clock_sessions import model_for
 from sync.errors import InputError
 from sync.windows import observations_on_log_clock
 
@@ -52,9 +53,10 @@ def study_units(study: Study, observations: pd.DataFrame | None = None,
                 clock_models: dict[str, ClockModel] | None = None) -> StudyUnits:
     """The study's units; ``observations`` / ``clock_models`` default to the store's.
 
-    The report's "clock" is "log" when every live coding device has a clock model, else
-    "device" (devices without one keep their own times; ``observations.attrs["warnings"]``
-    names them).
+    The report's "clock" is "log" when every live coding session has a clock model (its
+    own or its device's), else "device" (devices without one keep their own times;
+    ``observations.attrs["warnings"]`` names them; agree, adjudicate and export refuse
+    them first).
     """
     dimensions = scheme_dimensions(study.scheme)
     names = [dimension.name for dimension in dimensions]
@@ -65,8 +67,9 @@ def study_units(study: Study, observations: pd.DataFrame | None = None,
     on_log = observations_on_log_clock(observations, models)
     tolerance = pairing_tolerance_s(study.window_seconds)
     units, report = pair_observations(on_log, names, tolerance_s=tolerance)
-    live_devices = set(observations.loc[observations["mode"] == "live", "device"].astype(str))
-    aligned = bool(live_devices) and live_devices <= set(models)
+    live = observations.loc[observations["mode"] == "live", ["device", "session_id"]].astype(str).drop_duplicates()
+    aligned = bool(len(live)) and all(model_for(models, device, session_id) is not None
+                                      for device, session_id in zip(live["device"], live["session_id"]))
     return StudyUnits(units=units, dimensions=dimensions,
                       report={**report.as_dict(), "clock": "log" if aligned else "device",
                               "pairing_tolerance_s": tolerance},
@@ -74,8 +77,14 @@ def study_units(study: Study, observations: pd.DataFrame | None = None,
 
 
 def load_study_units(path: Path) -> StudyUnits:
-    """``study_units`` of the study folder at ``path``."""
-    return study_units(load_study(path))
+    """``study_units`` of the study folder at ``path``, for `fieldmark agree` and `adjudicate`:
+    a live device without a clock model is refused (InputError), never paired on its own clock."""
+    study = load_study(path)
+    with Store(study.store_path) as store:
+        observations = store.observations(study.scheme.dimension_names)
+    models = stored_clock_models(study)
+    require_clock_models(study, observations, models)
+    return study_units(study, observations, models)
 
 
 def legacy_unit_observations(found: StudyUnits) -> dict[str, str]:
