@@ -72,7 +72,9 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(None, "--max-standard-error", f"{args.max_standard_error!r} is not a positive number of seconds")
     study = load_study(args.study)
     reference = clock_reference_ns(study)
-    logs = read_study_logs(study) if study.logs else None  # read once: for the fit and the coverage
+    # read once, for the fit and the coverage; hand-set offsets need no logs, so absent logs only skip coverage
+    present = bool(study.logs) and all(path.exists() for spec in study.logs for path in spec.files())
+    logs = read_study_logs(study) if present else None
     try:
         alignment = align_study(study, args.method, offsets, progress=not args.json, logs=logs,
                                 refit=tuple(args.refit), max_standard_error_s=args.max_standard_error,
