@@ -8,10 +8,10 @@ What a window covers is decided here and nowhere else:
 How device time maps onto the log's clock is also decided here, once, for every verb
 (``observations_on_log_clock``; agree, adjudicate, export and the demo all pair and cut
 windows from its columns): live observations go through their session's clock model
-(key ``device/session_id``) or else their device's (key ``device``),
-sync/clock_sessions.py; replay observations (mode "replay") were coded against the log
-itself, so their window times are already log times and are taken as they are.  Start
-is inclusive, end exclusive, so back-to-back windows never share an event.
+(key ``device/session_id``) or else their device's (key ``device``), sync/clock_sessions.py;
+replay observations (mode "replay") were coded against the log itself, so their window
+times are already log times and are taken as they are.  Start is inclusive, end
+exclusive, so back-to-back windows never share an event.
 """
 from __future__ import annotations
 
@@ -28,10 +28,11 @@ ANCHORS: tuple[str, ...] = ("start", "coded")
 
 def _models_per_row(observations: pd.DataFrame, clock_models: dict[str, ClockModel],
                     warnings: list[str]) -> list[tuple[np.ndarray, ClockModel | None]]:
-    """(row mask, model) per device and session (``sync.clock_sessions.model_for``); model
-    None for replay rows (already on the log's clock).
+    """(row mask, model) per live (device, session); model None for replay rows (already
+    on the log's clock).  A session's own model wins over its device's (``model_for``).
 
-    Live devices without a model get the identity model, and its warning is added once.
+    Live devices without a model get the identity model, and its warning is added
+    (callers that must not guess refuse such devices first).
     """
     devices = observations["device"].astype(str).to_numpy()
     sessions = (observations["session_id"].astype(str).to_numpy() if "session_id" in observations
@@ -58,11 +59,9 @@ def observations_on_log_clock(observations: pd.DataFrame, clock_models: dict[str
     """``observations`` (OBSERVATIONS of observer_app/study/tables.py) plus log_start_ns and
     log_end_ns: each window's bounds as int64 UTC ns on the log's clock.
 
-    The one mapping of device time onto the log's clock; ``clock_models`` is keyed
-    ``device`` or ``device/session_id`` (sync/tables.py).  Replay rows are already on the
+    The one mapping of device time onto the log's clock.  Replay rows are already on the
     log's clock.  Live rows of a device without a model keep their device times (identity
-    model; callers that must not guess refuse them first), and ``result.attrs["warnings"]``
-    says so.  Rows without window bounds get the
+    model), and ``result.attrs["warnings"]`` says so.  Rows without window bounds get the
     int64-minimum NaT sentinel.
     """
     warnings: list[str] = []

@@ -20,7 +20,8 @@ from export.pseudonyms import read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.pipeline.alignment import read_study_logs, require_clock_models, stored_clock_decisions
+from observer_app.pipeline.alignment import (read_study_logs, require_clock_models, stored_clock_decisions,
+                                            stored_clock_models)
 from observer_app.pipeline.coverage import coverage_report
 from observer_app.pipeline.units import require_placed, study_units
 from observer_app.study.store import Store
@@ -67,13 +68,13 @@ def export_study(
             adjudications = store.adjudications()
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
-        found = study_units(study, observations)
-        models = found.clock_models
+        models = stored_clock_models(study)
         require_clock_models(study, observations, models)
-        placed = require_placed(found, adjudications)
         decisions = stored_clock_decisions(study)
         uncertain = dict(zip(decisions["model_key"].astype(str), decisions["uncertain_accepted"].astype(bool))) \
             if len(decisions) else {}
+        found = study_units(study, observations, models)
+        placed = require_placed(found, adjudications)
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
@@ -127,8 +128,8 @@ def export_study(
         "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
         "observations": int(len(observations)), "units": found.report["units"],
         "coverage": coverage_report(coverage),
-        "warnings": (list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + clock_warnings
-                     + outside_warnings(coverage)),
+        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + outside_warnings(coverage)
+                    + clock_warnings,
     }
 
 

@@ -53,10 +53,9 @@ def study_units(study: Study, observations: pd.DataFrame | None = None,
                 clock_models: dict[str, ClockModel] | None = None) -> StudyUnits:
     """The study's units; ``observations`` / ``clock_models`` default to the store's.
 
-    The report's "clock" is "log" when every live coding session has a clock model (its
-    own or its device's), else "device" (devices without one keep their own times;
-    ``observations.attrs["warnings"]`` names them; agree, adjudicate and export refuse
-    them first).
+    The report's "clock" is "log" when every live coding device has a clock model, else
+    "device" (devices without one keep their own times; ``observations.attrs["warnings"]``
+    names them).
     """
     dimensions = scheme_dimensions(study.scheme)
     names = [dimension.name for dimension in dimensions]
@@ -67,9 +66,9 @@ def study_units(study: Study, observations: pd.DataFrame | None = None,
     on_log = observations_on_log_clock(observations, models)
     tolerance = pairing_tolerance_s(study.window_seconds)
     units, report = pair_observations(on_log, names, tolerance_s=tolerance)
-    live = observations.loc[observations["mode"] == "live", ["device", "session_id"]].astype(str).drop_duplicates()
-    aligned = bool(len(live)) and all(model_for(models, device, session_id) is not None
-                                      for device, session_id in zip(live["device"], live["session_id"]))
+    live = observations[observations["mode"] == "live"]
+    aligned = bool(len(live)) and all(model_for(models, device, session_id) is not None for device, session_id
+                                      in zip(live["device"].astype(str), live["session_id"].astype(str)))
     return StudyUnits(units=units, dimensions=dimensions,
                       report={**report.as_dict(), "clock": "log" if aligned else "device",
                               "pairing_tolerance_s": tolerance},
@@ -77,8 +76,11 @@ def study_units(study: Study, observations: pd.DataFrame | None = None,
 
 
 def load_study_units(path: Path) -> StudyUnits:
-    """``study_units`` of the study folder at ``path``, for `fieldmark agree` and `adjudicate`:
-    a live device without a clock model is refused (InputError), never paired on its own clock."""
+    """``study_units`` of the study folder at ``path``.
+
+    What `fieldmark agree` and `adjudicate` use: a live device without a clock model is
+    refused (InputError), never paired on its own clock by default.
+    """
     study = load_study(path)
     with Store(study.store_path) as store:
         observations = store.observations(study.scheme.dimension_names)

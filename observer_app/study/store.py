@@ -39,7 +39,7 @@ MIGRATION_CLOCK_HISTORY = """
     CREATE INDEX clock_models_by_device ON clock_models (device, at_ns);
 """
 
-# 3 -> 4: an adjudication names the observations it settles (ids joined by "|"), so re-pairing
+# An adjudication names the observations it settles (ids joined by "|"), so re-pairing
 # cannot orphan it; rows written before keep "" and are traced back through their unit id.
 MIGRATION_ADJUDICATED_OBSERVATIONS = """
     ALTER TABLE adjudications ADD COLUMN observations TEXT NOT NULL DEFAULT '';
@@ -391,12 +391,11 @@ class Store:
                     if table == "imports" or table not in present:  # an older store lacks newer tables
                         continue
                     before = cursor.connection.total_changes
-                    # named columns: an older store lacks columns added since (they take their defaults)
-                    theirs = {row[1] for row in cursor.execute(f"PRAGMA other.table_info({table})")}
-                    columns = ", ".join(row[1] for row in cursor.execute(f"PRAGMA main.table_info({table})")
-                                        if row[1] in theirs)
-                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} ({columns}) "
-                                   f"SELECT {columns} FROM other.{table} ORDER BY rowid")
+                    theirs = [row[1] for row in cursor.execute(f"PRAGMA other.table_info({table})")]
+                    ours = {row[1] for row in cursor.execute(f"PRAGMA main.table_info({table})")}
+                    shared = ", ".join(f'"{column}"' for column in theirs if column in ours)  # older stores lack newer columns
+                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} ({shared}) SELECT {shared} "
+                                   f"FROM other.{table} ORDER BY rowid")
                     counts[table] = cursor.connection.total_changes - before
         finally:
             self._connection.execute("DETACH DATABASE other")
