@@ -49,6 +49,7 @@ from observer_app.coding.clock import Clock
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, window_counts
+from observer_app.study.importing import IMPORTED_ORDER
 
 CHANGED = "changed"  # anything a listener should redraw
 TICK = "tick"  # only the time moved
@@ -153,11 +154,16 @@ def _session_codes(store: Store, session_id: str) -> pd.DataFrame:
     return codes[codes["observation_id"].isin(set(ids))]
 
 
-def find_interrupted_session(study: Study, store: Store) -> InterruptedSession | None:
-    """The newest live session of this scheme without an end row, or None."""
+def find_interrupted_session(study: Study, store: Store, device: str) -> InterruptedSession | None:
+    """The newest live session of this scheme and this device without an end row, or None.
+
+    Sessions imported from a CSV or merged from another device's store are not this
+    device's to resume (a CSV session never has an end row).
+    """
     sessions = store.sessions()
     open_sessions = sessions[(sessions["mode"] == "live") & sessions["ended_at"].isna()
-                             & (sessions["scheme_hash"] == study.scheme.content_hash)]
+                             & (sessions["scheme_hash"] == study.scheme.content_hash)
+                             & (sessions["order"] != IMPORTED_ORDER) & (sessions["device"] == device)]
     if open_sessions.empty:
         return None
     row = open_sessions.iloc[-1]

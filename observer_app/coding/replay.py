@@ -41,6 +41,7 @@ from observer_app.pipeline.alignment import read_study_logs
 from observer_app.coding.clock import Clock
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study
+from observer_app.study.importing import IMPORTED_ORDER
 
 CHANGED = "changed"
 ALL_CLIPS = "time"
@@ -96,11 +97,16 @@ def _utc(ns: int) -> datetime:
     return pd.Timestamp(int(ns), tz="UTC").to_pydatetime()
 
 
-def find_open_replay(study: Study, store: Store, coder: str) -> str | None:
-    """The newest replay session of this coder and scheme without an end row, or None."""
+def find_open_replay(study: Study, store: Store, coder: str, device: str) -> str | None:
+    """The newest replay session of this coder, device and scheme without an end row, or None.
+
+    Sessions imported from a CSV or merged from another device are never reopened here.
+    """
     sessions = store.sessions()
     open_sessions = sessions[(sessions["mode"] == "replay") & sessions["ended_at"].isna()
-                             & (sessions["coder"] == coder) & (sessions["scheme_hash"] == study.scheme.content_hash)]
+                             & (sessions["coder"] == coder) & (sessions["device"] == device)
+                             & (sessions["order"] != IMPORTED_ORDER)
+                             & (sessions["scheme_hash"] == study.scheme.content_hash)]
     return None if open_sessions.empty else str(open_sessions["session_id"].iloc[-1])
 
 

@@ -8,7 +8,9 @@ store (no end row), so the next start offers to resume it.
 """
 from __future__ import annotations
 
+import socket
 from pathlib import Path
+from types import TracebackType
 
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeyEvent, QKeySequence, QShortcut
@@ -28,6 +30,7 @@ from observer_app.ui.end_screen import EndScreen
 from observer_app.ui.observing import ObservingScreen
 from observer_app.ui.overview import StudyOverview
 from observer_app.ui.replay import ReplayScreen
+from observer_app.ui.slot_errors import append_error_log, error_line
 from observer_app.ui.start_form import StartChoice, StartForm
 from sync.errors import InputError
 
@@ -69,19 +72,29 @@ class MainWindow(QMainWindow):
                  discreet: bool = False) -> None:
         super().__init__()
         self.clock = clock or SystemClock()
-        self.device = device
+        self.device = device or socket.gethostname()  # the device label sessions are stored with
         self.theme = looks.DISCREET if discreet else looks.LIGHT
         self.study: Study | None = None
         self.store: Store | None = None
         self.session: LiveSession | None = None
         self.overview: StudyOverview | None = None
         self.stack = QStackedWidget()
-        self.setCentralWidget(self.stack)
+        self.error_bar = QLabel()
+        self.error_bar.setWordWrap(True)
+        self.error_bar.hide()
+        central = QWidget()
+        column = QVBoxLayout(central)
+        column.setContentsMargins(0, 0, 0, 0)
+        column.setSpacing(0)
+        column.addWidget(self.error_bar)
+        column.addWidget(self.stack, 1)
+        self.setCentralWidget(central)
         self.setWindowTitle("fieldmark")
         self.resize(1280, 800)
         QShortcut(QKeySequence(Qt.Key.Key_F6), self, self.toggle_discreet)
         QShortcut(QKeySequence("Ctrl+Q"), self, self.close)
         self.setStyleSheet(looks.stylesheet(self.theme))
+        self._style_error_bar()
         self.welcome = WelcomePage(self)
         if study_dir is None:
             self._show(self.welcome)
@@ -100,6 +113,22 @@ class MainWindow(QMainWindow):
         self.stack.setCurrentWidget(page)
         page.setFocus()
 
+    def show_error(self, error: BaseException, trace: TracebackType | None) -> None:
+        """An exception escaped a slot: one line on screen, the traceback in the study's error log."""
+        where = ""
+        if self.study is not None:
+            try:
+                where = f" Details: {append_error_log(self.study.dir, error, trace)}."
+            except OSError as failure:
+                where = f" (The error log could not be written: {failure}.)"
+        self.error_bar.setText(f"Something failed and was not done: {error_line(error)}. "
+                               f"Codes already saved are safe.{where}")
+        self.error_bar.show()
+
+    def _style_error_bar(self) -> None:
+        self.error_bar.setStyleSheet(f"background: {self.theme.warning}; color: #FFFFFF; font-size: 13pt;"
+                                     f" padding: 6px 16px;")
+
     @property
     def page(self) -> QWidget:
         return self.stack.currentWidget()
@@ -107,6 +136,7 @@ class MainWindow(QMainWindow):
     def toggle_discreet(self) -> None:
         self.theme = looks.LIGHT if self.theme is looks.DISCREET else looks.DISCREET
         self.setStyleSheet(looks.stylesheet(self.theme))
+        self._style_error_bar()
         for index in range(self.stack.count()):
             page = self.stack.widget(index)
             if hasattr(page, "set_theme"):
@@ -143,7 +173,7 @@ class MainWindow(QMainWindow):
         if self.overview is not None:
             self.stack.removeWidget(self.overview)
             self.overview.deleteLater()
-        self.overview = StudyOverview(study, self.store)
+        self.overview = StudyOverview(study, self.store, self.device)
         self.overview.start_requested.connect(self.show_start_form)
         self.overview.resume_requested.connect(self.resume_session)
         self.overview.open_requested.connect(self.choose_study)
@@ -173,7 +203,7 @@ class MainWindow(QMainWindow):
         self._show(check)
 
     def start_replay(self, choice: StartChoice) -> None:
-        open_session = find_open_replay(self.study, self.store, choice.coder)
+        open_session = find_open_replay(self.study, self.store, choice.coder, choice.device)
         try:
             replay = (ReplaySession.reopen(self.study, self.store, self.clock, open_session) if open_session else
                       ReplaySession.start(self.study, self.store, self.clock, coder=choice.coder,

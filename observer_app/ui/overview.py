@@ -72,10 +72,11 @@ class StudyOverview(QWidget):
     resume_requested = Signal(str)  # session_id
     open_requested = Signal()
 
-    def __init__(self, study: Study, store: Store) -> None:
+    def __init__(self, study: Study, store: Store, device: str) -> None:
         super().__init__()
         self.study = study
         self.store = store
+        self.device = device  # only this device's own interrupted sessions are offered
         self.interrupted: InterruptedSession | None = None
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
         scroller = QScrollArea()
@@ -109,7 +110,7 @@ class StudyOverview(QWidget):
         detail.setWordWrap(True)
         self._layout.addWidget(detail)
 
-        self.interrupted = find_interrupted_session(study, self.store)
+        self.interrupted = find_interrupted_session(study, self.store, self.device)
         self.resume_banner = QLabel()
         if self.interrupted is not None:
             zone = zoneinfo.ZoneInfo(study.timezone)
