@@ -37,6 +37,23 @@ COMMAND_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
     (Qt.Key.Key_F1, "F1", "show / hide all keys", "all keys"),
 )
 TICK_MILLISECONDS = 100
+# Keys that only modify another key: pressing them alone is not a mistake worth a hint.
+MODIFIER_KEYS = frozenset({Qt.Key.Key_Shift, Qt.Key.Key_Control, Qt.Key.Key_Alt, Qt.Key.Key_Meta, Qt.Key.Key_AltGr,
+                           Qt.Key.Key_CapsLock, Qt.Key.Key_NumLock, Qt.Key.Key_Super_L, Qt.Key.Key_Super_R})
+
+
+def unknown_key_hint(event: QKeyEvent) -> str:
+    """What the screen says when a key means nothing here ("" for a modifier pressed alone)."""
+    if event.key() in MODIFIER_KEYS:
+        return ""
+    text = event.text()
+    name = f"'{text}'" if text and text.isprintable() and not text.isspace() else "That key"
+    return f"{name} is not a key of this screen  ·  F1 lists the keys"
+
+
+def local_time(moment, zone: zoneinfo.ZoneInfo, pattern: str = "%H:%M:%S") -> str:
+    """A time as every screen writes it: in the study's zone, with the zone's abbreviation."""
+    return f"{moment.astimezone(zone).strftime(pattern)} {moment.astimezone(zone):%Z}"
 
 
 def key_list_html(scheme, command_keys, closing: str) -> str:
@@ -251,6 +268,13 @@ class CodingKeysMixin:
             return False
         return True
 
+    def _show_unknown_key(self, event: QKeyEvent) -> None:
+        hint = unknown_key_hint(event)
+        if hint:
+            self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt;"
+                                             f" color: {self.theme.warning}; font-weight: bold;")
+            self.message_label.setText(hint)
+
     def _clicked(self, dimension: str, code: str) -> None:
         self.session.code(dimension, code)
         self.setFocus()
@@ -341,6 +365,11 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         panel_layout.addWidget(self.presence_caption)
         panel_layout.addWidget(self.presence, 1)
         self.presence_panel.hide()
+        self.pause_cover = QLabel(self)  # paused: the whole screen changes, so nobody codes into a pause
+        self.pause_cover.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.pause_cover.setWordWrap(True)
+        self.pause_cover.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.pause_cover.hide()
         self.help = QLabel(self)
         self.help.setTextFormat(Qt.TextFormat.RichText)
         self.help.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
@@ -379,6 +408,8 @@ class ObservingScreen(CodingKeysMixin, QWidget):
             f"QListWidget::item {{ padding: 6px; }}"
             f"QListWidget::item:selected {{ background: {looks.blend(theme.accent, theme.surface, 0.35).name()};"
             f" color: {theme.text}; }}")
+        self.pause_cover.setStyleSheet(f"background: {looks.blend(theme.accent, theme.background, 0.55).name()};"
+                                       f" color: {theme.text};")
         self.time_bar.theme = theme
         self.keys_label.setText(" &nbsp;·&nbsp; ".join(f"<b>{key}</b> {short}" for _, key, _, short in COMMAND_KEYS if short))
         self._render_help()
@@ -407,16 +438,35 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         self.slot_label.setText(f"slot {state.slot + 1} · round {state.round + 1} · {mode}")
         for pad in self.pads:
             pad.show_code(state.coded.get(pad.dimension.name), theme, self._scale)
+        self._render_pause(state)
         self.message_label.setText(state.message)
         colour = theme.warning if state.error else theme.text
         self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt; color: {colour};")
         if state.error:
             self.message_label.setText(state.error)
-        last = "-" if state.last_saved_at is None else f"{state.last_saved_at.astimezone(self._zone):%H:%M:%S}"
+        last = "-" if state.last_saved_at is None else local_time(state.last_saved_at, self._zone)
         missing = ", ".join(dimension_title(d) for d in state.missing) or "nothing"
         absent = f" · absent: {', '.join(self.session.label(a) for a in state.absent)}" if state.absent else ""
-        self.status_label.setText(f"Saved: <b>{state.saved_count}</b> · last save {last} · "
-                                  f"slot {state.slot + 1} · still to code: {missing}{absent}")
+        missed = (f"<span style='color:{theme.warning}'><b>{state.missed_windows}</b> ran out uncoded</span>"
+                  if state.missed_windows else "0 ran out uncoded")
+        self.status_label.setText(f"Windows coded: <b>{state.coded_windows}</b> · {missed} · last save {last} · "
+                                  f"still to code: {missing}{absent}")
+
+    def _render_pause(self, state: SessionState) -> None:
+        if not state.paused or state.ended:
+            self.pause_cover.hide()
+            return
+        grid = "<br>The shared grid runs on: windows that pass are saved as missed." if state.paired else ""
+        self.pause_cover.setText(
+            f"<div style='font-size:{looks.LEARNER_POINTS * self._scale}pt; font-weight:bold;"
+            f" letter-spacing:6px'>PAUSED</div>"
+            f"<p style='font-size:{looks.NEXT_POINTS * self._scale}pt'>Press <b>Space</b> to go on with "
+            f"{state.label or 'the session'}</p>"
+            f"<p style='font-size:{looks.STATUS_POINTS * self._scale}pt'>Nothing is coded while paused.{grid}"
+            f"<br>F10 twice ends the session · F1 all keys</p>")
+        self.pause_cover.setGeometry(self.rect())
+        self.pause_cover.raise_()
+        self.pause_cover.show()
 
     def _render_time(self, state: SessionState) -> None:
         seconds = max(0, math.ceil(state.time_left - 1e-9))
@@ -435,6 +485,7 @@ class ObservingScreen(CodingKeysMixin, QWidget):
     def resizeEvent(self, event) -> None:  # noqa: N802
         super().resizeEvent(event)
         self.help.setGeometry(self.rect().adjusted(60, 40, -60, -40))
+        self.pause_cover.setGeometry(self.rect())
         self._place_presence()
 
     def _place_presence(self) -> None:
@@ -456,7 +507,7 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         elif key == Qt.Key.Key_F5:
             self.session.sync_mark()
         elif not (event.text() and self.session.press(event.text())):
-            super().keyPressEvent(event)
+            self._show_unknown_key(event)
 
     def _end_pressed(self) -> None:
         if self._confirmed_end():

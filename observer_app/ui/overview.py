@@ -18,6 +18,7 @@ from observer_app.study.store import Store
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, session_table, window_counts
 from observer_app.ui.cautions import cautions_html
+from observer_app.ui.observing import local_time
 
 
 SCROLL_KEYS = {
@@ -47,6 +48,13 @@ def _table(headers: list[str], rows: list[list[str]]) -> QTableWidget:
     table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
     table.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
     return table
+
+
+def session_mode(row) -> str:
+    """How the sessions table names a session's mode: replay, paired or solo."""
+    if row.mode == "replay":
+        return "replay"
+    return "paired" if row.paired else "solo"
 
 
 def count_table(study: Study, counts: pd.DataFrame, per_learner: pd.DataFrame) -> QTableWidget:
@@ -114,12 +122,11 @@ class StudyOverview(QWidget):
         self.resume_banner = QLabel()
         if self.interrupted is not None:
             zone = zoneinfo.ZoneInfo(study.timezone)
-            started = self.interrupted.started_at.astimezone(zone)
             kind = "paired run" if self.interrupted.paired_start is not None else "solo"
             self.resume_banner.setText(
                 f"<b>A session was interrupted</b> ({kind}, coder {self.interrupted.coder}, "
                 f"device {self.interrupted.device}, "
-                f"started {started:%Y-%m-%d %H:%M}, codes saved: {self.interrupted.codes_saved}). "
+                f"started {local_time(self.interrupted.started_at, zone, '%Y-%m-%d %H:%M')}, codes saved: {self.interrupted.codes_saved}). "
                 f"Press <b>R</b> to resume it at the right slot.")
             self.resume_banner.setProperty("role", "warning")
             self.resume_banner.setWordWrap(True)
@@ -151,9 +158,10 @@ class StudyOverview(QWidget):
         grid.addWidget(panel, 2, 0)
         sessions = session_table(self.store)
         zone = zoneinfo.ZoneInfo(study.timezone)
-        session_rows = [[row.coder, row.device, "paired" if row.paired else "solo",
-                         f"{row.started_at.astimezone(zone):%Y-%m-%d %H:%M}",
-                         "interrupted" if pd.isna(row.ended_at) else f"{row.ended_at.astimezone(zone):%H:%M}",
+        session_rows = [[row.coder, row.device, session_mode(row),
+                         local_time(row.started_at, zone, "%Y-%m-%d %H:%M"),
+                         ("imported" if row.imported else "interrupted") if pd.isna(row.ended_at)
+                         else local_time(row.ended_at, zone, "%H:%M"),
                          str(row.windows)] for row in sessions.itertuples()]
         self.sessions_table = _table(["Coder", "Device", "Mode", "Started", "Ended", "Windows"], session_rows)
         grid.addWidget(self._section(f"Sessions so far ({len(sessions)})", self.sessions_table), 0, 1)

@@ -133,7 +133,7 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         self.learner_label.setText(state.label or "-")
         if state.start is not None:
             start, end = state.start.astimezone(self._zone), state.end.astimezone(self._zone)
-            self.range_label.setText(f"{start:%Y-%m-%d}<br><b>{start:%H:%M:%S} – {end:%H:%M:%S}</b>"
+            self.range_label.setText(f"{start:%Y-%m-%d}<br><b>{start:%H:%M:%S} – {end:%H:%M:%S} {end:%Z}</b>"
                                      f"<br><span style='font-size:{looks.STATUS_POINTS}pt'>log clock, "
                                      f"{self.session.study.timezone}</span>")
         else:
@@ -171,7 +171,7 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         if event.key() == Qt.Key.Key_PageDown:
             self.session.skip()
         elif not (event.text() and self.session.press(event.text())):
-            super().keyPressEvent(event)
+            self._show_unknown_key(event)
 
     def _end_pressed(self) -> None:
         if self._confirmed_end():
