@@ -47,8 +47,9 @@ class WelcomePage(QWidget):
         title = QLabel("fieldmark")
         title.setProperty("role", "title")
         layout.addWidget(title)
-        layout.addWidget(QLabel("<p style='font-size:16pt'><b>O</b> open a study folder<br>"
-                                "<b>C</b> create a new study in an empty folder<br><b>Ctrl+Q</b> quit</p>"))
+        self.keys_label = QLabel("<p style='font-size:16pt'><b>O</b> open a study folder<br>"
+                                 "<b>C</b> create a new study in an empty folder<br><b>Ctrl+Q</b> quit</p>")
+        layout.addWidget(self.keys_label)
         self.error = QLabel("")
         self.error.setProperty("role", "warning")
         self.error.setWordWrap(True)

@@ -14,7 +14,7 @@ import math
 import zoneinfo
 
 from PySide6.QtCore import QRectF, QSize, Qt, QTimer, Signal
-from PySide6.QtGui import QColor, QFont, QKeyEvent, QPainter, QPainterPath, QPen
+from PySide6.QtGui import QColor, QFont, QFontMetrics, QKeyEvent, QPainter, QPainterPath, QPen
 from PySide6.QtWidgets import (QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
                                QSizePolicy, QVBoxLayout, QWidget)
 
@@ -74,6 +74,57 @@ def dimension_title(name: str) -> str:
     return name.replace("_", " ").capitalize()
 
 
+class FitLabel(QLabel):
+    """One line of large text that shrinks to fit its width instead of widening the window.
+
+    A 40-character roster label at arm's-length size is wider than a 1280-pixel screen;
+    the text steps down from ``points`` (never below ``floor``) until it fits, and is
+    elided only if even the floor is too wide.
+    """
+
+    def __init__(self, floor: float = 16.0) -> None:
+        super().__init__()
+        self._points = 13.0
+        self._floor = floor
+        self._rest = ""
+        self._full = ""
+        self.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
+
+    def set_look(self, points: float, rest: str = "") -> None:
+        """The largest size in points and the rest of the style (colour, weight)."""
+        self._points, self._rest = points, rest
+        self._fit()
+
+    def setText(self, text: str) -> None:  # noqa: N802 (Qt name)
+        self._full = text
+        self._fit()
+
+    def full_text(self) -> str:
+        return self._full
+
+    def _font(self, points: float) -> QFont:
+        font = QFont(self.font())
+        font.setPointSizeF(points)
+        font.setBold("bold" in self._rest)
+        return font
+
+    def _fit(self) -> None:
+        points = self._points
+        width = max(1, self.width() - 2)
+        while points > self._floor and QFontMetrics(self._font(points)).horizontalAdvance(self._full) > width:
+            points = max(self._floor, points - 2)
+        metrics = QFontMetrics(self._font(points))
+        shown = metrics.elidedText(self._full, Qt.TextElideMode.ElideRight, width)
+        self.setStyleSheet(f"font-size: {points}pt; {self._rest}")
+        self.setFixedHeight(QFontMetrics(self._font(self._points)).height() + 4)
+        super().setText(shown)
+
+    def resizeEvent(self, event) -> None:  # noqa: N802
+        super().resizeEvent(event)
+        if event.oldSize().width() != event.size().width():
+            self._fit()
+
+
 class TimeBar(QWidget):
     """The part of the window still left, as a bar that empties from the right."""
 
@@ -112,7 +163,8 @@ class CodeTile(QWidget):
         self.scale = 1.0
         self._on_click = on_click
         self.setFocusPolicy(Qt.FocusPolicy.NoFocus)
-        self.setMinimumHeight(46)
+        self.setMinimumHeight(36)
+        self.setMaximumHeight(66)
         self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Expanding)
         self.setToolTip(f"key {code.key.upper()}: {code.label}")
 
@@ -158,6 +210,11 @@ class CodeTile(QWidget):
         painter.setFont(label_font)
         painter.setPen(QColor(looks.readable_text(fill, theme)))
         text_box = QRectF(badge.right() + 16, box.top(), box.right() - badge.right() - 26, box.height())
+        smallest = label_font.pointSizeF() * 0.7  # shrink a long label before eliding it
+        while (painter.fontMetrics().horizontalAdvance(self.code.label) > text_box.width()
+               and label_font.pointSizeF() > smallest):
+            label_font.setPointSizeF(label_font.pointSizeF() - 1)
+            painter.setFont(label_font)
         label = painter.fontMetrics().elidedText(self.code.label, Qt.TextElideMode.ElideRight, int(text_box.width()))
         painter.drawText(text_box, Qt.AlignmentFlag.AlignVCenter | Qt.AlignmentFlag.AlignLeft, label)
 
@@ -165,7 +222,8 @@ class CodeTile(QWidget):
 class DimensionPad(QFrame):
     """One dimension: its name, whether it is still to code, and a tile per code."""
 
-    def __init__(self, dimension: Dimension, on_click) -> None:
+    def __init__(self, dimension: Dimension, on_click, slots: int = 0) -> None:
+        """``slots``: the most codes any pad has; empty slots keep every pad's tiles the same height."""
         super().__init__()
         self.dimension = dimension
         self.setProperty("role", "panel")
@@ -182,7 +240,9 @@ class DimensionPad(QFrame):
         layout.addLayout(header)
         self.tiles = [CodeTile(dimension, code, on_click) for code in dimension.codes]
         for tile in self.tiles:
-            layout.addWidget(tile)
+            layout.addWidget(tile, 1)
+        for _ in range(max(0, slots - len(self.tiles))):
+            layout.addStretch(1)
 
     def show_code(self, code: str | None, theme: Theme, scale: float) -> None:
         for tile in self.tiles:
@@ -197,6 +257,12 @@ class DimensionPad(QFrame):
         else:
             self.state.setText("✓ " + self.dimension.code(code).label)
             self.state.setStyleSheet(f"font-size: {points}pt; font-weight: bold; color: {theme.text};")
+
+
+def pads_for(scheme, on_click) -> list[DimensionPad]:
+    """One pad per dimension, tiles of equal height across pads."""
+    slots = max(len(dimension.codes) for dimension in scheme.dimensions)
+    return [DimensionPad(dimension, on_click, slots) for dimension in scheme.dimensions]
 
 
 class NoteEdit(QLineEdit):
@@ -315,13 +381,13 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         header = QHBoxLayout()
         turn = QVBoxLayout()
         self.turn_caption = QLabel()
-        self.learner_label = QLabel()
+        self.learner_label = FitLabel(floor=20)
         turn.addWidget(self.turn_caption)
         turn.addWidget(self.learner_label)
         header.addLayout(turn, 3)
         upcoming = QVBoxLayout()
         self.next_caption = QLabel("NEXT")
-        self.next_label = QLabel()
+        self.next_label = FitLabel(floor=13)
         self.slot_label = QLabel()
         for label in (self.next_caption, self.next_label, self.slot_label):
             label.setAlignment(Qt.AlignmentFlag.AlignRight)
@@ -341,9 +407,9 @@ class ObservingScreen(CodingKeysMixin, QWidget):
 
         pads = QHBoxLayout()
         pads.setSpacing(18)
-        self.pads = [DimensionPad(dimension, self._clicked) for dimension in session.study.scheme.dimensions]
+        self.pads = pads_for(session.study.scheme, self._clicked)
         for pad in self.pads:
-            pads.addWidget(pad, 1, Qt.AlignmentFlag.AlignTop)
+            pads.addWidget(pad, 1)
         root.addLayout(pads, 1)
 
         self.note_edit = NoteEdit(self._save_note, self._close_note)
@@ -392,8 +458,8 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         caption = f"font-size: {13 * scale}pt; color: {theme.quiet_text}; letter-spacing: 2px;"
         self.turn_caption.setStyleSheet(caption)
         self.next_caption.setStyleSheet(caption)
-        self.learner_label.setStyleSheet(f"font-size: {looks.LEARNER_POINTS * scale}pt; font-weight: bold;")
-        self.next_label.setStyleSheet(f"font-size: {looks.NEXT_POINTS * scale}pt; color: {theme.text};")
+        self.learner_label.set_look(looks.LEARNER_POINTS * scale, "font-weight: bold;")
+        self.next_label.set_look(looks.NEXT_POINTS * scale, f"color: {theme.text};")
         self.slot_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * scale}pt; color: {theme.quiet_text};")
         self.time_label.setStyleSheet(f"font-size: {looks.TIME_POINTS * scale}pt; font-weight: bold;")
         self.status_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * scale}pt;")

@@ -16,7 +16,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QHBoxLayout, QHeaderView, QLab
 
 from observer_app.coding.replay import ReplaySession
 from observer_app.ui import theme as looks
-from observer_app.ui.observing import CodingKeysMixin, DimensionPad, NoteEdit, dimension_title, key_list_html
+from observer_app.ui.observing import CodingKeysMixin, FitLabel, NoteEdit, dimension_title, key_list_html, pads_for
 from observer_app.ui.theme import Theme
 
 # (Qt key, how the key is written on screen, what it does, the short form for the hint line)
@@ -50,7 +50,7 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         header = QHBoxLayout()
         who = QVBoxLayout()
         self.caption = QLabel()
-        self.learner_label = QLabel()
+        self.learner_label = FitLabel(floor=16)
         who.addWidget(self.caption)
         who.addWidget(self.learner_label)
         header.addLayout(who, 3)
@@ -71,9 +71,9 @@ class ReplayScreen(CodingKeysMixin, QWidget):
 
         pads = QHBoxLayout()
         pads.setSpacing(18)
-        self.pads = [DimensionPad(dimension, self._clicked) for dimension in session.study.scheme.dimensions]
+        self.pads = pads_for(session.study.scheme, self._clicked)
         for pad in self.pads:
-            pads.addWidget(pad, 1, Qt.AlignmentFlag.AlignTop)
+            pads.addWidget(pad, 1)
         root.addLayout(pads, 2)
 
         self.note_edit = NoteEdit(self._save_note, self._close_note)
@@ -101,7 +101,7 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         scale = looks.DISCREET_SCALE if theme is looks.DISCREET else 1.0
         self._scale = scale
         self.caption.setStyleSheet(f"font-size: {13 * scale}pt; color: {theme.quiet_text}; letter-spacing: 2px;")
-        self.learner_label.setStyleSheet(f"font-size: {looks.NEXT_POINTS * 1.5 * scale}pt; font-weight: bold;")
+        self.learner_label.set_look(looks.NEXT_POINTS * 1.5 * scale, "font-weight: bold;")
         self.range_label.setStyleSheet(f"font-size: {looks.NEXT_POINTS * scale}pt; color: {theme.text};")
         self.events_table.setStyleSheet(
             f"QTableWidget {{ font-size: {looks.TILE_POINTS * scale}pt; background: {theme.surface};"
