@@ -19,7 +19,24 @@ import pandas as pd
 
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
+
+# Replay plans (observer_app/coding/replay_plan.py): the rule, the digest of the clips it was
+# cut from, and which coder codes which clip in which order.  Append-only like the rest.
+REPLAY_PLANS_MIGRATION = """
+    CREATE TABLE replay_plans (
+        plan_id TEXT PRIMARY KEY, rule_json TEXT NOT NULL, description TEXT NOT NULL,
+        clips_digest TEXT NOT NULL, created_ns INTEGER NOT NULL);
+    CREATE TABLE replay_assignments (
+        plan_id TEXT NOT NULL REFERENCES replay_plans, position INTEGER NOT NULL, clip TEXT NOT NULL,
+        coder TEXT NOT NULL, double INTEGER NOT NULL, PRIMARY KEY (plan_id, clip, coder));
+    """ + "".join(
+    f"""
+    CREATE TRIGGER {table}_no_update BEFORE UPDATE ON {table}
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER {table}_no_delete BEFORE DELETE ON {table}
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;"""
+    for table in ("replay_plans", "replay_assignments"))
 
 # Forward migrations: MIGRATIONS[n] takes a store from version n to n + 1.
 MIGRATIONS: tuple[str, ...] = (
@@ -79,12 +96,14 @@ MIGRATIONS: tuple[str, ...] = (
     CREATE TRIGGER window_closures_no_delete BEFORE DELETE ON window_closures
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
     """,
+    # 2 -> 3: replay plans and their double-coding assignment.
+    REPLAY_PLANS_MIGRATION,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
-    "adjudications", "clock_models", "imports", "window_closures",
+    "adjudications", "clock_models", "imports", "window_closures", "replay_plans", "replay_assignments",
 )
 
 
@@ -328,6 +347,39 @@ class Store:
     def record_import(self, content_hash: str, source: str, at: datetime) -> None:
         with self._transaction() as cursor:
             cursor.execute("INSERT OR IGNORE INTO imports VALUES (?,?,?)", (content_hash, source, to_ns(at)))
+
+    def record_replay_plan(self, *, plan_id: str, rule_json: str, description: str, clips_digest: str,
+                           created_at: datetime, assignment: pd.DataFrame) -> bool:
+        """Store a plan and its ASSIGNMENT rows (position, clip, coder, double); False if it was stored already."""
+        with self._transaction() as cursor:
+            cursor.execute("INSERT OR IGNORE INTO replay_plans VALUES (?,?,?,?,?)",
+                           (plan_id, rule_json, description, clips_digest, to_ns(created_at)))
+            if cursor.rowcount == 0:
+                return False
+            cursor.executemany(
+                "INSERT INTO replay_assignments VALUES (?,?,?,?,?)",
+                zip([plan_id] * len(assignment), assignment["position"].astype(int).tolist(),
+                    assignment["clip"].astype(str).tolist(), assignment["coder"].astype(str).tolist(),
+                    assignment["double"].astype(int).tolist()))
+        return True
+
+    def replay_plan(self, plan_id: str) -> tuple[dict, pd.DataFrame] | None:
+        """A stored plan (plan_id, rule_json, description, clips_digest) and its assignment rows, or None."""
+        plan = self._frame("SELECT plan_id, rule_json, description, clips_digest FROM replay_plans WHERE plan_id = ?",
+                           (plan_id,))
+        if plan.empty:
+            return None
+        rows = self._frame("SELECT position, clip, coder, double FROM replay_assignments WHERE plan_id = ? "
+                           "ORDER BY position, coder", (plan_id,))
+        rows["double"] = rows["double"].astype(bool)
+        return plan.iloc[0].to_dict(), rows
+
+    def replay_plans(self) -> pd.DataFrame:
+        """Every stored plan: plan_id, rule_json, description, clips_digest, created_at."""
+        frame = self._frame("SELECT plan_id, rule_json, description, clips_digest, created_ns FROM replay_plans "
+                            "ORDER BY rowid")
+        frame["created_at"] = _times(frame.pop("created_ns"))
+        return frame
 
     def merge_from(self, other: Path) -> dict[str, int]:
         """Copy every row of another store that this one lacks (idempotent: ids are keys).

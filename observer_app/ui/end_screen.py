@@ -17,7 +17,8 @@ class EndScreen(QWidget):
     done = Signal()
 
     def __init__(self, study: Study, summary: SessionSummary, *, paired: bool = False,
-                 agreement: PartnerAgreement | None = None) -> None:
+                 agreement: PartnerAgreement | None = None, unit: str = "windows") -> None:
+        """``unit``: what the session coded, "windows" (live) or "clips" (replay)."""
         super().__init__()
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
         layout = QVBoxLayout(self)
@@ -26,8 +27,9 @@ class EndScreen(QWidget):
         title.setProperty("role", "title")
         layout.addWidget(title)
         self.figures = QLabel(
-            f"{summary.windows} windows  ·  {summary.coded_windows} coded  ·  "
-            f"{summary.missed_windows} missed (ended with no code)  ·  {summary.sync_marks} sync marks")
+            f"{summary.windows} {unit}  ·  {summary.coded_windows} coded  ·  {summary.missed_windows} "
+            + ("skipped (no code)" if unit == "clips" else
+               f"missed (ended with no code)  ·  {summary.sync_marks} sync marks"))
         self.figures.setStyleSheet("font-size: 16pt;")
         self.figures.setWordWrap(True)
         layout.addWidget(self.figures)

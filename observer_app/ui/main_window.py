@@ -16,7 +16,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeyEvent, QKeySequence, QShortcut
 from PySide6.QtWidgets import QFileDialog, QLabel, QMainWindow, QStackedWidget, QVBoxLayout, QWidget
 
-from observer_app.coding.live import LiveSession, SessionSummary
+from observer_app.coding.live import LiveSession, SessionSummary, summarise_session
 from observer_app.coding.replay import ReplaySession, find_open_replay
 from observer_app.coding.end_agreement import partner_agreement
 from observer_app.coding.clock import Clock, SystemClock
@@ -208,13 +208,19 @@ class MainWindow(QMainWindow):
         try:
             replay = (ReplaySession.reopen(self.study, self.store, self.clock, open_session) if open_session else
                       ReplaySession.start(self.study, self.store, self.clock, coder=choice.coder,
-                                          device=choice.device, learners=choice.present))
+                                          device=choice.device, learners=choice.present, rule=choice.rule))
         except InputError as error:
             self.page.error.setText(error.line())
             return
         screen = ReplayScreen(replay, self.theme)
-        screen.ended.connect(lambda _: self.show_overview())
+        screen.ended.connect(self.show_replay_end)
         self._show(screen)
+
+    def show_replay_end(self, session_id: str) -> None:
+        summary = summarise_session(self.store, session_id, self.study.scheme.dimension_names)
+        end = EndScreen(self.study, summary, unit="clips")
+        end.done.connect(self.show_overview)
+        self._show(end)
 
     def resume_session(self, session_id: str) -> None:
         self.session = LiveSession.reopen(self.study, self.store, self.clock, session_id)

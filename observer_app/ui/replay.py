@@ -23,7 +23,7 @@ from observer_app.ui.theme import Theme
 REPLAY_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
     (Qt.Key.Key_F8, "F8", "could not observe: every dimension still to code", "rest not observable"),
     (Qt.Key.Key_PageDown, "PgDn", "skip this clip (stored as a clip with no code)", "skip clip"),
-    (Qt.Key.Key_Backspace, "Backspace", "undo the last code (goes back to its clip)", "undo"),
+    (Qt.Key.Key_Backspace, "Backspace", "undo the last code or skip (goes back to its clip)", "undo"),
     (Qt.Key.Key_Return, "Enter", "write a note for this clip", "note"),
     (Qt.Key.Key_F10, "F10", "end the session (press twice)", "end"),
     (Qt.Key.Key_F1, "F1", "show / hide all keys", "all keys"),
@@ -154,8 +154,9 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt; color: {colour};")
         self.message_label.setText(state.error or state.message)
         missing = ", ".join(dimension_title(d) for d in state.missing) or "nothing"
-        self.status_label.setText(f"Saved: <b>{state.saved_count}</b> · clip {min(state.position + 1, state.clips)} "
-                                  f"of {state.clips} · {len(events)} events · still to code: {missing}")
+        self.status_label.setText(f"Clips coded: <b>{state.coded_clips}</b> · skipped {state.skipped_clips} · "
+                                  f"clip {min(state.position + 1, state.clips)} of {state.clips} · {len(events)} events"
+                                  f" · still to code: {missing}")
 
     def _render_help(self) -> None:
         self.help.setText(key_list_html(self.session.study.scheme, REPLAY_KEYS, "Esc or F1 closes this list."))

@@ -12,9 +12,11 @@ from datetime import datetime
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
-from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (QComboBox, QFormLayout, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
+                               QSpinBox, QVBoxLayout, QWidget)
 
 from observer_app.coding.clock import Clock
+from observer_app.coding.replay_plan import ReplayRule, parse_sample
 from observer_app.coding.shared_start import parse_shared_start, suggested_start_times
 from observer_app.study.folder import Study
 from sync.errors import InputError
@@ -30,6 +32,7 @@ class StartChoice:
     paired_start: datetime | None
     present: tuple[str, ...]
     replay: bool = False  # code replayed log clips of the ticked learners instead of watching live
+    rule: ReplayRule | None = None  # replay: how clips are sampled and shared out (None: every clip, time order)
 
 
 class StartForm(QWidget):
@@ -69,6 +72,7 @@ class StartForm(QWidget):
         self.shared_start_caption = QLabel(f"Shared start ({study.timezone})")
         form.addRow(self.shared_start_caption, self.shared_start)
         form.addRow("Who is present (Space ticks)", self.present)
+        self._add_replay_plan(form)
         form.addRow("Window length", QLabel(f"{study.window_seconds:g} s each, {study.order} order (from study.toml)"))
         layout.addLayout(form)
         self.error = QLabel("")
@@ -87,7 +91,41 @@ class StartForm(QWidget):
         self.shared_start.addItems(suggested_start_times(self.clock.now_utc(), self.study.timezone))
         self.coder.setFocus()
 
+    def _add_replay_plan(self, form: QFormLayout) -> None:
+        """Replay only: the sample, the fewest events a clip needs, the double-coded share, the coders."""
+        self.sample = QLineEdit("5")
+        self.sample.setPlaceholderText("5 per learner, 20% of all, or all")
+        self.sample.setToolTip("5 = five clips per learner; 20% = a fifth of all clips; all = every clip")
+        self.min_events = QSpinBox()
+        self.min_events.setRange(1, 999)
+        self.min_events.setPrefix("at least ")
+        self.min_events.setSuffix(" events")
+        self.double_share = QSpinBox()
+        self.double_share.setRange(0, 100)
+        self.double_share.setSuffix(" % double-coded")
+        self.plan_coders = QLineEdit()
+        self.plan_coders.setPlaceholderText("coders sharing the plan (default: you)")
+        row = QWidget()
+        line = QHBoxLayout(row)
+        line.setContentsMargins(0, 0, 0, 0)
+        for widget, stretch in ((self.sample, 1), (self.min_events, 0), (self.double_share, 0), (self.plan_coders, 2)):
+            line.addWidget(widget, stretch)
+        self.plan_caption = QLabel(f"Replay plan (seed {self.study.seed})")
+        form.addRow(self.plan_caption, row)
+        self.plan_row = row
+
+    def replay_rule(self, coder: str, present: tuple[str, ...]) -> ReplayRule:
+        """The plan the replay fields describe; InputError names the field to fix."""
+        per_learner, share = parse_sample(self.sample.text())
+        coders = tuple(dict.fromkeys(name.strip() for name in self.plan_coders.text().split(",") if name.strip()))
+        return ReplayRule(learners=present, per_learner=per_learner, share=share, min_events=self.min_events.value(),
+                          seed=self.study.seed, double_share=self.double_share.value() / 100,
+                          coders=coders or (coder,))
+
     def _mode_changed(self) -> None:
+        replay = self.mode.currentText() == REPLAY
+        self.plan_row.setVisible(replay)
+        self.plan_caption.setVisible(replay)
         paired = self.mode.currentText() == PAIRED
         self.shared_start.setEnabled(paired)
         self.shared_start_caption.setEnabled(paired)
@@ -121,7 +159,15 @@ class StartForm(QWidget):
             self.error.setText("Tick at least one learner who is present.")
             self.present.setFocus()
             return
+        replay = self.mode.currentText() == REPLAY
+        rule = None
+        if replay:
+            try:
+                rule = self.replay_rule(coder, present)
+            except InputError as error:
+                self.error.setText(error.line())
+                self.sample.setFocus()
+                return
         self.error.setText("")
         self.started.emit(StartChoice(coder=coder, device=self.device.text().strip() or socket.gethostname(),
-                                      paired_start=paired_start, present=present,
-                                      replay=self.mode.currentText() == REPLAY))
+                                      paired_start=paired_start, present=present, replay=replay, rule=rule))
