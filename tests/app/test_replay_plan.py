@@ -173,3 +173,21 @@ def test_a_bad_sample_is_one_line_on_the_start_form(qtbot, demo):
     form.sample.setText("lots")
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
     assert window.page is form and "'lots' is not a sample" in form.error.text()
+
+
+def test_the_sampling_rule_travels_in_the_export_manifest(demo, tmp_path):
+    import json
+
+    rule = ReplayRule(learners=LEARNERS, per_learner=2, min_events=3, seed=4, coders=("ana",))
+    with Store(demo.store_path) as store:
+        session = ReplaySession.start(demo, store, FakeClock(), coder="ana", device="laptop-a", rule=rule)
+        session.press("1")
+        session.press("q")
+    out = tmp_path / "windows.csv"
+    result = call_cli("export", demo.dir, "--out", out)
+    assert result.returncode == 0, result.stderr
+    manifests = [path for path in tmp_path.iterdir() if path.name.startswith("windows") and "manifest" in path.name]
+    manifest = json.loads(manifests[0].read_text(encoding="utf-8"))
+    sampling = manifest["parameters"]["replay_sampling"]
+    assert len(sampling) == 1 and "2 clips per learner with at least 3 log events" in sampling[0]["rule"]
+    assert "idle learners" in sampling[0]["caution"]
