@@ -336,7 +336,9 @@ class ReplaySession:
         coded[dimension] = (code, code_id)
         self._undo.append(_UndoEntry(code_id, position, dimension, code))
         label = self.study.scheme.dimension(dimension).code(code).label
-        self._message = f"Saved {dimension}: {label}" + (" (corrected)" if previous else "")
+        learner = self.label(str(self.clips.iloc[position]["learner"]))
+        self._message = f"Saved for {learner}, clip {position + 1}: {dimension} {label}" + (
+            " (corrected)" if previous else "")
         if not self.missing:
             self._move_on()
         self._emit()

@@ -62,8 +62,9 @@ class ReplayRule:
 
 
 def parse_sample(text: str) -> tuple[int | None, float | None]:
-    """'5' -> five per learner, '20%' -> a fifth of all clips, 'all' or '' -> every clip."""
-    text = text.strip().lower()
+    """'5' or '5 per learner' -> five per learner, '20%' or '20% of all' -> a fifth of all clips,
+    'all' or '' -> every clip."""
+    text = text.strip().lower().removesuffix("per learner").removesuffix("of all").strip()
     if text in ("", "all"):
         return None, None
     try:

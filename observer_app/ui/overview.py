@@ -31,8 +31,8 @@ SCROLL_KEYS = {
     Qt.Key.Key_End: QAbstractSlider.SliderAction.SliderToMaximum,
 }
 SIDEWAYS_KEYS = {
-    Qt.Key.Key_Right: QAbstractSlider.SliderAction.SliderPageStepAdd,
-    Qt.Key.Key_Left: QAbstractSlider.SliderAction.SliderPageStepSub,
+    Qt.Key.Key_Right: QAbstractSlider.SliderAction.SliderSingleStepAdd,
+    Qt.Key.Key_Left: QAbstractSlider.SliderAction.SliderSingleStepSub,
 }
 TABLE_KEYS_HINT = "<b>↑↓ PgUp PgDn</b> scroll the table  ·  <b>← →</b> sideways"
 
@@ -220,6 +220,7 @@ class StudyOverview(QWidget):
         self.keys_label = QLabel(keys)
         self.keys_label.setWordWrap(True)
         self.keys_label.setProperty("role", "caption")
+        self.keys_label.setStyleSheet("font-size: 13pt;")
         self._layout.addWidget(self.keys_label)
 
     @staticmethod

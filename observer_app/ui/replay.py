@@ -31,6 +31,12 @@ REPLAY_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
 EVENT_HEADERS = ("Seconds into clip", "Action", "Outcome", "Item")
 
 
+def short_names(values) -> list[str]:
+    """An xAPI verb or activity IRI by its last path part ('.../verbs/attempted' -> 'attempted')."""
+    return [text.rstrip("/").rsplit("/", 1)[-1] if text.startswith(("http://", "https://")) else text
+            for text in values.astype(str)]
+
+
 class ReplayScreen(CodingKeysMixin, QWidget):
     """The screen a coder codes replayed log clips on."""
 
@@ -140,8 +146,8 @@ class ReplayScreen(CodingKeysMixin, QWidget):
             self.range_label.setText("")
         events = state.events
         self.events_table.setRowCount(len(events))
-        columns = (events["offset_s"].map("{:.1f} s".format), events["action"].astype(str),
-                   events["outcome"].astype(str), events["item"].astype(str))
+        columns = (events["offset_s"].map("{:.1f} s".format), short_names(events["action"]),
+                   short_names(events["outcome"]), short_names(events["item"]))
         for column, values in enumerate(columns):
             for row, value in enumerate(values):
                 item = QTableWidgetItem(value)

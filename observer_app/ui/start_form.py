@@ -93,13 +93,13 @@ class StartForm(QWidget):
 
     def _add_replay_plan(self, form: QFormLayout) -> None:
         """Replay only: the sample, the fewest events a clip needs, the double-coded share, the coders."""
-        self.sample = QLineEdit("5")
+        self.sample = QLineEdit("5 per learner")
         self.sample.setPlaceholderText("5 per learner, 20% of all, or all")
         self.sample.setToolTip("5 = five clips per learner; 20% = a fifth of all clips; all = every clip")
         self.min_events = QSpinBox()
         self.min_events.setRange(1, 999)
-        self.min_events.setPrefix("at least ")
-        self.min_events.setSuffix(" events")
+        self.min_events.setPrefix("clips with at least ")
+        self.min_events.setSuffix(" event(s)")
         self.double_share = QSpinBox()
         self.double_share.setRange(0, 100)
         self.double_share.setSuffix(" % double-coded")

@@ -73,7 +73,8 @@ def test_a_double_coded_share_goes_to_two_coders_the_rest_to_one(all_clips):
         assign_clips(all_clips, ReplayRule(learners=LEARNERS, double_share=0.2, coders=("ana",)))
 
 
-@pytest.mark.parametrize(("text", "expected"), [("5", (5, None)), ("20%", (None, 0.2)), ("all", (None, None)),
+@pytest.mark.parametrize(("text", "expected"), [("5", (5, None)), ("5 per learner", (5, None)), ("20%", (None, 0.2)),
+                                                ("20% of all", (None, 0.2)), ("all", (None, None)),
                                                 ("", (None, None))])
 def test_the_sample_field(text, expected):
     assert parse_sample(text) == expected
@@ -191,3 +192,16 @@ def test_the_sampling_rule_travels_in_the_export_manifest(demo, tmp_path):
     sampling = manifest["parameters"]["replay_sampling"]
     assert len(sampling) == 1 and "2 clips per learner with at least 3 log events" in sampling[0]["rule"]
     assert "idle learners" in sampling[0]["caution"]
+
+
+def test_replay_confirmations_name_the_learner_and_events_show_short_names(qtbot, demo):
+    rule = ReplayRule(learners=("L07", "L08"), per_learner=2, seed=1, coders=("ana",))  # south: xAPI statements
+    with Store(demo.store_path) as store:
+        session = ReplaySession.start(demo, store, FakeClock(), coder="ana", device="laptop-a", rule=rule)
+        screen = ReplayScreen(session)
+        qtbot.addWidget(screen)
+        learner = session.label(str(session.clips["learner"][0]))
+        qtbot.keyClick(screen, "1")
+        assert screen.message_label.text().startswith(f"Saved for {learner}, clip 1")
+        actions = [screen.events_table.item(row, 1).text() for row in range(screen.events_table.rowCount())]
+        assert actions and not any(action.startswith("http") for action in actions)

@@ -22,7 +22,7 @@ from observer_app.ui.main_window import MainWindow
 from tests.app.layout_walk import make_crowded_study, problems
 from tests.conftest import ROOT
 
-SCREENS = {"welcome", "overview", "start form", "clock check", "observing", "observing, unknown key",
+SCREENS = {"welcome", "overview", "start form", "start form, replay plan", "clock check", "observing", "observing, unknown key",
            "observing, paused", "observing, key list", "end of session", "replay"}
 RUNS = {"1": ["1280x800", "1366x768", "1920x1080"], "1.25": ["1920x1080"], "1.5": ["1920x1080"]}
 
