@@ -17,12 +17,14 @@ from PySide6.QtWidgets import (QAbstractItemView, QHBoxLayout, QHeaderView, QLab
 from observer_app.coding.replay import ReplaySession
 from observer_app.ui import theme as looks
 from observer_app.ui.observing import CodingKeysMixin, FitLabel, NoteEdit, dimension_title, key_list_html, pads_for
+from observer_app.ui.overview import scroll_table
 from observer_app.ui.theme import Theme
 
 # (Qt key, how the key is written on screen, what it does, the short form for the hint line)
 REPLAY_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
     (Qt.Key.Key_F8, "F8", "could not observe: every dimension still to code", "rest not observable"),
     (Qt.Key.Key_PageDown, "PgDn", "skip this clip (stored as a clip with no code)", "skip clip"),
+    (Qt.Key.Key_Down, "↑ ↓", "scroll the clip's events", "scroll events"),
     (Qt.Key.Key_Backspace, "Backspace", "undo the last code or skip (goes back to its clip)", "undo"),
     (Qt.Key.Key_Return, "Enter", "write a note for this clip", "note"),
     (Qt.Key.Key_F10, "F10", "end the session (press twice)", "end"),
@@ -177,6 +179,8 @@ class ReplayScreen(CodingKeysMixin, QWidget):
             return
         if event.key() == Qt.Key.Key_PageDown:
             self.session.skip()
+        elif event.key() in (Qt.Key.Key_Up, Qt.Key.Key_Down):
+            scroll_table(self.events_table, event.key())
         elif not (event.text() and self.session.press(event.text())):
             self._show_unknown_key(event)
 

@@ -205,3 +205,21 @@ def test_replay_confirmations_name_the_learner_and_events_show_short_names(qtbot
         assert screen.message_label.text().startswith(f"Saved for {learner}, clip 1")
         actions = [screen.events_table.item(row, 1).text() for row in range(screen.events_table.rowCount())]
         assert actions and not any(action.startswith("http") for action in actions)
+
+
+def test_the_clip_events_scroll_with_the_arrow_keys(qtbot, demo):
+    events, _ = read_study_logs(demo)
+    clips = cut_clips(events, demo.roster, LEARNERS, demo.window_seconds)
+    busiest = int(clips["events"].max())
+    rule = ReplayRule(learners=LEARNERS, per_learner=1, min_events=busiest, coders=("ana",))
+    with Store(demo.store_path) as store:
+        session = ReplaySession.start(demo, store, FakeClock(), coder="ana", device="laptop-a", rule=rule)
+        screen = ReplayScreen(session)
+        qtbot.addWidget(screen)
+        screen.resize(1280, 720)
+        screen.show()
+        qtbot.waitExposed(screen)
+        bar = screen.events_table.verticalScrollBar()
+        assert screen.events_table.rowCount() == busiest and bar.maximum() > 0
+        qtbot.keyClick(screen, Qt.Key.Key_Down)
+        assert bar.value() > 0 and session.state().position == 0  # scrolling is not skipping
