@@ -9,6 +9,7 @@ Fedora names side by side.  No Qt is imported here.
 from __future__ import annotations
 
 import ctypes
+import socket
 import sys
 from collections.abc import Callable, Mapping
 
@@ -73,7 +74,37 @@ def display_problem(environ: Mapping[str, str], platform: str = sys.platform,
         return (f"the app's window needs system libraries this computer lacks ({', '.join(missing)}); "
                 f"install them with `sudo apt-get install {debian}` (Debian/Ubuntu) or "
                 f"`sudo dnf install {fedora}` (Fedora), then start the app again")
-    if not environ.get("DISPLAY"):
+    display = environ.get("DISPLAY", "")
+    if not display:
         return ("no display to open the app's window on (DISPLAY is not set); start it from a desktop session, "
                 "or under a virtual display with `xvfb-run fieldmark app STUDY`")
+    if not reachable(display):
+        return (f"cannot reach the display DISPLAY={display} (no X server answers there); start the app from a "
+                "desktop session, or under a virtual display with `xvfb-run fieldmark app STUDY`")
     return None
+
+
+def reachable(display: str, timeout: float = 2.0) -> bool:
+    """Whether an X server listens at ``display`` (":1", "unix:1", "host:1.0"); True when unsure.
+
+    Qt aborts the process when it cannot connect, and then blames a missing library.
+    """
+    host, _, number = display.rpartition(":")
+    number = number.split(".")[0]
+    if not number.isdigit():
+        return True  # a form we do not know: let Qt try
+    if host in ("", "unix"):
+        addresses = [(socket.AF_UNIX, f"/tmp/.X11-unix/X{number}"), (socket.AF_UNIX, f"\0/tmp/.X11-unix/X{number}")]
+    elif "/" in host:
+        return True  # a launchd or similar socket path: let Qt try
+    else:
+        addresses = [(socket.AF_INET, (host, 6000 + int(number)))]
+    for family, address in addresses:
+        try:
+            with socket.socket(family, socket.SOCK_STREAM) as connection:
+                connection.settimeout(timeout)
+                connection.connect(address)
+                return True
+        except OSError:
+            continue
+    return False

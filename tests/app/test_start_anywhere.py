@@ -30,7 +30,7 @@ def test_missing_system_libraries_are_named_with_the_packages_to_install(tmp_pat
     folder = make_study(tmp_path / "study")
     monkeypatch.setattr(system_libraries, "load_library", fresh_image_loader)
     monkeypatch.setenv("QT_QPA_PLATFORM", "xcb")
-    monkeypatch.setenv("DISPLAY", ":0")
+    monkeypatch.setenv("DISPLAY", ":4321")  # the libraries are checked first
     result = call_cli("app", folder)
     assert_user_error(result, "libxcb-cursor.so.0", "libxcb-icccm.so.4", "libxcb-keysyms.so.1",
                       "sudo apt-get install libxcb-cursor0 libxcb-icccm4 libxcb-keysyms1",
@@ -44,7 +44,15 @@ def test_no_display_is_one_line_not_an_abort(tmp_path, monkeypatch):
     assert_user_error(call_cli("app", folder), "DISPLAY", "xvfb-run")
 
 
-def test_the_check_only_applies_where_qt_uses_x11():
+def test_a_display_nobody_answers_on_is_one_line_not_an_abort(tmp_path, monkeypatch):
+    folder = make_study(tmp_path / "study")
+    monkeypatch.setenv("QT_QPA_PLATFORM", "xcb")
+    monkeypatch.setenv("DISPLAY", ":4321")  # no X server listens on display 4321
+    assert_user_error(call_cli("app", folder), "DISPLAY=:4321", "xvfb-run")
+
+
+def test_the_check_only_applies_where_qt_uses_x11(monkeypatch):
+    monkeypatch.setattr(system_libraries, "reachable", lambda display: True)
     assert system_libraries.display_problem({"QT_QPA_PLATFORM": "offscreen"}, "linux", fresh_image_loader) is None
     assert system_libraries.display_problem({"DISPLAY": ":0"}, "darwin", fresh_image_loader) is None
     line = system_libraries.display_problem({"DISPLAY": ":0"}, "linux", fresh_image_loader)
