@@ -92,8 +92,9 @@ class MainWindow(QMainWindow):
         self.setCentralWidget(central)
         self.setWindowTitle("fieldmark")
         self.resize(1280, 800)
-        QShortcut(QKeySequence(Qt.Key.Key_F6), self, self.toggle_discreet)
-        QShortcut(QKeySequence("Ctrl+Q"), self, self.close)
+        # Application-wide: they must work even when no window manager marks the window active.
+        for keys, action in ((QKeySequence(Qt.Key.Key_F6), self.toggle_discreet), (QKeySequence("Ctrl+Q"), self.close)):
+            QShortcut(keys, self, action, context=Qt.ShortcutContext.ApplicationShortcut)
         self.setStyleSheet(looks.stylesheet(self.theme))
         self._style_error_bar()
         self.welcome = WelcomePage(self)
@@ -238,6 +239,15 @@ class MainWindow(QMainWindow):
                         agreement=partner_agreement(self.study, self.store, summary.session_id) if paired else None)
         end.done.connect(self.show_overview)
         self._show(end)
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        """F6 and Ctrl+Q when the shortcuts did not fire (no window manager marked the window active)."""
+        if event.key() == Qt.Key.Key_F6:
+            self.toggle_discreet()
+        elif event.key() == Qt.Key.Key_Q and event.modifiers() & Qt.KeyboardModifier.ControlModifier:
+            self.close()
+        else:
+            super().keyPressEvent(event)
 
     def closeEvent(self, event) -> None:  # noqa: N802
         page = self.page

@@ -335,6 +335,9 @@ class CodingKeysMixin:
         return True
 
     def _show_unknown_key(self, event: QKeyEvent) -> None:
+        if event.key() == Qt.Key.Key_F6 or event.modifiers() & Qt.KeyboardModifier.ControlModifier:
+            event.ignore()  # the window's keys (F6 discreet, Ctrl+Q quit): let the window have them
+            return
         hint = unknown_key_hint(event)
         if hint:
             self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt;"

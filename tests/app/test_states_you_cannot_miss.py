@@ -115,3 +115,18 @@ def test_overview_names_replay_sessions_and_writes_zones(qtbot, tmp_path):
     table = window.overview.sessions_table
     assert table.item(0, 2).text() == "replay"
     assert table.item(0, 3).text() == "2026-03-09 09:00 CET"
+
+
+def test_f6_reaches_the_window_even_without_an_active_window_and_is_no_unknown_key(qtbot, tmp_path):
+    folder = make_study(tmp_path / "study")
+    window = MainWindow(folder, clock=FakeClock(), device="laptop-1")
+    qtbot.addWidget(window)
+    window.show()
+    with Store(load_study(folder).store_path) as store:
+        window.session = LiveSession.start(load_study(folder), store, FakeClock(), coder="ana", device="laptop-1")
+        window.show_observing()
+        screen = window.page
+        before = window.theme
+        qtbot.keyClick(screen, Qt.Key.Key_F6)  # straight to the widget, as when no shortcut fires
+        assert window.theme is not before and "not a key" not in screen.message_label.text()
+        screen.timer.stop()
