@@ -5,7 +5,8 @@ What a window covers is decided here and nowhere else:
       itself when before_s is 0 -- or [window_start - before_s, window_start + after_s)
       when after_s is given;
   anchor="coded": [coded_at - before_s, coded_at + after_s) (after_s defaults to 0).
-Bounds of live observations are mapped through the device's clock model; replay
+Bounds of live observations are mapped through their session's clock model (key
+``device/session_id``) or else their device's (key ``device``), sync/clock_sessions.py; replay
 observations (mode "replay") were coded against the log itself, so their window times
 are already log times and are taken as they are.  Start is inclusive, end exclusive,
 so back-to-back windows never share an event.
@@ -16,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from sync.clock import NAT, ClockModel, identity_model
+from sync.clock_sessions import model_for
 from sync.tables import WINDOW_EXTRA_COLUMNS
 from sync.time_column import datetime_column_ns
 
@@ -28,8 +30,9 @@ def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, 
     """Every observation with log_id, start_ns, end_ns, coded_ns on the log's clock.
 
     ``observations`` has the OBSERVATIONS columns (observer_app/study/tables.py); ``roster``
-    the columns learner and log_id.  Devices without a model are mapped with the identity
-    model.  Rows without window_start/window_end are left out.  What was assumed or left
+    the columns learner and log_id; ``clock_models`` is keyed ``device`` or
+    ``device/session_id`` (sync/tables.py).  Devices without a model are mapped with the
+    identity model (callers that must not guess refuse them first).  Rows without window_start/window_end are left out.  What was assumed or left
     out is listed in ``result.attrs["warnings"]``.  Raises ValueError for an unknown
     anchor or a window that would not have positive length.
     """
@@ -55,14 +58,15 @@ def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, 
     window_start, window_end, coded_at = (datetime_column_ns(result[column]) for column in ("window_start", "window_end", "coded_at"))
     before, after = round(before_s * 1e9), None if after_s is None else round(after_s * 1e9)
     devices = result["device"].astype(str).to_numpy()
+    sessions = result["session_id"].astype(str).to_numpy() if "session_id" in result else np.full(len(result), "")
     replay = (result["mode"].astype(str) == "replay").to_numpy() if "mode" in result else np.zeros(len(result), bool)
-    for device, replayed in {(d, r) for d, r in zip(devices, replay)}:
-        rows = (devices == device) & (replay == replayed)
-        model = None if replayed else clock_models.get(device)
+    for device, session_id, replayed in {(d, s, r) for d, s, r in zip(devices, sessions, replay)}:
+        rows = (devices == device) & (sessions == session_id) & (replay == replayed)
+        model = None if replayed else model_for(clock_models, device, session_id)
         if model is None:
             model = identity_model(device)
             if not replayed:
-                warnings.extend(model.warnings)
+                warnings.extend(w for w in model.warnings if w not in warnings)
         if anchor == "start":
             begin = window_start[rows] - before
             finish = window_end[rows] if after is None else window_start[rows] + after

@@ -188,11 +188,12 @@ def run(args: argparse.Namespace) -> int:
         table = list_disagreements(units, dimensions, adjudications)
         write_atomically(args.disagreements, table.to_csv(index=False))
     if args.report:
-        from agreement.report import render_report  # matplotlib: only loaded when a report is asked for
+        # matplotlib and Jinja2: only loaded when a report is asked for
+        from observer_app.reports.agreement_report import render_agreement_report
 
         rolling = {d.name: rolling_kappa(units, d, args.rolling_window, include) for d in dimensions}
-        write_atomically(args.report, render_report(f"Reliability report: {Path(args.source).name}", agreement,
-                                                    rolling, args.rolling_window, pairing, views))
+        write_atomically(args.report, render_agreement_report(f"Reliability report: {Path(args.source).name}",
+                                                              agreement, rolling, args.rolling_window, pairing, views))
 
     if args.json:
         document = {

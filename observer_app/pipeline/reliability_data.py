@@ -14,11 +14,12 @@ import pandas as pd
 
 from agreement.dimensions import Dimension
 from agreement.pairing import pair_observations
-from observer_app.pipeline.alignment import stored_clock_models
+from observer_app.pipeline.alignment import require_clock_models, stored_clock_models
 from observer_app.study.scheme import Scheme
 from observer_app.study.store import Store
 from observer_app.study.folder import Study, load_study
 from sync.clock import ClockModel
+from sync.clock_sessions import model_for
 from sync.time_column import datetime_column_ns
 
 
@@ -38,10 +39,14 @@ def on_log_clock(observations: pd.DataFrame, models: dict[str, ClockModel]) -> p
     moved = observations.copy()
     live = (moved["mode"] == "live").to_numpy(dtype=bool)
     devices = moved["device"].astype(str).to_numpy()
+    sessions = moved["session_id"].astype(str).to_numpy()
+    clocks = {(d, s): model_for(models, d, s) for d, s in zip(devices[live], sessions[live])}
     for column in ("window_start", "window_end", "coded_at"):
         instants = datetime_column_ns(moved[column])
-        for device, model in models.items():
-            rows = live & (devices == device)
+        for (device, session_id), model in clocks.items():
+            if model is None:
+                continue
+            rows = live & (devices == device) & (sessions == session_id)
             instants[rows] = model.to_log_ns(instants[rows])
         moved[column] = pd.Series(pd.to_datetime(instants, utc=True), index=moved.index)  # int64 min -> NaT
     return moved
@@ -58,8 +63,9 @@ def study_units(study: Study) -> tuple[pd.DataFrame, list[Dimension], dict[str, 
     with Store(study.store_path) as store:
         observations = store.observations(names)
     models = stored_clock_models(study)
-    live_devices = set(observations.loc[observations["mode"] == "live", "device"].astype(str))
-    aligned = bool(live_devices) and live_devices <= set(models)
+    live = observations[observations["mode"] == "live"]
+    aligned = bool(len(live)) and all(model_for(models, d, s) is not None
+                                      for d, s in zip(live["device"].astype(str), live["session_id"].astype(str)))
     if aligned:
         observations = on_log_clock(observations, models)
     units, report = pair_observations(observations, names, tolerance_s=study.window_seconds / 2.0)
@@ -67,7 +73,14 @@ def study_units(study: Study) -> tuple[pd.DataFrame, list[Dimension], dict[str, 
 
 
 def load_study_units(path: Path) -> tuple[pd.DataFrame, list[Dimension], dict[str, object], Path]:
-    """``study_units`` of the study folder at ``path``, and its store's path."""
+    """``study_units`` of the study folder at ``path``, and its store's path.
+
+    What `fieldmark agree` and `adjudicate` use: a live device without a clock model is
+    refused (InputError), never paired on its own clock by default.
+    """
     study = load_study(path)
+    with Store(study.store_path) as store:
+        observations = store.observations(study.scheme.dimension_names)
+    require_clock_models(study, observations, stored_clock_models(study))
     units, dimensions, report = study_units(study)
     return units, dimensions, report, study.store_path

@@ -21,7 +21,8 @@ from export.pseudonyms import read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.pipeline.alignment import read_study_logs, stored_clock_models
+from observer_app.pipeline.alignment import (read_study_logs, require_clock_models, stored_clock_decisions,
+                                            stored_clock_models)
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
 from sync.clock import ClockModel
@@ -29,7 +30,7 @@ from sync.errors import InputError
 from sync.windows import observations_to_windows
 
 CLOCK_SUMMARY_KEYS = ("device", "method", "offset_s", "drift_ppm", "reference_ns", "marks_used",
-                      "median_abs_residual_s", "confidence")
+                      "median_abs_residual_s", "confidence", "span_standard_error_s")
 STEPS = ("read the study", "read the logs", "put observations on the log's clock", "pair coders",
          "features and labels", "write")
 
@@ -82,6 +83,11 @@ def export_study(
             sampling = replay_sampling(store, observations)
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
+        models = stored_clock_models(study)
+        require_clock_models(study, observations, models)
+        decisions = stored_clock_decisions(study)
+        uncertain = dict(zip(decisions["model_key"].astype(str), decisions["uncertain_accepted"].astype(bool))) \
+            if len(decisions) else {}
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
@@ -89,7 +95,6 @@ def export_study(
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
-        models = stored_clock_models(study)
         try:
             windows = observations_to_windows(observations, models, study.roster, window.anchor, window.before_s,
                                               window.after_s)
@@ -118,16 +123,20 @@ def export_study(
         }
         manifest = build_manifest(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
-            clock_models=[clock_summary(model) for model in models.values()],
+            clock_models=[{**clock_summary(model), "clock": key, "uncertain_accepted": uncertain.get(key, False)}
+                          for key, model in models.items()],
             inputs=file_digests(*zip(*inputs)), output_format=output_format,
         )
         beside = write_windows(result, out, manifest)
         bar.update()
+    accepted = sorted(key for key, flag in uncertain.items() if flag and key in models)
+    clock_warnings = [f"clock {key} was stored above the uncertainty bound (--accept-uncertain); its windows may be "
+                      "misplaced" for key in accepted]
     return {
         "out": str(out), "manifest": str(beside), "format": output_format, "rows": manifest["rows"],
         "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
         "observations": int(len(observations)), "units": pairing.units,
-        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])),
+        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + clock_warnings,
     }
 
 
