@@ -181,9 +181,11 @@ def test_the_sampling_rule_travels_in_the_export_manifest(demo, tmp_path):
 
     rule = ReplayRule(learners=LEARNERS, per_learner=2, min_events=3, seed=4, coders=("ana",))
     with Store(demo.store_path) as store:
-        session = ReplaySession.start(demo, store, FakeClock(), coder="ana", device="laptop-a", rule=rule)
+        session = ReplaySession.start(demo, store, FakeClock(), coder="ana", device="replay-desk", rule=rule)
         session.press("1")
         session.press("q")
+    for device in ("laptop-a", "laptop-b"):  # the demo's live coders' clocks: a decision export requires
+        assert call_cli("align", demo.dir, "--set-offset", f"{device}=0").returncode == 0
     out = tmp_path / "windows.csv"
     result = call_cli("export", demo.dir, "--out", out)
     assert result.returncode == 0, result.stderr
