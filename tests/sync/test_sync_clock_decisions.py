@@ -19,7 +19,7 @@ import pytest
 
 from observer_app.pipeline.alignment import require_clock_models, stored_clock_models
 from observer_app.study.folder import load_study
-from observer_app.study.store import MIGRATIONS, SCHEMA_VERSION, Store, _statements
+from observer_app.study.store import MIGRATION_CLOCK_HISTORY, MIGRATIONS, SCHEMA_VERSION, Store, _statements
 from sync.clock import ClockModel, manual_model
 from sync.clock_sessions import model_for
 from sync.errors import InputError
@@ -169,10 +169,11 @@ def test_history_is_append_only_and_precedence_goes_by_fitted_time(tmp_path):
 def test_clock_models_of_an_older_store_migrate_forward(tmp_path):
     path = tmp_path / "old.sqlite"
     connection = sqlite3.connect(path)
-    for script in MIGRATIONS[: SCHEMA_VERSION - 1]:
+    before = MIGRATIONS.index(MIGRATION_CLOCK_HISTORY)  # the store as it was before clock history
+    for script in MIGRATIONS[:before]:
         for statement in _statements(script):
             connection.execute(statement)
-    connection.execute(f"PRAGMA user_version = {SCHEMA_VERSION - 1}")
+    connection.execute(f"PRAGMA user_version = {before}")
     connection.execute("INSERT INTO clock_models VALUES ('m1', ?, ?, 5)", (DEVICE, manual_model(DEVICE, 3.0).to_json()))
     connection.execute("INSERT INTO clock_models VALUES ('m2', ?, ?, 9)",
                        (DEVICE, ClockModel(device=DEVICE, method="auto", offset_s=8.0).to_json()))
