@@ -64,12 +64,13 @@ from export.detector_check import check_windows
 from demo_sessions import report
 from observer_app.pipeline.alignment import (align_study, clock_reference_ns, fit_clock_models, model_summary,
                                             read_study_logs, reference_text)
-from observer_app.pipeline.reliability_data import study_units
+from observer_app.pipeline.units import study_units
 from observer_app.study.store import Store
 from observer_app.pipeline.study_export import export_study
 from observer_app.study.folder import Study, load_study
 from sync.clock import ClockModel
 from sync.residual_plot import residual_figure
+from sync.windows import observations_on_log_clock
 
 SUMMARY_FILE = "summary.json"
 WINDOWS_FILE = "windows.parquet"
@@ -143,11 +144,9 @@ def step_coder_vs_truth(run: DemoRun) -> None:
     middle = codes["window_start"] + (codes["window_end"] - codes["window_start"]) / 2
     clock = "each laptop's own clock"
     if run.clock_models:
-        middle = pd.Series(middle.to_numpy(dtype="datetime64[ns]").astype("int64"), index=codes.index)
-        for device, model in run.clock_models.items():
-            mine = codes["device"] == device
-            middle[mine] = model.to_log_ns(middle[mine].to_numpy())
-        middle = pd.to_datetime(middle, unit="ns", utc=True)
+        on_log = observations_on_log_clock(codes, run.clock_models)
+        middle = pd.Series(pd.to_datetime((on_log["log_start_ns"] + on_log["log_end_ns"]) // 2, unit="ns", utc=True),
+                           index=codes.index)
         clock = "the log's clock, through the aligned clock models"
     codes = pd.DataFrame({"learner": codes["learner"], "coder": codes["coder"], "code": codes[activity.name],
                           "time": middle})
@@ -218,7 +217,8 @@ def step_align(run: DemoRun) -> None:
 def step_agree(run: DemoRun) -> None:
     """The agreement step: the two coders' paired windows, every figure with its cluster-bootstrap CI."""
     assert run.study is not None
-    units, dimensions, pairing = study_units(run.study)
+    found = study_units(run.study)
+    units, dimensions, pairing = found.units, found.dimensions, found.report
     agreement = assess_agreement(units, dimensions, resamples=AGREEMENT_RESAMPLES, seed=run.seed)
     run.summary["dimensions"] = {
         name: {"kappa": headline_kappa(result.figures).as_dict(), "alpha": result.figures["alpha"].as_dict(),

@@ -5,9 +5,11 @@ import argparse
 import json
 import math
 import sys
+from pathlib import Path
 
 from observer_app.pipeline.alignment import (DEFAULT_MAX_STANDARD_ERROR_S, METHODS, Alignment, align_study,
-                                            clock_reference_ns, model_summary, reference_text)
+                                            clock_reference_ns, model_summary, read_study_logs, reference_text)
+from observer_app.pipeline.coverage import coverage_lines, coverage_report, study_coverage
 from observer_app.study.folder import load_study
 from sync.errors import InputError
 
@@ -70,17 +72,25 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(None, "--max-standard-error", f"{args.max_standard_error!r} is not a positive number of seconds")
     study = load_study(args.study)
     reference = clock_reference_ns(study)
+    # read once, for the fits and the coverage; hand-set offsets need no logs, so logs not
+    # yet on disk stop align only when a fit needs them (align_study reads them then)
+    present = bool(study.logs) and all(Path(spec.path).exists() for spec in study.logs)
+    logs = read_study_logs(study) if present else None
     try:
-        alignment = align_study(study, args.method, offsets, progress=not args.json, refit=tuple(args.refit),
-                                max_standard_error_s=args.max_standard_error, accept_uncertain=args.accept_uncertain,
-                                command=command_line(args))
+        alignment = align_study(study, args.method, offsets, progress=not args.json, logs=logs,
+                                refit=tuple(args.refit), max_standard_error_s=args.max_standard_error,
+                                accept_uncertain=args.accept_uncertain, command=command_line(args))
     except InputError as error:
         refused = getattr(error, "alignment", None)
         if args.json and refused is not None:  # what would have been stored and why; nothing was
             sys.stdout.write(json.dumps(_payload(study, refused, reference, stored=False)) + "\n")
         raise
+    events = logs[0] if logs is not None else alignment.events
+    coverage = study_coverage(study, events, alignment.models) if events is not None else None
     if args.json:
-        sys.stdout.write(json.dumps(_payload(study, alignment, reference, stored=True)) + "\n")
+        payload = _payload(study, alignment, reference, stored=True)
+        payload["coverage"] = None if coverage is None else coverage_report(coverage)
+        sys.stdout.write(json.dumps(payload) + "\n")
         return 0
     report = alignment.read_report
     if report.rows_per_file:
@@ -103,6 +113,8 @@ def run(args: argparse.Namespace) -> int:
             print(f"  {key}: {warning}")
     for device, decision in alignment.decisions.items():
         print(f"  {device}: {decision.decision}: {decision.reason}")
+    for line in coverage_lines(coverage_report(coverage)) if coverage is not None else []:
+        print(line)
     print("added the new models to the study's clock history")
     return 0
 

@@ -75,6 +75,7 @@ class Alignment:
     read_report: ReadReport
     skipped: dict[str, str] = field(default_factory=dict)
     decisions: dict[str, ClockDecision] = field(default_factory=dict)
+    events: pd.DataFrame | None = None  # the EVENTS read for the fits; None when no fit needed the logs
 
 
 def gate_error(model: ClockModel) -> float:
@@ -192,7 +193,8 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
             models[device] = scan_offset(_observable(live, study), events, list(study.scheme.dimension_names))
         else:
             skipped[device] = "no live observations to scan"
-    return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped)
+    return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped,
+                     events=events if to_fit else None)
 
 
 def _fit_marks_by_session(marks: pd.DataFrame, events: pd.DataFrame, live: pd.DataFrame) -> dict[str, ClockModel]:

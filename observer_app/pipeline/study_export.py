@@ -1,9 +1,10 @@
 """Exporting a study's labelled windows: the glue behind `fieldmark export` and the demo.
 
-The study (observer_app.study.folder), the store, the logs (sync.read_logs), the clock models
-and windows on the log's clock (sync.windows), the pairing of coders into units
-(agreement.pairing), then export/ for features, labels, pseudonyms and the file.  Each
-of those decides its own part; this module only passes the tables along.
+The study (observer_app.study.folder), the store, the logs (sync.read_logs), the study's
+units (observer_app.pipeline.units: observations on the log's clock, paired exactly as
+``fieldmark agree`` pairs them, adjudications placed by the observations they settle),
+windows on the log's clock (sync.windows), then export/ for features, labels, pseudonyms
+and the file.  Each of those decides its own part; this module only passes the tables along.
 """
 from __future__ import annotations
 
@@ -15,7 +16,6 @@ from pathlib import Path
 import pandas as pd
 from tqdm import tqdm
 
-from agreement.pairing import pair_observations
 from export.labelled_windows import ExportSettings, label_windows
 from export.pseudonyms import read_secret_key
 from export.tables import UNIT
@@ -23,9 +23,12 @@ from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
 from observer_app.pipeline.alignment import (read_study_logs, require_clock_models, stored_clock_decisions,
                                             stored_clock_models)
+from observer_app.pipeline.coverage import coverage_report
+from observer_app.pipeline.units import require_placed, study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
 from sync.clock import ClockModel
+from sync.coverage import Coverage, learner_coverage, unmatched_log_ids_problem
 from sync.errors import InputError
 from sync.windows import observations_to_windows
 
@@ -65,7 +68,7 @@ def export_study(
     settings: ExportSettings = ExportSettings(), progress: bool | None = None,
 ) -> dict:
     """Write the study's labelled windows and manifest to ``out``; return a JSON-ready summary
-    (out, manifest, format, rows, rows_per_label, events, observations, units, warnings).
+    (out, manifest, format, rows, rows_per_label, events, observations, units, coverage, warnings).
 
     ``progress``: None shows a bar only on a terminal.  Raises InputError for the user's mistakes.
     """
@@ -88,6 +91,8 @@ def export_study(
         decisions = stored_clock_decisions(study)
         uncertain = dict(zip(decisions["model_key"].astype(str), decisions["uncertain_accepted"].astype(bool))) \
             if len(decisions) else {}
+        found = study_units(study, observations, models)
+        placed = require_placed(found, adjudications)
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
@@ -100,15 +105,19 @@ def export_study(
                                               window.after_s)
         except ValueError as error:
             raise InputError(None, "--before/--after", str(error)) from None
+        coverage = learner_coverage(events, windows)
+        problem = unmatched_log_ids_problem(coverage)
+        if problem:
+            raise InputError(study.dir / ROSTER_FILE, "column log_id", problem)
         bar.update()
 
         bar.set_postfix_str(STEPS[3])
-        units, pairing = pair_observations(observations, dimensions, tolerance_s=study.window_seconds / 2.0)
+        units = found.units
         windows[UNIT] = windows["observation_id"].map(units.set_index("observation_id")[UNIT]) if len(units) else None
         bar.update()
 
         bar.set_postfix_str(STEPS[4])
-        result = label_windows(events, windows, study.roster, dimensions, could_not_observe, key, adjudications, settings)
+        result = label_windows(events, windows, study.roster, dimensions, could_not_observe, key, placed, settings)
         bar.update()
 
         bar.set_postfix_str(STEPS[5])
@@ -118,7 +127,7 @@ def export_study(
         parameters = {
             **settings.parameters(),
             "window": {"anchor": window.anchor, "before_s": window.before_s, "after_s": window.after_s},
-            "pairing_tolerance_s": study.window_seconds / 2.0,
+            "pairing_tolerance_s": found.report["pairing_tolerance_s"],
             "replay_sampling": sampling,
         }
         manifest = build_manifest(
@@ -127,6 +136,7 @@ def export_study(
                           for key, model in models.items()],
             inputs=file_digests(*zip(*inputs)), output_format=output_format,
         )
+        manifest["coverage"] = coverage.summary()
         beside = write_windows(result, out, manifest)
         bar.update()
     accepted = sorted(key for key, flag in uncertain.items() if flag and key in models)
@@ -135,9 +145,18 @@ def export_study(
     return {
         "out": str(out), "manifest": str(beside), "format": output_format, "rows": manifest["rows"],
         "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
-        "observations": int(len(observations)), "units": pairing.units,
-        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + clock_warnings,
+        "observations": int(len(observations)), "units": found.report["units"],
+        "coverage": coverage_report(coverage),
+        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + outside_warnings(coverage)
+                    + clock_warnings,
     }
+
+
+def outside_warnings(coverage: Coverage) -> list[str]:
+    """One warning per observed learner whose log events all fall outside their observed windows."""
+    return [f"learner {row.learner} (log_id {row.log_id!r}) has {row.events_in_logs} log events but none in any of "
+            f"their {row.windows} observed windows; check the clock models (fieldmark align) and the log's timezone"
+            for row in coverage.outside.itertuples()]
 
 
 def clock_summary(model: ClockModel) -> dict:

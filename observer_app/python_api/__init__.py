@@ -133,10 +133,10 @@ def agreement(study: Study, *, resamples: int = 1000, seed: int = 1) -> pd.DataF
     True
     """
     from agreement.statistics import assess_agreement
-    from observer_app.pipeline.reliability_data import study_units
+    from observer_app.pipeline.units import study_units
 
-    units, dimensions, _ = study_units(study)
-    result = assess_agreement(units, dimensions, resamples=resamples, seed=seed)
+    found = study_units(study)
+    result = assess_agreement(found.units, found.dimensions, resamples=resamples, seed=seed)
     rows = [{"dimension": name, "figure": figure, **estimate.as_dict(), "units": dimension.units}
             for name, dimension in result.dimensions.items() for figure, estimate in dimension.figures.items()]
     return pd.DataFrame(rows).set_index(["dimension", "figure"])

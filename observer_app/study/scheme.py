@@ -37,7 +37,7 @@ class Code:
 @dataclass(frozen=True)
 class SchemeDimension:
     """A dimension as the scheme file defines it (codes with labels, keys and colours);
-    agreement/ sees it as agreement.dimensions.Dimension (pipeline/reliability_data.py)."""
+    agreement/ sees it as agreement.dimensions.Dimension (pipeline/units.py)."""
 
     name: str
     level: str

@@ -19,7 +19,7 @@ import pandas as pd
 
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 
-SCHEMA_VERSION = 4
+SCHEMA_VERSION = 5
 
 # 2 -> 3: clock models become a history of kept decisions.  Each row says how it was
 # made (method: "manual", "marks", "borrowed", "auto"), by which command, on what
@@ -39,7 +39,13 @@ MIGRATION_CLOCK_HISTORY = """
     CREATE INDEX clock_models_by_device ON clock_models (device, at_ns);
 """
 
-# 3 -> 4: replay plans (observer_app/coding/replay_plan.py): the rule, the digest of the clips it was
+# An adjudication names the observations it settles (ids joined by "|"), so re-pairing
+# cannot orphan it; rows written before keep "" and are traced back through their unit id.
+MIGRATION_ADJUDICATED_OBSERVATIONS = """
+    ALTER TABLE adjudications ADD COLUMN observations TEXT NOT NULL DEFAULT '';
+    """
+
+# 4 -> 5: replay plans (observer_app/coding/replay_plan.py): the rule, the digest of the clips it was
 # cut from, and which coder codes which clip in which order.  Append-only like the rest.
 REPLAY_PLANS_MIGRATION = """
     CREATE TABLE replay_plans (
@@ -115,7 +121,8 @@ MIGRATIONS: tuple[str, ...] = (
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
     """,
     MIGRATION_CLOCK_HISTORY,
-    # 3 -> 4: replay plans and their double-coding assignment.
+    MIGRATION_ADJUDICATED_OBSERVATIONS,
+    # 4 -> 5: replay plans and their double-coding assignment.
     REPLAY_PLANS_MIGRATION,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
@@ -349,12 +356,17 @@ class Store:
             cursor.execute("INSERT INTO absences VALUES (?,?,?,?,?)", (absence_id, session_id, learner, state, to_ns(at)))
         return absence_id
 
-    def record_adjudication(self, *, unit: str, dimension: str, code: str, adjudicator: str, at: datetime,
-                            reason: str = "") -> str:
+    def record_adjudication(self, *, unit: str, observations: Iterable[str], dimension: str, code: str,
+                            adjudicator: str, at: datetime, reason: str = "") -> str:
+        """``observations``: the ids of the observations the decision settles (what it is keyed by)."""
         adjudication_id = new_id()
+        settled = "|".join(sorted(str(observation) for observation in observations))
+        if not settled:
+            raise ValueError("an adjudication must name the observations it settles")
         with self._transaction() as cursor:
-            cursor.execute("INSERT INTO adjudications VALUES (?,?,?,?,?,?,?)",
-                           (adjudication_id, unit, dimension, code, adjudicator, to_ns(at), reason))
+            cursor.execute("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, "
+                           "reason, observations) VALUES (?,?,?,?,?,?,?,?)",
+                           (adjudication_id, unit, dimension, code, adjudicator, to_ns(at), reason, settled))
         return adjudication_id
 
     def record_clock_model(self, device: str, model_json: str, at: datetime, *, method: str = "",
@@ -431,12 +443,11 @@ class Store:
                     if table == "imports" or table not in present:  # an older store lacks newer tables
                         continue
                     before = cursor.connection.total_changes
-                    # named columns: an older store lacks columns added since (they take their defaults)
-                    theirs = {row[1] for row in cursor.execute(f"PRAGMA other.table_info({table})")}
-                    columns = ", ".join(row[1] for row in cursor.execute(f"PRAGMA main.table_info({table})")
-                                        if row[1] in theirs)
-                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} ({columns}) "
-                                   f"SELECT {columns} FROM other.{table} ORDER BY rowid")
+                    theirs = [row[1] for row in cursor.execute(f"PRAGMA other.table_info({table})")]
+                    ours = {row[1] for row in cursor.execute(f"PRAGMA main.table_info({table})")}
+                    shared = ", ".join(f'"{column}"' for column in theirs if column in ours)  # older stores lack newer columns
+                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} ({shared}) SELECT {shared} "
+                                   f"FROM other.{table} ORDER BY rowid")
                     counts[table] = cursor.connection.total_changes - before
         finally:
             self._connection.execute("DETACH DATABASE other")
@@ -527,11 +538,12 @@ class Store:
 
     def adjudications(self) -> pd.DataFrame:
         frame = self._frame(
-            "SELECT adjudication_id, unit, dimension, code, adjudicator, at_ns, reason FROM adjudications ORDER BY at_ns, rowid")
+            "SELECT adjudication_id, unit, observations, dimension, code, adjudicator, at_ns, reason "
+            "FROM adjudications ORDER BY at_ns, rowid")
         frame["at"] = _times(frame.pop("at_ns"))
-        for column in ("adjudication_id", "unit", "dimension", "code", "adjudicator", "reason"):
+        for column in ("adjudication_id", "unit", "observations", "dimension", "code", "adjudicator", "reason"):
             frame[column] = frame[column].astype("string")
-        return frame[["adjudication_id", "unit", "dimension", "code", "adjudicator", "at", "reason"]]
+        return frame[["adjudication_id", "unit", "observations", "dimension", "code", "adjudicator", "at", "reason"]]
 
     def clock_models(self) -> pd.DataFrame:
         """The whole clock-model history, one row per decision ever stored, by fitted time:

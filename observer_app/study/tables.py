@@ -40,8 +40,12 @@ SYNC MARKS (``Store.sync_marks()``):
 ABSENCES (``Store.absences()``):
     session_id, learner, state ("absent" | "returned"), at (datetime)
 
-ADJUDICATIONS (``Store.adjudications()``) -- append-only; the newest per (unit, dimension) wins:
-    adjudication_id, unit (string), dimension, code, adjudicator, at (datetime), reason
+ADJUDICATIONS (``Store.adjudications()``) -- append-only; keyed by the observations they settle:
+    adjudication_id, unit (string: the unit id when recorded, kept for the audit trail),
+    observations (string: the settled observation ids, sorted, joined by "|"; "" for rows
+    written before stores kept them), dimension, code, adjudicator, at (datetime), reason.
+    ``agreement.disagreements.place_adjudications`` puts each on the unit that now holds
+    its observations; the newest per (unit, dimension) wins.
 
 CLOCK HISTORY (``Store.clock_models()``) -- append-only, every clock decision ever stored,
 oldest fitted first:

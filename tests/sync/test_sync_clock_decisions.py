@@ -169,7 +169,7 @@ def test_history_is_append_only_and_precedence_goes_by_fitted_time(tmp_path):
 def test_clock_models_of_an_older_store_migrate_forward(tmp_path):
     path = tmp_path / "old.sqlite"
     connection = sqlite3.connect(path)
-    before = MIGRATIONS.index(MIGRATION_CLOCK_HISTORY)  # the store as it was before clock history
+    before = MIGRATIONS.index(MIGRATION_CLOCK_HISTORY)  # a store from just before the clock history
     for script in MIGRATIONS[:before]:
         for statement in _statements(script):
             connection.execute(statement)
