@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 from agreement.pairing import unit_id
-from observer_app.study.store import MIGRATIONS, SCHEMA_VERSION, Store, _statements
+from observer_app.study.store import MIGRATION_ADJUDICATED_OBSERVATIONS, MIGRATIONS, SCHEMA_VERSION, Store, _statements
 from tests.conftest import assert_user_error, call_cli
 from tests.export.small_studies import LEARNERS, ROUNDS, solo_laptops_study
 
@@ -112,10 +112,11 @@ def test_an_old_stores_adjudications_are_traced_to_their_observations(tmp_path: 
 def test_a_previous_schema_store_migrates_and_keeps_its_adjudications(tmp_path: Path) -> None:
     path = tmp_path / "old.sqlite"
     connection = sqlite3.connect(path)
-    for step in range(SCHEMA_VERSION - 1):
+    before = MIGRATIONS.index(MIGRATION_ADJUDICATED_OBSERVATIONS)  # a store from just before that migration
+    for step in range(before):
         for statement in _statements(MIGRATIONS[step]):
             connection.execute(statement)
-    connection.execute(f"PRAGMA user_version = {SCHEMA_VERSION - 1}")
+    connection.execute(f"PRAGMA user_version = {before}")
     connection.execute("INSERT INTO adjudications VALUES ('a1','u1','activity','away','lead',1,'')")
     connection.commit()
     connection.close()
