@@ -29,7 +29,7 @@ from PySide6.QtWidgets import QAbstractScrollArea, QApplication, QLabel, QWidget
 from demo_sessions import committed_copy  # noqa: E402
 from observer_app.coding.clock import FakeClock  # noqa: E402
 from observer_app.ui.main_window import MainWindow  # noqa: E402
-from observer_app.ui.start_form import StartChoice  # noqa: E402
+from observer_app.ui.start_form import REPLAY, StartChoice  # noqa: E402
 
 # 40 characters each with the learner's number, Latin with diacritics, Cyrillic and Greek
 # (DejaVu Sans covers all three); every learner gets one, so every screen shows them.
@@ -143,7 +143,7 @@ def walk(study: Path, sizes: list[tuple[int, int]], scale: float) -> dict[str, d
         key(Qt.Key.Key_S)
         key(None, "ana")
         look("start form")
-        window.page.mode.setCurrentIndex(2)
+        window.page.mode.setCurrentText(REPLAY)
         settle(app)
         look("start form, replay plan")
         window.page.mode.setCurrentIndex(0)

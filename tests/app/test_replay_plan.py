@@ -19,6 +19,7 @@ from observer_app.ui.end_screen import EndScreen
 from observer_app.ui.main_window import MainWindow
 from observer_app.ui.overview import StudyOverview
 from observer_app.ui.replay import ReplayScreen
+from observer_app.ui.start_form import REPLAY
 from sync.errors import InputError
 from tests.conftest import call_cli
 
@@ -143,7 +144,7 @@ def test_f10_shows_a_replay_end_summary_and_the_overview_says_replay(qtbot, demo
     qtbot.keyClick(window.page, Qt.Key.Key_S)
     form = window.page
     qtbot.keyClicks(form.coder, "rhea")
-    form.mode.setCurrentIndex(2)
+    form.mode.setCurrentText(REPLAY)
     form.sample.setText("2")
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
     screen = window.page
@@ -170,7 +171,7 @@ def test_a_bad_sample_is_one_line_on_the_start_form(qtbot, demo):
     qtbot.keyClick(window.page, Qt.Key.Key_S)
     form = window.page
     qtbot.keyClicks(form.coder, "rhea")
-    form.mode.setCurrentIndex(2)
+    form.mode.setCurrentText(REPLAY)
     form.sample.setText("lots")
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
     assert window.page is form and "'lots' is not a sample" in form.error.text()

@@ -112,7 +112,7 @@ def test_an_old_stores_adjudications_are_traced_to_their_observations(tmp_path: 
 def test_a_previous_schema_store_migrates_and_keeps_its_adjudications(tmp_path: Path) -> None:
     path = tmp_path / "old.sqlite"
     connection = sqlite3.connect(path)
-    before = MIGRATIONS.index(MIGRATION_ADJUDICATED_OBSERVATIONS)  # a store from just before that migration
+    before = MIGRATIONS.index(MIGRATION_ADJUDICATED_OBSERVATIONS)  # the store just before adjudications named observations
     for step in range(before):
         for statement in _statements(MIGRATIONS[step]):
             connection.execute(statement)
