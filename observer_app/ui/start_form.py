@@ -16,7 +16,7 @@ from datetime import datetime
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
-from PySide6.QtWidgets import (QComboBox, QFormLayout, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
+from PySide6.QtWidgets import (QComboBox, QFormLayout, QGridLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
                                QSpinBox, QVBoxLayout, QWidget)
 
 from observer_app.coding.clock import Clock
@@ -119,10 +119,10 @@ class StartForm(QWidget):
         self.plan_coders = QLineEdit()
         self.plan_coders.setPlaceholderText("coders sharing the plan (default: you)")
         row = QWidget()
-        line = QHBoxLayout(row)
-        line.setContentsMargins(0, 0, 0, 0)
-        for widget, stretch in ((self.sample, 1), (self.min_events, 0), (self.double_share, 0), (self.plan_coders, 2)):
-            line.addWidget(widget, stretch)
+        grid = QGridLayout(row)  # two by two, so no field is squeezed below its text
+        grid.setContentsMargins(0, 0, 0, 0)
+        for number, widget in enumerate((self.sample, self.min_events, self.double_share, self.plan_coders)):
+            grid.addWidget(widget, number // 2, number % 2)
         self.plan_caption = QLabel(f"Replay plan (seed {self.study.seed})")
         form.addRow(self.plan_caption, row)
         self.plan_row = row
