@@ -13,6 +13,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import uuid
 from dataclasses import asdict
 from pathlib import Path
 
@@ -59,7 +60,9 @@ class LogCache:
                 stale.unlink(missing_ok=True)
         for suffix, write in ((".parquet", lambda path: pq.write_table(table, path)),
                               (".json", lambda path: path.write_text(json.dumps(meta)))):
-            temporary = self.folder / f"{entry}{suffix}.partial"
+            # a name of this write's own: the app and a verb (or two app windows) may parse the
+            # same file at once, and must not rename each other's half-written entry
+            temporary = self.folder / f"{entry}{suffix}.{os.getpid()}.{uuid.uuid4().hex[:8]}.partial"
             descriptor = os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
             os.close(descriptor)
             write(temporary)

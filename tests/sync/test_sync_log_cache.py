@@ -59,3 +59,35 @@ def test_xapi_statements_come_back_with_their_cross_file_facts(tmp_path, monkeyp
         patch.setattr(logs, "read_xapi_log", lambda *arguments: pytest.fail("parsed again"))
         again, report = read_logs([spec], cache_dir=tmp_path / "parsed_logs")
     assert again.equals(first) and len(again) == 4  # the voided statement stays dropped
+
+
+def test_two_processes_storing_the_same_entry_at_once_both_succeed(tmp_path):
+    """The app and a verb may parse the same log at the same moment: neither may rename
+    away the other's half-written entry (found by the screen-fit walk's parallel runs)."""
+    import threading
+
+    import pyarrow as pa
+
+    from sync.log_cache import LogCache
+
+    cache = LogCache(tmp_path / "parsed_logs")
+    table = pa.table({"learner": ["L01"] * 1000, "time_ns": list(range(1000))})
+    start, failures = threading.Barrier(4), []
+
+    def write() -> None:
+        start.wait()
+        try:
+            for _ in range(25):
+                cache.store("prefix", "prefix-entry", table, {"rows_read": 1000})
+        except OSError as error:  # what a shared temporary name gave: FileNotFoundError
+            failures.append(error)
+
+    threads = [threading.Thread(target=write) for _ in range(4)]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert failures == []
+    loaded, meta = cache.load("prefix-entry")
+    assert loaded.equals(table) and meta == {"rows_read": 1000}
+    assert not list((tmp_path / "parsed_logs").glob("*.partial"))
