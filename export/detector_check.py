@@ -195,7 +195,8 @@ def check_windows(path: Path, dimensions: list[str] | None = None, settings: Che
 
 def _confidence_weights(labelled: pd.DataFrame, labels: pd.Series, manifest: dict, path: Path,
                         dimension: str) -> np.ndarray:
-    """Per row, the label-confidence posterior of the row's own label."""
+    """Per row, the label-confidence posterior of the row's own label.  An adjudicated label is a
+    person's decision and keeps full weight, as does a code the coders never used."""
     columns = (manifest.get("confidence_columns") or {}).get(dimension)
     if not columns:
         raise InputError(path, dimension, "has no label-confidence columns (p_<dimension>_<code>); export the "
@@ -207,5 +208,8 @@ def _confidence_weights(labelled: pd.DataFrame, labels: pd.Series, manifest: dic
         if column in labelled:
             weights[mine] = labelled.loc[mine, column].fillna(1.0).to_numpy(dtype=float)
         else:
-            weights[mine] = 1.0  # a code the coders never used (an adjudicator's): full weight
+            weights[mine] = 1.0
+    source = labelled.get(LABEL_SOURCE_PREFIX + dimension)
+    if source is not None:
+        weights[source.astype("string").eq("adjudicated").fillna(False).to_numpy()] = 1.0
     return weights

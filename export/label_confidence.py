@@ -31,8 +31,8 @@ from scipy.special import logsumexp
 
 CONFIDENCE_PREFIX = "p_"
 FULL_FORM_UNITS = 20
-TOLERANCE = 1e-8
-MAX_ITERATIONS = 500
+TOLERANCE = 1e-7
+MAX_ITERATIONS = 2000
 FLOOR = 1e-12  # an error rate of exactly zero would make one code impossible for good
 
 
@@ -52,6 +52,7 @@ class EMResult:
     log_likelihood: float
     iterations: int
     converged: bool
+    trace: tuple[float, ...]  # log-likelihood after each iteration (EM never lowers it)
 
 
 def _e_step(counts: np.ndarray, prevalence: np.ndarray, theta: np.ndarray) -> tuple[np.ndarray, float]:
@@ -96,14 +97,14 @@ def dawid_skene(counts: np.ndarray, form: str = "full", tolerance: float = TOLER
     m_step = _full_m_step if form == "full" else _one_coin_m_step
     votes = counts.sum(axis=1)
     posterior = votes / votes.sum(axis=1, keepdims=True)                      # eq. 3.1
-    previous = -np.inf
+    trace: list[float] = []
     for iteration in range(1, max_iterations + 1):
         prevalence, theta = m_step(counts, posterior)
         posterior, log_likelihood = _e_step(counts, prevalence, theta)
-        if abs(log_likelihood - previous) < tolerance:
-            return EMResult(prevalence, theta, posterior, log_likelihood, iteration, True)
-        previous = log_likelihood
-    return EMResult(prevalence, theta, posterior, log_likelihood, max_iterations, False)
+        trace.append(log_likelihood)
+        if len(trace) > 1 and abs(trace[-1] - trace[-2]) < tolerance:
+            return EMResult(prevalence, theta, posterior, log_likelihood, iteration, True, tuple(trace))
+    return EMResult(prevalence, theta, posterior, log_likelihood, max_iterations, False, tuple(trace))
 
 
 @dataclass(frozen=True)
@@ -152,3 +153,18 @@ def fit_label_confidence(codes_per_observation: pd.DataFrame, dimension: str,
         "log_likelihood": round(result.log_likelihood, 6),
     }
     return LabelConfidence(posterior=posterior, summary=summary)
+
+
+def label_confidences(observations: pd.DataFrame, dimensions: list[str] | tuple[str, ...],
+                      could_not_observe: dict[str, str]) -> tuple[pd.DataFrame, dict[str, list[str]], dict[str, dict | None]]:
+    """Every dimension's fit: (posterior columns indexed by unit, columns per dimension, summary per
+    dimension -- None where not fitted).  ``observations`` has ``unit``, ``coder`` and one column per dimension."""
+    frames, columns, summaries = [], {}, {}
+    for dimension in dimensions:
+        fit = fit_label_confidence(observations, dimension, could_not_observe.get(dimension))
+        summaries[dimension] = None if fit is None else fit.summary
+        columns[dimension] = [] if fit is None else list(fit.posterior.columns)
+        if fit is not None:
+            frames.append(fit.posterior)
+    posterior = pd.concat(frames, axis=1) if frames else pd.DataFrame(index=pd.Index([], name="unit"))
+    return posterior, columns, summaries
