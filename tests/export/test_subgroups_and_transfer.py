@@ -141,3 +141,31 @@ def test_check_refuses_attributes_the_export_does_not_carry(tmp_path) -> None:
     assert_user_error(call_cli("check", path, "--by", "gender"), "gender", "site, cohort")
     assert_user_error(call_cli("check", path, "--transfer", "log_id"), "log_id", "not an attribute")
     assert_user_error(call_cli("check", path, "--resamples", "10"), "--resamples")
+
+
+def test_report_is_self_contained_escaped_and_carries_the_caution(tmp_path) -> None:
+    import subprocess
+    import sys
+
+    from export.audit_report import audit_report
+    from tests.conftest import ROOT
+
+    path, _ = export_file(tmp_path)
+    report = tmp_path / "audit.html"
+    result = call_cli("check", path, "--by", "site", "--transfer", "site", "--dimension", "activity",
+                      "--resamples", "200", "--report", report, "--json")
+    assert result.returncode == 0, result.stderr
+    page = report.read_text(encoding="utf-8")
+    assert page.count('src="data:image/png;base64,') == 3                 # reliability, group bars, transfer heatmap
+    assert "sole basis" in page and "small samples are uncertain" in page and "http" not in page
+    hostile = json.loads(result.stdout.replace("north", "<script>alert(1)</script>"))
+    escaped = audit_report(hostile)
+    assert "<script>" not in escaped and "&lt;script&gt;alert(1)&lt;/script&gt;" in escaped
+    assert_user_error(call_cli("check", path, "--report", tmp_path / "no-such-folder" / "a.html"), "no-such-folder")
+    probe = ("import sys, json; from export.audit_report import audit_report; "
+             f"audit_report(json.loads(open({str(tmp_path / 'payload.json')!r}).read())); "
+             "print('matplotlib.pyplot' in sys.modules)")
+    (tmp_path / "payload.json").write_text(result.stdout)
+    imported = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, cwd=ROOT,
+                              env={"PYTHONPATH": str(ROOT), "PATH": ""})
+    assert imported.stdout.strip() == "False", imported.stderr                # object API only, no pyplot state
