@@ -30,7 +30,7 @@ def _escape(value: object) -> str:
     return html.escape(str(value), quote=True)
 
 
-def _figure_html(figure: Figure, alt: str) -> str:
+def figure_html(figure: Figure, alt: str) -> str:
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png", dpi=90, bbox_inches="tight", metadata={"Software": None})
     encoded = base64.b64encode(buffer.getvalue()).decode("ascii")
@@ -141,13 +141,13 @@ def _dimension_section(name: str, result: dict, payload: dict) -> str:
              f'<p class="note">AUC: {_escape(result["auc_definition"])}. Brier: '
              f'{_escape(result["calibration"]["brier_definition"])}. Settings chosen per outer fold: '
              f'{_escape(result["chosen_settings"])}.</p>',
-             _figure_html(reliability_figure(result["calibration"], f"reliability of {name}"), f"reliability curve of {name}")]
+             figure_html(reliability_figure(result["calibration"], f"reliability of {name}"), f"reliability curve of {name}")]
     for attribute, groups in result["by"].items():
         parts.append(f"<h3>{_escape(name)} by {_escape(attribute)}</h3>")
         parts.append(_table(GROUP_HEADER, _group_rows(groups)))
         bars = group_bars(groups, f"{name} by {attribute}")
         if bars is not None:
-            parts.append(_figure_html(bars, f"{name} kappa by {attribute}"))
+            parts.append(figure_html(bars, f"{name} kappa by {attribute}"))
     if result.get("label_routes"):
         parts.append(f"<h3>{_escape(name)} by how the label was reached</h3>")
         parts.append(_table(GROUP_HEADER, _group_rows(result["label_routes"])))
@@ -162,7 +162,7 @@ def _dimension_section(name: str, result: dict, payload: dict) -> str:
             parts.append(f'<p class="note">Left out, too few learners: {_escape(", ".join(transfer["too_small"]))}</p>')
         heatmap = transfer_heatmap(transfer, f"{name}: train on row, test on column")
         if heatmap is not None:
-            parts.append(_figure_html(heatmap, f"{name} transfer matrix"))
+            parts.append(figure_html(heatmap, f"{name} transfer matrix"))
     return "\n".join(parts)
 
 
