@@ -135,8 +135,8 @@ def _check_dimension(features, labels, groups, dimension, settings, context, wei
     transfer = None
     if settings.transfer is not None:
         transfer = transfer_audit(features, labels, learner, context[settings.transfer], settings.model,
-                                  most_chosen(tuned.chosen), settings.folds, settings.seed, settings.min_learners,
-                                  weights)
+                                  most_chosen(tuned.chosen), seed=settings.seed, min_learners=settings.min_learners,
+                                  weights=weights)
     return DimensionCheck(
         dimension=dimension, rows=len(labels), learners=int(groups.nunique()), folds=len(splits),
         codes={str(code): int(count) for code, count in labels.value_counts().sort_index().items()},

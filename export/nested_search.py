@@ -70,7 +70,7 @@ def tuned_out_of_fold(
         warnings.simplefilter("ignore", (ConvergenceWarning, FitFailedWarning, UserWarning, RuntimeWarning))
         search = grouped_search(candidate(name, seed), codes, inner)
         result = cross_validate(search, features, labels.to_numpy(), cv=folds, params=params,
-                                scoring=inner_scorer(codes), return_estimator=True, error_score="raise")
+                                scoring=_unused_outer_score, return_estimator=True, error_score="raise")
     predicted = np.empty(len(labels), dtype=object)
     probability = np.zeros((len(labels), len(codes)))
     for fitted, (_, test) in zip(result["estimator"], folds):
@@ -79,12 +79,20 @@ def tuned_out_of_fold(
                      chosen=[_plain(fitted.best_params_) for fitted in result["estimator"]])
 
 
+def _unused_outer_score(estimator, features, labels) -> float:
+    """cross_validate always scores its test folds; the check scores the pooled predictions
+    afterwards instead, so the outer score costs nothing."""
+    return 0.0
+
+
 def predict_codes(fitted, features: pd.DataFrame, codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(predicted code, probability per code in ``codes`` order; 0 for codes the fit never saw)."""
+    """(predicted code, probability per code in ``codes`` order; 0 for codes the fit never saw).
+
+    The predicted code is the most probable one, as each of the three models' ``predict`` does."""
+    own = fitted.predict_proba(features)
     probability = np.zeros((len(features), len(codes)))
-    columns = np.searchsorted(codes, fitted.classes_)
-    probability[:, columns] = fitted.predict_proba(features)
-    return np.asarray(fitted.predict(features), dtype=object), probability
+    probability[:, np.searchsorted(codes, fitted.classes_)] = own
+    return np.asarray(fitted.classes_[own.argmax(axis=1)], dtype=object), probability
 
 
 def most_chosen(chosen: list[dict]) -> dict:

@@ -4,7 +4,7 @@ For an attribute (site, cohort ...) with groups of at least ``min_learners`` lea
   leave one group out  train on every other eligible group, test on the held-out one;
   matrix (2 to 6 groups) train on group A, test on group B, for every A != B.
 Beside each figure stands the held-out group's own grouped cross-validated figure
-("within": folds of its learners), at a matched training size so that the drop is not
+("within": ``folds`` folds of its learners, default ``WITHIN_FOLDS``), at a matched training size so that the drop is not
 just less data: both the transfer fit and every within-group training fold use the same
 number of learners, the smaller of the source's learners and the within-group training
 fold's learners, drawn at random.  ``drop`` = within minus transfer.
@@ -19,10 +19,11 @@ import numpy as np
 import pandas as pd
 
 from export.nested_search import fit_setting, predict_codes
-from export.out_of_fold import DEFAULT_FOLDS, Score, grouped_folds, score
+from export.out_of_fold import Score, grouped_folds, score
 from export.subgroups import MIN_LEARNERS, MISSING_GROUP
 
 MATRIX_GROUPS = (2, 6)
+WITHIN_FOLDS = 3  # folds of the within-group figure (its training folds hold 2/3 of the group's learners)
 
 
 def _figures(value: Score) -> dict:
@@ -44,6 +45,7 @@ class _Audit:
         self.rng = np.random.default_rng(seed)
         self.within_cache: dict[tuple[str, int], Score] = {}
         self.cell_cache: dict[tuple[tuple[str, ...], str], dict] = {}
+        self.folds_cache: dict[str, list[tuple[np.ndarray, np.ndarray]]] = {}
 
     def _draw(self, rows: np.ndarray, size: int) -> np.ndarray:
         """Rows of ``size`` learners drawn at random from ``rows``."""
@@ -58,9 +60,11 @@ class _Audit:
         return predict_codes(fitted, self.features.iloc[test], self.codes)
 
     def within_folds(self, group: str) -> list[tuple[np.ndarray, np.ndarray]]:
-        rows = np.flatnonzero(self.names == group)
-        local = grouped_folds(self.labels.iloc[rows], pd.Series(self.learners[rows]), self.folds, self.seed)
-        return [(rows[train], rows[test]) for train, test in local]
+        if group not in self.folds_cache:
+            rows = np.flatnonzero(self.names == group)
+            local = grouped_folds(self.labels.iloc[rows], pd.Series(self.learners[rows]), self.folds, self.seed)
+            self.folds_cache[group] = [(rows[train], rows[test]) for train, test in local]
+        return self.folds_cache[group]
 
     def matched_size(self, source_rows: np.ndarray, group: str) -> int:
         fold_learners = min(len(np.unique(self.learners[train])) for train, _ in self.within_folds(group))
@@ -98,7 +102,7 @@ class _Audit:
 
 def transfer_audit(
     features: pd.DataFrame, labels: pd.Series, learners: np.ndarray, values: pd.Series, model: str, setting: dict,
-    folds: int = DEFAULT_FOLDS, seed: int = 0, min_learners: int = MIN_LEARNERS, weights: np.ndarray | None = None,
+    folds: int = WITHIN_FOLDS, seed: int = 0, min_learners: int = MIN_LEARNERS, weights: np.ndarray | None = None,
 ) -> dict:
     """Keys: groups (eligible, sorted), too_small (groups left out), setting, leave_one_group_out
     [{group, training_learners, transfer, within, drop}], matrix [{train, test, ...}] or None
