@@ -139,7 +139,7 @@ def test_the_site_audit_finds_the_difference_the_generator_planted(demo_run):
     out, _, _ = demo_run
     summary = json.loads((out / "summary.json").read_text())
     planted = json.loads((out / "truth.json").read_text())["site_behaviour"]
-    assert planted["planted"] and "shared" in planted["expected"]
+    assert planted["planted"] and "share a bench" in planted["expected"]
     metric = planted["metric"]
     groups = {group["group"]: group for group in summary["detector"][metric["dimension"]]["by"][metric["attribute"]]}
     for site in metric["lower"]:
