@@ -4,7 +4,8 @@ The pooled out-of-fold predictions of the check (every window predicted by a mod
 never saw its learner) are split by a roster attribute carried into the export (site,
 cohort ...).  Per group: its size in learners and windows, the base rate of each code,
 the detector's Cohen's kappa, AUC (one-vs-rest macro; the second code's AUC with two
-codes) and recall per code, each with a 95 % learner-cluster bootstrap interval
+codes) and recall per code, each with a 95 % learner-cluster bootstrap interval (expanded
+for few learners)
 (export/cluster_bootstrap.py), the difference from the rest of the learners (group
 minus rest; learners resampled within the group and within the rest independently) with
 its interval, the majority and stratified baselines' kappa and AUC on the same windows,
@@ -25,11 +26,12 @@ MIN_LEARNERS = 5
 MISSING_GROUP = "(missing)"
 
 
-def estimate(point: float, resampled: np.ndarray) -> dict:
-    """{"value", "low", "high"}; all None when the point is undefined."""
+def estimate(point: float, resampled: np.ndarray, clusters: int | None = None) -> dict:
+    """{"value", "low", "high"}; all None when the point is undefined.  ``clusters``: learners
+    resampled (the smaller side for a difference), for the expanded interval."""
     if not np.isfinite(point):
         return {"value": None, "low": None, "high": None}
-    low, high = percentile_interval(resampled)
+    low, high = percentile_interval(resampled, clusters)
     return {"value": float(point), "low": low, "high": high}
 
 
@@ -77,22 +79,24 @@ def group_figures(
             continue
         own = tables.figures(members, cluster_weights(len(members), resamples, np.random.default_rng(streams[2 * number])))
         point = _point(tables, members)
-        entry["kappa"] = estimate(point["kappa"][0], own["kappa"])
-        entry["auc"] = estimate(point["auc"][0], own["auc"])
-        entry["recall"] = {str(code): estimate(point["recall"][0, index], own["recall"][:, index])
+        size = len(members)
+        entry["kappa"] = estimate(point["kappa"][0], own["kappa"], size)
+        entry["auc"] = estimate(point["auc"][0], own["auc"], size)
+        entry["recall"] = {str(code): estimate(point["recall"][0, index], own["recall"][:, index], size)
                            for index, code in enumerate(codes)}
         entry["difference_from_rest"] = None
         if len(rest):
             other = tables.figures(rest, cluster_weights(len(rest), resamples, np.random.default_rng(streams[2 * number + 1])))
             rest_point = _point(tables, rest)
             entry["difference_from_rest"] = {
-                key: estimate(point[key][0] - rest_point[key][0], own[key] - other[key]) for key in ("kappa", "auc")}
+                key: estimate(point[key][0] - rest_point[key][0], own[key] - other[key], min(size, len(rest)))
+                for key in ("kappa", "auc")}
         for name, baseline in baseline_tables.items():
             figures = _point(baseline, members)
             entry[f"{name}_baseline"] = {key: _finite(figures[key][0]) for key in ("kappa", "auc")}
         known = tables.multi_coded[members].sum()
         entry["coder_agreement"] = (
-            {**estimate(point["agreement"][0], own["agreement"]), "windows": int(known)} if known > 0 else None)
+            {**estimate(point["agreement"][0], own["agreement"], size), "windows": int(known)} if known > 0 else None)
         entries.append(entry)
     return entries
 
