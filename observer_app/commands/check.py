@@ -8,6 +8,7 @@ import sys
 from pathlib import Path
 
 from export.reader import read_manifest
+from observer_app.pipeline.coverage import coverage_lines
 from sync.errors import InputError
 
 MODELS = ("logistic", "forest", "boosting")  # export/detector_models.py; named here so --help starts fast
@@ -51,7 +52,8 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(None, "--resamples", f"{args.resamples} is too few for a 95 % interval; use 100 or more")
     if args.report is not None and not args.report.parent.is_dir():
         raise InputError(args.report, None, "its folder does not exist; create it or choose another --report path")
-    labels = read_manifest(args.windows)["label_columns"]
+    manifest = read_manifest(args.windows)
+    labels = manifest["label_columns"]
     for dimension in args.dimension or []:
         if dimension not in labels:
             raise InputError(args.windows, dimension, f"no such dimension; the file has {', '.join(labels)}")
@@ -62,7 +64,7 @@ def run(args: argparse.Namespace) -> int:
                              by=tuple(args.by or ()), transfer=args.transfer, weight=args.weight,
                              min_learners=args.min_learners, resamples=args.resamples)
     results = check_windows(args.windows, args.dimension, settings)
-    payload = check_payload(args.windows, settings, results)
+    payload = check_payload(args.windows, settings, results, manifest.get("coverage"))
     if args.report is not None:
         from export.audit_report import audit_report
 
@@ -75,11 +77,13 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         sys.stdout.write(json.dumps(payload) + "\n")
         return 0
+    if manifest.get("coverage"):  # files from before the manifest recorded coverage have none
+        print(coverage_lines(manifest["coverage"])[0])
     print(human_summary(payload))
     return 0
 
 
-def check_payload(windows: Path, settings, results) -> dict:
+def check_payload(windows: Path, settings, results, coverage: dict | None = None) -> dict:
     """The JSON object (keys documented in export/tables.py, CHECK OUTPUT)."""
     from export.nested_search import INNER_FOLDS
 
@@ -87,6 +91,7 @@ def check_payload(windows: Path, settings, results) -> dict:
         "windows": str(windows), "model": settings.model, "folds": settings.folds, "inner_folds": INNER_FOLDS,
         "seed": settings.seed, "weight": settings.weight, "min_learners": settings.min_learners,
         "resamples": settings.resamples, "confidence": 0.95, "by": list(settings.by), "transfer": settings.transfer,
+        "coverage": coverage,
         "dimensions": {result.dimension: result.as_dict() for result in results},
     }
 

@@ -81,8 +81,9 @@ def _import_store(study: Study, store: Store, path: Path) -> ImportResult:
 def _code_problem(scheme: Scheme, dimension: str, code: str) -> str | None:
     if dimension not in scheme.dimension_names:
         return f"dimension {dimension!r} is not in scheme.toml"
-    if code not in scheme.dimension(dimension).code_names:
-        return f"code {code!r} is not a code of dimension {dimension!r} in scheme.toml"
+    codes = scheme.dimension(dimension).code_names
+    if code not in codes:
+        return f"code {code!r} is not a code of dimension {dimension!r} in scheme.toml (its codes: {', '.join(codes)})"
     return None
 
 
@@ -159,14 +160,14 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
     """One reason per row ("" when the row is fine), computed column by column."""
     problems = pd.Series("", index=frame.index, dtype="object")
 
-    def flag(mask: pd.Series, reason: str) -> None:
+    def flag(mask: pd.Series, reason: str | pd.Series) -> None:
         nonlocal problems
         problems = problems.mask(mask & problems.eq(""), reason)
 
     flag(frame["coder"].eq(""), "empty coder")
     flag(frame["learner"].eq(""), "empty learner")
     flag(~frame["learner"].isin(study.roster["learner"].dropna()) & frame["learner"].ne(""),
-         "learner not in roster.csv")
+         "learner '" + frame["learner"] + "' not in roster.csv")
     for column in ("time", "end"):
         text = frame[column]
         given = text.ne("")
@@ -176,9 +177,10 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
              f"{column} has no UTC offset; write it like 2026-03-02T09:15:00+01:00")
     flag(frame["time"].eq(""), "empty time")
     for dimension in dimensions:
-        valid = set(study.scheme.dimension(dimension).code_names)
+        valid = list(study.scheme.dimension(dimension).code_names)
         values = frame[dimension]
-        flag(values.ne("") & ~values.isin(valid), f"unknown {dimension} code (see scheme.toml)")
+        flag(values.ne("") & ~values.isin(valid),
+             f"unknown {dimension} code '" + values + f"' ({dimension} codes: {', '.join(valid)})")
     coded = pd.concat([frame[d].ne("") for d in dimensions], axis=1).any(axis=1)
     flag(~coded, "no code in any dimension")
     return problems

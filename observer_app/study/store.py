@@ -19,7 +19,43 @@ import pandas as pd
 
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 5
+
+# 2 -> 3: clock models become a history of kept decisions.  Each row says how it was
+# made (method: "manual", "marks", "borrowed", "auto"), by which command, on what
+# evidence (a one-line summary), which clock it is for (model_key: the device, or
+# "device/session_id" when a device's sessions disagree), whether it ends the device's
+# earlier decisions (replaces_earlier: `fieldmark align --refit DEVICE`) and whether a
+# fit above the uncertainty bound was accepted by the user (uncertain_accepted).  at_ns
+# is when it was fitted.  Rows from older stores read as their model JSON says
+# (observer_app/pipeline/alignment.py: the precedence).
+MIGRATION_CLOCK_HISTORY = """
+    ALTER TABLE clock_models ADD COLUMN method TEXT NOT NULL DEFAULT '';
+    ALTER TABLE clock_models ADD COLUMN command TEXT NOT NULL DEFAULT '';
+    ALTER TABLE clock_models ADD COLUMN evidence TEXT NOT NULL DEFAULT '';
+    ALTER TABLE clock_models ADD COLUMN model_key TEXT NOT NULL DEFAULT '';
+    ALTER TABLE clock_models ADD COLUMN replaces_earlier INTEGER NOT NULL DEFAULT 0;
+    ALTER TABLE clock_models ADD COLUMN uncertain_accepted INTEGER NOT NULL DEFAULT 0;
+    CREATE INDEX clock_models_by_device ON clock_models (device, at_ns);
+"""
+
+# An adjudication names the observations it settles (ids joined by "|"), so re-pairing
+# cannot orphan it; rows written before keep "" and are traced back through their unit id.
+MIGRATION_ADJUDICATED_OBSERVATIONS = """
+    ALTER TABLE adjudications ADD COLUMN observations TEXT NOT NULL DEFAULT '';
+    """
+
+# A paired run's signal start: the pairing id both devices share (typed from one to the
+# other), what kind of sync mark a row is ("" for a mark on a learner's action; the
+# start and end signals of a paired run), and the clock difference coders typed when
+# they chose a typed wall-clock start instead of the signal (seconds, partner minus this
+# device; NULL when none was typed).
+MIGRATION_PAIRED_SIGNAL = """
+    ALTER TABLE sessions ADD COLUMN pairing_id TEXT;
+    ALTER TABLE sessions ADD COLUMN typed_clock_difference_s REAL;
+    ALTER TABLE sync_marks ADD COLUMN pairing_id TEXT;
+    ALTER TABLE sync_marks ADD COLUMN kind TEXT NOT NULL DEFAULT '';
+    """
 
 # Forward migrations: MIGRATIONS[n] takes a store from version n to n + 1.
 MIGRATIONS: tuple[str, ...] = (
@@ -79,8 +115,20 @@ MIGRATIONS: tuple[str, ...] = (
     CREATE TRIGGER window_closures_no_delete BEFORE DELETE ON window_closures
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
     """,
+    MIGRATION_CLOCK_HISTORY,
+    MIGRATION_ADJUDICATED_OBSERVATIONS,
+    MIGRATION_PAIRED_SIGNAL,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
+
+_SESSION_COLUMNS = ("session_id, coder, device, mode, paired_start_ns, started_ns, monotonic_start, window_seconds, "
+                    "schedule_order, seed, scheme_hash, present, pairing_id, typed_clock_difference_s")
+SIGNAL_START, SIGNAL_END = "signal start", "signal end"
+MARK_KINDS: tuple[str, ...] = ("", SIGNAL_START, SIGNAL_END)
+# Where slot 0 of a paired run began on the device's clock: the typed shared start, or
+# the coder's key press on the start signal (its first mark; nothing while it is awaited).
+_PAIRED_START_NS = ("COALESCE(s.paired_start_ns, (SELECT min(m.marked_ns) FROM sync_marks m "
+                    f"WHERE m.session_id = s.session_id AND m.kind = '{SIGNAL_START}'))")
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
@@ -103,6 +151,13 @@ def _nullable_ns(values: pd.Series) -> list[int | None]:
     if stamps.isna().any():
         numbers = [None if missing else n for n, missing in zip(numbers, stamps.isna())]
     return numbers
+
+
+def _optional(frame: pd.DataFrame, column: str) -> list:
+    """A column that older callers may leave out -> Python values, None for missing."""
+    if column not in frame:
+        return [None] * len(frame)
+    return [None if pd.isna(value) else value for value in frame[column]]
 
 
 def _times(values: pd.Series) -> pd.Series:
@@ -161,14 +216,19 @@ class Store:
         self, *, coder: str, device: str, mode: str, started_at: datetime, monotonic_start: float,
         window_seconds: float, order: str, seed: int | None, scheme_hash: str,
         paired_start: datetime | None = None, present: Iterable[str] = (), session_id: str | None = None,
+        pairing_id: str | None = None, typed_clock_difference_s: float | None = None,
     ) -> str:
+        """One session row.  ``pairing_id``: the code both devices of a paired run share;
+        ``typed_clock_difference_s``: the clock difference the coders typed (partner minus
+        this device) when they started on a typed wall-clock time."""
         session_id = session_id or new_id()
         with self._transaction() as cursor:
             cursor.execute(
-                "INSERT INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
+                f"INSERT INTO sessions ({_SESSION_COLUMNS}) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
                 (session_id, coder, device, mode, None if paired_start is None else to_ns(paired_start),
                  to_ns(started_at), float(monotonic_start), float(window_seconds), order, seed,
-                 scheme_hash, "\n".join(present)),
+                 scheme_hash, "\n".join(present), pairing_id,
+                 None if typed_clock_difference_s is None else float(typed_clock_difference_s)),
             )
         return session_id
 
@@ -253,7 +313,7 @@ class Store:
             _nullable_ns(sessions["paired_start"]), _nullable_ns(sessions["started_at"]),
             sessions["monotonic_start"].astype(float), sessions["window_seconds"].astype(float), sessions["order"],
             [None if pd.isna(seed) else int(seed) for seed in sessions["seed"]], sessions["scheme_hash"],
-            [""] * len(sessions),
+            [""] * len(sessions), _optional(sessions, "pairing_id"), _optional(sessions, "typed_clock_difference_s"),
         )
         given = observations[dimensions].notna() & observations[dimensions].ne("") if dimensions else None
         coded_ns = _nullable_ns(observations["coded_at"])
@@ -276,7 +336,8 @@ class Store:
         note_rows = [(f"{o}:note", o, text, entered)
                      for o, text, entered in zip(observations["observation_id"], notes, coded_ns) if text]
         with self._transaction() as cursor:
-            cursor.executemany("INSERT OR IGNORE INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)", session_rows)
+            cursor.executemany(f"INSERT OR IGNORE INTO sessions ({_SESSION_COLUMNS}) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
+                               session_rows)
             before = cursor.connection.total_changes
             cursor.executemany("INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)", observation_rows)
             added = cursor.connection.total_changes - before
@@ -298,11 +359,17 @@ class Store:
         return note_id
 
     def record_sync_mark(self, *, session_id: str, marked_at: datetime, learner: str = "", note: str = "",
-                         mark_id: str | None = None) -> str:
+                         mark_id: str | None = None, pairing_id: str | None = None, kind: str = "") -> str:
+        """A sync mark: ``kind`` "" for a mark on a learner's action (matched to the log),
+        or a paired run's SIGNAL_START / SIGNAL_END (matched to the partner's mark of the
+        same ``pairing_id`` and kind)."""
+        if kind not in MARK_KINDS:
+            raise ValueError(f"sync mark kind must be one of {MARK_KINDS}, got {kind!r}")
         mark_id = mark_id or new_id()
         with self._transaction() as cursor:
-            cursor.execute("INSERT OR IGNORE INTO sync_marks VALUES (?,?,?,?,?)",
-                           (mark_id, session_id, learner, to_ns(marked_at), note))
+            cursor.execute("INSERT OR IGNORE INTO sync_marks (mark_id, session_id, learner, marked_ns, note, "
+                           "pairing_id, kind) VALUES (?,?,?,?,?,?,?)",
+                           (mark_id, session_id, learner, to_ns(marked_at), note, pairing_id, kind))
         return mark_id
 
     def record_absence(self, *, session_id: str, learner: str, state: str, at: datetime) -> str:
@@ -311,19 +378,40 @@ class Store:
             cursor.execute("INSERT INTO absences VALUES (?,?,?,?,?)", (absence_id, session_id, learner, state, to_ns(at)))
         return absence_id
 
-    def record_adjudication(self, *, unit: str, dimension: str, code: str, adjudicator: str, at: datetime,
-                            reason: str = "") -> str:
+    def record_adjudication(self, *, unit: str, observations: Iterable[str], dimension: str, code: str,
+                            adjudicator: str, at: datetime, reason: str = "") -> str:
+        """``observations``: the ids of the observations the decision settles (what it is keyed by)."""
         adjudication_id = new_id()
+        settled = "|".join(sorted(str(observation) for observation in observations))
+        if not settled:
+            raise ValueError("an adjudication must name the observations it settles")
         with self._transaction() as cursor:
-            cursor.execute("INSERT INTO adjudications VALUES (?,?,?,?,?,?,?)",
-                           (adjudication_id, unit, dimension, code, adjudicator, to_ns(at), reason))
+            cursor.execute("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, "
+                           "reason, observations) VALUES (?,?,?,?,?,?,?,?)",
+                           (adjudication_id, unit, dimension, code, adjudicator, to_ns(at), reason, settled))
         return adjudication_id
 
-    def record_clock_model(self, device: str, model_json: str, at: datetime) -> str:
-        model_id = new_id()
+    def record_clock_model(self, device: str, model_json: str, at: datetime, *, method: str = "",
+                           command: str = "", evidence: str = "", model_key: str = "",
+                           replaces_earlier: bool = False, uncertain_accepted: bool = False) -> str:
+        """Append one clock decision to the history (``at``: when it was fitted)."""
+        return self.record_clock_models([dict(device=device, model_json=model_json, method=method, command=command,
+                                              evidence=evidence, model_key=model_key or device,
+                                              replaces_earlier=replaces_earlier,
+                                              uncertain_accepted=uncertain_accepted)], at)[0]
+
+    def record_clock_models(self, rows: list[dict], at: datetime) -> list[str]:
+        """Several clock decisions in one transaction (all or none), each a dict with the
+        keys of :meth:`record_clock_model`."""
+        ids = [new_id() for _ in rows]
         with self._transaction() as cursor:
-            cursor.execute("INSERT INTO clock_models VALUES (?,?,?,?)", (model_id, device, model_json, to_ns(at)))
-        return model_id
+            cursor.executemany(
+                "INSERT INTO clock_models (model_id, device, model_json, at_ns, method, command, evidence, model_key, "
+                "replaces_earlier, uncertain_accepted) VALUES (?,?,?,?,?,?,?,?,?,?)",
+                [(model_id, row["device"], row["model_json"], to_ns(at), row.get("method", ""), row.get("command", ""),
+                  row.get("evidence", ""), row.get("model_key") or row["device"], int(bool(row.get("replaces_earlier"))),
+                  int(bool(row.get("uncertain_accepted")))) for model_id, row in zip(ids, rows)])
+        return ids
 
     def record_import(self, content_hash: str, source: str, at: datetime) -> None:
         with self._transaction() as cursor:
@@ -344,7 +432,11 @@ class Store:
                     if table == "imports" or table not in present:  # an older store lacks newer tables
                         continue
                     before = cursor.connection.total_changes
-                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} SELECT * FROM other.{table} ORDER BY rowid")
+                    theirs = [row[1] for row in cursor.execute(f"PRAGMA other.table_info({table})")]
+                    ours = {row[1] for row in cursor.execute(f"PRAGMA main.table_info({table})")}
+                    shared = ", ".join(f'"{column}"' for column in theirs if column in ours)  # older stores lack newer columns
+                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} ({shared}) SELECT {shared} "
+                                   f"FROM other.{table} ORDER BY rowid")
                     counts[table] = cursor.connection.total_changes - before
         finally:
             self._connection.execute("DETACH DATABASE other")
@@ -358,8 +450,10 @@ class Store:
 
     def sessions(self) -> pd.DataFrame:
         frame = self._frame(
-            "SELECT s.session_id, s.coder, s.device, s.mode, s.paired_start_ns, s.started_ns, s.monotonic_start, "
-            "s.window_seconds, s.schedule_order AS \"order\", s.seed, s.scheme_hash, s.present, e.ended_ns "
+            f"SELECT s.session_id, s.coder, s.device, s.mode, {_PAIRED_START_NS} AS paired_start_ns, s.started_ns, "
+            "s.monotonic_start, "
+            "s.window_seconds, s.schedule_order AS \"order\", s.seed, s.scheme_hash, s.present, e.ended_ns, "
+            "s.pairing_id, s.typed_clock_difference_s "
             "FROM sessions s LEFT JOIN session_ends e USING (session_id) ORDER BY s.started_ns, s.rowid")
         frame["paired_start"] = _times(frame.pop("paired_start_ns"))
         frame["started_at"] = _times(frame.pop("started_ns"))
@@ -367,10 +461,12 @@ class Store:
         frame["seed"] = frame["seed"].astype("Int64")
         frame["monotonic_start"] = frame["monotonic_start"].astype("float64")
         frame["window_seconds"] = frame["window_seconds"].astype("float64")
-        for column in ("session_id", "coder", "device", "mode", "order", "scheme_hash", "present"):
+        frame["typed_clock_difference_s"] = frame["typed_clock_difference_s"].astype("float64")
+        for column in ("session_id", "coder", "device", "mode", "order", "scheme_hash", "present", "pairing_id"):
             frame[column] = frame[column].astype("string")
         return frame[["session_id", "coder", "device", "mode", "paired_start", "started_at", "monotonic_start",
-                      "window_seconds", "order", "seed", "scheme_hash", "present", "ended_at"]]
+                      "window_seconds", "order", "seed", "scheme_hash", "present", "ended_at", "pairing_id",
+                      "typed_clock_difference_s"]]
 
     def observations(self, dimensions: Iterable[str] | None = None) -> pd.DataFrame:
         """The current view: newest code per (observation, dimension), retractions applied.
@@ -379,7 +475,8 @@ class Store:
         every dimension that has ever been coded, sorted.
         """
         base = self._frame(
-            "SELECT o.observation_id, o.session_id, s.coder, s.device, s.mode, s.paired_start_ns, o.learner, "
+            f"SELECT o.observation_id, o.session_id, s.coder, s.device, s.mode, {_PAIRED_START_NS} AS paired_start_ns, "
+            "s.pairing_id, o.learner, "
             "o.slot, o.clip, o.window_start_ns, COALESCE(w.window_end_ns, o.window_end_ns) AS window_end_ns, "
             "o.created_ns, o.no_code, o.scheme_hash "
             "FROM observations o JOIN sessions s USING (session_id) "
@@ -411,7 +508,8 @@ class Store:
         frame["window_start"] = _times(frame.pop("window_start_ns"))
         frame["window_end"] = _times(frame.pop("window_end_ns"))
         frame["slot"] = frame["slot"].astype("Int64")
-        for column in ("observation_id", "session_id", "coder", "device", "mode", "learner", "clip", "scheme_hash"):
+        for column in ("observation_id", "session_id", "coder", "device", "mode", "pairing_id", "learner", "clip",
+                       "scheme_hash"):
             frame[column] = frame[column].astype("string")
         coded_any = frame[dimensions].notna().any(axis=1) if dimensions else pd.Series(False, index=frame.index)
         frame["no_code"] = ~coded_any.to_numpy(dtype=bool)
@@ -419,12 +517,12 @@ class Store:
 
     def sync_marks(self) -> pd.DataFrame:
         frame = self._frame(
-            "SELECT m.mark_id, m.session_id, s.device, s.coder, m.learner, m.marked_ns, m.note "
+            "SELECT m.mark_id, m.session_id, s.device, s.coder, m.learner, m.marked_ns, m.note, m.pairing_id, m.kind "
             "FROM sync_marks m JOIN sessions s USING (session_id) ORDER BY m.marked_ns, m.rowid")
         frame["marked_at"] = _times(frame.pop("marked_ns"))
-        for column in ("mark_id", "session_id", "device", "coder", "learner", "note"):
+        for column in ("mark_id", "session_id", "device", "coder", "learner", "note", "pairing_id", "kind"):
             frame[column] = frame[column].astype("string")
-        return frame[["mark_id", "session_id", "device", "coder", "learner", "marked_at", "note"]]
+        return frame[["mark_id", "session_id", "device", "coder", "learner", "marked_at", "note", "pairing_id", "kind"]]
 
     def absences(self) -> pd.DataFrame:
         frame = self._frame("SELECT session_id, learner, state, at_ns FROM absences ORDER BY at_ns, rowid")
@@ -435,19 +533,27 @@ class Store:
 
     def adjudications(self) -> pd.DataFrame:
         frame = self._frame(
-            "SELECT adjudication_id, unit, dimension, code, adjudicator, at_ns, reason FROM adjudications ORDER BY at_ns, rowid")
+            "SELECT adjudication_id, unit, observations, dimension, code, adjudicator, at_ns, reason "
+            "FROM adjudications ORDER BY at_ns, rowid")
         frame["at"] = _times(frame.pop("at_ns"))
-        for column in ("adjudication_id", "unit", "dimension", "code", "adjudicator", "reason"):
+        for column in ("adjudication_id", "unit", "observations", "dimension", "code", "adjudicator", "reason"):
             frame[column] = frame[column].astype("string")
-        return frame[["adjudication_id", "unit", "dimension", "code", "adjudicator", "at", "reason"]]
+        return frame[["adjudication_id", "unit", "observations", "dimension", "code", "adjudicator", "at", "reason"]]
 
     def clock_models(self) -> pd.DataFrame:
-        """The newest clock model per device: device, model_json, at."""
+        """The whole clock-model history, one row per decision ever stored, by fitted time:
+        model_id, device, model_key, method, command, evidence, replaces_earlier,
+        uncertain_accepted, model_json, at (observer_app/study/tables.py: CLOCK HISTORY).
+        Which row each clock uses is the precedence's decision (pipeline/alignment.py)."""
         frame = self._frame(
-            "SELECT device, model_json, at_ns FROM clock_models WHERE rowid IN "
-            "(SELECT max(rowid) FROM clock_models GROUP BY device) ORDER BY device")
+            "SELECT model_id, device, model_key, method, command, evidence, replaces_earlier, uncertain_accepted, "
+            "model_json, at_ns FROM clock_models ORDER BY at_ns, rowid")
         frame["at"] = _times(frame.pop("at_ns"))
-        frame["device"] = frame["device"].astype("string")
+        frame["model_key"] = frame["model_key"].where(frame["model_key"] != "", frame["device"])
+        for column in ("model_id", "device", "model_key", "method", "command", "evidence"):
+            frame[column] = frame[column].astype("string")
+        for column in ("replaces_earlier", "uncertain_accepted"):
+            frame[column] = frame[column].astype(bool)
         return frame
 
     def codes_log(self) -> pd.DataFrame:

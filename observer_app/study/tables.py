@@ -10,7 +10,10 @@ superseded rows hidden.  One row per coded window.
     coder           string   who coded
     device          string   device label (the clock it was coded on)
     mode            string   "live" or "replay"
-    paired_start    datetime shared start time of a paired run (NaT when solo/replay)
+    paired_start    datetime start of slot 0 of a paired run on this device's clock (NaT when solo/replay);
+                             a signal start's press, or the typed shared start time
+    pairing_id      string   the code both devices of a paired run share (NA when solo, replay,
+                             or a paired run from before signal starts)
     learner         string   roster learner id
     slot            Int64    schedule slot number (NA for replay)
     clip            string   replay clip id ("" for live)
@@ -26,21 +29,46 @@ superseded rows hidden.  One row per coded window.
 SESSIONS (``Store.sessions()``):
     session_id, coder, device, mode, paired_start, started_at (datetime UTC),
     monotonic_start (float, the device's monotonic clock at start, seconds),
-    window_seconds (float), order (string), seed (Int64), scheme_hash, ended_at (datetime, NaT open)
+    window_seconds (float), order (string), seed (Int64), scheme_hash, ended_at (datetime, NaT open),
+    pairing_id (string, NA unless paired), typed_clock_difference_s (float, NaN unless the coders
+    started on a typed wall-clock time: the difference they typed, partner minus this device)
 
 SYNC MARKS (``Store.sync_marks()``):
-    mark_id, session_id, device, coder, learner (string, "" when none), marked_at (datetime), note
+    mark_id, session_id, device, coder, learner (string, "" when none), marked_at (datetime), note,
+    pairing_id (string, NA unless a paired signal), kind ("" for a mark on a learner's action,
+    "signal start" / "signal end" for a paired run's countdown key press)
 
 ABSENCES (``Store.absences()``):
     session_id, learner, state ("absent" | "returned"), at (datetime)
 
-ADJUDICATIONS (``Store.adjudications()``) -- append-only; the newest per (unit, dimension) wins:
-    adjudication_id, unit (string), dimension, code, adjudicator, at (datetime), reason
+ADJUDICATIONS (``Store.adjudications()``) -- append-only; keyed by the observations they settle:
+    adjudication_id, unit (string: the unit id when recorded, kept for the audit trail),
+    observations (string: the settled observation ids, sorted, joined by "|"; "" for rows
+    written before stores kept them), dimension, code, adjudicator, at (datetime), reason.
+    ``agreement.disagreements.place_adjudications`` puts each on the unit that now holds
+    its observations; the newest per (unit, dimension) wins.
+
+CLOCK HISTORY (``Store.clock_models()``) -- append-only, every clock decision ever stored,
+oldest fitted first:
+    model_id        string   UUID of the row
+    device          string   the coder device
+    model_key       string   the clock the model is for: the device, or "device/session_id"
+                             when that device's sessions got separate models (its clock was
+                             corrected between them)
+    method          string   "manual", "marks", "borrowed", "auto" ("" in rows from stores
+                             before the history: read the method from model_json)
+    command         string   the command that stored it ("fieldmark align --set-offset ..."; "" in old rows)
+    evidence        string   one line: what the model rests on (marks used, standard errors)
+    replaces_earlier bool    `--refit`: the device's earlier decisions no longer apply
+    uncertain_accepted bool  stored above the uncertainty bound with `--accept-uncertain`
+    model_json      string   ``sync.clock.ClockModel.to_json()``
+    at              datetime when it was fitted (UTC)
+  Which row a clock uses: ``observer_app.pipeline.alignment.stored_clock_models``.
 """
 from __future__ import annotations
 
 OBSERVATION_COLUMNS: tuple[str, ...] = (
-    "observation_id", "session_id", "coder", "device", "mode", "paired_start", "learner",
+    "observation_id", "session_id", "coder", "device", "mode", "paired_start", "pairing_id", "learner",
     "slot", "clip", "window_start", "window_end", "coded_at",
 )
 OBSERVATION_TAIL_COLUMNS: tuple[str, ...] = ("no_code", "note", "scheme_hash", "corrected")
