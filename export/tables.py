@@ -102,7 +102,8 @@ CHECK OUTPUT -- the object `fieldmark check --json` prints (and --report renders
                     unless too small also kappa, auc, recall {code: estimate}, difference_from_rest
                     {kappa, auc} (group minus rest, or null), majority_baseline and stratified_baseline
                     {kappa, auc}, coder_agreement (estimate plus windows, or null); an estimate is
-                    {"value", "low", "high"}, a 95 % learner-cluster bootstrap interval
+                    {"value", "low", "high"}, a 95 % learner-cluster bootstrap interval (expanded
+                    percentile, Hesterberg 2015, so it stays honest with few learners)
         label_routes [group]      the same per way the label was reached: "agreed or adjudicated",
                     "single coder", "coders disagreed" (null without label_source columns)
         transfer    null, or {groups, too_small, setting, leave_one_group_out [{group,
