@@ -127,8 +127,10 @@ SIGNAL_START, SIGNAL_END = "signal start", "signal end"
 MARK_KINDS: tuple[str, ...] = ("", SIGNAL_START, SIGNAL_END)
 # Where slot 0 of a paired run began on the device's clock: the typed shared start, or
 # the coder's key press on the start signal (its first mark; nothing while it is awaited).
-_PAIRED_START_NS = ("COALESCE(s.paired_start_ns, (SELECT min(m.marked_ns) FROM sync_marks m "
-                    f"WHERE m.session_id = s.session_id AND m.kind = '{SIGNAL_START}'))")
+# (one grouped pass over the marks, joined per session, rather than a lookup per row)
+_PAIRED_START_NS = "COALESCE(s.paired_start_ns, signal.signal_ns)"
+_SIGNAL_JOIN = ("LEFT JOIN (SELECT session_id, min(marked_ns) AS signal_ns FROM sync_marks "
+                f"WHERE kind = '{SIGNAL_START}' GROUP BY session_id) signal USING (session_id) ")
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
@@ -454,7 +456,8 @@ class Store:
             "s.monotonic_start, "
             "s.window_seconds, s.schedule_order AS \"order\", s.seed, s.scheme_hash, s.present, e.ended_ns, "
             "s.pairing_id, s.typed_clock_difference_s "
-            "FROM sessions s LEFT JOIN session_ends e USING (session_id) ORDER BY s.started_ns, s.rowid")
+            f"FROM sessions s LEFT JOIN session_ends e USING (session_id) {_SIGNAL_JOIN}"
+            "ORDER BY s.started_ns, s.rowid")
         frame["paired_start"] = _times(frame.pop("paired_start_ns"))
         frame["started_at"] = _times(frame.pop("started_ns"))
         frame["ended_at"] = _times(frame.pop("ended_ns"))
@@ -479,7 +482,7 @@ class Store:
             "s.pairing_id, o.learner, "
             "o.slot, o.clip, o.window_start_ns, COALESCE(w.window_end_ns, o.window_end_ns) AS window_end_ns, "
             "o.created_ns, o.no_code, o.scheme_hash "
-            "FROM observations o JOIN sessions s USING (session_id) "
+            f"FROM observations o JOIN sessions s USING (session_id) {_SIGNAL_JOIN}"
             "LEFT JOIN (SELECT observation_id, window_end_ns FROM window_closures WHERE rowid IN "
             "(SELECT max(rowid) FROM window_closures GROUP BY observation_id)) w USING (observation_id) "
             "ORDER BY o.window_start_ns, o.rowid")

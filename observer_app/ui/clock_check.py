@@ -72,8 +72,12 @@ class ClockCheck(QWidget):
             layout.addWidget(widget, 0, Qt.AlignmentFlag.AlignHCenter)
         if session is None:
             self.setFocusProxy(self.difference)  # the keys go to the difference field
+            asked = QLabel("YOUR PARTNER'S CLOCK MINUS THIS ONE, IN SECONDS")
+            asked.setProperty("role", "caption")
+            layout.addWidget(asked, 0, Qt.AlignmentFlag.AlignHCenter)
             layout.addWidget(self.difference, 0, Qt.AlignmentFlag.AlignHCenter)
-            layout.addWidget(self.error, 0, Qt.AlignmentFlag.AlignHCenter)
+            self.error.setAlignment(Qt.AlignmentFlag.AlignHCenter)
+            layout.addWidget(self.error)  # full width, so a long refusal wraps instead of squeezing
         else:
             self.difference.hide()
             self.error.hide()
@@ -123,7 +127,7 @@ class ClockCheck(QWidget):
         try:
             seconds = read_clock_difference(self.difference.text())
         except InputError as error:
-            self.error.setText(error.line() + ".  F2 starts on the countdown.")
+            self.error.setText(error.line() + " (F2)")
             self.difference.setFocus()
             return
         self.timer.stop()

@@ -405,13 +405,11 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         elif state.waiting:
             self.turn_caption.setText("WAITING FOR THE SHARED START  -  FIRST UP")
         else:
-            self.turn_caption.setText("NOW OBSERVING")
+            self.turn_caption.setText("NOW OBSERVING" + (f"  -  CHECK CODE {state.check_code}" if state.check_code else ""))
         self.learner_label.setText((state.label or "nobody present")
                                    + ("  (absent: slot skipped)" if state.skipped else ""))
         self.next_label.setText(state.next_label or "-")
         mode = "paired" if state.paired else "solo"
-        if state.check_code:
-            mode += f" · check code {state.check_code}"
         self.slot_label.setText(f"slot {state.slot + 1} · round {state.round + 1} · {mode}")
         for pad in self.pads:
             pad.show_code(state.coded.get(pad.dimension.name), theme, self._scale)

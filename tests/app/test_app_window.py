@@ -153,6 +153,8 @@ def test_paired_start_typed_in_the_form_needs_a_small_typed_clock_difference(qtb
     press(qtbot, window, None, "3")
     press(qtbot, window, Qt.Key.Key_Return)
     assert window.page is check and "more than the 1 s" in check.error.text()  # refused, the signal offered
+    ARTIFACTS.mkdir(exist_ok=True)
+    check.grab().save(str(ARTIFACTS / "clock_check_typed_refused.png"))
     with sqlite3.connect(window.study.store_path) as connection:
         assert connection.execute("SELECT count(*) FROM sessions").fetchone()[0] == 0
     check.difference.selectAll()
@@ -180,12 +182,14 @@ def test_signal_start_from_the_form_anchors_on_the_enter_key(qtbot, window):
     press(qtbot, window, Qt.Key.Key_F7)
     screen.session.tick()
     assert screen.time_label.text() == "3"
+    ARTIFACTS.mkdir(exist_ok=True)
+    screen.grab().save(str(ARTIFACTS / "observing_waiting_for_signal.png"))
     window.clock.advance(3.2)
     screen.session.tick()
     assert screen.time_label.text() == "now"
     press(qtbot, window, Qt.Key.Key_Return)  # on "now"
     state = screen.session.state()
-    assert not state.awaiting_signal and state.check_code in screen.slot_label.text()
+    assert not state.awaiting_signal and state.check_code in screen.turn_caption.text()
     window.clock.advance(25)
     press(qtbot, window, Qt.Key.Key_F9)  # the closing countdown's "now"
     with sqlite3.connect(window.study.store_path) as connection:
