@@ -64,6 +64,17 @@ def human_summary(summary: dict) -> str:
         lines.append(f"  detector check, {dimension}: kappa {_number(model['kappa'])}, AUC {_number(model['auc'])} "
                      f"(majority baseline {_number(baseline['kappa'])}, {_number(baseline['auc'])}; "
                      f"{check['learners']} learners in {check['folds']} folds)")
+        for group in check["by"].get("site", []):
+            if group["too_small"]:
+                continue
+            auc, difference = group["auc"], group["difference_from_rest"]["auc"]
+            lines.append(f"    site {group['group']}: AUC {_number(auc['value'])} [{_number(auc['low'])}, "
+                         f"{_number(auc['high'])}], minus the other site {_number(difference['value'])} "
+                         f"[{_number(difference['low'])}, {_number(difference['high'])}]")
+        for cell in (check["transfer"] or {}).get("leave_one_group_out", []):
+            lines.append(f"    trained elsewhere, tested at {cell['group']}: AUC {_number(cell['transfer']['auc'])} vs "
+                         f"{_number(cell['within']['auc'])} within (drop {_number(cell['drop']['auc'])}; kappa drop "
+                         f"{_number(cell['drop']['kappa'])})")
     out = Path(summary["study"]).parent
     lines.append(f"wrote {out / 'summary.json'} and {out / 'report.html'} in {summary['seconds']:.1f} s")
     return "\n".join(lines)

@@ -28,7 +28,7 @@ from demo_sessions.coders import CodingRecord, CodingSession, simulate_coding
 from demo_sessions.latent_states import state_segments, simulate_latent_states
 from demo_sessions.log_files import write_north_csv, write_south_xapi
 from demo_sessions.scenario import ACTIVITY_STATES, AFFECT_STATES, SIZES, Scenario
-from demo_sessions.simulator_log import simulate_log
+from demo_sessions.simulator_log import BEHAVIOUR_ACTION_RATE, BEHAVIOUR_HELP_SCALE, simulate_log
 from demo_sessions.study_writer import import_devices, write_device_store, write_study_files
 from demo_sessions.truth_files import TRUTH_JSON, TRUTH_STATES, TRUTH_WINDOWS, write_truth
 from observer_app.study.scheme import load_scheme
@@ -115,7 +115,8 @@ def _generate_into(directory: Path, scenario: Scenario, seed: int, size: str) ->
     coding_start = [_utc_ns(c.session_day, c.session_start, scenario.timezone) for c in scenario.centres]
     grid_start_ns = np.repeat(np.array(coding_start, dtype=np.int64) - margin_ns, per_centre)
     states = simulate_latent_states(states_rng, scenario.learners, seconds)
-    events = simulate_log(log_rng, states, grid_start_ns)
+    behaviour = np.repeat([c.behaviour for c in scenario.centres], per_centre)
+    events = simulate_log(log_rng, states, grid_start_ns, behaviour)
     clocks = draw_clocks(clock_rng, scenario.devices, scenario.offset_ranges, scenario.drift_ranges, coding_start[0])
     sessions = tuple(
         CodingSession(centre=c.name, learners=tuple(learners[i * per_centre:(i + 1) * per_centre]),
@@ -149,6 +150,25 @@ def _generate_into(directory: Path, scenario: Scenario, seed: int, size: str) ->
                      sync_marks=len(record.marks))
 
 
+def site_behaviour(scenario: Scenario) -> dict:
+    """What the generator planted about how each centre's apprentices work, and what it implies."""
+    centres = {c.name: {"behaviour": c.behaviour,
+                        "actions_per_second": dict(zip(ACTIVITY_STATES, BEHAVIOUR_ACTION_RATE[c.behaviour].tolist())),
+                        "help_request_scale": BEHAVIOUR_HELP_SCALE[c.behaviour]} for c in scenario.centres}
+    shared = sorted(name for name, figures in centres.items() if figures["behaviour"] == "shared_bench")
+    own = sorted(name for name, figures in centres.items() if figures["behaviour"] == "own_bench")
+    planted = bool(shared and own)
+    return {
+        "centres": centres, "planted": planted,
+        "expected": (f"activity is harder to detect from the log at {', '.join(shared)} (apprentices share a bench, "
+                     f"which keeps logging while one of them talks, is off task or away): the activity AUC of a "
+                     f"detector trained on both centres is lower there than at {', '.join(own)}, and a detector "
+                     f"trained at {', '.join(shared)} loses much of its skill at {', '.join(own)}")
+                    if planted else "no difference between centres was planted",
+        "metric": {"dimension": "activity", "figure": "auc", "attribute": "site", "lower": shared} if planted else None,
+    }
+
+
 def _iso(ns: int) -> str:
     return pd.Timestamp(ns, tz="UTC").isoformat()
 
@@ -170,6 +190,7 @@ def _truth_header(scenario: Scenario, seed: int, size: str, clocks: tuple[Device
                       "grid_end": _iso(start - margin_ns + seconds * 1_000_000_000)}
                      for c, start in zip(scenario.centres, coding_start)],
         "learners": {row.learner: {"log_id": row.log_id, "centre": row.site} for row in roster.itertuples()},
+        "site_behaviour": site_behaviour(scenario),
         "counts": {"learners": scenario.learners, "events": len(events),
                    "observations": len(record.observations), "sync_marks": len(record.marks)},
         "scenario": {key: value for key, value in asdict(scenario).items() if key != "centres"},

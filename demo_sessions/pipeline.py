@@ -33,8 +33,10 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
     windows         object  from the export step: {"written", "path"} -- DIR/windows.parquet, labelled,
                             de-identified windows with their features (manifest beside it)
     detector        object  from the check step: per dimension the grouped cross-validated check of
-                            export/detector_check.py (rows, learners, folds, codes, model, majority_baseline,
-                            stratified_baseline; each score {"kappa", "auc"})
+                            export/detector_check.py audited by site and across sites, as one dimension of
+                            `fieldmark check --by site --transfer site --json` (CHECK OUTPUT in
+                            export/tables.py: rows, learners, folds, codes, model, majority_baseline,
+                            stratified_baseline, calibration, by {"site": [group]}, transfer ...)
     seconds         float   wall time of the whole run
 DIR/report.html: one section per step, tables and base64 PNG figures, self-contained.
 """
@@ -60,7 +62,8 @@ from demo_sessions.truth_check import coder_vs_truth
 from export.features import FeatureSettings
 from export.labelled_windows import ExportSettings
 from demo_sessions.truth_files import read_truth
-from export.detector_check import check_windows
+from export.audit_report import figure_html, group_bars, transfer_heatmap
+from export.detector_check import CheckSettings, check_windows
 from demo_sessions import report
 from observer_app.pipeline.alignment import (align_study, clock_reference_ns, fit_clock_models, model_summary,
                                             read_study_logs, reference_text)
@@ -80,6 +83,7 @@ SUMMARY_KEYS: tuple[str, ...] = (
     "seconds",
 )
 TIMELINE_LEARNERS = 4
+SITE = "site"  # the roster attribute naming each apprentice's centre
 AGREEMENT_RESAMPLES = 1000
 
 
@@ -268,20 +272,45 @@ def step_export(run: DemoRun) -> None:
 
 
 def step_check(run: DemoRun) -> None:
-    """The check step: a plain detector per dimension, cross-validated with folds of whole learners."""
-    results = check_windows(run.out / WINDOWS_FILE)
+    """The check step: a detector per dimension, cross-validated with folds of whole learners, audited
+    per site and across sites (`fieldmark check WINDOWS --by site --transfer site`)."""
+    results = check_windows(run.out / WINDOWS_FILE, settings=CheckSettings(by=(SITE,), transfer=SITE, seed=run.seed))
     run.summary["detector"] = {result.dimension: result.as_dict() for result in results}
     rows = [{"dimension": result.dimension, "windows": result.rows, "learners": result.learners,
-             "kappa": result.model.kappa, "AUC": result.model.auc,
+             "kappa": result.model.kappa, "AUC": result.model.auc, "Brier": result.calibration["brier"],
              "majority baseline kappa": result.majority_baseline.kappa,
              "stratified baseline kappa": result.stratified_baseline.kappa} for result in results]
+    sites = pd.DataFrame([{"dimension": result.dimension, "site": group["group"], "learners": group["learners"],
+                           "kappa": group["kappa"]["value"], "AUC": group["auc"]["value"],
+                           "AUC low": group["auc"]["low"], "AUC high": group["auc"]["high"],
+                           "AUC minus rest": group["difference_from_rest"]["auc"]["value"],
+                           "low": group["difference_from_rest"]["auc"]["low"],
+                           "high": group["difference_from_rest"]["auc"]["high"]}
+                          for result in results for group in result.by[SITE] if not group["too_small"]])
+    transfer = pd.DataFrame([{"dimension": result.dimension, "tested on": cell["group"],
+                              "training learners": cell["training_learners"], "transfer kappa": cell["transfer"]["kappa"],
+                              "within kappa": cell["within"]["kappa"], "kappa drop": cell["drop"]["kappa"],
+                              "transfer AUC": cell["transfer"]["auc"], "within AUC": cell["within"]["auc"],
+                              "AUC drop": cell["drop"]["auc"]}
+                             for result in results for cell in result.transfer["leave_one_group_out"]])
+    header, _, _ = read_truth(run.out)
     run.sections.append(report.section(
-        "Detector check",
-        report.paragraph("Logistic regression on the window features, folds of whole learners (no learner is "
-                         "ever in both training and test data), out-of-fold predictions pooled. A sanity check "
-                         "that the labels and features carry signal, not a tuned detector. "
-                         "`fieldmark check WINDOWS` does the same."),
+        "Detector check, per site and across sites",
+        report.paragraph("Logistic regression on the window features, tuned by nested cross-validation; every fold "
+                         "holds whole learners (no learner is ever in both training and test data), out-of-fold "
+                         "predictions pooled. `fieldmark check WINDOWS --by site --transfer site` does the same."),
         report.table_html(pd.DataFrame(rows)),
+        report.paragraph("Per site: figures with 95 % intervals from resampling learners. Transfer: trained at the "
+                         "other centre, beside the centre's own cross-validated figure at the same number of "
+                         "training learners."),
+        report.table_html(sites), report.table_html(transfer),
+        report.paragraph(f"Planted by the generator (truth, not computed): {header['site_behaviour']['expected']}.",
+                         "note truth"),
+        *(figure_html(bars, f"{result.dimension} by site") for result in results
+          for bars in (group_bars(result.by[SITE], f"{result.dimension} by site"),) if bars is not None),
+        *(figure_html(heatmap, f"{result.dimension} transfer") for result in results
+          for heatmap in (transfer_heatmap(result.transfer, f"{result.dimension}: train on row, test on column"),)
+          if heatmap is not None),
     ))
 
 

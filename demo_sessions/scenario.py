@@ -22,6 +22,7 @@ class Centre:
     session_day: str     # ISO date of the coded session
     session_start: str   # local wall time the coders start, "HH:MM"
     learner_prefix: str  # first letter of the log ids, so the two logs never collide
+    behaviour: str = "own_bench"  # how its apprentices work (simulator_log.BEHAVIOUR_ACTION_RATE)
 
 
 @dataclass(frozen=True)
@@ -31,7 +32,7 @@ class Scenario:
     timezone: str = "Europe/Berlin"
     centres: tuple[Centre, ...] = (
         Centre("north", "csv", "logs/centre_north.csv", "2026-03-10", "09:00", "n"),
-        Centre("south", "xapi", "logs/centre_south.jsonl", "2026-03-11", "13:30", "s"),
+        Centre("south", "xapi", "logs/centre_south.jsonl", "2026-03-11", "13:30", "s", behaviour="shared_bench"),
     )
     learners_per_centre: int = 12
     coded_minutes: float = 50.0      # one coded session per centre

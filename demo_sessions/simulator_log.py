@@ -5,7 +5,12 @@ activity state (and lowered by confusion); each action is a help request with a
 probability set by activity and affect, otherwise a wiring attempt that succeeds with
 a probability set by both.  Rapid trial and error gives bursts of short, mostly wrong
 attempts; off-task and away seconds give idle gaps.  Every step of the panel task
-needs ``ATTEMPTS_PER_STEP`` correct attempts.  All of it is vectorised over the
+needs ``ATTEMPTS_PER_STEP`` correct attempts.
+
+The centres' apprentices honestly work differently (the planted site difference, stated
+in truth.json): at a "shared_bench" centre they work faster on task, ask for help twice as
+often, and keep tinkering with the simulator while they talk or are off task, so what
+they do in the log says less about their activity than at a "own_bench" centre.  All of it is vectorised over the
 (learners x seconds) grid; times are rounded to the millisecond that logs carry.
 """
 from __future__ import annotations
@@ -17,6 +22,12 @@ from demo_sessions.latent_states import LatentStates
 
 # Actions per second by activity (on_task, task_discussion, off_task, rapid_guessing, away).
 ACTION_RATE = np.array([0.12, 0.03, 0.01, 0.6, 0.0])
+# Per centre behaviour: actions per second by activity, and the multiplier of help requests.
+BEHAVIOUR_ACTION_RATE: dict[str, np.ndarray] = {
+    "own_bench": ACTION_RATE,
+    "shared_bench": np.array([0.14, 0.12, 0.12, 0.2, 0.10]),  # the partner keeps the bench busy
+}
+BEHAVIOUR_HELP_SCALE: dict[str, float] = {"own_bench": 1.0, "shared_bench": 2.0}
 # Multiplier of that rate by affect (focused, confused, frustrated, bored).
 AFFECT_RATE = np.array([1.0, 0.7, 1.1, 0.8])
 # Chance that an action is a help request (rows: activity, columns: affect).
@@ -46,16 +57,21 @@ ATTEMPT = "attempt"
 HELP = "help_request"
 
 
-def simulate_log(rng: np.random.Generator, states: LatentStates, start_ns: np.ndarray) -> pd.DataFrame:
+def simulate_log(rng: np.random.Generator, states: LatentStates, start_ns: np.ndarray,
+                 behaviour: np.ndarray | None = None) -> pd.DataFrame:
     """One row per simulator event, sorted by (chain, time_ns).
 
     Columns: chain (int64, the learner's row in ``states``), time_ns (int64, UTC ns on
     the log server's clock, whole milliseconds), action ("attempt" | "help_request"),
     correct (boolean, NA for help requests), duration_s (float64, whole milliseconds),
-    step (int64, panel step from 1), skill (string).
+    step (int64, panel step from 1), skill (string).  ``behaviour``: per chain, a key of
+    BEHAVIOUR_ACTION_RATE (default "own_bench" for every chain).
     """
     activity, affect = states.activity, states.affect
-    counts = rng.poisson(ACTION_RATE[activity] * AFFECT_RATE[affect]).ravel()
+    behaviour = np.full(activity.shape[0], "own_bench") if behaviour is None else np.asarray(behaviour)
+    rate_table = np.stack([BEHAVIOUR_ACTION_RATE[name] for name in behaviour])           # (chains, activities)
+    help_scale = np.array([BEHAVIOUR_HELP_SCALE[name] for name in behaviour])
+    counts = rng.poisson(np.take_along_axis(rate_table, activity.astype(np.int64), axis=1) * AFFECT_RATE[affect]).ravel()
     cell = np.repeat(np.arange(counts.size), counts)
     chain, second = np.divmod(cell, states.seconds)
     event_activity, event_affect = activity.ravel()[cell], affect.ravel()[cell]
@@ -65,7 +81,7 @@ def simulate_log(rng: np.random.Generator, states: LatentStates, start_ns: np.nd
     chain, time_ns = chain[order], time_ns[order]
     event_activity, event_affect = event_activity[order], event_affect[order]
 
-    is_help = rng.random(cell.size) < HELP_SHARE[event_activity, event_affect]
+    is_help = rng.random(cell.size) < np.minimum(1.0, HELP_SHARE[event_activity, event_affect] * help_scale[chain])
     correct = ~is_help & (rng.random(cell.size) < CORRECT_SHARE[event_activity, event_affect])
     median = np.where(is_help, HELP_SECONDS, ATTEMPT_SECONDS[event_activity])
     duration = np.maximum(0.2, np.round(median * rng.lognormal(0.0, 0.4, cell.size), 3))

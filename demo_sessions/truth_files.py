@@ -4,7 +4,10 @@ DIR/truth.json
     seed, size, clock_model (the formula), devices {device: {coder, offset_s, drift_ppm,
     reference}}, sessions [{centre, log_format, coding_start, grid_start, grid_end}],
     learners {learner: {log_id, centre}}, counts {learners, events, observations,
-    sync_marks}, ranges {offset_s, drift_ppm per device: the documented [low, high]}
+    sync_marks}, ranges {offset_s, drift_ppm per device: the documented [low, high]},
+    site_behaviour {centres {centre: {behaviour, actions_per_second {activity: rate},
+    help_request_scale}}, planted (bool), expected (in words), metric {dimension, figure,
+    attribute, lower [centres]} or null}: the planted difference between the centres
 DIR/truth_states.parquet -- the latent-state timelines, one row per run of one state:
     learner, dimension ("activity" | "affect"), state, start, end (UTC, log clock; end exclusive)
 DIR/truth_windows.parquet -- the true state behind every coded window:

@@ -62,9 +62,14 @@ def feature_description(column: str, feature_of_column: Mapping[str, str],
 
 def describe_columns(columns: Sequence[str], *, feature_columns: Sequence[str], label_columns: Sequence[str],
                      attribute_columns: Sequence[str], feature_of_column: Mapping[str, str],
-                     features: Mapping[str, FeatureFunction]) -> dict[str, str]:
+                     features: Mapping[str, FeatureFunction],
+                     confidence_columns: Mapping[str, Sequence[str]] | None = None) -> dict[str, str]:
     """Every output column -> one line saying what it holds (same order as ``columns``)."""
     known: dict[str, str] = dict(IDENTITY)
+    for dimension, names in (confidence_columns or {}).items():
+        for name in names:
+            known[name] = (f"label confidence: Dawid & Skene (1979) posterior probability that the unit's true "
+                           f"'{dimension}' code is '{name.removeprefix(f'p_{dimension}_')}'")
     for dimension in label_columns:
         known[dimension] = (f"the resolved label of the dimension '{dimension}' (a code name; missing when "
                             "unresolved or could-not-observe)")

@@ -16,7 +16,8 @@ import pyarrow as pa
 
 from export.column_descriptions import describe_columns, feature_description
 from export.features import FEATURE_OF_COLUMN, FEATURES, FeatureFunction, FeatureSettings, compute_features
-from export.labels import REPRESENTATIVE, resolve_labels
+from export.label_confidence import label_confidences
+from export.labels import REPRESENTATIVE, resolve_labels, unit_keys
 from export.pseudonyms import pseudonymise
 from export.tables import (
     CODERS, GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, ROSTER_PRIVATE_COLUMNS, END, START, UNIT,
@@ -48,6 +49,8 @@ class LabelledWindows:
     attribute_columns: list[str]
     feature_definitions: dict[str, str]
     column_descriptions: dict[str, str]
+    confidence_columns: dict[str, list[str]] = field(default_factory=dict)
+    label_confidence: dict[str, dict | None] = field(default_factory=dict)
 
     def rows_per_label(self) -> dict[str, dict[str, int]]:
         """Per dimension: rows per code (labelled rows only)."""
@@ -92,6 +95,10 @@ def label_windows(
         learner = pseudonymise(chosen[LEARNER], key)
         identity = pd.DataFrame({WINDOW_ID: pseudonymise(labels[UNIT], key), LEARNER: learner, GROUP: learner})
     label_part = labels[[column for dimension in dimensions for column in (dimension, LABEL_SOURCE_PREFIX + dimension)]]
+    posterior, confidence_columns, confidence = label_confidences(
+        windows.assign(**{UNIT: unit_keys(windows)}), list(dimensions), dict(could_not_observe))
+    label_part = pd.concat([label_part.reset_index(drop=True),
+                            posterior.reindex(labels[UNIT].to_numpy()).reset_index(drop=True)], axis=1)
     feature_columns = [column for column in computed.columns if column not in (START, END)]
     table = pd.concat(
         [identity, attributes, pd.DataFrame({MODE: chosen[MODE].astype("string"), CODERS: labels[CODERS]}),
@@ -107,5 +114,7 @@ def label_windows(
                              for column in feature_columns},
         column_descriptions=describe_columns(
             list(table.columns), feature_columns=feature_columns, label_columns=list(dimensions),
-            attribute_columns=attribute_columns, feature_of_column=feature_of_column, features=features),
+            attribute_columns=attribute_columns, feature_of_column=feature_of_column, features=features,
+            confidence_columns=confidence_columns),
+        confidence_columns=confidence_columns, label_confidence=confidence,
     )

@@ -72,6 +72,13 @@ coder name), the labels come from all of its observations (export/labels.py):
                               unresolved or could-not-observe)
     label_source_<dimension>  string  "adjudicated" | "agreed" | "single" | "first-coder" |
                               "majority" | "unresolved" | "could-not-observe" (export/labels.py)
+    p_<dimension>_<code>      float64  label confidence: the Dawid & Skene (1979) posterior that the
+                              unit's true code is <code> (export/label_confidence.py), one column per
+                              code the coders used; NA where no coder coded the dimension.  The
+                              manifest's ``confidence_columns`` lists them per dimension and
+                              ``label_confidence`` says per dimension which form was fitted ("one-coin"
+                              or "full"), the prevalence, each coder's accuracy and the EM's convergence
+                              (null: not fitted, no unit had two coders)
     <feature columns>         as above
   Never exported: roster labels, notes, observation and session ids, device names, clip
   ids, raw learner ids (unless keep_ids).
@@ -80,6 +87,29 @@ DESCRIPTIONS -- every exported column's meaning, one line each (export/column_de
   in a Parquet file as field metadata (key ``description``); in the manifest as
   ``column_descriptions`` (every column) and ``feature_definitions`` (feature columns,
   keyed by output column name: action_<name> and a lab's own feature columns included).
+
+CHECK OUTPUT -- the object `fieldmark check --json` prints (and --report renders):
+    windows, model ("logistic" | "forest" | "boosting"), folds (outer), inner_folds, seed,
+    weight ("none" | "confidence"), min_learners, resamples, confidence (0.95), by (attributes),
+    transfer (attribute or null), dimensions: per dimension
+        rows, learners, folds, codes {code: windows}
+        model, majority_baseline, stratified_baseline   {"kappa", "auc"} of pooled out-of-fold predictions
+        model_name, auc_definition (in words: the second code's AUC with two codes, else
+                    one-vs-rest macro), settings_tried, chosen_settings (per outer fold)
+        calibration {brier, brier_definition, reliability_definition,
+                     reliability [{low, high, mean_predicted, observed, windows}]}
+        by {attribute: [group]}   group: group, learners, windows, too_small, base_rates {code: share};
+                    unless too small also kappa, auc, recall {code: estimate}, difference_from_rest
+                    {kappa, auc} (group minus rest, or null), majority_baseline and stratified_baseline
+                    {kappa, auc}, coder_agreement (estimate plus windows, or null); an estimate is
+                    {"value", "low", "high"}, a 95 % learner-cluster bootstrap interval (expanded
+                    percentile, Hesterberg 2015, so it stays honest with few learners)
+        label_routes [group]      the same per way the label was reached: "agreed or adjudicated",
+                    "single coder", "coders disagreed" (null without label_source columns)
+        transfer    null, or {groups, too_small, setting, leave_one_group_out [{group,
+                    training_learners, transfer, within, drop}], matrix [{train, test,
+                    training_learners, transfer, within, drop}] or null}; transfer/within/drop
+                    are {"kappa", "auc"}, drop = within minus transfer at the same training size
 """
 from __future__ import annotations
 

@@ -70,6 +70,8 @@ def build_manifest(
         "label_columns": result.label_columns,
         "feature_columns": result.feature_columns,
         "attribute_columns": result.attribute_columns,
+        "confidence_columns": result.confidence_columns,
+        "label_confidence": result.label_confidence,
         "group_column": GROUP,
         "feature_definitions": result.feature_definitions,
         "column_descriptions": result.column_descriptions,

@@ -133,6 +133,24 @@ def test_detector_check_finds_the_planted_signal(demo_run):
     assert activity["model"]["auc"] > activity["majority_baseline"]["auc"] + 0.1
 
 
+def test_the_site_audit_finds_the_difference_the_generator_planted(demo_run):
+    """truth.json names the planted metric; the audit's 95 % interval of that site's difference
+    from the rest must exclude zero on the planted side (the null twin: tests/perf/test_site_audit_null_twin.py)."""
+    out, _, _ = demo_run
+    summary = json.loads((out / "summary.json").read_text())
+    planted = json.loads((out / "truth.json").read_text())["site_behaviour"]
+    assert planted["planted"] and "share a bench" in planted["expected"]
+    metric = planted["metric"]
+    groups = {group["group"]: group for group in summary["detector"][metric["dimension"]]["by"][metric["attribute"]]}
+    for site in metric["lower"]:
+        difference = groups[site]["difference_from_rest"][metric["figure"]]
+        assert difference["high"] < 0, difference
+    transfer = {cell["group"]: cell for cell in summary["detector"]["activity"]["transfer"]["leave_one_group_out"]}
+    assert transfer["north"]["drop"]["auc"] > 0.1          # trained at the shared benches, it fails at north
+    printed = human_summary(summary)
+    assert "site south: AUC" in printed and "tested at north" in printed
+
+
 def test_report_is_self_contained_with_embedded_figures(demo_run):
     out, _, _ = demo_run
     page = (out / "report.html").read_text()

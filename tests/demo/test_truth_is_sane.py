@@ -128,12 +128,25 @@ def test_log_activity_follows_the_latent_state(demo):
     events = events.assign(state=_activity_at(events, states))
     assert events["state"].notna().all()
     activity = states[states["dimension"] == "activity"]
-    seconds = (activity["end"] - activity["start"]).dt.total_seconds().groupby(activity["state"]).sum()
-    rate = events.groupby("state").size().reindex(seconds.index, fill_value=0) / seconds
-    # Intended direction: bursts when guessing, steady work on task, little while discussing,
-    # almost nothing off task, silence when away.
+    centre_of = {learner: figures["centre"] for learner, figures in demo["truth"]["learners"].items()}
+    behaviour = demo["truth"]["site_behaviour"]["centres"]
+    rates = {}
+    for centre in behaviour:
+        mine = activity[activity["learner"].map(centre_of) == centre]
+        seconds = (mine["end"] - mine["start"]).dt.total_seconds().groupby(mine["state"]).sum()
+        theirs = events[events["learner"].map(centre_of) == centre]
+        rates[centre] = theirs.groupby("state").size().reindex(seconds.index, fill_value=0) / seconds
+    # At the centre with its own benches: bursts when guessing, steady work on task, little while
+    # discussing, almost nothing off task, silence when away.
+    rate = rates["north"]
+    assert behaviour["north"]["behaviour"] == "own_bench"
     assert rate["rapid_guessing"] > 2 * rate["on_task"] > 2 * rate["task_discussion"]
     assert rate["task_discussion"] > rate["off_task"] > rate["away"] == 0
+    # The planted difference: a shared bench keeps logging whatever the apprentice does.
+    shared = rates["south"]
+    assert behaviour["south"]["behaviour"] == "shared_bench"
+    assert shared["off_task"] > 5 * rate["off_task"] and shared["away"] > 0.05
+    assert shared["on_task"] < 2 * shared["off_task"]
     attempts = events[events["action"] == "attempt"]
     failure = attempts["outcome"].eq("fail").groupby(attempts["state"]).mean()
     assert failure["rapid_guessing"] > failure["on_task"] + 0.3
