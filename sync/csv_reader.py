@@ -11,6 +11,7 @@ from sync.errors import InputError
 from sync.event_table import build_events
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
+from sync.plausible_values import check_durations
 from sync.time_column import parse_time_column
 
 DELIMITER_CANDIDATES = ",;\t|"
@@ -52,6 +53,10 @@ def read_csv_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTimeCoun
     if missing:
         raise InputError(name, "header", f"has no column for {', '.join(missing)}; the file has "
                          f"{', '.join(header) or 'no columns'} -- fix [logs.columns] in study.toml")
+    repeated = sorted({column for column in spec.columns.values() if header.count(column) > 1})
+    if repeated:
+        raise InputError(name, "header", f"column {repeated[0]!r} appears more than once; rename the other "
+                         "so it is clear which one to read")
     wanted = sorted(set(spec.columns.values()))
     try:
         table = pd.read_csv(path, sep=delimiter, encoding=encoding, usecols=wanted, dtype="str",
@@ -99,8 +104,10 @@ def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str,
 
 
 def _durations(values: pd.Series, name: str, column: str, rows: np.ndarray) -> np.ndarray:
-    if pd.api.types.is_numeric_dtype(values.dtype):
-        return values.to_numpy(dtype=np.float64, na_value=np.nan)
+    if pd.api.types.is_numeric_dtype(values.dtype) and not pd.api.types.is_bool_dtype(values.dtype):
+        seconds = values.to_numpy(dtype=np.float64, na_value=np.nan)
+        check_durations(seconds, name, column, rows)
+        return seconds
     text = values.astype("str").str.strip()
     numbers = pd.to_numeric(text.where(text != ""), errors="coerce")
     bad = (numbers.isna() & text.notna() & (text != "")).to_numpy()
@@ -108,4 +115,6 @@ def _durations(values: pd.Series, name: str, column: str, rows: np.ndarray) -> n
         first = np.flatnonzero(bad)[0]
         raise InputError(name, f"column {column}, row {int(rows[first])}",
                          f"{text.iloc[first][:40]!r} is not a number of seconds")
-    return numbers.to_numpy(dtype=np.float64, na_value=np.nan)
+    seconds = numbers.to_numpy(dtype=np.float64, na_value=np.nan)
+    check_durations(seconds, name, column, rows)
+    return seconds

@@ -15,6 +15,7 @@ import pandas as pd
 from sync.clock import NAT
 from sync.errors import InputError
 from sync.local_time import LocalTimeCounts, local_to_utc_ns
+from sync.plausible_values import RANGE_TEXT, ns_outside_range, utc_ns
 
 EPOCH_MS_THRESHOLD = 1e11
 _OFFSET_PATTERN = r"\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?\s*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)$"
@@ -32,10 +33,10 @@ def parse_time_column(values: pd.Series, time_format: str, timezone: str | None,
     """
     dtype = values.dtype
     if isinstance(dtype, pd.DatetimeTZDtype):
-        result = values.dt.tz_convert("UTC").dt.as_unit("ns").array.asi8.copy()
+        result = utc_ns(values)
         counts = LocalTimeCounts()
     elif pd.api.types.is_datetime64_dtype(dtype):
-        naive = values.dt.as_unit("ns").array.asi8
+        naive = utc_ns(values)  # wall-clock numbers; out of range -> NaT
         result, counts = local_to_utc_ns(naive, _require_timezone(timezone, file, column))
     elif pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_bool_dtype(dtype):
         if time_format == "iso":
@@ -44,6 +45,7 @@ def parse_time_column(values: pd.Series, time_format: str, timezone: str | None,
         result, counts = _epoch_ns(values.to_numpy(dtype=np.float64, na_value=np.nan), time_format), LocalTimeCounts()
     else:
         result, counts = _parse_text(values.astype("str"), time_format, timezone, file, column)
+    result[ns_outside_range(result)] = NAT
     missing = result == NAT
     if missing.any():
         _raise_bad_rows(values, missing, rows, file, column, row_word)
@@ -66,7 +68,8 @@ def _epoch_ns(numbers: np.ndarray, time_format: str) -> np.ndarray:
     else:
         scale = 1e6 if time_format == "epoch_ms" else 1e9
     result = np.full(numbers.shape, NAT, dtype=np.int64)
-    finite = np.isfinite(numbers)
+    with np.errstate(invalid="ignore", over="ignore"):
+        finite = np.isfinite(numbers) & (np.abs(numbers * scale) < 2.0 ** 62)
     result[finite] = np.round(numbers[finite] * scale).astype(np.int64)
     return result
 
@@ -84,11 +87,11 @@ def _parse_text(text: pd.Series, time_format: str, timezone: str | None, file: s
     has_offset = (text.str.contains(_OFFSET_PATTERN, regex=True) & present).to_numpy(dtype=bool)
     if has_offset.any():
         aware = pd.to_datetime(text[has_offset], format="ISO8601", utc=True, errors="coerce")
-        result[has_offset] = aware.dt.as_unit("ns").array.asi8
+        result[has_offset] = utc_ns(aware)
     naive_rows = present.to_numpy(dtype=bool) & ~has_offset
     counts = LocalTimeCounts()
     if naive_rows.any():
-        naive = pd.to_datetime(text[naive_rows], format="ISO8601", errors="coerce").dt.as_unit("ns").array.asi8
+        naive = utc_ns(pd.to_datetime(text[naive_rows], format="ISO8601", errors="coerce"))
         parsed = naive != NAT
         if parsed.any():
             utc, counts = local_to_utc_ns(naive, _require_timezone(timezone, file, column))
@@ -104,7 +107,7 @@ def _raise_bad_rows(values: pd.Series, missing: np.ndarray, rows: np.ndarray, fi
     more = f" and {positions.size - SHOWN_ROWS} more" if positions.size > SHOWN_ROWS else ""
     first = values.iloc[positions[0]]
     blank = pd.isna(first) or not str(first).strip()
-    what = "the time is empty" if blank else f"{str(first)[:40]!r} is not a time"
+    what = "the time is empty" if blank else f"{str(first)[:40]!r} is not a time {RANGE_TEXT}"
     raise InputError(file, f"column {column}, {row_word} {shown}{more}",
                      f"{what}; write ISO 8601 (2026-03-29T14:05:00+02:00) or epoch seconds/milliseconds")
 

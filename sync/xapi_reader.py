@@ -30,6 +30,7 @@ from sync.errors import InputError
 from sync.event_table import build_events
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
+from sync.plausible_values import check_durations
 from sync.time_column import parse_time_column
 
 _DURATION = re.compile(
@@ -59,23 +60,29 @@ def _statements(path: Path, encoding: str) -> list[tuple[int, object]]:
     """(line, statement) pairs from a JSON array or JSON lines file; InputError on bad JSON."""
     name = str(path)
     try:
-        text = path.read_text(encoding=encoding)
+        text = path.read_text(encoding=encoding).removeprefix("\ufeff")  # a byte order mark is not JSON
     except UnicodeDecodeError as error:
         raise InputError(name, f"byte {error.start}", f"is not valid {encoding} text; "
                          "set encoding = \"...\" in its [[logs]] entry") from None
-    stripped = text.lstrip("\ufeff \t\r\n")
+    stripped = text.lstrip(" \t\r\n")
     if not stripped:
         raise InputError(name, None, "is empty; export the statements again or remove its [[logs]] entry")
     if stripped.startswith("["):
-        decoder = json.JSONDecoder()
         start = len(text) - len(stripped)
+        decoder = json.JSONDecoder(parse_constant=_refuse_constant)
         try:
-            statements, _ = decoder.raw_decode(text, start)
+            statements, end = decoder.raw_decode(text, start)
         except json.JSONDecodeError as error:
             raise InputError(name, f"line {error.lineno} column {error.colno}",
                              f"malformed JSON ({error.msg}); fix the statement there") from None
+        except (ValueError, RecursionError) as error:
+            raise InputError(name, None, f"unreadable JSON ({_reason(error)}); export the statements again") from None
         if not isinstance(statements, list):
             raise InputError(name, "line 1", "must be a JSON array of statements or one statement per line")
+        if text[end:].strip():
+            line = text.count("\n", 0, end) + 1
+            raise InputError(name, f"line {line}", "data after the end of the JSON array; a file holds one array "
+                             "of statements (or one statement per line): remove the rest or split the file")
         lines = _array_element_lines(text, start, len(statements))
         return list(zip(lines, statements))
     result = []
@@ -83,11 +90,39 @@ def _statements(path: Path, encoding: str) -> list[tuple[int, object]]:
         if not line.strip():
             continue
         try:
-            result.append((number, json.loads(line)))
+            result.append((number, json.loads(line, parse_constant=_refuse_constant)))
         except json.JSONDecodeError as error:
             raise InputError(name, f"line {number} column {error.colno}",
                              f"malformed JSON ({error.msg}); each line must hold one whole statement") from None
+        except (ValueError, RecursionError) as error:
+            raise InputError(name, f"line {number}", f"unreadable JSON ({_reason(error)}); fix the statement") from None
     return result
+
+
+def _refuse_constant(name: str) -> float:
+    raise ValueError(f"{name} is not a JSON number")
+
+
+def _reason(error: BaseException) -> str:
+    return "nested too deeply" if isinstance(error, RecursionError) else str(error).split(";")[0]
+
+
+# Where the standard fixes a field's JSON type (xAPI 1.0.3 Part Two 2.4.2.3, 2.4.3, 2.4.4, 2.4.5).
+_TEXT_FIELDS = (("actor", "account", "name"), ("actor", "mbox"), ("actor", "mbox_sha1sum"), ("actor", "openid"),
+                ("verb", "id"), ("object", "id"), ("timestamp",), ("stored",), ("result", "duration"))
+_TRUTH_FIELDS = (("result", "success"), ("result", "completion"))
+
+
+def _type_problem(statement: dict) -> str | None:
+    """The first field whose JSON type the standard forbids, as a sentence; None when all fit."""
+    for fields, wanted, kind in ((_TEXT_FIELDS, str, "text"), (_TRUTH_FIELDS, bool, "true or false")):
+        for path in fields:
+            value: object = statement
+            for key in path:
+                value = value.get(key) if isinstance(value, dict) else None
+            if value is not None and not isinstance(value, wanted):
+                return f"{'.'.join(path)} must be {kind}, not {type(value).__name__} {str(value)[:40]!r}"
+    return None
 
 
 def _array_element_lines(text: str, start: int, count: int) -> list[int]:
@@ -140,6 +175,9 @@ def read_xapi_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTimeCou
     for line, statement in records:
         if not isinstance(statement, dict):
             raise InputError(name, f"line {line}", "is not a statement (a JSON object); fix or remove it")
+        problem = _type_problem(statement)
+        if problem:
+            raise InputError(name, f"line {line}", f"{problem} (xAPI 1.0.3 Part Two 2.4); fix or remove the statement")
         learner = _learner(statement.get("actor"))
         if learner is None:
             no_actor += 1
@@ -174,6 +212,7 @@ def read_xapi_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTimeCou
     rows = np.asarray(columns["row"], dtype=np.int64)
     if rows.size == 0:
         raise InputError(name, None, "holds no statement with an identified actor")
+    check_durations(np.asarray(columns["duration"], dtype=np.float64), name, "result.duration", rows, "line")
     time_ns, counts = parse_time_column(pd.Series(columns["time"], dtype="str"), "iso", spec.timezone,
                                         name, "timestamp", rows, row_word="line")
     events = build_events(learner=columns["learner"], time_ns=time_ns, action=columns["action"],

@@ -70,12 +70,18 @@ def load_study(directory: str | Path) -> Study:
     if unknown:
         raise InputError(path, unknown[0], f"unknown section; allowed are {', '.join(sorted(_SECTIONS))}")
     header = raw.get("study", {})
+    if not isinstance(header, dict):
+        raise InputError(path, "study", "must be a [study] table with name and timezone")
     unknown = sorted(set(header) - _STUDY_KEYS)
     if unknown:
         raise InputError(path, f"study.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_STUDY_KEYS))}")
     name = header.get("name", directory.name)
+    if not isinstance(name, str):
+        raise InputError(path, "study.name", "must be a text in quotes")
     timezone = check_timezone(header.get("timezone"), path, "study.timezone")
     schedule = raw.get("schedule", {})
+    if not isinstance(schedule, dict):
+        raise InputError(path, "schedule", "must be a [schedule] table with window_seconds, order and seed")
     unknown = sorted(set(schedule) - _SCHEDULE_KEYS)
     if unknown:
         raise InputError(path, f"schedule.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_SCHEDULE_KEYS))}")
@@ -86,8 +92,8 @@ def load_study(directory: str | Path) -> Study:
     if order not in ORDERS:
         raise InputError(path, "schedule.order", f"invalid order {order!r}; use \"fixed\" or \"shuffled\"")
     seed = schedule.get("seed", 0)
-    if isinstance(seed, bool) or not isinstance(seed, int):
-        raise InputError(path, "schedule.seed", "must be a whole number")
+    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**32:
+        raise InputError(path, "schedule.seed", f"must be a whole number from 0 to {2**32 - 1}")
     logs = raw.get("logs", [])
     if not isinstance(logs, list) or not all(isinstance(entry, dict) for entry in logs):
         raise InputError(path, "logs", "each log must be a [[logs]] table")

@@ -19,12 +19,16 @@ from export.writer import file_sha256
 from observer_app.study.scheme import Scheme
 from observer_app.study.store import SCHEMA_VERSION, Store, now_utc
 from observer_app.study.folder import Study
+from sync.clock import NAT
+from sync.csv_header import check_header
 from sync.errors import InputError
+from sync.plausible_values import LONGEST_WINDOW_SECONDS, RANGE_TEXT, outside_range, utc_ns
 
 NAMESPACE = uuid.UUID("6f1c2a3e-9a7b-4d1e-8c55-2b0d3f4e5a61")
 REQUIRED = ("coder", "learner", "time")
 OPTIONAL = ("device", "note", "end", "clip")
 _OFFSET = r"(?:Z|z|[+-]\d{2}(?::?\d{2})?)$"
+_CONTROL = r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]"
 SHOWN_PROBLEMS = 3
 
 
@@ -89,8 +93,9 @@ def _code_problem(scheme: Scheme, dimension: str, code: str) -> str | None:
 # -- CSV --------------------------------------------------------------------------
 def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> ImportResult:
     content_hash = file_sha256(path)
+    check_header(path)
     try:
-        frame = pd.read_csv(path, dtype="string", keep_default_na=False, skipinitialspace=True)
+        frame = pd.read_csv(path, dtype="string", keep_default_na=False, skipinitialspace=True, encoding="utf-8-sig")
     except pd.errors.EmptyDataError:
         raise InputError(path, None, "empty file; expected a header line coder,learner,time,<dimensions>") from None
     except (pd.errors.ParserError, UnicodeDecodeError) as error:
@@ -121,6 +126,7 @@ def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> Im
         shown = "; ".join(skipped[:SHOWN_PROBLEMS])
         more = f" (and {len(skipped) - SHOWN_PROBLEMS} more bad rows)" if len(skipped) > SHOWN_PROBLEMS else ""
         raise InputError(path, None, f"{shown}{more}; fix these rows or rerun with --skip-bad to import the rest")
+    _refuse_conflicts(path, frame[~bad], lines[~bad], present_dimensions)
     good = frame[~bad].copy()
     result = ImportResult(source=path, skipped=skipped)
     if good.empty:
@@ -163,6 +169,8 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
         nonlocal problems
         problems = problems.mask(mask & problems.eq(""), reason)
 
+    for column in frame.columns:
+        flag(frame[column].str.contains(_CONTROL, regex=True), f"{column} holds a control character; retype the cell")
     flag(frame["coder"].eq(""), "empty coder")
     flag(frame["learner"].eq(""), "empty learner")
     flag(~frame["learner"].isin(study.roster["learner"].dropna()) & frame["learner"].ne(""),
@@ -174,7 +182,11 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
         flag(given & parsed.isna(), f"{column} is not an ISO 8601 time")
         flag(given & parsed.notna() & ~text.str.contains(_OFFSET, regex=True),
              f"{column} has no UTC offset; write it like 2026-03-02T09:15:00+01:00")
+        flag(outside_range(parsed), f"{column} is not {RANGE_TEXT}; fix the date")
     flag(frame["time"].eq(""), "empty time")
+    length = _window_length_s(study, frame)
+    flag(length.le(0), "end is not after time; the window must end after it starts")
+    flag(length.gt(LONGEST_WINDOW_SECONDS), f"window longer than {LONGEST_WINDOW_SECONDS:.0f} s; check the end time")
     for dimension in dimensions:
         valid = set(study.scheme.dimension(dimension).code_names)
         values = frame[dimension]
@@ -182,3 +194,41 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
     coded = pd.concat([frame[d].ne("") for d in dimensions], axis=1).any(axis=1)
     flag(~coded, "no code in any dimension")
     return problems
+
+
+def _window_length_s(study: Study, frame: pd.DataFrame) -> pd.Series:
+    """Seconds from time to end per row (NaN where either cannot be read); no end: the study's window."""
+    start = utc_ns(pd.to_datetime(frame["time"].mask(frame["time"].eq("")), format="ISO8601", utc=True, errors="coerce"))
+    end = utc_ns(pd.to_datetime(frame["end"].mask(frame["end"].eq("")), format="ISO8601", utc=True, errors="coerce"))
+    length = pd.Series((end - start) / 1e9, index=frame.index)
+    known = (start != NAT) & (end != NAT)
+    length = length.where(known)
+    return length.mask(frame["end"].eq(""), study.window_seconds)
+
+
+def _refuse_conflicts(path: Path, frame: pd.DataFrame, lines: pd.Series, dimensions: list[str]) -> None:
+    """Two rows for the same window (coder, device, learner, time, clip) must say the same; else name both lines.
+
+    Identical repeated rows are fine (importing them adds one observation)."""
+    if frame.empty:
+        return
+    keys = pd.DataFrame({
+        "coder": frame["coder"], "device": frame["device"].mask(frame["device"].eq(""), frame["coder"]),
+        "learner": frame["learner"], "clip": frame["clip"],
+        "start": utc_ns(pd.to_datetime(frame["time"], format="ISO8601", utc=True, errors="coerce")),
+    })
+    content = frame[dimensions + ["note", "end"]]
+    same_window = keys.duplicated(keep=False)
+    if not same_window.any():
+        return
+    rows = pd.concat([keys, content], axis=1)[same_window]
+    distinct = rows.drop_duplicates()
+    conflicting = distinct[distinct.duplicated(list(keys.columns), keep=False)]
+    if conflicting.empty:
+        return
+    first = conflicting.iloc[0]
+    clash = rows.index[(rows[list(keys.columns)] == first[list(keys.columns)]).all(axis=1)]
+    different = [i for i in clash if not rows.loc[i].equals(rows.loc[clash[0]])]
+    raise InputError(path, f"lines {lines[clash[0]]} and {lines[different[0]]}",
+                     f"two different rows for coder {first['coder']!r}, learner {first['learner']!r} at the same "
+                     "time; keep the right one and delete the other")
