@@ -109,6 +109,11 @@ def check_dimension(
 ) -> DimensionCheck:
     """The model and both baselines on the same learner-grouped folds."""
     splits = grouped_folds(labels, groups, folds, seed)
+    for train, _ in splits:
+        if labels.iloc[train].nunique() < 2:
+            raise InputError(None, f"dimension {dimension}", f"a fold of learners holds only code "
+                             f"{labels.iloc[train].iloc[0]!r}; each code needs windows of several learners "
+                             "(check fewer dimensions or code more learners)")
     scores = {}
     for name, model in (
         ("model", detector()),
@@ -131,5 +136,8 @@ def check_windows(path: Path, dimensions: list[str] | None = None, folds: int = 
         features, labels, groups = windows_xy(table, manifest, path, dimension)
         if groups.nunique() < 2:
             raise InputError(path, dimension, "needs labelled windows of at least two learners for grouped folds")
+        if labels.nunique() < 2:
+            raise InputError(path, dimension, f"every labelled window has code {labels.iloc[0]!r}; a detector "
+                             "needs at least two codes to tell apart")
         results.append(check_dimension(features, labels, groups, dimension, folds, seed))
     return results

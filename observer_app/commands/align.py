@@ -9,6 +9,7 @@ import sys
 from observer_app.pipeline.alignment import METHODS, align_study, model_summary
 from observer_app.study.folder import load_study
 from sync.errors import InputError
+from sync.plausible_values import LARGEST_OFFSET_SECONDS
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
@@ -37,6 +38,9 @@ def parse_offsets(texts: list[str]) -> dict[str, float]:
             value = math.nan
         if not sign or not device.strip() or not math.isfinite(value):
             raise InputError(None, "--set-offset", f"{text!r} is not DEVICE=SECONDS, e.g. laptop-a=31.5")
+        if abs(value) > LARGEST_OFFSET_SECONDS:
+            raise InputError(None, "--set-offset", f"{text!r}: more than {LARGEST_OFFSET_SECONDS:.0f} s (30 days) "
+                             "is a wrong date on the device, not a clock offset; fix the device's date")
         offsets[device.strip()] = value
     return offsets
 

@@ -27,6 +27,8 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     if args.folds is not None and args.folds < 2:
         raise InputError(None, "--folds", "needs at least 2 folds")
+    if not 0 <= args.seed < 2**32:
+        raise InputError(None, "--seed", f"must be a whole number from 0 to {2**32 - 1}")
     labels = read_manifest(args.windows)["label_columns"]
     for dimension in args.dimension or []:
         if dimension not in labels:

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 
 from agreement.planning import pairs_needed
@@ -28,8 +29,10 @@ def run(args: argparse.Namespace) -> int:
         shares = [float(part) for part in args.prevalence.split(",")]
     except ValueError:
         raise InputError(None, "--prevalence", "give numbers separated by commas, e.g. 0.6,0.3,0.1") from None
-    if len(shares) < 2 or min(shares) <= 0:
+    if len(shares) < 2 or not all(math.isfinite(share) and share > 0 for share in shares):
         raise InputError(None, "--prevalence", "give at least two positive shares")
+    if not 0 <= args.seed < 2**32:
+        raise InputError(None, "--seed", f"must be a whole number from 0 to {2**32 - 1}")
     if not 0 < args.kappa < 1:
         raise InputError(None, "--kappa", "must be between 0 and 1")
     if not 0 < args.width < 2:
