@@ -8,7 +8,6 @@ content (coder, device, learner, time), so importing a file twice adds nothing.
 """
 from __future__ import annotations
 
-import sqlite3
 import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -16,8 +15,8 @@ from pathlib import Path
 import pandas as pd
 
 from export.writer import file_sha256
-from observer_app.study.scheme import Scheme
-from observer_app.study.store import SCHEMA_VERSION, Store, now_utc
+from observer_app.study.foreign_store import read_foreign_store
+from observer_app.study.store import RowConflict, Store, now_utc
 from observer_app.study.folder import Study
 from sync.clock import NAT
 from sync.csv_header import check_header
@@ -53,41 +52,44 @@ def import_file(study: Study, store: Store, path: Path, *, skip_bad: bool = Fals
 
 # -- another device's store ---------------------------------------------------------
 def _import_store(study: Study, store: Store, path: Path) -> ImportResult:
+    foreign = read_foreign_store(path, study)
+    hashes = set(foreign.rows["sessions"]["scheme_hash"].astype(str))
+    foreign_hashes = sorted(hashes - {study.scheme.content_hash})
+    if foreign_hashes:
+        raise InputError(path, "sessions", f"coded with a different code scheme (hash {foreign_hashes[0]}, the study's "
+                         f"is {study.scheme.content_hash}); import it into a study with that scheme")
+    decisions = foreign.rows.pop("adjudications", None)
     try:
-        connection = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
-        version = connection.execute("PRAGMA user_version").fetchone()[0]
-        if version == 0:
-            raise InputError(path, None, "not a fieldmark observation store")
-        if version > SCHEMA_VERSION:
-            raise InputError(path, None, f"written by a newer fieldmark (schema {version}); upgrade fieldmark first")
-        hashes = {row[0] for row in connection.execute("SELECT DISTINCT scheme_hash FROM sessions")}
-        learners = {row[0] for row in connection.execute("SELECT DISTINCT learner FROM observations")}
-        codes = connection.execute("SELECT DISTINCT dimension, code FROM codes WHERE code IS NOT NULL").fetchall()
-    except sqlite3.DatabaseError as error:
-        raise InputError(path, None, f"cannot read the store ({error}); copy the file again from the device") from None
-    finally:
-        connection.close()
-    foreign = sorted(hashes - {study.scheme.content_hash})
-    if foreign:
-        raise InputError(path, "sessions", f"coded with a different code scheme (hash {foreign[0]}, the study's is "
-                         f"{study.scheme.content_hash}); import it into a study with that scheme")
-    unknown = sorted(learners - set(study.roster["learner"].dropna()))
-    if unknown:
-        raise InputError(path, "observations", f"learner {unknown[0]!r} is not in roster.csv; add them to the roster first")
-    for dimension, code in codes:
-        problem = _code_problem(study.scheme, dimension, code)
-        if problem:
-            raise InputError(path, "codes", problem)
-    added = store.merge_from(path)
-    return ImportResult(source=path, added={k: v for k, v in added.items() if v})
+        added = store.append_rows(foreign.rows)
+    except RowConflict as conflict:
+        raise InputError(path, f"table {conflict.table}", f"row {conflict.row_id} differs from the study's row with "
+                         "the same id; the file was edited, keep the study's copy") from None
+    result = ImportResult(source=path, added={k: v for k, v in added.items() if v})
+    for table, count in foreign.left_out.items():
+        result.skipped.append(f"{count} {table} rows: never imported (align fits each device's clock in the study)")
+    if decisions is not None and len(decisions):
+        _import_adjudications(study, store, path, decisions, result)
+    return result
 
 
-def _code_problem(scheme: Scheme, dimension: str, code: str) -> str | None:
-    if dimension not in scheme.dimension_names:
-        return f"dimension {dimension!r} is not in scheme.toml"
-    if code not in scheme.dimension(dimension).code_names:
-        return f"code {code!r} is not a code of dimension {dimension!r} in scheme.toml"
-    return None
+def _import_adjudications(study: Study, store: Store, path: Path, decisions: pd.DataFrame,
+                          result: ImportResult) -> None:
+    """Adjudications whose unit the study has (after this import's observations); the rest are reported."""
+    from observer_app.pipeline.reliability_data import study_units  # pairing: only when there is something to check
+
+    units, _, _ = study_units(study)
+    known = decisions["unit"].isin(set(units["unit"].astype(str)))
+    if (~known).any():
+        result.skipped.append(f"{int((~known).sum())} adjudications: their unit is not among the study's units "
+                              "(first {}); record them in the study with fieldmark adjudicate".format(
+                                  decisions.loc[~known, "unit"].iloc[0]))
+    try:
+        added = store.append_rows({"adjudications": decisions[known]})
+    except RowConflict as conflict:
+        raise InputError(path, f"table {conflict.table}", f"row {conflict.row_id} differs from the study's row with "
+                         "the same id; the file was edited, keep the study's copy") from None
+    if added.get("adjudications"):
+        result.added["adjudications"] = added["adjudications"]
 
 
 # -- CSV --------------------------------------------------------------------------

@@ -9,6 +9,7 @@ contracts of what the read side returns: observer_app/study/tables.py.
 """
 from __future__ import annotations
 
+import os
 import sqlite3
 import uuid
 from collections.abc import Iterable, Mapping
@@ -17,9 +18,25 @@ from pathlib import Path
 
 import pandas as pd
 
+from observer_app.study import row_chain
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
+
+# The imports table guarded like the rest; the hash chain's table (observer_app/study/row_chain.py).
+MIGRATION_BOUNDARY = """
+    CREATE TRIGGER imports_no_update BEFORE UPDATE ON imports
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER imports_no_delete BEFORE DELETE ON imports
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TABLE row_chain (
+        seq INTEGER PRIMARY KEY, table_name TEXT NOT NULL, row_id INTEGER NOT NULL,
+        columns TEXT NOT NULL, link TEXT NOT NULL);
+    CREATE TRIGGER row_chain_no_update BEFORE UPDATE ON row_chain
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER row_chain_no_delete BEFORE DELETE ON row_chain
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+"""
 
 # Forward migrations: MIGRATIONS[n] takes a store from version n to n + 1.
 MIGRATIONS: tuple[str, ...] = (
@@ -79,12 +96,15 @@ MIGRATIONS: tuple[str, ...] = (
     CREATE TRIGGER window_closures_no_delete BEFORE DELETE ON window_closures
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
     """,
+    MIGRATION_BOUNDARY,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
+CHAIN_VERSION = MIGRATIONS.index(MIGRATION_BOUNDARY) + 1  # the version from which stores carry the hash chain
+STORE_MODE = 0o600  # owner-only, like secret.key: the store holds who was observed doing what
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
-    "adjudications", "clock_models", "imports", "window_closures",
+    "adjudications", "clock_models", "imports", "window_closures", "row_chain",
 )
 
 
@@ -118,16 +138,28 @@ class Store:
 
     def __init__(self, path: str | Path) -> None:
         self.path = Path(path)
+        if not self.path.exists():
+            # SQLite gives the -wal and -shm files the database file's permissions.
+            os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, STORE_MODE))
         self._connection = sqlite3.connect(self.path, timeout=30.0, isolation_level=None)
+        row_chain.register(self._connection)
         self._connection.execute("PRAGMA busy_timeout = 30000")
         self._connection.execute("PRAGMA journal_mode = WAL")
         self._connection.execute("PRAGMA synchronous = FULL")
         self._connection.execute("PRAGMA foreign_keys = ON")
+        # REPLACE deletes the conflicting row; with recursive triggers that delete fires the
+        # append-only guard, so INSERT OR REPLACE is refused instead of overwriting a row.
+        self._connection.execute("PRAGMA recursive_triggers = ON")
         self._migrate()
 
     # -- lifecycle --------------------------------------------------------------
     def close(self) -> None:
+        self.checkpoint()
         self._connection.close()
+
+    def checkpoint(self) -> None:
+        """Move the write-ahead log into the store file, so a copy of the file alone holds every code."""
+        self._connection.execute("PRAGMA wal_checkpoint(TRUNCATE)")
 
     def __enter__(self) -> Store:
         return self
@@ -149,6 +181,7 @@ class Store:
                 for statement in _statements(MIGRATIONS[step]):
                     cursor.execute(statement)
                 cursor.execute(f"PRAGMA user_version = {step + 1}")
+            row_chain.ensure_chain(cursor, adopt_existing_rows=version < CHAIN_VERSION)
 
     def _transaction(self):
         return _Transaction(self._connection)
@@ -175,6 +208,7 @@ class Store:
     def end_session(self, session_id: str, ended_at: datetime) -> None:
         with self._transaction() as cursor:
             cursor.execute("INSERT OR IGNORE INTO session_ends VALUES (?,?)", (session_id, to_ns(ended_at)))
+        self.checkpoint()
 
     def record_code(
         self, *, observation_id: str, session_id: str, learner: str, window_start: datetime,
@@ -277,9 +311,8 @@ class Store:
                      for o, text, entered in zip(observations["observation_id"], notes, coded_ns) if text]
         with self._transaction() as cursor:
             cursor.executemany("INSERT OR IGNORE INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)", session_rows)
-            before = cursor.connection.total_changes
             cursor.executemany("INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)", observation_rows)
-            added = cursor.connection.total_changes - before
+            added = max(cursor.rowcount, 0)  # direct inserts only (total_changes would count the chain's rows too)
             cursor.executemany("INSERT OR IGNORE INTO codes VALUES (?,?,?,?,?,NULL)", code_rows)
             cursor.executemany("INSERT OR IGNORE INTO notes VALUES (?,?,?,?)", note_rows)
         return added
@@ -329,25 +362,33 @@ class Store:
         with self._transaction() as cursor:
             cursor.execute("INSERT OR IGNORE INTO imports VALUES (?,?,?)", (content_hash, source, to_ns(at)))
 
-    def merge_from(self, other: Path) -> dict[str, int]:
-        """Copy every row of another store that this one lacks (idempotent: ids are keys).
+    def append_rows(self, rows: Mapping[str, pd.DataFrame]) -> dict[str, int]:
+        """Rows of other stores, table by table in one transaction: new ids added, known ids left alone.
 
-        Codes keep their relative order, so the other device's corrections still win
-        over the codes they corrected.
+        Columns are named (never positional), rows keep their order (so corrections still
+        follow what they correct).  A row whose id the store holds with other content is
+        a conflict: nothing is written and ``RowConflict`` names it.
         """
         counts: dict[str, int] = {}
-        self._connection.execute("ATTACH DATABASE ? AS other", (str(other),))
-        try:
-            present = {row[0] for row in self._connection.execute("SELECT name FROM other.sqlite_master WHERE type = 'table'")}
-            with self._transaction() as cursor:
-                for table in APPEND_ONLY_TABLES:
-                    if table == "imports" or table not in present:  # an older store lacks newer tables
-                        continue
-                    before = cursor.connection.total_changes
-                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} SELECT * FROM other.{table} ORDER BY rowid")
-                    counts[table] = cursor.connection.total_changes - before
-        finally:
-            self._connection.execute("DETACH DATABASE other")
+        with self._transaction() as cursor:
+            for table, frame in rows.items():
+                if frame.empty:
+                    continue
+                columns = list(frame.columns)
+                key = columns[0]
+                records = list(frame.astype(object).where(frame.notna(), None).itertuples(index=False, name=None))
+                stored = {}
+                for start in range(0, len(records), 500):
+                    keys = [record[0] for record in records[start:start + 500]]
+                    marks = ",".join("?" * len(keys))
+                    stored.update({row[0]: row for row in cursor.execute(
+                        f'SELECT {", ".join(columns)} FROM "{table}" WHERE "{key}" IN ({marks})', keys)})
+                for record in records:
+                    if record[0] in stored and tuple(stored[record[0]]) != tuple(record):
+                        raise RowConflict(table, str(record[0]))
+                cursor.executemany(f'INSERT OR IGNORE INTO "{table}" ({", ".join(columns)}) '
+                                   f'VALUES ({",".join("?" * len(columns))})', records)
+                counts[table] = max(cursor.rowcount, 0)
         return counts
 
     # -- read side --------------------------------------------------------------
@@ -455,6 +496,14 @@ class Store:
         frame = self._frame("SELECT code_id, observation_id, dimension, code, entered_ns, supersedes FROM codes ORDER BY rowid")
         frame["entered_at"] = _times(frame.pop("entered_ns"))
         return frame
+
+
+class RowConflict(Exception):
+    """Another store holds a row with an id this store has, but different content."""
+
+    def __init__(self, table: str, row_id: str) -> None:
+        self.table, self.row_id = table, row_id
+        super().__init__(f"{table} row {row_id} differs from the row with the same id already stored")
 
 
 def _statements(script: str) -> list[str]:

@@ -316,7 +316,6 @@ def _store_cases() -> list[Case]:
                                      "SELECT n FROM r;"),
         "store_view_shadowing": _sql("CREATE VIEW codes_view AS SELECT * FROM codes;"),
         "store_extra_trigger": _sql("CREATE TRIGGER sneaky AFTER INSERT ON notes BEGIN SELECT 1; END;"),
-        "store_columns_reordered": _rebuild_observations_reordered,
         "store_unknown_learner": _sql(_drop_guards("observations") + "UPDATE observations SET learner = 'L99' "
                                       "WHERE rowid = 1;"),
         "store_empty_learner": _sql(_drop_guards("observations") + "UPDATE observations SET learner = '' WHERE rowid = 1;"),
@@ -333,25 +332,32 @@ def _store_cases() -> list[Case]:
         "store_newer_schema": _sql("PRAGMA user_version = 999;"),
         "store_no_version": _sql("PRAGMA user_version = 0;"),
         "store_missing_table": _sql("DROP TABLE notes;"),
-        "store_adjudication_unknown_unit": _sql("INSERT INTO adjudications VALUES ('a1', 'no-such-unit', 'activity', "
-                                                "'on_task', 'lead', 1, '');"),
+        "store_adjudication_in_1989": _sql("INSERT INTO adjudications VALUES ('a1', 'x', 'activity', "
+                                           "'on_task', 'lead', 1, '');"),
         "store_adjudication_future": _sql("INSERT INTO adjudications VALUES ('a2', 'x', 'activity', 'on_task', 'lead', "
                                           "9000000000000000000, '');"),
         "store_adjudication_unknown_code": _sql("INSERT INTO adjudications VALUES ('a3', 'x', 'activity', 'dancing', "
-                                                "'lead', 1, '');"),
+                                                "'lead', 1780000000000000000, '');"),
         "store_code_dimension_unknown": _sql(_drop_guards("codes") + "UPDATE codes SET dimension = 'mood' WHERE rowid = 1;"),
     }
     cases = [Case(name, ("import", "{study}", "{input}"), {"{input}": _foreign_store(build)}, needles=("input.sqlite",),
                   input_name="input.sqlite") for name, build in variants.items()]
+    cases.append(Case("store_columns_reordered_read_by_name_accepted", ("import", "{study}", "{input}"),
+                      {"{input}": _foreign_store(_rebuild_observations_reordered)}, expect="accepted",
+                      input_name="input.sqlite"))
     cases.append(Case("store_truncated", ("import", "{study}", "{input}"),
                       {"{input}": lambda p: p.write_bytes((DEMO_STUDY / "observations.sqlite").read_bytes()[:5000])},
                       needles=("input.sqlite",), input_name="input.sqlite"))
     cases.append(Case("store_header_only", ("import", "{study}", "{input}"),
                       {"{input}": b"SQLite format 3\x00" + b"\x00" * 84}, needles=("input.sqlite",),
                       input_name="input.sqlite"))
-    cases.append(Case("store_clock_model_not_imported", ("import", "{study}", "{input}"),
+    cases.append(Case("store_clock_model_left_out_accepted", ("import", "{study}", "{input}"),
                       {"{input}": _foreign_store(_sql("INSERT INTO clock_models VALUES ('m1', 'laptop-a', '{}', 1);"))},
-                      needles=("input.sqlite",), input_name="input.sqlite"))
+                      expect="accepted", input_name="input.sqlite"))
+    cases.append(Case("store_adjudication_unknown_unit_left_out_accepted", ("import", "{study}", "{input}"),
+                      {"{input}": _foreign_store(_sql("INSERT INTO adjudications VALUES ('a1', 'no-such-unit', "
+                                                      "'activity', 'on_task', 'lead', 1780000000000000000, '');"))},
+                      expect="accepted", input_name="input.sqlite"))
     return cases
 
 
