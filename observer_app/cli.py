@@ -26,6 +26,7 @@ COMMANDS: tuple[str, ...] = (
     "observer_app.commands.plan",
     "observer_app.commands.export",
     "observer_app.commands.check",
+    "observer_app.commands.verify",
     "demo_sessions.command",
 )
 
@@ -43,6 +44,7 @@ SUMMARIES: dict[str, tuple[str, str]] = {
     "observer_app.commands.plan": ("plan", "paired observations needed for a kappa interval of a given width"),
     "observer_app.commands.export": ("export", "labelled, de-identified windows (Parquet or CSV) and a manifest"),
     "observer_app.commands.check": ("check", "grouped cross-validated detector check of exported windows"),
+    "observer_app.commands.verify": ("verify", "check the observation store against its hash chain"),
     "demo_sessions.command": ("demo", "build the demo study and run every step on it"),
 }
 
