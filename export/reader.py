@@ -43,8 +43,10 @@ def read_manifest(path: Path) -> dict:
             raise InputError(beside, None, "manifest missing; it must lie beside the CSV written by fieldmark export")
         manifest = check_manifest(_json(beside.read_bytes(), beside), beside)
     if beside.is_file():
-        _check_data_digest(path, beside, manifest if path.suffix.lower() != ".parquet"
-                           else check_manifest(_json(beside.read_bytes(), beside), beside))
+        described = manifest if path.suffix.lower() != ".parquet" else check_manifest(_json(beside.read_bytes(), beside),
+                                                                                     beside)
+        if described["format"] == manifest["format"]:  # windows.csv and windows.parquet share one manifest name
+            _check_data_digest(path, beside, described)
     return manifest
 
 
@@ -72,8 +74,9 @@ def check_manifest(manifest: object, path: Path) -> dict:
     for key in ("label_columns", "feature_columns"):
         if not all(isinstance(name, str) for name in manifest[key]):
             raise InputError(path, key, "must list column names as text; export the windows again")
-    if not manifest["label_columns"]:
-        raise InputError(path, "label_columns", "lists no label column; export the windows again")
+    for key in ("label_columns", "feature_columns"):
+        if not manifest[key]:
+            raise InputError(path, key, "lists no column; export the windows again")
     if manifest["format"] not in FORMATS:
         raise InputError(path, "format", f"{manifest['format']!r} is not one of {', '.join(FORMATS)}")
     digest = manifest.get(DATA_DIGEST_KEY)

@@ -20,6 +20,8 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 
+from observer_app.study.store import Store
+
 ROOT = Path(__file__).resolve().parents[2]
 DEMO_STUDY = ROOT / "demo_sessions" / "copy" / "study"
 BOM = b"\xef\xbb\xbf"
@@ -101,6 +103,7 @@ def make_study(folder: Path) -> Path:
         log.unlink()
     (folder / "logs" / "tiny.csv").write_text(GOOD_LOG)
     (folder / "study.toml").write_text(STUDY_HEAD + CSV_LOG_ENTRY.format(name="tiny.csv"))
+    Store(folder / "observations.sqlite").close()  # migrated now, so a refused run has nothing to migrate
     return folder
 
 

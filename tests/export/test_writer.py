@@ -73,6 +73,8 @@ def test_manifest_records_how_the_file_was_made(exported) -> None:
     assert manifest["feature_columns"] == result.feature_columns
     assert set(manifest["feature_definitions"]) >= {"activity", "pacing", "history", "persistence"}
     embedded = json.loads(pq.read_schema(path).metadata[b"fieldmark"])
+    # The manifest beside the data also records the data file's SHA-256 (a file cannot hold its own hash).
+    assert manifest.pop(writer.DATA_DIGEST_KEY) == writer.file_sha256(path)
     assert embedded == manifest
 
 
