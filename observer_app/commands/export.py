@@ -53,6 +53,9 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
                         help="an action this soon after the previous one is rapid (default %(default)s)")
     parser.add_argument("--top-actions", type=int, default=defaults.top_actions, metavar="K",
                         help="one count column for each of the K most frequent actions (default %(default)s)")
+    parser.add_argument("--attribute", action="append", metavar="COLUMN",
+                        help="export this roster column (repeatable; default: [export] attributes in study.toml, "
+                             "else none). Identifying columns and groups of fewer than 5 learners are refused")
     parser.add_argument("--keep-ids", action="store_true",
                         help="export raw learner ids and log ids instead of pseudonyms (explicit opt-in)")
     parser.add_argument("--force", action="store_true", help="replace FILE (and its manifest) if they exist")
@@ -74,7 +77,8 @@ def run(args: argparse.Namespace) -> int:
         error_outcomes=_names(args.error_outcomes), success_outcomes=_names(args.success_outcomes),
     )
     settings = ExportSettings(features=features, policy=args.labels,
-                              keep_could_not_observe=args.keep_could_not_observe, keep_ids=args.keep_ids)
+                              keep_could_not_observe=args.keep_could_not_observe, keep_ids=args.keep_ids,
+                              attributes=tuple(args.attribute) if args.attribute else study.export_attributes)
     window = WindowChoice(anchor=args.anchor, before_s=args.before, after_s=args.after)
     summary = export_study(args.study, args.out, output_format, window, settings, progress=False if args.json else None)
     if args.json:

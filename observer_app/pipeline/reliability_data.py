@@ -16,6 +16,7 @@ from agreement.dimensions import Dimension
 from agreement.pairing import pair_observations
 from observer_app.pipeline.alignment import stored_clock_models
 from observer_app.study.scheme import Scheme
+from observer_app.study.scheme_binding import check_scheme_binding
 from observer_app.study.store import Store
 from observer_app.study.folder import Study, load_study
 from sync.clock import ClockModel
@@ -56,6 +57,7 @@ def study_units(study: Study) -> tuple[pd.DataFrame, list[Dimension], dict[str, 
     dimensions = scheme_dimensions(study.scheme)
     names = [dimension.name for dimension in dimensions]
     with Store(study.store_path) as store:
+        check_scheme_binding(study, store)
         observations = store.observations(names)
     models = stored_clock_models(study)
     live_devices = set(observations.loc[observations["mode"] == "live", "device"].astype(str))

@@ -16,13 +16,14 @@ from tqdm import tqdm
 
 from agreement.pairing import pair_observations
 from export.labelled_windows import ExportSettings, label_windows
-from export.pseudonyms import read_secret_key
+from export.pseudonyms import pseudonym, read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
 from observer_app.pipeline.alignment import read_study_logs, stored_clock_models
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
+from observer_app.study.scheme_binding import check_scheme_binding
 from sync.clock import ClockModel
 from sync.errors import InputError
 from sync.windows import observations_to_windows
@@ -60,6 +61,7 @@ def export_study(
         dimensions = list(study.scheme.dimension_names)
         could_not_observe = {dimension.name: dimension.could_not_observe for dimension in study.scheme.dimensions}
         with Store(study.store_path) as store:
+            check_scheme_binding(study, store)
             observations = store.observations(dimensions)
             adjudications = store.adjudications()
         if observations.empty:
@@ -99,7 +101,7 @@ def export_study(
         }
         manifest = build_manifest(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
-            clock_models=[clock_summary(model) for model in models.values()],
+            clock_models=[clock_summary(model, key) for model in models.values()],
             inputs=file_digests(*zip(*inputs)), output_format=output_format,
         )
         beside = write_windows(result, out, manifest)
@@ -112,7 +114,11 @@ def export_study(
     }
 
 
-def clock_summary(model: ClockModel) -> dict:
+def clock_summary(model: ClockModel, key: bytes | None = None) -> dict:
     """What the manifest keeps of a clock model: the fit, not its evidence (the sync
-    marks' residuals name learners, so they stay in the study)."""
-    return {key: value for key, value in json.loads(model.to_json()).items() if key in CLOCK_SUMMARY_KEYS}
+    marks' residuals name learners, so they stay in the study).  With the study's key
+    the device name is pseudonymised (device names often carry a coder's name)."""
+    summary = {name: value for name, value in json.loads(model.to_json()).items() if name in CLOCK_SUMMARY_KEYS}
+    if key is not None and "device" in summary:
+        summary["device"] = pseudonym(str(summary["device"]), key)
+    return summary

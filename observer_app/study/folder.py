@@ -21,7 +21,8 @@ ROSTER_FILE = "roster.csv"
 STORE_FILE = "observations.sqlite"
 KEY_FILE = "secret.key"
 ORDERS = ("fixed", "shuffled")
-_SECTIONS = {"study", "schedule", "logs"}
+_SECTIONS = {"study", "schedule", "logs", "export"}
+_EXPORT_KEYS = {"attributes"}
 _STUDY_KEYS = {"name", "timezone", "description"}
 _SCHEDULE_KEYS = {"window_seconds", "order", "seed"}
 
@@ -38,6 +39,7 @@ class Study:
     roster: pd.DataFrame
     logs: tuple[LogSpec, ...]
     warnings: tuple[str, ...] = field(default=())
+    export_attributes: tuple[str, ...] = field(default=())  # roster columns allowed into exports
 
     @property
     def store_path(self) -> Path:
@@ -98,9 +100,19 @@ def load_study(directory: str | Path) -> Study:
     if not isinstance(logs, list) or not all(isinstance(entry, dict) for entry in logs):
         raise InputError(path, "logs", "each log must be a [[logs]] table")
     specs = tuple(log_spec_from_toml(entry, directory, number) for number, entry in enumerate(logs, start=1))
+    export = raw.get("export", {})
+    if not isinstance(export, dict):
+        raise InputError(path, "export", "must be an [export] table, e.g. attributes = [\"site\"]")
+    unknown = sorted(set(export) - _EXPORT_KEYS)
+    if unknown:
+        raise InputError(path, f"export.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_EXPORT_KEYS))}")
+    attributes = export.get("attributes", [])
+    if not isinstance(attributes, list) or not all(isinstance(name, str) and name for name in attributes):
+        raise InputError(path, "export.attributes", "must be a list of roster column names, e.g. [\"site\", \"cohort\"]")
     scheme = load_scheme(directory / SCHEME_FILE)
     roster, warnings = load_roster(directory / ROSTER_FILE)
     return Study(
         dir=directory, name=str(name), timezone=timezone, window_seconds=float(window), order=order,
         seed=seed, scheme=scheme, roster=roster, logs=specs, warnings=tuple(warnings),
+        export_attributes=tuple(attributes),
     )

@@ -52,12 +52,9 @@ def import_file(study: Study, store: Store, path: Path, *, skip_bad: bool = Fals
 
 # -- another device's store ---------------------------------------------------------
 def _import_store(study: Study, store: Store, path: Path) -> ImportResult:
+    # Every code is checked against the scheme (foreign_store), not the scheme's hash: a device whose scheme
+    # differs only in labels, keys or colours codes the same thing (observer_app/study/scheme_binding.py).
     foreign = read_foreign_store(path, study)
-    hashes = set(foreign.rows["sessions"]["scheme_hash"].astype(str))
-    foreign_hashes = sorted(hashes - {study.scheme.content_hash})
-    if foreign_hashes:
-        raise InputError(path, "sessions", f"coded with a different code scheme (hash {foreign_hashes[0]}, the study's "
-                         f"is {study.scheme.content_hash}); import it into a study with that scheme")
     decisions = foreign.rows.pop("adjudications", None)
     try:
         added = store.append_rows(foreign.rows)

@@ -52,8 +52,8 @@ def test_keep_ids_is_an_explicit_opt_in_that_exports_them(tmp_path, output_forma
     assert b"Bench 1" not in data                                                   # roster labels never, even then
 
 
-def test_roster_attributes_labels_and_sources_are_exported(exported) -> None:
-    path, result = exported
+def test_roster_attributes_labels_and_sources_are_exported(tmp_path) -> None:
+    path, result = export_file(tmp_path, attributes=("site", "cohort"))  # attributes leave only when listed
     table, manifest = reader.read_windows(path)
     assert {"site", "cohort", "activity", "affect", "label_source_activity", "label_source_affect"} <= set(table.columns)
     assert manifest["attribute_columns"] == ["site", "cohort"]

@@ -1,0 +1,36 @@
+"""Is scheme.toml still the scheme the store was coded with?  Compatibility, not identity.
+
+Why not the scheme's hash: a changed label, key or colour changes the hash but not what
+any stored code means, so refusing it blocks honest edits.  What breaks the data is a
+code (or dimension) that was coded and is no longer in scheme.toml -- removed or
+renamed: every stored use of it would silently drop out of agreement and export.  So
+every verb that reads codes checks that each current code and adjudicated code is
+still in the scheme, and refuses with the code, its count and what to do.
+"""
+from __future__ import annotations
+
+from observer_app.study.folder import SCHEME_FILE, Study
+from observer_app.study.store import Store
+from sync.errors import InputError
+
+
+def check_scheme_binding(study: Study, store: Store) -> None:
+    """InputError naming the first coded (dimension, code) that scheme.toml no longer has, with its count."""
+    trail = store.codes_log()
+    current = trail.drop_duplicates(["observation_id", "dimension"], keep="last")
+    used = current.loc[current["code"].notna(), ["dimension", "code"]]
+    decisions = store.adjudications()[["dimension", "code"]]
+    for frame, what in ((used, "coded"), (decisions, "adjudicated")):
+        if frame.empty:
+            continue
+        counts = frame.astype(str).value_counts(sort=False).sort_index()
+        allowed = {dimension.name: set(dimension.code_names) for dimension in study.scheme.dimensions}
+        for (dimension, code), count in counts.items():
+            if dimension not in allowed:
+                raise InputError(study.dir / SCHEME_FILE, f"dimension {dimension}",
+                                 f"was {what} {count} times in the store but is not in scheme.toml; put the dimension "
+                                 "back (labels, keys and colours may change, names may not)")
+            if code not in allowed[dimension]:
+                raise InputError(study.dir / SCHEME_FILE, f"dimension {dimension}",
+                                 f"code {code!r} was {what} {count} times in the store but is not in scheme.toml; put "
+                                 "it back under its old name (labels, keys and colours may change, names may not)")
