@@ -30,6 +30,7 @@ from sync.errors import InputError
 from sync.plausible_values import FIRST_NS, LAST_NS, LONGEST_WINDOW_SECONDS, RANGE_TEXT
 
 TIME_LIMIT_SECONDS = 60.0
+PROGRESS_STEPS = 10_000  # SQLite instructions between two looks at the clock
 # Tables whose rows come into the study, in an order that keeps references valid.
 IMPORTED_TABLES: tuple[str, ...] = ("sessions", "session_ends", "observations", "codes", "notes", "sync_marks",
                                     "absences", "window_closures", "adjudications")
@@ -91,7 +92,7 @@ def read_foreign_store(path: Path, study: Study | None) -> ForeignRows:
         except sqlite3.Error as error:
             raise InputError(path, None, f"cannot be opened ({error}); copy the file again from the device") from None
         deadline = time.monotonic() + TIME_LIMIT_SECONDS
-        connection.set_progress_handler(lambda: int(time.monotonic() > deadline), 10_000)
+        connection.set_progress_handler(lambda: int(time.monotonic() > deadline), PROGRESS_STEPS)
         try:
             connection.execute("PRAGMA trusted_schema = OFF")
             return _read(connection, path, study)
