@@ -20,6 +20,7 @@ import pandas as pd
 
 from observer_app.study import row_chain
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
+from sync.errors import InputError
 
 SCHEMA_VERSION = 3
 
@@ -141,16 +142,20 @@ class Store:
         if not self.path.exists():
             # SQLite gives the -wal and -shm files the database file's permissions.
             os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, STORE_MODE))
-        self._connection = sqlite3.connect(self.path, timeout=30.0, isolation_level=None)
-        row_chain.register(self._connection)
-        self._connection.execute("PRAGMA busy_timeout = 30000")
-        self._connection.execute("PRAGMA journal_mode = WAL")
-        self._connection.execute("PRAGMA synchronous = FULL")
-        self._connection.execute("PRAGMA foreign_keys = ON")
-        # REPLACE deletes the conflicting row; with recursive triggers that delete fires the
-        # append-only guard, so INSERT OR REPLACE is refused instead of overwriting a row.
-        self._connection.execute("PRAGMA recursive_triggers = ON")
-        self._migrate()
+        try:
+            self._connection = sqlite3.connect(self.path, timeout=30.0, isolation_level=None)
+            row_chain.register(self._connection)
+            self._connection.execute("PRAGMA busy_timeout = 30000")
+            self._connection.execute("PRAGMA journal_mode = WAL")
+            self._connection.execute("PRAGMA synchronous = FULL")
+            self._connection.execute("PRAGMA foreign_keys = ON")
+            # REPLACE deletes the conflicting row; with recursive triggers that delete fires the
+            # append-only guard, so INSERT OR REPLACE is refused instead of overwriting a row.
+            self._connection.execute("PRAGMA recursive_triggers = ON")
+            self._migrate()
+        except sqlite3.DatabaseError as error:
+            raise InputError(self.path, None, f"cannot be opened as an observation store ({error}); restore it "
+                             "from a backup or a device's copy") from None
 
     # -- lifecycle --------------------------------------------------------------
     def close(self) -> None:
@@ -175,8 +180,8 @@ class Store:
         with self._transaction() as cursor:
             version = int(cursor.execute("PRAGMA user_version").fetchone()[0])
             if version > SCHEMA_VERSION:
-                raise RuntimeError(
-                    f"{self.path} was written by a newer fieldmark (schema {version}); upgrade fieldmark")
+                raise InputError(self.path, None, f"was written by a newer fieldmark (schema {version}); "
+                                 "upgrade fieldmark")
             for step in range(version, SCHEMA_VERSION):
                 for statement in _statements(MIGRATIONS[step]):
                     cursor.execute(statement)

@@ -114,7 +114,13 @@ def snapshot(folder: Path) -> dict[str, str]:
 
 
 def store_rows(store: Path) -> dict[str, int]:
-    """Row counts per table: a refused run must leave every one as it was."""
+    """Row counts per table: a refused run must leave every one as it was (a damaged store: its bytes' hash)."""
+    try:
+        with sqlite3.connect(f"file:{store}?mode=ro", uri=True) as connection:
+            connection.execute("SELECT count(*) FROM sqlite_master").fetchone()
+    except sqlite3.DatabaseError:
+        content = store.read_bytes() if store.is_file() else b"not a file"
+        return {"unreadable": hashlib.sha256(content).hexdigest()}  # type: ignore[dict-item]
     with sqlite3.connect(f"file:{store}?mode=ro", uri=True) as connection:
         tables = [row[0] for row in connection.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
         return {table: connection.execute(f'SELECT count(*) FROM "{table}"').fetchone()[0] for table in tables}
@@ -594,10 +600,43 @@ def _key_cases() -> list[Case]:
     ]
 
 
+def _study_store_cases() -> list[Case]:
+    def newer(path: Path) -> None:
+        connection = sqlite3.connect(path)
+        connection.execute("PRAGMA user_version = 999")
+        connection.close()
+    return [
+        Case("study_store_newer_schema", ("agree", "{study}"), {"observations.sqlite": newer},
+             needles=("observations.sqlite", "newer fieldmark")),
+        Case("study_store_not_a_database", ("export", "{study}", "--out", "{out}"),
+             {"observations.sqlite": b"this is not a store" * 20}, needles=("observations.sqlite",)),
+        Case("study_store_is_folder", ("import", "{study}", "{input}"),
+             {"observations.sqlite": lambda p: (p.unlink(), p.mkdir()), "{input}": OBSERVATION_HEADER + GOOD_OBSERVATION},
+             needles=("observations.sqlite",)),
+    ]
+
+
+def _verify_cases() -> list[Case]:
+    verify = ("verify", "{input}")
+    return [
+        Case("verify_not_a_database", verify, {"{input}": b"not a store at all" * 10}, needles=("input.sqlite",),
+             input_name="input.sqlite"),
+        Case("verify_missing", verify, {}, needles=("input.sqlite",), input_name="input.sqlite"),
+        Case("verify_folder_without_store", verify, {"{input}": _make_folder}, needles=("input",), input_name="input"),
+        Case("verify_truncated", verify,
+             {"{input}": lambda p: p.write_bytes((DEMO_STUDY / "observations.sqlite").read_bytes()[:8192])},
+             needles=("input.sqlite",), input_name="input.sqlite"),
+        Case("verify_store_without_chain", verify,
+             {"{input}": lambda p: shutil.copyfile(DEMO_STUDY / "observations.sqlite", p)},
+             needles=("input.sqlite", "no hash chain"), input_name="input.sqlite"),
+    ]
+
+
 def all_cases() -> list[Case]:
     return (_study_cases() + _scheme_cases() + _roster_cases() + _observation_csv_cases() + _store_cases()
             + _csv_log_cases() + _parquet_log_cases() + _xapi_cases() + _adjudication_cases() + _long_cases()
-            + _windows_cases() + _option_cases() + _key_cases())
+            + _windows_cases() + _option_cases() + _key_cases() + _verify_cases()
+            + _study_store_cases())
 
 
 def materialise(case: Case, study: Path, outside: Path) -> tuple[list[str], Path]:

@@ -18,7 +18,7 @@ def test_the_corpus_is_large_and_covers_every_verb() -> None:
     assert len(CASES) >= 150
     assert len({case.name for case in CASES}) == len(CASES)
     verbs = {case.argv[0] for case in CASES}
-    assert verbs >= {"import", "align", "agree", "adjudicate", "export", "check", "plan"}
+    assert verbs >= {"import", "align", "agree", "adjudicate", "export", "check", "plan", "verify"}
 
 
 @pytest.fixture(scope="module")

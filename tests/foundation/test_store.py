@@ -11,6 +11,7 @@ import pytest
 from observer_app.study.foreign_store import read_foreign_store
 from observer_app.study.store import SCHEMA_VERSION, Store
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
+from sync.errors import InputError
 
 T0 = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)
 
@@ -94,7 +95,7 @@ def test_a_store_from_a_newer_version_is_refused(tmp_path: Path) -> None:
     connection = sqlite3.connect(path)
     connection.execute(f"PRAGMA user_version = {SCHEMA_VERSION + 1}")
     connection.close()
-    with pytest.raises(RuntimeError, match="newer fieldmark"):
+    with pytest.raises(InputError, match="newer fieldmark"):
         Store(path)
 
 
