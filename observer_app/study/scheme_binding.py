@@ -5,7 +5,9 @@ any stored code means, so refusing it blocks honest edits.  What breaks the data
 code (or dimension) that was coded and is no longer in scheme.toml -- removed or
 renamed: every stored use of it would silently drop out of agreement and export.  So
 every verb that reads codes checks that each current code and adjudicated code is
-still in the scheme, and refuses with the code, its count and what to do.
+still in the scheme, and refuses with the code, its count and what to do.  A rename or
+a merge is a decision a person records (``fieldmark recode``), applied when codes are
+read; the rows as coded stay in the audit trail.
 """
 from __future__ import annotations
 
@@ -18,7 +20,7 @@ def check_scheme_binding(study: Study, store: Store) -> None:
     """InputError naming the first coded (dimension, code) that scheme.toml no longer has, with its count."""
     trail = store.codes_log()
     current = trail.drop_duplicates(["observation_id", "dimension"], keep="last")
-    used = current.loc[current["code"].notna(), ["dimension", "code"]]
+    used = store.apply_code_mappings(current.loc[current["code"].notna(), ["dimension", "code"]].copy())
     decisions = store.adjudications()[["dimension", "code"]]
     for frame, what in ((used, "coded"), (decisions, "adjudicated")):
         if frame.empty:
@@ -33,4 +35,5 @@ def check_scheme_binding(study: Study, store: Store) -> None:
             if code not in allowed[dimension]:
                 raise InputError(study.dir / SCHEME_FILE, f"dimension {dimension}",
                                  f"code {code!r} was {what} {count} times in the store but is not in scheme.toml; put "
-                                 "it back under its old name (labels, keys and colours may change, names may not)")
+                                 "it back under its old name (labels, keys and colours may change, names may not), or "
+                                 f"record a rename: fieldmark recode STUDY {dimension} {code} NEW_NAME")

@@ -24,7 +24,8 @@ from sync.errors import InputError
 
 SCHEMA_VERSION = 3
 
-# The imports table guarded like the rest; the hash chain's table (observer_app/study/row_chain.py).
+# The imports table guarded like the rest; the hash chain's table (observer_app/study/row_chain.py);
+# code renames and merges as recorded decisions (fieldmark recode), applied when codes are read.
 MIGRATION_BOUNDARY = """
     CREATE TRIGGER imports_no_update BEFORE UPDATE ON imports
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
@@ -36,6 +37,13 @@ MIGRATION_BOUNDARY = """
     CREATE TRIGGER row_chain_no_update BEFORE UPDATE ON row_chain
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
     CREATE TRIGGER row_chain_no_delete BEFORE DELETE ON row_chain
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TABLE code_mappings (
+        mapping_id TEXT PRIMARY KEY, dimension TEXT NOT NULL, old_code TEXT NOT NULL, new_code TEXT NOT NULL,
+        at_ns INTEGER NOT NULL, reason TEXT NOT NULL DEFAULT '');
+    CREATE TRIGGER code_mappings_no_update BEFORE UPDATE ON code_mappings
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER code_mappings_no_delete BEFORE DELETE ON code_mappings
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
 """
 
@@ -105,7 +113,7 @@ STORE_MODE = 0o600  # owner-only, like secret.key: the store holds who was obser
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
-    "adjudications", "clock_models", "imports", "window_closures", "row_chain",
+    "adjudications", "clock_models", "imports", "window_closures", "row_chain", "code_mappings",
 )
 
 
@@ -363,6 +371,28 @@ class Store:
             cursor.execute("INSERT INTO clock_models VALUES (?,?,?,?)", (model_id, device, model_json, to_ns(at)))
         return model_id
 
+    def record_code_mapping(self, *, dimension: str, old_code: str, new_code: str, at: datetime,
+                            reason: str = "") -> str:
+        """From now on every stored ``old_code`` of ``dimension`` reads as ``new_code`` (a rename or a merge)."""
+        mapping_id = new_id()
+        with self._transaction() as cursor:
+            cursor.execute("INSERT INTO code_mappings VALUES (?,?,?,?,?,?)",
+                           (mapping_id, dimension, old_code, new_code, to_ns(at), reason))
+        return mapping_id
+
+    def code_mappings(self) -> pd.DataFrame:
+        """Every recorded rename or merge, oldest first: dimension, old_code, new_code, at, reason."""
+        frame = self._frame("SELECT dimension, old_code, new_code, at_ns, reason FROM code_mappings ORDER BY rowid")
+        frame["at"] = _times(frame.pop("at_ns"))
+        return frame
+
+    def apply_code_mappings(self, frame: pd.DataFrame) -> pd.DataFrame:
+        """``frame`` (dimension, code columns) with the recorded mappings applied in the order they were made."""
+        for dimension, old, new in self._connection.execute(
+                "SELECT dimension, old_code, new_code FROM code_mappings ORDER BY rowid"):
+            frame.loc[(frame["dimension"] == dimension) & (frame["code"] == old), "code"] = new
+        return frame
+
     def record_import(self, content_hash: str, source: str, at: datetime) -> None:
         with self._transaction() as cursor:
             cursor.execute("INSERT OR IGNORE INTO imports VALUES (?,?,?)", (content_hash, source, to_ns(at)))
@@ -436,6 +466,7 @@ class Store:
             "SELECT c.observation_id, c.dimension, c.code, c.entered_ns, "
             "(SELECT count(*) FROM codes d WHERE d.observation_id = c.observation_id AND d.dimension = c.dimension) AS versions "
             "FROM codes c WHERE c.rowid IN (SELECT max(rowid) FROM codes GROUP BY observation_id, dimension)")
+        codes = self.apply_code_mappings(codes)
         notes = self._frame(
             "SELECT observation_id, text AS note FROM notes WHERE rowid IN (SELECT max(rowid) FROM notes GROUP BY observation_id)")
         if dimensions is None:
@@ -482,6 +513,7 @@ class Store:
     def adjudications(self) -> pd.DataFrame:
         frame = self._frame(
             "SELECT adjudication_id, unit, dimension, code, adjudicator, at_ns, reason FROM adjudications ORDER BY at_ns, rowid")
+        frame = self.apply_code_mappings(frame)
         frame["at"] = _times(frame.pop("at_ns"))
         for column in ("adjudication_id", "unit", "dimension", "code", "adjudicator", "reason"):
             frame[column] = frame[column].astype("string")
@@ -497,7 +529,7 @@ class Store:
         return frame
 
     def codes_log(self) -> pd.DataFrame:
-        """Every code row ever written, oldest first (the audit trail)."""
+        """Every code row ever written, oldest first, as written (the audit trail; renames not applied)."""
         frame = self._frame("SELECT code_id, observation_id, dimension, code, entered_ns, supersedes FROM codes ORDER BY rowid")
         frame["entered_at"] = _times(frame.pop("entered_ns"))
         return frame

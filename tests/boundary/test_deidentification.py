@@ -144,3 +144,34 @@ def test_a_device_coded_with_other_labels_still_imports(study: Path) -> None:
     shutil.copyfile(DEMO_STUDY.parent / "devices" / "laptop-a" / "observations.sqlite", device)
     result = call_cli("import", study, device)
     assert result.returncode == 0, result.stderr
+
+
+def test_a_rename_is_a_recorded_decision_that_every_read_applies(study: Path, tmp_path: Path) -> None:
+    with Store(study / "observations.sqlite") as store:
+        count = int((store.observations(["activity"])["activity"] == "rapid_guessing").sum())
+    edit_scheme(study, 'name = "rapid_guessing"', 'name = "guessing"')
+    assert_user_error(call_cli("export", study, "--out", tmp_path / "w.csv"), "fieldmark recode")
+    result = call_cli("recode", study, "activity", "rapid_guessing", "guessing", "--reason", "shorter name")
+    assert result.returncode == 0, result.stderr
+    assert f"{count} activity codes" in result.stdout
+    assert call_cli("export", study, "--out", tmp_path / "w.csv").returncode == 0
+    table, _ = read_windows(tmp_path / "w.csv")
+    assert "guessing" in set(table["activity"].dropna()) and "rapid_guessing" not in set(table["activity"].dropna())
+    with Store(study / "observations.sqlite") as store:
+        assert (store.observations(["activity"])["activity"] == "guessing").sum() == count
+        assert "rapid_guessing" in set(store.codes_log()["code"])        # the rows as coded stay in the audit trail
+        assert store.code_mappings()["reason"].tolist() == ["shorter name"]
+    assert call_cli("verify", study).returncode == 0
+
+
+@pytest.mark.parametrize("old, new, needle", [
+    ("rapid_guessing", "dancing", "'dancing' is not one of its codes"),
+    ("rapid_guessing", "on_task", "'rapid_guessing' is still one of its codes"),
+])
+def test_recode_refuses_what_would_not_be_a_rename(study: Path, old: str, new: str, needle: str) -> None:
+    assert_user_error(call_cli("recode", study, "activity", old, new), needle)
+
+
+def test_recode_refuses_a_code_never_coded(study: Path) -> None:
+    edit_scheme(study, 'name = "rapid_guessing"', 'name = "guessing"')
+    assert_user_error(call_cli("recode", study, "activity", "sleeping", "guessing"), "'sleeping' was never coded")
