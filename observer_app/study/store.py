@@ -149,7 +149,12 @@ class Store:
         self.path = Path(path)
         if not self.path.exists():
             # SQLite gives the -wal and -shm files the database file's permissions.
-            os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, STORE_MODE))
+            try:
+                os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, STORE_MODE))
+            except FileExistsError:
+                pass  # another process created it a moment ago
+            except OSError as error:
+                raise InputError(self.path, None, f"cannot create the store ({error.strerror})") from None
         try:
             self._connection = sqlite3.connect(self.path, timeout=30.0, isolation_level=None)
             row_chain.register(self._connection)
