@@ -46,6 +46,7 @@ import pandas as pd
 
 from observer_app.coding.schedule import RoundRobin, Turn
 from observer_app.coding.clock import Clock
+from observer_app.study.scheme_binding import scheme_fits_store
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, window_counts
@@ -157,7 +158,7 @@ def find_interrupted_session(study: Study, store: Store) -> InterruptedSession |
     """The newest live session of this scheme without an end row, or None."""
     sessions = store.sessions()
     open_sessions = sessions[(sessions["mode"] == "live") & sessions["ended_at"].isna()
-                             & (sessions["scheme_hash"] == study.scheme.content_hash)]
+                             & ((sessions["scheme_hash"] == study.scheme.content_hash) | scheme_fits_store(study, store))]
     if open_sessions.empty:
         return None
     row = open_sessions.iloc[-1]

@@ -39,6 +39,7 @@ import pandas as pd
 
 from observer_app.pipeline.alignment import read_study_logs
 from observer_app.coding.clock import Clock
+from observer_app.study.scheme_binding import scheme_fits_store
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study
 
@@ -100,7 +101,8 @@ def find_open_replay(study: Study, store: Store, coder: str) -> str | None:
     """The newest replay session of this coder and scheme without an end row, or None."""
     sessions = store.sessions()
     open_sessions = sessions[(sessions["mode"] == "replay") & sessions["ended_at"].isna()
-                             & (sessions["coder"] == coder) & (sessions["scheme_hash"] == study.scheme.content_hash)]
+                             & (sessions["coder"] == coder)
+                             & ((sessions["scheme_hash"] == study.scheme.content_hash) | scheme_fits_store(study, store))]
     return None if open_sessions.empty else str(open_sessions["session_id"].iloc[-1])
 
 

@@ -18,6 +18,18 @@ from sync.errors import InputError
 
 def check_scheme_binding(study: Study, store: Store) -> None:
     """InputError naming the first coded (dimension, code) that scheme.toml no longer has, with its count."""
+    problem = scheme_problem(study, store)
+    if problem is not None:
+        raise problem
+
+
+def scheme_fits_store(study: Study, store: Store) -> bool:
+    """True when every code in the store is still in scheme.toml (resuming a session is then fine)."""
+    return scheme_problem(study, store) is None
+
+
+def scheme_problem(study: Study, store: Store) -> InputError | None:
+    """The InputError ``check_scheme_binding`` would raise, or None."""
     trail = store.codes_log()
     current = trail.drop_duplicates(["observation_id", "dimension"], keep="last")
     used = store.apply_code_mappings(current.loc[current["code"].notna(), ["dimension", "code"]].copy())
@@ -29,11 +41,12 @@ def check_scheme_binding(study: Study, store: Store) -> None:
         allowed = {dimension.name: set(dimension.code_names) for dimension in study.scheme.dimensions}
         for (dimension, code), count in counts.items():
             if dimension not in allowed:
-                raise InputError(study.dir / SCHEME_FILE, f"dimension {dimension}",
-                                 f"was {what} {count} times in the store but is not in scheme.toml; put the dimension "
+                return InputError(study.dir / SCHEME_FILE, f"dimension {dimension}",
+                                  f"was {what} {count} times in the store but is not in scheme.toml; put the dimension "
                                  "back (labels, keys and colours may change, names may not)")
             if code not in allowed[dimension]:
-                raise InputError(study.dir / SCHEME_FILE, f"dimension {dimension}",
-                                 f"code {code!r} was {what} {count} times in the store but is not in scheme.toml; put "
+                return InputError(study.dir / SCHEME_FILE, f"dimension {dimension}",
+                                  f"code {code!r} was {what} {count} times in the store but is not in scheme.toml; put "
                                  "it back under its old name (labels, keys and colours may change, names may not), or "
                                  f"record a rename: fieldmark recode STUDY {dimension} {code} NEW_NAME")
+    return None

@@ -175,3 +175,22 @@ def test_recode_refuses_what_would_not_be_a_rename(study: Path, old: str, new: s
 def test_recode_refuses_a_code_never_coded(study: Path) -> None:
     edit_scheme(study, 'name = "rapid_guessing"', 'name = "guessing"')
     assert_user_error(call_cli("recode", study, "activity", "sleeping", "guessing"), "'sleeping' was never coded")
+
+
+def test_an_interrupted_session_resumes_after_a_label_change_but_not_after_a_removal(study: Path) -> None:
+    from datetime import datetime, timezone
+
+    from observer_app.coding.live import find_interrupted_session
+    from observer_app.study.folder import load_study
+
+    with Store(study / "observations.sqlite") as store:
+        session = store.start_session(coder="ana", device="laptop-c", mode="live", monotonic_start=0.0,
+                                      started_at=datetime(2026, 3, 12, 9, tzinfo=timezone.utc), window_seconds=20,
+                                      order="fixed", seed=1, scheme_hash=load_study(study).scheme.content_hash)
+    edit_scheme(study, 'label = "Working on the panel"', 'label = "Wiring the panel"')   # a new hash, same codes
+    with Store(study / "observations.sqlite") as store:
+        found = find_interrupted_session(load_study(study), store)
+    assert found is not None and found.session_id == session
+    edit_scheme(study, 'name = "rapid_guessing"', 'name = "guessing"')                  # coded code gone
+    with Store(study / "observations.sqlite") as store:
+        assert find_interrupted_session(load_study(study), store) is None
