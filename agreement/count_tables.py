@@ -25,8 +25,6 @@ class CountTables:
     fleiss_sum   (clusters,) sum over units of Fleiss' P_i
     fleiss_units (clusters,) units with two or more codes
     code_totals  (clusters, k) codes given in those units
-    value_counts (units, k) codes per unit, units with two or more codes only (the
-                 input the krippendorff package takes)
     """
 
     codes: tuple[str, ...]
@@ -38,7 +36,6 @@ class CountTables:
     fleiss_sum: np.ndarray
     fleiss_units: np.ndarray
     code_totals: np.ndarray
-    value_counts: np.ndarray
 
     @property
     def clusters(self) -> int:
@@ -121,7 +118,7 @@ def count_tables(
     return CountTables(
         codes=codes, values=code_values(codes), coders=coders_with_pairs, units=int(pairable.sum()),
         contingency=contingency, coincidence=coincidence, fleiss_sum=fleiss_sum,
-        fleiss_units=fleiss_units, code_totals=code_totals, value_counts=value_counts[pairable],
+        fleiss_units=fleiss_units, code_totals=code_totals,
     )
 
 

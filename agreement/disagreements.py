@@ -1,8 +1,12 @@
 """Where coders disagree, and how a lead's adjudication of a disagreement is checked.
 
-Adjudications are stored by the study (append-only; the newest per unit and dimension
-wins); export decides how they become labels.  This module only lists disagreements,
-shows the current adjudication beside each, and validates adjudications on the way in.
+Adjudications are stored by the study (append-only), keyed by the observations they
+settle and the dimension, so that re-pairing (a refit clock, a third coder's import, a
+new pairing rule) never orphans them silently: ``place_adjudications`` puts each on the
+unit that now holds all its observations, and names those no unit holds.  The newest per
+unit and dimension wins; export decides how they become labels.  This module also lists
+disagreements, shows the current adjudication beside each, and validates adjudications
+on the way in.
 """
 from __future__ import annotations
 
@@ -23,6 +27,41 @@ def current_adjudications(adjudications: pd.DataFrame | None) -> pd.Series:
         return pd.Series(dtype=object, index=pd.MultiIndex.from_tuples([], names=["unit", "dimension"]))
     newest = adjudications.sort_values("at", kind="stable").drop_duplicates(["unit", "dimension"], keep="last")
     return newest.set_index(["unit", "dimension"])["code"].astype(str)
+
+
+def place_adjudications(adjudications: pd.DataFrame, units: pd.DataFrame,
+                        legacy: dict[str, str] | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """(placed, unplaced) ADJUDICATIONS (observer_app/study/tables.py) against UNITS.
+
+    An adjudication settles the observations in its ``observations`` column (ids joined
+    by "|"); one stored before that column existed ("") settles ``legacy[unit]`` when
+    known.  It is placed on the unit that now holds every one of them: ``placed`` has
+    ``unit`` set to that unit.  ``unplaced`` holds the rest, except those a newer placed
+    adjudication of the same dimension sharing an observation has superseded (the lead
+    adjudicated the new unit again).  Both carry the settled ids in ``observations``.
+    """
+    legacy = legacy or {}
+    frame = adjudications.copy()
+    given = frame["observations"].astype("string").fillna("")
+    frame["observations"] = given.mask(given.eq(""), frame["unit"].astype(str).map(legacy).astype("string").fillna(""))
+    settled = frame[["adjudication_id", "observations"]].assign(
+        observation_id=frame["observations"].str.split("|")).explode("observation_id")
+    settled = settled[settled["observation_id"].fillna("") != ""]
+    where = units.drop_duplicates("observation_id").set_index("observation_id")["unit"]
+    settled["now"] = settled["observation_id"].map(where)
+    per = settled.groupby("adjudication_id")["now"].agg(["size", "count", "nunique", "first"])
+    one_unit = per[(per["size"] == per["count"]) & (per["nunique"] == 1)]["first"]
+    placed_mask = frame["adjudication_id"].isin(one_unit.index)
+    placed = frame[placed_mask].assign(unit=frame.loc[placed_mask, "adjudication_id"].map(one_unit))
+    unplaced = frame[~placed_mask]
+    if len(unplaced) and len(placed):
+        newer = settled.merge(frame[["adjudication_id", "dimension", "at"]], on="adjudication_id")
+        late = newer[newer["adjudication_id"].isin(placed["adjudication_id"])]
+        old = newer[newer["adjudication_id"].isin(unplaced["adjudication_id"])]
+        covered = old.merge(late, on=["observation_id", "dimension"], suffixes=("", "_new"))
+        superseded = set(covered.loc[covered["at_new"] > covered["at"], "adjudication_id"])
+        unplaced = unplaced[~unplaced["adjudication_id"].isin(superseded)]
+    return placed.reset_index(drop=True), unplaced.reset_index(drop=True)
 
 
 def list_disagreements(units: pd.DataFrame, dimensions: list[Dimension],

@@ -1,10 +1,17 @@
 """How two coders' observations are paired into units: the one home of that decision.
 
-Rules, in order:
-1. Live observations of a paired run: same ``paired_start``, ``slot`` and learner.
-2. Other live observations: same learner, window starts at most ``tolerance_s`` apart,
-   one to one, nearest first (a unit never holds two rows of one coder, and all its
-   window starts lie within the tolerance of each other).
+Every rule reads the windows on the log's clock (the log_start_ns / log_end_ns columns
+of ``sync.windows.observations_on_log_clock``), never a device's own clock, so every
+verb that pairs gets the same units whatever the laptops' clocks say.  Rules, in order:
+1. Live observations of a paired run: same pairing key (the session's ``pairing_id``
+   when the column is there and filled, else ``paired_start``), ``slot`` and learner --
+   and only when their windows overlap on the log's clock.  A paired-run group whose
+   windows do not overlap stays unpaired (``PairingReport.paired_run_not_overlapping``
+   counts its observations): the coders saw the learner at different moments.
+2. Other live observations: same learner, window starts at most the tolerance apart
+   (``pairing_tolerance_s``: half a window), one to one, nearest first (a unit never
+   holds two rows of one coder, and all its window starts lie within the tolerance of
+   each other).
 3. Replay observations: same clip.
 Observations left alone are counted as unmatched, per coder.
 """
@@ -22,6 +29,15 @@ from agreement.tables import (
     MATCHED_BY_CLIP, MATCHED_BY_SLOT, MATCHED_BY_TIME, UNIT_COLUMNS,
 )
 
+PAIRING_TOLERANCE_WINDOWS = 0.5
+"""How far apart two coders' window starts may be, in windows, to be one unit (common practice)."""
+LOG_CLOCK_COLUMNS: tuple[str, ...] = ("log_start_ns", "log_end_ns")
+
+
+def pairing_tolerance_s(window_seconds: float) -> float:
+    """The pairing tolerance of a study whose windows last ``window_seconds``."""
+    return PAIRING_TOLERANCE_WINDOWS * float(window_seconds)
+
 
 @dataclass(frozen=True)
 class PairingReport:
@@ -33,12 +49,14 @@ class PairingReport:
     unmatched: int
     unmatched_by_coder: dict[str, int] = field(default_factory=dict)
     units_by_method: dict[str, int] = field(default_factory=dict)
+    paired_run_not_overlapping: int = 0  # observations of paired runs left unpaired: no overlap on the log's clock
 
     def as_dict(self) -> dict[str, object]:
         return {
             "observations": self.observations, "units": self.units,
             "paired_observations": self.paired_observations, "unmatched": self.unmatched,
             "unmatched_by_coder": self.unmatched_by_coder, "units_by_method": self.units_by_method,
+            "paired_run_not_overlapping": self.paired_run_not_overlapping,
         }
 
 
@@ -52,13 +70,36 @@ def _newest_per_key(rows: pd.DataFrame, key: list[str]) -> pd.DataFrame:
     return rows.sort_values("coded_at", kind="stable").drop_duplicates(key + ["coder"], keep="last")
 
 
-def _group_by_key(rows: pd.DataFrame, key: list[str]) -> pd.Series:
-    """Group number of the rows whose key was coded by two or more coders."""
+def _group_by_key(rows: pd.DataFrame, key: list[str], overlapping: bool = False) -> tuple[pd.Series, pd.Index]:
+    """Group number of the rows whose key was coded by two or more coders, and the rows of
+    groups set aside because their windows share no stretch of the log's clock (only
+    looked at when ``overlapping``)."""
     rows = _newest_per_key(rows, key)
-    coders = rows.groupby(key, dropna=False, sort=False)["coder"].transform("nunique")
-    grouped = rows[coders >= 2]
+    by_key = rows.groupby(key, dropna=False, sort=False)
+    coders = by_key["coder"].transform("nunique")
+    together = coders >= 2
+    apart = pd.Series(False, index=rows.index)
+    if overlapping:
+        apart = together & (by_key["log_start_ns"].transform("max") >= by_key["log_end_ns"].transform("min"))
+    grouped = rows[together & ~apart]
     groups = pd.Series(grouped.groupby(key, dropna=False, sort=False).ngroup().to_numpy(), index=grouped.index)
-    return groups
+    return groups, rows.index[apart.to_numpy(dtype=bool)]
+
+
+def _pairing_key(live: pd.DataFrame) -> pd.Series:
+    """The paired run a live row belongs to: its pairing_id when filled, else its paired start; NA when solo."""
+    started = live["paired_start"]
+    key = pd.Series(pd.NA, index=live.index, dtype="string")
+    key[started.notna()] = "start:" + _datetime_ns(started[started.notna()]).astype(str)
+    if "pairing_id" in live:
+        given = live["pairing_id"].astype("string").fillna("").str.strip()
+        key = key.mask(given.ne(""), "id:" + given)
+    return key
+
+
+def _datetime_ns(values: pd.Series) -> pd.Series:
+    """A UTC datetime column as int64 ns (same index)."""
+    return pd.Series(pd.to_datetime(values, utc=True).dt.as_unit("ns").array.asi8, index=values.index)
 
 
 def _candidate_edges(rows: pd.DataFrame, tolerance_ns: int) -> pd.DataFrame:
@@ -67,7 +108,7 @@ def _candidate_edges(rows: pd.DataFrame, tolerance_ns: int) -> pd.DataFrame:
         "row": np.arange(len(rows)),
         "learner": rows["learner"].astype(str).to_numpy(),
         "coder": rows["coder"].astype(str).to_numpy(),
-        "start": rows["window_start"].to_numpy(dtype="datetime64[ns]").astype(np.int64),
+        "start": rows["log_start_ns"].to_numpy(dtype=np.int64),
     })
     frame["bucket"] = frame["start"] // max(tolerance_ns, 1)
     edges = []
@@ -94,7 +135,7 @@ def _match_by_time(rows: pd.DataFrame, tolerance_ns: int) -> np.ndarray:
     members: dict[int, list[int]] = {row: [row] for row in range(len(rows))}
     coders = rows["coder"].astype(str).tolist()
     group_coders = {row: {coders[row]} for row in range(len(rows))}
-    starts = rows["window_start"].to_numpy(dtype="datetime64[ns]").astype(np.int64).tolist()
+    starts = rows["log_start_ns"].to_numpy(dtype=np.int64).tolist()
     earliest, latest = list(starts), list(starts)
     edges = _candidate_edges(rows, tolerance_ns)
     for first, second in zip(edges["first"].tolist(), edges["second"].tolist()):
@@ -115,20 +156,25 @@ def _match_by_time(rows: pd.DataFrame, tolerance_ns: int) -> np.ndarray:
 
 def pair_observations(observations: pd.DataFrame, dimensions: list[str],
                       tolerance_s: float) -> tuple[pd.DataFrame, PairingReport]:
-    """UNITS table (agreement/tables.py) and a report from an OBSERVATIONS table.
+    """UNITS table (agreement/tables.py) and a report from an OBSERVATIONS table on the
+    log's clock (its log_start_ns and log_end_ns columns, ``sync.windows.observations_on_log_clock``).
 
     ``tolerance_s`` is how far apart two coders' window starts may be to count as one
-    unit when they did not code a paired run (common choice: half a window).
+    unit when they did not code a paired run (``pairing_tolerance_s``: half a window).
     """
+    missing = [column for column in LOG_CLOCK_COLUMNS if column not in observations]
+    if missing:
+        raise ValueError(f"observations need {', '.join(LOG_CLOCK_COLUMNS)} (sync.windows.observations_on_log_clock)")
     tolerance_ns = int(round(tolerance_s * 1e9))
     observations = observations.reset_index(drop=True)
     live = observations[observations["mode"] == "live"]
     replay = observations[(observations["mode"] == "replay") & (observations["clip"].fillna("") != "")]
-    slotted = live[live["paired_start"].notna() & live["slot"].notna()]
+    live = live.assign(_run=_pairing_key(live))
+    slotted = live[live["_run"].notna() & live["slot"].notna()]
 
-    slot_groups = _group_by_key(slotted, ["paired_start", "slot", "learner"])
-    clip_groups = _group_by_key(replay, ["clip"])
-    loose = live.loc[live.index.difference(slot_groups.index)]
+    slot_groups, apart = _group_by_key(slotted, ["_run", "slot", "learner"], overlapping=True)
+    clip_groups, _ = _group_by_key(replay, ["clip"])
+    loose = live.loc[live.index.difference(slot_groups.index).difference(apart)]
     time_group = _match_by_time(loose.reset_index(drop=True), tolerance_ns) if len(loose) else np.array([], int)
     time_groups = pd.Series(time_group, index=loose.index)
     time_groups = time_groups[time_groups >= 0]
@@ -150,6 +196,7 @@ def pair_observations(observations: pd.DataFrame, dimensions: list[str],
         unmatched_by_coder={str(k): int(v) for k, v in unmatched["coder"].value_counts().sort_index().items()},
         units_by_method={str(k): int(v) for k, v in
                          units.drop_duplicates("unit")["matched_by"].value_counts().sort_index().items()},
+        paired_run_not_overlapping=len(apart),
     )
     return units, report
 
@@ -172,7 +219,7 @@ def _units_table(parts: list[pd.DataFrame], dimensions: list[str]) -> pd.DataFra
         "coder": rows["coder"].astype(str),
         "learner": rows["learner"].astype(str),
         "session_id": rows["session_id"].fillna("").astype(str),
-        "time": rows["window_start"],
+        "time": pd.to_datetime(rows["log_start_ns"].to_numpy(dtype=np.int64), unit="ns", utc=True),
         "observation_id": ids,
         "matched_by": rows["matched_by"],
         "note": rows["note"].fillna("").astype(str) if "note" in rows else "",

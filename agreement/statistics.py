@@ -8,7 +8,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import krippendorff
 import numpy as np
 import pandas as pd
 
@@ -114,25 +113,6 @@ def figures_from_tables(tables: dict[str, np.ndarray], values: np.ndarray, dimen
     return {key: figures[key] for key in FIGURE_KEYS}, per_code
 
 
-def package_alphas(counted: CountTables, dimension: Dimension,
-                   points: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
-    """Point alphas from the krippendorff package wherever alpha is defined.
-
-    The resamples use the matrix route of ``figures_from_tables`` (the package would
-    need one call per resample); the tests hold the two routes equal.
-    """
-    alphas = {}
-    for level in dimension.levels_reported():
-        key = f"alpha_{level}"
-        if np.isfinite(points[key]):
-            alphas[key] = np.asarray(krippendorff.alpha(value_counts=counted.value_counts,
-                                                        value_domain=counted.values,
-                                                        level_of_measurement=level))
-    if f"alpha_{dimension.level}" in alphas:
-        alphas["alpha"] = alphas[f"alpha_{dimension.level}"]
-    return alphas
-
-
 def _could_not_observe(units: pd.DataFrame, dimension: Dimension, included: bool) -> CouldNotObserve:
     code = dimension.could_not_observe
     if code is None:
@@ -172,7 +152,6 @@ def assess_dimension(units: pd.DataFrame, dimension: Dimension, cluster_index: n
     two_coders = len(counted.coders) == 2
     flat = counted.flat()
     points, per_code = figures_from_tables(counted.unflat(flat.sum(axis=0)), counted.values, dimension, two_coders)
-    points.update(package_alphas(counted, dimension, points))
     resampled, per_code_resampled = figures_from_tables(counted.unflat(weights @ flat), counted.values,
                                                         dimension, two_coders)
     point_vector = np.array([points[key] for key in FIGURE_KEYS] + list(per_code), dtype=float)

@@ -7,13 +7,14 @@ by ``agreement.long_format.read_long_csv``.
 UNITS -- ``agreement.pairing.pair_observations`` returns it; long format, one row per
 coder per unit (a unit is one thing coded by two or more coders):
     unit            string   stable id: the first 12 hex digits of sha1 over the sorted
-                             observation ids joined by "|", so an adjudication recorded
-                             against a unit survives re-runs (CSV input: the CSV's unit)
+                             observation ids joined by "|" (CSV input: the CSV's unit);
+                             adjudications are kept by their observations, not this id
+                             (agreement.disagreements.place_adjudications)
     coder           string   who coded
     learner         string   the observed learner; the cluster the bootstrap resamples
                              (CSV without a learner column: the unit itself)
     session_id      string   the coding session the row came from ("" when unknown)
-    time            datetime window start of the row (UTC; NaT when unknown)
+    time            datetime window start of the row on the log's clock (UTC; NaT when unknown)
     observation_id  string   the observation row ("" for CSV input)
     matched_by      string   "slot" (paired run: same start, slot and learner), "time"
                              (same learner, window starts within the tolerance), "clip"
@@ -68,7 +69,9 @@ JSON_TOP_KEYS: tuple[str, ...] = (
     "seed",            # bootstrap seed
     "confidence",      # 0.95
     "pairing",         # study only: observations, units, paired_observations, unmatched,
-                       # unmatched_by_coder, units_by_method, clock ("log" once aligned, else "device")
+                       # unmatched_by_coder, units_by_method, paired_run_not_overlapping (paired-run
+                       # observations left unpaired: no overlap on the log's clock), clock ("log" once
+                       # every live device is aligned, else "device"), pairing_tolerance_s
     "dimensions",      # {dimension name: JSON_DIMENSION_KEYS}
     "by",              # --by pair|session: list of {"pair"|"session", "dimensions"}, else null
     "certification",   # --certify CODER: per coder and dimension, else null

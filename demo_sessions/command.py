@@ -45,7 +45,7 @@ def human_summary(summary: dict) -> str:
             if model:
                 error = model["versus_truth"]
                 flagged = [w.split(":")[0] for w in model.get("warnings") or [] if "uncertain" in w]
-                lines.append(f"    {label} ({model['method']}): {model['offset_s']:+.2f} s, {model['drift_ppm']:+.1f} ppm "
+                lines.append(f"    {label} ({model['method']}): {model['offset_s']:+.2f} s at the same instant, {model['drift_ppm']:+.1f} ppm "
                              f"(error {error['offset_error_s']:+.2f} s, {error['drift_error_ppm']:+.1f} ppm)"
                              + (f"; align warned: {', '.join(flagged)}" if flagged else ""))
         if not recovered:

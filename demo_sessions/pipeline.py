@@ -18,6 +18,7 @@ DIR/summary.json (``SUMMARY_KEYS`` are its top-level keys):
                                            method: sync marks), stated at the truth's reference time:
                                            {"method", "offset_s", "drift_ppm", "reference_ns",
                                            "marks_used", "median_abs_residual_s", "confidence",
+                                           "offset_standard_error_s", "span_standard_error_s",
                                            "outlying_marks", "warnings", "versus_truth"}
                               "recovered_automatic": the same from the automatic scan (no marks)
                               "versus_truth" (in both): {"offset_error_s", "drift_error_ppm"}:
@@ -50,7 +51,7 @@ import pandas as pd
 from tqdm import tqdm
 
 from agreement.statistics import assess_agreement, headline_kappa
-from agreement.report import confusion_figure, drift_figure
+from agreement.plots import confusion_figure, drift_figure
 from agreement.tables import FIGURE_KEYS, FIGURE_LABELS
 from agreement.breakdowns import rolling_kappa
 from demo_sessions.generate import Generated, check_output_folder, check_seed, generate_demo
@@ -61,13 +62,15 @@ from export.labelled_windows import ExportSettings
 from demo_sessions.truth_files import read_truth
 from export.detector_check import check_windows
 from demo_sessions import report
-from observer_app.pipeline.alignment import align_study, fit_clock_models, model_summary, read_study_logs
-from observer_app.pipeline.reliability_data import study_units
+from observer_app.pipeline.alignment import (align_study, clock_reference_ns, fit_clock_models, model_summary,
+                                            read_study_logs, reference_text)
+from observer_app.pipeline.units import study_units
 from observer_app.study.store import Store
 from observer_app.pipeline.study_export import export_study
 from observer_app.study.folder import Study, load_study
 from sync.clock import ClockModel
 from sync.residual_plot import residual_figure
+from sync.windows import observations_on_log_clock
 
 SUMMARY_FILE = "summary.json"
 WINDOWS_FILE = "windows.parquet"
@@ -141,11 +144,9 @@ def step_coder_vs_truth(run: DemoRun) -> None:
     middle = codes["window_start"] + (codes["window_end"] - codes["window_start"]) / 2
     clock = "each laptop's own clock"
     if run.clock_models:
-        middle = pd.Series(middle.to_numpy(dtype="datetime64[ns]").astype("int64"), index=codes.index)
-        for device, model in run.clock_models.items():
-            mine = codes["device"] == device
-            middle[mine] = model.to_log_ns(middle[mine].to_numpy())
-        middle = pd.to_datetime(middle, unit="ns", utc=True)
+        on_log = observations_on_log_clock(codes, run.clock_models)
+        middle = pd.Series(pd.to_datetime((on_log["log_start_ns"] + on_log["log_end_ns"]) // 2, unit="ns", utc=True),
+                           index=codes.index)
         clock = "the log's clock, through the aligned clock models"
     codes = pd.DataFrame({"learner": codes["learner"], "coder": codes["coder"], "code": codes[activity.name],
                           "time": middle})
@@ -183,14 +184,16 @@ def step_align(run: DemoRun) -> None:
     automatic = fit_clock_models(run.study, "auto", logs=logs).models
     alignment = align_study(run.study, "best", logs=logs)
     run.clock_models = alignment.models
+    planted = [figures["truth"]["reference"] for figures in run.summary["devices"].values() if figures.get("truth")]
+    reference = pd.Timestamp(planted[0]).value if planted else clock_reference_ns(run.study)
     rows = []
     for key, models in (("recovered", alignment.models), ("recovered_automatic", automatic)):
         for device, model in models.items():
             truth = run.summary["devices"].get(device, {}).get("truth")
             entry = run.summary["devices"].setdefault(device, {"truth": None, "recovered": None,
                                                                "recovered_automatic": None})
-            if truth:  # the same fitted line, stated at the planted reference so the figures compare
-                model = model.at_reference(pd.Timestamp(truth["reference"]).value)
+            # the same fitted line, stated at the one reference instant (the planted one) so the figures compare
+            model = model.at_reference(pd.Timestamp(truth["reference"]).value if truth else reference)
             entry[key] = {**model_summary(model), "versus_truth": versus_truth(model, truth) if truth else None}
             rows.append({"device": device, "method": model.method, "offset_s": model.offset_s,
                          "drift_ppm": model.drift_ppm, "marks_used": model.marks_used,
@@ -200,12 +203,13 @@ def step_align(run: DemoRun) -> None:
     run.sections.append(report.section(
         "Clocks: each laptop on the log's clock",
         report.paragraph(f"Read {alignment.read_report.rows} log events. Device time = log time + offset + drift x "
-                         "(log time - reference); offsets are stated at the generator's reference time. The "
+                         f"(log time - reference); every offset here and in the plots is stated at "
+                         f"{reference_text(reference)} (the generator's reference time). The "
                          "automatic scan (method auto) is shown for comparison; the stored model (marks) is what "
                          "every later step uses. The planted columns are the generator's truth, shown for "
                          "comparison only."),
         report.table_html(pd.DataFrame(rows)),
-        *(report.figure_html(residual_figure(model), f"clock fit of {device}")
+        *(report.figure_html(residual_figure(model.at_reference(reference)), f"clock fit of {device}")
           for models in (alignment.models, automatic) for device, model in models.items()),
     ))
 
@@ -213,7 +217,8 @@ def step_align(run: DemoRun) -> None:
 def step_agree(run: DemoRun) -> None:
     """The agreement step: the two coders' paired windows, every figure with its cluster-bootstrap CI."""
     assert run.study is not None
-    units, dimensions, pairing = study_units(run.study)
+    found = study_units(run.study)
+    units, dimensions, pairing = found.units, found.dimensions, found.report
     agreement = assess_agreement(units, dimensions, resamples=AGREEMENT_RESAMPLES, seed=run.seed)
     run.summary["dimensions"] = {
         name: {"kappa": headline_kappa(result.figures).as_dict(), "alpha": result.figures["alpha"].as_dict(),

@@ -128,9 +128,21 @@ def check_dimension(
     )
 
 
+def refuse_eventless(table: pd.DataFrame, manifest: dict, path: Path) -> None:
+    """A file whose windows hold no log event (every feature zero or missing, or every
+    event_count zero) describes no behaviour: a detector "trained" on it is meaningless,
+    and it almost always means the roster's log ids or the clock models are wrong."""
+    features = table[manifest["feature_columns"]].astype("float64")
+    no_events = "event_count" in features and bool((features["event_count"].fillna(0) == 0).all())
+    if no_events or bool((features.fillna(0) == 0).all().all()):
+        raise InputError(path, "features", "every window has zero log events, so every feature is empty; check "
+                                           "roster.csv's log_id against the logs and the clock models, then export again")
+
+
 def check_windows(path: Path, dimensions: list[str] | None = None, folds: int = DEFAULT_FOLDS, seed: int = 0) -> list[DimensionCheck]:
     """Check every (or the named) dimension of an exported windows file."""
     table, manifest = read_windows(path)  # one read for every dimension
+    refuse_eventless(table, manifest, path)
     results = []
     for dimension in dimensions or manifest["label_columns"]:
         features, labels, groups = windows_xy(table, manifest, path, dimension)

@@ -14,7 +14,8 @@ A lab adds its own feature as one function::
         \"\"\"Pauses of a minute or more inside the window.\"\"\"
         return {"long_pauses": view.count_members(view.internal_gap_ns >= 60e9)}
 
-The first docstring line is the feature's definition in the manifest.  Column contracts
+The first docstring line is the definition of its columns in the manifest
+(export/column_descriptions.py).  Column contracts
 and every built-in definition: export/tables.py.
 """
 from __future__ import annotations
@@ -34,6 +35,7 @@ import pyarrow.compute as pc
 
 
 NS_PER_SECOND = 1_000_000_000
+FEATURE_OF_COLUMN = "feature_of_column"
 
 
 @dataclass(frozen=True)
@@ -247,11 +249,6 @@ def feature(function: FeatureFunction) -> FeatureFunction:
     """Register a feature function under its own name (decorator)."""
     FEATURES[function.__name__] = function
     return function
-
-
-def feature_definitions(features: Mapping[str, FeatureFunction] = FEATURES) -> dict[str, str]:
-    """Feature name -> the first line of its docstring (its one-line definition)."""
-    return {name: (function.__doc__ or "").strip().splitlines()[0] for name, function in features.items()}
 
 
 def _ratio(numerator: np.ndarray, denominator: np.ndarray) -> np.ndarray:
@@ -529,6 +526,9 @@ def compute_features(
 ) -> pd.DataFrame:
     """One row per window (``windows``' index): start_ns, end_ns, then every feature column.
 
+    ``frame.attrs[FEATURE_OF_COLUMN]`` maps each feature column to the name of the
+    function that computed it (how the manifest finds a lab feature's definition).
+
     Feature functions run on ``threads`` threads (numpy releases the GIL in its loops).
     The arrays they share are cached properties of the view: built once under
     cached_property's lock (Python 3.11); on later Pythons two threads may at worst both
@@ -536,11 +536,15 @@ def compute_features(
     """
     view = index_windows(events, windows, settings)
     columns: dict[str, np.ndarray] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
+    source: dict[str, str] = {}
     with ThreadPoolExecutor(max_workers=threads) as pool:
-        for result in pool.map(lambda function: function(view), features.values()):
+        for name, result in zip(features, pool.map(lambda function: function(view), features.values())):
             columns.update(result)
+            source.update(dict.fromkeys(result, name))
     restored = {}
     for name, values in columns.items():
         restored[name] = np.empty_like(values)
         restored[name][view.window_order] = values
-    return pd.DataFrame(restored, index=windows.index)
+    frame = pd.DataFrame(restored, index=windows.index)
+    frame.attrs[FEATURE_OF_COLUMN] = source  # output column -> the feature function that made it
+    return frame

@@ -14,7 +14,8 @@ from dataclasses import asdict, dataclass, field
 import pandas as pd
 import pyarrow as pa
 
-from export.features import FEATURES, FeatureFunction, FeatureSettings, compute_features, feature_definitions
+from export.column_descriptions import describe_columns, feature_description
+from export.features import FEATURE_OF_COLUMN, FEATURES, FeatureFunction, FeatureSettings, compute_features
 from export.labels import REPRESENTATIVE, resolve_labels
 from export.pseudonyms import pseudonymise
 from export.attributes import attribute_names, check_attributes
@@ -47,6 +48,7 @@ class LabelledWindows:
     label_columns: list[str]
     attribute_columns: list[str]
     feature_definitions: dict[str, str]
+    column_descriptions: dict[str, str]
 
     def rows_per_label(self) -> dict[str, dict[str, int]]:
         """Per dimension: rows per code (labelled rows only)."""
@@ -103,7 +105,13 @@ def label_windows(
         axis=1,
     )
     table = table.sort_values([START, WINDOW_ID], kind="stable").reset_index(drop=True)
+    feature_of_column = computed.attrs.get(FEATURE_OF_COLUMN, {})
     return LabelledWindows(
         table=table, feature_columns=feature_columns, label_columns=list(dimensions),
-        attribute_columns=attribute_columns, feature_definitions=feature_definitions(features),
+        attribute_columns=attribute_columns,
+        feature_definitions={column: feature_description(column, feature_of_column, features)
+                             for column in feature_columns},
+        column_descriptions=describe_columns(
+            list(table.columns), feature_columns=feature_columns, label_columns=list(dimensions),
+            attribute_columns=attribute_columns, feature_of_column=feature_of_column, features=features),
     )

@@ -75,6 +75,11 @@ coder name), the labels come from all of its observations (export/labels.py):
     <feature columns>         as above
   Never exported: roster labels, notes, observation and session ids, device names, clip
   ids, raw learner ids (unless keep_ids).
+
+DESCRIPTIONS -- every exported column's meaning, one line each (export/column_descriptions.py):
+  in a Parquet file as field metadata (key ``description``); in the manifest as
+  ``column_descriptions`` (every column) and ``feature_definitions`` (feature columns,
+  keyed by output column name: action_<name> and a lab's own feature columns included).
 """
 from __future__ import annotations
 

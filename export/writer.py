@@ -77,7 +77,14 @@ def build_manifest(
         "attribute_columns": result.attribute_columns,
         "group_column": GROUP,
         "feature_definitions": result.feature_definitions,
+        "column_descriptions": result.column_descriptions,
     }
+
+
+def described_schema(schema: pa.Schema, descriptions: dict[str, str]) -> pa.Schema:
+    """The schema with each field's description as field metadata (key ``description``)."""
+    return pa.schema([field.with_metadata({**(field.metadata or {}), b"description": descriptions[field.name].encode()})
+                      if descriptions.get(field.name) else field for field in schema], metadata=schema.metadata)
 
 
 def write_windows(result: LabelledWindows, path: Path, manifest: dict, progress: bool = False) -> Path:
@@ -88,6 +95,7 @@ def write_windows(result: LabelledWindows, path: Path, manifest: dict, progress:
         raise ValueError(f"format must be one of {FORMATS}, not {output_format!r}")
     text = json.dumps(manifest, indent=2, sort_keys=True, default=str)
     table = pa.Table.from_pandas(result.table, preserve_index=False)
+    table = table.cast(described_schema(table.schema, manifest.get("column_descriptions", {})))
     table = table.replace_schema_metadata({**(table.schema.metadata or {}), METADATA_KEY: text.encode()})
     beside = manifest_path(path)
     remove_stale_temporaries(path.parent)

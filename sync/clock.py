@@ -15,7 +15,7 @@ from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 
-METHODS: tuple[str, ...] = ("manual", "marks", "auto", "identity")
+METHODS: tuple[str, ...] = ("manual", "marks", "borrowed", "auto", "identity")
 NAT = np.iinfo(np.int64).min
 
 
@@ -35,8 +35,11 @@ class MarkResidual:
 class ClockModel:
     """Offset and drift of one device's clock relative to the log, with the evidence.
 
-    offset_standard_error_s: the offset's standard error (marks: robust SD of the kept
-    residuals / sqrt(kept marks); auto: split samples); NaN when not known.
+    offset_standard_error_s: the offset's standard error at the reference (marks: robust SD
+    of the kept residuals / sqrt(kept marks); auto: split samples); NaN when not known.
+    span_standard_error_s: the standard error of device -> log time over the device's
+    whole observed span, drift included (the largest over the span; it grows away from the
+    reference); NaN when not known.  The uncertainty gate of ``fieldmark align`` uses it.
     confidence is in [0, 1]: for "marks" the share of marks that agree with the fit
     (within max(1 s, 5 robust SD)); for "auto" how clearly the best offset beats the
     next-best separate candidate (1 = unrivalled, 0 = a tie); NaN for "manual" and
@@ -53,6 +56,7 @@ class ClockModel:
     median_abs_residual_s: float = math.nan
     confidence: float = math.nan
     offset_standard_error_s: float = math.nan
+    span_standard_error_s: float = math.nan
     warnings: tuple[str, ...] = ()
     residuals: tuple[MarkResidual, ...] = ()
     scan_offsets_s: tuple[float, ...] = ()
@@ -87,9 +91,11 @@ class ClockModel:
 
     def at_reference(self, reference_ns: int) -> "ClockModel":
         """The same clock line written with another reference time (offset re-expressed
-        there), e.g. to compare with a model stated at a different reference."""
-        offset = self.offset_s + self.drift_ppm * 1e-6 * (reference_ns - self.reference_ns) / 1e9
-        return replace(self, offset_s=offset, reference_ns=int(reference_ns))
+        there), e.g. to compare with a model stated at a different reference.  The automatic
+        scan's candidate offsets move with it, so its curve still peaks at ``offset_s``."""
+        shift = self.drift_ppm * 1e-6 * (reference_ns - self.reference_ns) / 1e9
+        return replace(self, offset_s=self.offset_s + shift, reference_ns=int(reference_ns),
+                       scan_offsets_s=tuple(offset + shift for offset in self.scan_offsets_s))
 
     def to_json(self) -> str:
         """JSON text for the store; NaN becomes null."""
@@ -101,7 +107,7 @@ class ClockModel:
     def from_json(cls, text: str) -> "ClockModel":
         """The inverse of :meth:`to_json`."""
         data = json.loads(text)
-        for key in ("median_abs_residual_s", "confidence", "offset_standard_error_s"):
+        for key in ("median_abs_residual_s", "confidence", "offset_standard_error_s", "span_standard_error_s"):
             if data.get(key) is None:
                 data[key] = math.nan
         data["warnings"] = tuple(data.get("warnings", ()))

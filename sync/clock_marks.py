@@ -2,7 +2,8 @@
 learner did something the log records.
 
 1. Coarse model by voting (a Hough transform): every event of the marked learner within
-   +-300 s of a mark is a candidate pairing; for each drift on a grid (+-200 ppm, step
+   +-300 s of a mark is a candidate pairing, and each mark votes at most once per offset
+   bin (a burst of events is one piece of evidence); for each drift on a grid (+-200 ppm, step
    2 ppm; quartz clocks stay well inside, common practice) each pairing votes for the
    offset it implies, and the (drift, offset) with most votes wins.  So a large offset or
    a long study does not pair marks with the wrong events.
@@ -11,6 +12,11 @@ learner did something the log records.
    Matching and fitting are repeated with the fitted model.
 3. Marks further than max(1 s, 5 robust SD) from the line are outliers: named, and left
    out of the final fit.
+4. The standard error over the device's observed span: the straight-line covariance
+   sigma^2 (X'X)^-1 of (offset, drift) with sigma the robust SD of the kept residuals
+   (an approximation for Theil-Sen, which is about as efficient as least squares for
+   normal errors), evaluated at both ends of the span, the larger kept.  Drift makes the
+   error grow away from the marks, which is why the gate of ``fieldmark align`` uses it.
 """
 from __future__ import annotations
 
@@ -33,13 +39,17 @@ MIN_DRIFT_MARKS = 3
 ROUNDS = 3
 
 
-def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame) -> ClockModel:
+def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame,
+                   span_ns: tuple[int, int] | None = None) -> ClockModel:
     """Clock model for ONE device from its sync marks and the EVENTS table.
 
     ``marks`` has the SYNC MARKS columns (observer_app/study/tables.py: mark_id, device,
     marked_at ...) plus ``log_id``, the marked learner's id in the log (the caller maps
     roster learner -> log_id).  Marks without a log_id, or whose learner has no events,
-    are reported in the warnings and not used.  Raises ValueError when no mark is usable.
+    are reported in the warnings and not used.  ``span_ns`` is the device's observed span
+    (first and last instant, int64 UTC ns on the device clock) over which
+    ``span_standard_error_s`` is stated; by default the marks' own span.  Raises
+    ValueError when no mark is usable.
     """
     devices = marks["device"].unique()
     if len(devices) != 1:
@@ -87,6 +97,8 @@ def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame) -> ClockModel:
         MarkResidual(mark_id=mark_ids[i], learner=learners[i], device_ns=int(device_ns[i]), event_ns=int(matched[i]),
                      residual_s=round(float(residual[i]), 6), outlier=not bool(keep[i]))
         for i in range(len(device_ns)))
+    span = np.array(span_ns if span_ns is not None else (device_ns.min(), device_ns.max()), dtype=np.int64)
+    span_error = _span_standard_error(model, matched[keep], residual[keep], span)
     outliers = [r.mark_id for r in residuals if r.outlier]
     if outliers:
         warnings.append(f"{len(outliers)} outlying marks left out of the fit: {', '.join(outliers[:10])}")
@@ -95,6 +107,7 @@ def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame) -> ClockModel:
         reference_ns=model.reference_ns, marks_used=int(keep.sum()),
         median_abs_residual_s=float(np.median(np.abs(residual))), confidence=float(keep.mean()),
         offset_standard_error_s=_robust_sd(residual[keep]) / np.sqrt(keep.sum()) if keep.sum() > 1 else float("nan"),
+        span_standard_error_s=span_error,
         warnings=tuple(dict.fromkeys(warnings)), residuals=residuals)
 
 
@@ -102,7 +115,7 @@ def _coarse_model(device_ns: np.ndarray, learners: np.ndarray, blocks: dict[str,
                   event_ns: np.ndarray) -> tuple[float, float, int]:
     """(offset_s, drift_ppm, reference_ns) with the most votes from candidate pairings."""
     reference = int(np.median(device_ns))
-    gaps, since = [], []
+    gaps, since, voters = [], [], []
     reach = int(SEARCH_RANGE_S * 1e9)
     for learner in np.unique(learners):
         rows = np.flatnonzero(learners == learner)
@@ -114,7 +127,8 @@ def _coarse_model(device_ns: np.ndarray, learners: np.ndarray, blocks: dict[str,
         index = np.repeat(first, size) + (np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size))
         gaps.append((np.repeat(device_ns[rows], size) - times[index]) / 1e9)
         since.append((times[index] - reference) / 1e9)
-    gaps, since = np.concatenate(gaps), np.concatenate(since)
+        voters.append(np.repeat(rows, size))
+    gaps, since, voters = np.concatenate(gaps), np.concatenate(since), np.concatenate(voters)
     if gaps.size == 0:
         return 0.0, 0.0, reference
     drifts = np.arange(-VOTE_DRIFT_RANGE_PPM, VOTE_DRIFT_RANGE_PPM + VOTE_DRIFT_STEP_PPM / 2, VOTE_DRIFT_STEP_PPM)
@@ -123,13 +137,31 @@ def _coarse_model(device_ns: np.ndarray, learners: np.ndarray, blocks: dict[str,
     for drift in drifts:
         implied = gaps - drift * 1e-6 * since
         index = np.floor((implied + SEARCH_RANGE_S) / VOTE_BIN_S).astype(np.int64) + 1
-        inside = (index >= 0) & (index < bins)
-        votes = np.bincount(index[inside], minlength=bins)
-        pair_votes = votes[:-1] + votes[1:]
+        pair_votes = _distinct_votes(voters, index, bins - 1)
         top = int(np.argmax(pair_votes))
         if pair_votes[top] > best[0]:
             best = (int(pair_votes[top]), float(top * VOTE_BIN_S - SEARCH_RANGE_S), float(drift))
     return best[1], best[2], reference
+
+
+def _distinct_votes(voters: np.ndarray, index: np.ndarray, pairs: int) -> np.ndarray:
+    """Votes per pair of neighbouring bins (pair p = bins p and p + 1), each mark counted
+    once per pair however many of its learner's events fall there: a busy learner's burst
+    of events is one piece of evidence, not many.
+
+    Each mark's candidate events come in time order, so its bin index never rises
+    (implied offset = device - event time); repeats are therefore neighbours and are
+    dropped by comparing each entry with the one before, with no sort.
+    """
+    def first_of_runs(who: np.ndarray, where: np.ndarray) -> np.ndarray:
+        return np.r_[True, (who[1:] != who[:-1]) | (where[1:] != where[:-1])] if len(who) else np.zeros(0, bool)
+
+    keep = first_of_runs(voters, index)
+    who, where = voters[keep], index[keep]
+    # a mark with an event in bin b votes for pairs b - 1 and b: interleaved, still never rising
+    who, where = np.repeat(who, 2), np.column_stack((where, where - 1)).ravel()
+    keep = first_of_runs(who, where) & (where >= 0) & (where < pairs)
+    return np.bincount(where[keep], minlength=pairs)
 
 
 def _fit(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, keep: np.ndarray,
@@ -150,6 +182,26 @@ def _fit(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, keep: np
     fitted = ClockModel(device=model.device, method="marks", offset_s=float(intercept),
                         drift_ppm=float(slope * 1e6), reference_ns=model.reference_ns)
     return fitted, gap - (intercept + slope * since)
+
+
+def _span_standard_error(model: ClockModel, matched: np.ndarray, residual: np.ndarray, span_device_ns: np.ndarray) -> float:
+    """Largest standard error of the fitted line over the span (step 4 of the module note).
+
+    Without an estimated drift the line is a constant offset: its error is the offset's.
+    NaN with fewer than two kept marks.
+    """
+    if len(residual) < 2:
+        return float("nan")
+    sigma = _robust_sd(residual)
+    since = (matched - model.reference_ns) / 1e9
+    ends = (model.to_log_ns(span_device_ns) - model.reference_ns) / 1e9
+    if model.drift_ppm == 0.0 or np.ptp(since) == 0.0:
+        return sigma / float(np.sqrt(len(residual)))
+    design = np.column_stack((np.ones_like(since), since))
+    covariance = sigma ** 2 * np.linalg.inv(design.T @ design)
+    points = np.column_stack((np.ones_like(ends), ends))
+    variance = np.einsum("ij,jk,ik->i", points, covariance, points)
+    return float(np.sqrt(variance.max()))
 
 
 def _robust_sd(residual: np.ndarray) -> float:

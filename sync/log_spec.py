@@ -7,6 +7,7 @@ study whose logs are not there yet can still be opened for coding.
 from __future__ import annotations
 
 import codecs
+from datetime import datetime
 from dataclasses import dataclass, field
 from pathlib import Path
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
@@ -105,14 +106,28 @@ def log_spec_from_toml(entry: dict, study_dir: Path, index: int) -> LogSpec:
                          "must be one character, e.g. \",\" or \";\" or \"\\t\"; leave it out to detect")
     time_format = _text(entry, "time_format", index) or "auto"
     if time_format not in TIME_FORMATS:
-        raise InputError("study.toml", _where(index, "time_format"),
-                         f"must be one of {', '.join(TIME_FORMATS)} (got {time_format!r})")
+        _check_pattern(time_format, index)
     columns = _columns(entry, log_format, index)
     path = Path(path_text)
     if not path.is_absolute():
         path = Path(study_dir) / path
     return LogSpec(path=path, format=log_format, timezone=timezone, encoding=encoding,
                    delimiter=delimiter, time_format=time_format, columns=columns, label=path_text)
+
+
+def _check_pattern(time_format: str, index: int) -> None:
+    """A strftime pattern must name year, month, day, hour and minute: it must read back
+    a moment it wrote (sync/time_column.py reads it)."""
+    moment = datetime(2026, 11, 23, 14, 35)
+    try:
+        written = moment.strftime(time_format)
+        same = "%" in time_format and datetime.strptime(written, time_format).replace(tzinfo=None) == moment
+    except ValueError:
+        same = False
+    if not same:
+        raise InputError("study.toml", _where(index, "time_format"),
+                         f"must be one of {', '.join(TIME_FORMATS)} or a strftime pattern with year, month, day, "
+                         f"hour and minute such as \"%d.%m.%Y %H:%M\" (got {time_format!r})")
 
 
 def _columns(entry: dict, log_format: str, index: int) -> dict[str, str]:

@@ -6,6 +6,7 @@ from __future__ import annotations
 import io
 
 import numpy as np
+import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
@@ -17,7 +18,10 @@ LABELLED_OUTLIERS = 8
 def residual_figure(model: ClockModel) -> Figure:
     """Marks: residual (s) of each mark against hours since the reference, outliers named.
     Automatic: the scan's score per candidate offset with the estimate marked.  Other
-    methods: a one-line note."""
+    methods: a one-line note.  Every title states the offset at the model's reference
+    instant and names it (restate the model with ``ClockModel.at_reference`` to show
+    several at one instant)."""
+    at = "at " + pd.Timestamp(model.reference_ns, tz="UTC").strftime("%Y-%m-%dT%H:%M:%SZ")
     figure = Figure(figsize=(6.4, 3.2), dpi=100)
     FigureCanvasAgg(figure)
     axes = figure.add_subplot()
@@ -35,18 +39,18 @@ def residual_figure(model: ClockModel) -> Figure:
         axes.set_xlabel("hours since the reference time (log clock)")
         axes.set_ylabel("residual (s)")
         axes.legend(fontsize=8, loc="best")
-        axes.set_title(f"{model.device}: sync marks, offset {model.offset_s:+.2f} s, drift {model.drift_ppm:+.1f} ppm",
+        axes.set_title(f"{model.device}: sync marks, offset {model.offset_s:+.2f} s {at}, drift {model.drift_ppm:+.1f} ppm",
                        fontsize=9)
     elif model.scan_scores:
         axes.plot(model.scan_offsets_s, model.scan_scores, color="#3B6EA5", linewidth=1.0)
         axes.axvline(model.offset_s, color="#B5523B", linewidth=0.8, linestyle="--")
         axes.set_xlabel("candidate offset (s, device minus log)")
         axes.set_ylabel("G statistic (codes vs log activity)")
-        axes.set_title(f"{model.device}: automatic scan, offset {model.offset_s:+.2f} s, "
+        axes.set_title(f"{model.device}: automatic scan, offset {model.offset_s:+.2f} s {at}, "
                        f"confidence {model.confidence:.2f}", fontsize=9)
     else:
         axes.axis("off")
-        axes.text(0.5, 0.5, f"{model.device}: {model.method} offset {model.offset_s:+.2f} s (no fit to show)",
+        axes.text(0.5, 0.5, f"{model.device}: {model.method} offset {model.offset_s:+.2f} s {at} (no fit to show)",
                   ha="center", va="center", fontsize=9)
     figure.tight_layout()
     return figure

@@ -15,11 +15,17 @@ EVENTS -- one row per learning-system log event; ``sync.logs.read_logs`` returns
   Sorted by (learner text, time_ns).  Text columns are pandas categoricals (dictionary
   encoded) so that tens of millions of rows stay small; compare them with strings as usual.
 
-CLOCK MODEL -- ``sync.clock.ClockModel`` (a dataclass), one per device:
+CLOCK MODEL -- ``sync.clock.ClockModel`` (a dataclass), one per clock:
     device time = log time + offset_s + drift_ppm * 1e-6 * (log time - reference_ns)
   so a device whose clock runs ahead has a positive offset_s.  method is "manual",
-  "marks", "auto" or "identity" (no model: device time used as log time).  Stored as the
-  JSON text of ``ClockModel.to_json()``.
+  "marks", "borrowed", "auto" or "identity" (no model: device time used as log time).
+  Stored as the JSON text of ``ClockModel.to_json()``.  span_standard_error_s is the
+  standard error of device -> log time over the device's observed span (NaN unknown).
+  CLOCK MODELS (the ``dict[str, ClockModel]`` every mapping onto the log's clock takes)
+  are keyed by ``sync.clock_sessions.clock_key``: the device ("laptop-a"), or
+  "device/session_id" ("laptop-a/5f0c...") for a session whose clock got its own model
+  because the device's clock was corrected between sessions; a session's key is looked
+  up first, then its device's (``sync.clock_sessions.model_for``).
 
 SYNC MARKS for ``sync.clock_marks.fit_from_marks`` -- the store's SYNC MARKS columns
   (observer_app/study/tables.py) plus

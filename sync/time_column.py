@@ -3,9 +3,15 @@ native timestamps, and naive local times (via ``sync.local_time``'s DST rule).
 
 ``time_format="auto"`` decides per column: numbers are epoch seconds, or epoch
 milliseconds when their median magnitude is above 1e11 (later than the year 5138 in
-seconds, so unambiguous for real logs); text is ISO 8601.  Text stamps that carry an
-offset ("Z", "+02:00") are exact; those without one are local times in the log's
-``timezone``.  Vectorised throughout.
+seconds, so unambiguous for real logs); text is ISO 8601.  A strftime pattern
+("%m/%d/%Y %H:%M:%S", "%d.%m.%Y %H:%M") reads text as labs' systems write it.  Text
+stamps that carry an offset ("Z", "+02:00", or a pattern with %z) are exact; those
+without one are local times in the log's ``timezone``.  A time that cannot be read is
+reported with its value and row, and with the common pattern that reads the whole
+column when there is one; when a day-first and a month-first pattern both read every
+value, both are named and neither is picked (03/04 is March or April: only the lab
+knows).  Every reader calls ``parse_time_column``; this module is the only place that
+reads times.  Vectorised throughout.
 """
 from __future__ import annotations
 
@@ -21,6 +27,18 @@ EPOCH_MS_THRESHOLD = 1e11
 _OFFSET_PATTERN = r"\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?\s*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)$"
 _NUMBER_PATTERN = r"^\s*[+-]?\d+(?:\.\d*)?\s*$"
 SHOWN_ROWS = 5
+COMMON_PATTERNS: tuple[str, ...] = (
+    "%d/%m/%Y %H:%M:%S", "%m/%d/%Y %H:%M:%S", "%d/%m/%Y %H:%M", "%m/%d/%Y %H:%M",
+    "%d.%m.%Y %H:%M:%S", "%d.%m.%Y %H:%M", "%d-%m-%Y %H:%M:%S", "%m-%d-%Y %H:%M:%S",
+    "%Y/%m/%d %H:%M:%S", "%m/%d/%Y %I:%M:%S %p", "%m/%d/%Y %I:%M %p", "%d/%m/%Y %I:%M:%S %p",
+    "%Y%m%d%H%M%S", "%d %b %Y %H:%M:%S", "%b %d %Y %H:%M:%S",
+)
+"""Patterns tried only to suggest one when a time cannot be read (common practice in lab logs)."""
+
+
+def is_pattern(time_format: str) -> bool:
+    """A strftime pattern rather than one of the named formats."""
+    return "%" in time_format
 
 
 def parse_time_column(values: pd.Series, time_format: str, timezone: str | None, file: str,
@@ -38,6 +56,8 @@ def parse_time_column(values: pd.Series, time_format: str, timezone: str | None,
     elif pd.api.types.is_datetime64_dtype(dtype):
         naive = utc_ns(values)  # wall-clock numbers; out of range -> NaT
         result, counts = local_to_utc_ns(naive, _require_timezone(timezone, file, column))
+    elif is_pattern(time_format):
+        result, counts = _parse_pattern(values.astype("str"), time_format, timezone, file, column)
     elif pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_bool_dtype(dtype):
         if time_format == "iso":
             raise InputError(file, f"column {column}", "holds numbers, not ISO 8601 text; "
@@ -48,8 +68,51 @@ def parse_time_column(values: pd.Series, time_format: str, timezone: str | None,
     result[ns_outside_range(result)] = NAT
     missing = result == NAT
     if missing.any():
-        _raise_bad_rows(values, missing, rows, file, column, row_word)
+        _raise_bad_rows(values, missing, rows, file, column, row_word, time_format)
     return result, counts
+
+
+def _read_pattern(text: pd.Series, pattern: str) -> pd.Series:
+    """Text read with a strftime pattern: tz-aware UTC when the pattern has %z, else naive; NaT where it fails."""
+    aware = "%z" in pattern or "%Z" in pattern
+    return pd.to_datetime(text, format=pattern, errors="coerce", utc=aware)
+
+
+def _parse_pattern(text: pd.Series, pattern: str, timezone: str | None, file: str,
+                   column: str) -> tuple[np.ndarray, LocalTimeCounts]:
+    text = text.str.strip()
+    parsed = utc_ns(_read_pattern(text.where(text != ""), pattern))  # out of the plausible range -> NaT
+    if "%z" in pattern or "%Z" in pattern:
+        return parsed, LocalTimeCounts()
+    read = parsed != NAT
+    counts = LocalTimeCounts()
+    if read.any():
+        utc, counts = local_to_utc_ns(parsed[read], _require_timezone(timezone, file, column))
+        parsed[read] = utc
+    return parsed, counts
+
+
+def suggested_patterns(values: pd.Series) -> list[str]:
+    """The common patterns that read every non-empty value (at most the two of an
+    ambiguous day/month pair are returned together; the caller must not pick one)."""
+    text = values.astype("str").str.strip()
+    text = text[text.ne("") & values.notna()]
+    if text.empty:
+        return []
+    return [pattern for pattern in COMMON_PATTERNS if _read_pattern(text, pattern).notna().all()]
+
+
+def _suggestion(values: pd.Series, time_format: str) -> str:
+    """What to write in time_format, in words; "" when no common pattern reads the column."""
+    fitting = [pattern for pattern in suggested_patterns(values) if pattern != time_format]
+    day_first = [p for p in fitting if p.startswith("%d")]
+    month_first = [p for p in fitting if p.startswith("%m")]
+    if day_first and month_first:
+        return (f"; both time_format = \"{day_first[0]}\" (day first) and \"{month_first[0]}\" (month first) "
+                "read every value: set the one your system writes")
+    if fitting:
+        return f"; time_format = \"{fitting[0]}\" reads every value"
+    return ""
 
 
 def _require_timezone(timezone: str | None, file: str, column: str) -> str:
@@ -101,15 +164,20 @@ def _parse_text(text: pd.Series, time_format: str, timezone: str | None, file: s
 
 
 def _raise_bad_rows(values: pd.Series, missing: np.ndarray, rows: np.ndarray, file: str, column: str,
-                    row_word: str) -> None:
+                    row_word: str, time_format: str) -> None:
     positions = np.flatnonzero(missing)
     shown = ", ".join(str(int(rows[p])) for p in positions[:SHOWN_ROWS])
     more = f" and {positions.size - SHOWN_ROWS} more" if positions.size > SHOWN_ROWS else ""
     first = values.iloc[positions[0]]
     blank = pd.isna(first) or not str(first).strip()
-    what = "the time is empty" if blank else f"{str(first)[:40]!r} is not a time {RANGE_TEXT}"
+    if blank:
+        raise InputError(file, f"column {column}, {row_word} {shown}{more}",
+                         "the time is empty; every event needs its time")
+    expected = (f"does not match time_format \"{time_format}\" (or is not {RANGE_TEXT})" if is_pattern(time_format)
+                else f"is not a time {RANGE_TEXT}; write ISO 8601 (2026-03-29T14:05:00+02:00) or epoch "
+                     "seconds/milliseconds, or set time_format to a strftime pattern")
     raise InputError(file, f"column {column}, {row_word} {shown}{more}",
-                     f"{what}; write ISO 8601 (2026-03-29T14:05:00+02:00) or epoch seconds/milliseconds")
+                     f"{str(first)[:40]!r} {expected}{_suggestion(values, time_format)}")
 
 
 def datetime_column_ns(values: pd.Series) -> np.ndarray:

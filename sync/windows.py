@@ -5,10 +5,13 @@ What a window covers is decided here and nowhere else:
       itself when before_s is 0 -- or [window_start - before_s, window_start + after_s)
       when after_s is given;
   anchor="coded": [coded_at - before_s, coded_at + after_s) (after_s defaults to 0).
-Bounds of live observations are mapped through the device's clock model; replay
-observations (mode "replay") were coded against the log itself, so their window times
-are already log times and are taken as they are.  Start is inclusive, end exclusive,
-so back-to-back windows never share an event.
+How device time maps onto the log's clock is also decided here, once, for every verb
+(``observations_on_log_clock``; agree, adjudicate, export and the demo all pair and cut
+windows from its columns): live observations go through their session's clock model
+(key ``device/session_id``) or else their device's (key ``device``), sync/clock_sessions.py;
+replay observations (mode "replay") were coded against the log itself, so their window
+times are already log times and are taken as they are.  Start is inclusive, end
+exclusive, so back-to-back windows never share an event.
 """
 from __future__ import annotations
 
@@ -16,10 +19,63 @@ import numpy as np
 import pandas as pd
 
 from sync.clock import NAT, ClockModel, identity_model
+from sync.clock_sessions import model_for
 from sync.tables import WINDOW_EXTRA_COLUMNS
 from sync.time_column import datetime_column_ns
 
 ANCHORS: tuple[str, ...] = ("start", "coded")
+LOG_CLOCK_COLUMNS: tuple[str, ...] = ("log_start_ns", "log_end_ns")
+
+
+def _models_per_row(observations: pd.DataFrame, clock_models: dict[str, ClockModel],
+                    warnings: list[str]) -> list[tuple[np.ndarray, ClockModel | None]]:
+    """(row mask, model) per live (device, session); model None for replay rows (already
+    on the log's clock).  A session's own model wins over its device's (``model_for``).
+
+    Live devices without a model get the identity model, and its warning is added
+    (callers that must not guess refuse such devices first).
+    """
+    devices = observations["device"].astype(str).to_numpy()
+    sessions = (observations["session_id"].astype(str).to_numpy() if "session_id" in observations
+                else np.full(len(observations), ""))
+    replay = ((observations["mode"].astype(str) == "replay").to_numpy()
+              if "mode" in observations else np.zeros(len(observations), bool))
+    groups: list[tuple[np.ndarray, ClockModel | None]] = []
+    if replay.any():
+        groups.append((replay, None))
+    for device, session_id in sorted(set(zip(devices[~replay], sessions[~replay]))):
+        model = model_for(clock_models, device, session_id)
+        if model is None:
+            model = identity_model(device)
+            warnings.extend(w for w in model.warnings if w not in warnings)
+        groups.append(((devices == device) & (sessions == session_id) & ~replay, model))
+    return groups
+
+
+def _to_log(instants: np.ndarray, model: ClockModel | None) -> np.ndarray:
+    return instants if model is None else model.to_log_ns(instants)
+
+
+def observations_on_log_clock(observations: pd.DataFrame, clock_models: dict[str, ClockModel]) -> pd.DataFrame:
+    """``observations`` (OBSERVATIONS of observer_app/study/tables.py) plus log_start_ns and
+    log_end_ns: each window's bounds as int64 UTC ns on the log's clock.
+
+    The one mapping of device time onto the log's clock.  Replay rows are already on the
+    log's clock.  Live rows of a device without a model keep their device times (identity
+    model), and ``result.attrs["warnings"]`` says so.  Rows without window bounds get the
+    int64-minimum NaT sentinel.
+    """
+    warnings: list[str] = []
+    result = observations.copy()
+    window_start, window_end = (datetime_column_ns(result[column]) for column in ("window_start", "window_end"))
+    start_ns, end_ns = window_start.copy(), window_end.copy()
+    for rows, model in _models_per_row(result, clock_models, warnings):
+        start_ns[rows] = _to_log(window_start[rows], model)
+        end_ns[rows] = _to_log(window_end[rows], model)
+    result["log_start_ns"] = start_ns
+    result["log_end_ns"] = end_ns
+    result.attrs["warnings"] = warnings
+    return result
 
 
 def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, ClockModel],
@@ -28,8 +84,9 @@ def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, 
     """Every observation with log_id, start_ns, end_ns, coded_ns on the log's clock.
 
     ``observations`` has the OBSERVATIONS columns (observer_app/study/tables.py); ``roster``
-    the columns learner and log_id.  Devices without a model are mapped with the identity
-    model.  Rows without window_start/window_end are left out.  What was assumed or left
+    the columns learner and log_id; ``clock_models`` is keyed ``device`` or
+    ``device/session_id`` (sync/tables.py).  Devices without a model are mapped with the
+    identity model (callers that must not guess refuse them first).  Rows without window_start/window_end are left out.  What was assumed or left
     out is listed in ``result.attrs["warnings"]``.  Raises ValueError for an unknown
     anchor or a window that would not have positive length.
     """
@@ -54,24 +111,16 @@ def observations_to_windows(observations: pd.DataFrame, clock_models: dict[str, 
     coded_ns = np.full(len(result), NAT, dtype=np.int64)
     window_start, window_end, coded_at = (datetime_column_ns(result[column]) for column in ("window_start", "window_end", "coded_at"))
     before, after = round(before_s * 1e9), None if after_s is None else round(after_s * 1e9)
-    devices = result["device"].astype(str).to_numpy()
-    replay = (result["mode"].astype(str) == "replay").to_numpy() if "mode" in result else np.zeros(len(result), bool)
-    for device, replayed in {(d, r) for d, r in zip(devices, replay)}:
-        rows = (devices == device) & (replay == replayed)
-        model = None if replayed else clock_models.get(device)
-        if model is None:
-            model = identity_model(device)
-            if not replayed:
-                warnings.extend(model.warnings)
+    for rows, model in _models_per_row(result, clock_models, warnings):
         if anchor == "start":
             begin = window_start[rows] - before
             finish = window_end[rows] if after is None else window_start[rows] + after
         else:
             begin = coded_at[rows] - before
             finish = coded_at[rows] + (after or 0)
-        start_ns[rows] = model.to_log_ns(begin)
-        end_ns[rows] = model.to_log_ns(finish)
-        coded_ns[rows] = model.to_log_ns(coded_at[rows])
+        start_ns[rows] = _to_log(begin, model)
+        end_ns[rows] = _to_log(finish, model)
+        coded_ns[rows] = _to_log(coded_at[rows], model)
     dropped = (start_ns == NAT) | (end_ns == NAT)
     result["start_ns"] = start_ns
     result["end_ns"] = end_ns

@@ -1,7 +1,7 @@
 """How well a paired session agrees with its partner's, for the end-of-session screen.
 
 The partner's session arrives in this study's store through ``fieldmark import``.
-The study's units come from observer_app.pipeline.reliability_data (the same pairing as
+The study's units come from observer_app.pipeline.units (the same pairing as
 ``fieldmark agree``); every figure is agreement/'s (Cohen's kappa, Landis & Koch
 band).  This module only keeps the units this session coded.
 """
@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import pandas as pd
 
 from agreement.statistics import Estimate, assess_agreement, headline_kappa
-from observer_app.pipeline.reliability_data import study_units
+from observer_app.pipeline.units import study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import Study
 
@@ -36,7 +36,8 @@ def partner_agreement(study: Study, store: Store, session_id: str,
     own = sessions[sessions["session_id"] == session_id]
     if own.empty or pd.isna(own["paired_start"].iloc[0]):
         return None
-    units, dimensions, _ = study_units(study)
+    found = study_units(study)
+    units, dimensions = found.units, found.dimensions
     shared = set(units.loc[units["session_id"] == session_id, "unit"]) if len(units) else set()
     units = units[units["unit"].isin(shared)] if shared else units.iloc[0:0]
     partners = set(units["coder"].astype(str)) - {str(own["coder"].iloc[0])}

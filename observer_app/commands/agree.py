@@ -27,7 +27,7 @@ from agreement.breakdowns import (
     CERTIFICATION_KAPPA, CERTIFICATION_PAIRS, ROLLING_WINDOW, by_pair, by_session, certify, rolling_kappa,
     units_of_coders,
 )
-from observer_app.pipeline.reliability_data import load_study_units
+from observer_app.pipeline.units import StudyUnits, load_study_units, no_observations_error, placed_adjudications
 from observer_app.study.store import Store
 from observer_app.study.output_paths import check_output
 from sync.errors import InputError
@@ -61,14 +61,18 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.set_defaults(run=run)
 
 
-def load_units(args: argparse.Namespace) -> tuple[pd.DataFrame, list[Dimension], dict[str, object] | None, Path | None]:
+def load_units(args: argparse.Namespace) -> tuple[pd.DataFrame, list[Dimension], dict[str, object] | None,
+                                                   StudyUnits | None]:
     """Units from a study folder or a CSV, with the boundary checks of the options."""
     source = Path(args.source)
     if source.is_dir():
         if args.level or args.order:
             raise InputError(None, "--level/--order", "only for a CSV; a study's scheme sets each dimension's "
                                                       "level and code order")
-        return load_study_units(source)
+        found = load_study_units(source)
+        if found.observations.empty:
+            raise no_observations_error(found)
+        return found.units, found.dimensions, found.report, found
     if not source.exists():
         raise InputError(source, None, "no such study folder or CSV file")
     order = [code.strip() for code in args.order.split(",")] if args.order else None
@@ -125,6 +129,9 @@ def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: 
         per_coder = ", ".join(f"{coder} {count}" for coder, count in pairing["unmatched_by_coder"].items())
         out.write(f"Pairing: {pairing['observations']} observations, {pairing['units']} units, "
                   f"{pairing['unmatched']} unmatched{f' ({per_coder})' if per_coder else ''}\n")
+        if pairing.get("paired_run_not_overlapping"):
+            out.write(f"  {pairing['paired_run_not_overlapping']} observations of paired runs left unpaired: "
+                      "their windows do not overlap on the log's clock\n")
     for result in agreement.dimensions.values():
         out.write(f"\n{result.name} ({result.level}, {result.units} units) -- Landis & Koch: {result.band}\n")
         width = max(len(label) for label in FIGURE_LABELS.values())
@@ -181,7 +188,7 @@ def check_options(args: argparse.Namespace) -> None:
 
 def run(args: argparse.Namespace) -> int:
     check_options(args)
-    units, dimensions, pairing, store_path = load_units(args)
+    units, dimensions, pairing, found = load_units(args)
     units = select_coders(units, args.coders)
     include = args.include_could_not_observe
     if args.certify and args.certify not in set(units["coder"].astype(str)):
@@ -202,17 +209,18 @@ def run(args: argparse.Namespace) -> int:
 
     if args.disagreements:
         adjudications = None
-        if store_path is not None:
-            with Store(store_path) as store:
-                adjudications = store.adjudications()
+        if found is not None:
+            with Store(found.store_path) as store:
+                adjudications, _ = placed_adjudications(found, store.adjudications())
         table = list_disagreements(units, dimensions, adjudications)
         write_atomically(args.disagreements, table.to_csv(index=False))
     if args.report:
-        from agreement.report import render_report  # matplotlib: only loaded when a report is asked for
+        # matplotlib and Jinja2: only loaded when a report is asked for
+        from observer_app.reports.agreement_report import render_agreement_report
 
         rolling = {d.name: rolling_kappa(units, d, args.rolling_window, include) for d in dimensions}
-        write_atomically(args.report, render_report(f"Reliability report: {Path(args.source).name}", agreement,
-                                                    rolling, args.rolling_window, pairing, views))
+        write_atomically(args.report, render_agreement_report(f"Reliability report: {Path(args.source).name}",
+                                                              agreement, rolling, args.rolling_window, pairing, views))
 
     if args.json:
         document = {

@@ -5,8 +5,11 @@ import argparse
 import json
 import math
 import sys
+from pathlib import Path
 
-from observer_app.pipeline.alignment import METHODS, align_study, model_summary
+from observer_app.pipeline.alignment import (DEFAULT_MAX_STANDARD_ERROR_S, METHODS, Alignment, align_study,
+                                            clock_reference_ns, model_summary, read_study_logs, reference_text)
+from observer_app.pipeline.coverage import coverage_lines, coverage_report, study_coverage
 from observer_app.study.folder import load_study
 from sync.errors import InputError
 from sync.plausible_values import LARGEST_OFFSET_SECONDS
@@ -16,13 +19,24 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "align", help="fit each device's clock model against the logs",
         description="Put every coder device on the log's clock: from sync marks, by an automatic scan of "
-                    "the codes against log activity, or by hand; the chosen model is stored in the study.",
+                    "the codes against log activity, or by hand.  Every model is added to the study's clock "
+                    "history; a hand-set offset beats sync marks beats an automatic fit, and a plain align "
+                    "never replaces a hand-set offset.  A fit whose standard error over the device's observed "
+                    "span is not below the bound is refused (exit 2) unless --accept-uncertain is given.",
     )
     parser.add_argument("study", metavar="STUDY", help="the study folder")
     parser.add_argument("--method", choices=METHODS, default="best",
                         help="marks, auto, or best: marks when a device has 3 or more usable (default)")
     parser.add_argument("--set-offset", action="append", default=[], metavar="DEVICE=SECONDS",
                         help="take this device's offset by hand (device ahead of the log: positive); repeatable")
+    parser.add_argument("--refit", action="append", default=[], metavar="DEVICE",
+                        help="fit this device again even though its offset was set by hand (the new fit replaces "
+                             "every earlier decision for it); repeatable")
+    parser.add_argument("--max-standard-error", type=float, default=DEFAULT_MAX_STANDARD_ERROR_S, metavar="SECONDS",
+                        help="store a fitted model only when its standard error over the device's observed span is "
+                             f"below this (default {DEFAULT_MAX_STANDARD_ERROR_S:g} s)")
+    parser.add_argument("--accept-uncertain", action="store_true",
+                        help="store fits above the bound anyway (marked so in the history and in --json)")
     parser.add_argument("--json", action="store_true", help="print one JSON object")
     parser.set_defaults(run=run)
 
@@ -45,40 +59,93 @@ def parse_offsets(texts: list[str]) -> dict[str, float]:
     return offsets
 
 
+def command_line(args: argparse.Namespace) -> str:
+    """The align command as the history records it (which command stored a model)."""
+    parts = ["fieldmark align", "--method", args.method]
+    parts += [f"--set-offset {text}" for text in args.set_offset] + [f"--refit {device}" for device in args.refit]
+    if args.max_standard_error != DEFAULT_MAX_STANDARD_ERROR_S:
+        parts.append(f"--max-standard-error {args.max_standard_error:g}")
+    if args.accept_uncertain:
+        parts.append("--accept-uncertain")
+    return " ".join(parts)
+
+
 def run(args: argparse.Namespace) -> int:
     offsets = parse_offsets(args.set_offset)
+    if not (math.isfinite(args.max_standard_error) and args.max_standard_error > 0):
+        raise InputError(None, "--max-standard-error", f"{args.max_standard_error!r} is not a positive number of seconds")
     study = load_study(args.study)
-    alignment = align_study(study, args.method, offsets, progress=not args.json)
-    report = alignment.read_report
+    reference = clock_reference_ns(study)
+    # read once, for the fits and the coverage; hand-set offsets need no logs, so logs not
+    # yet on disk stop align only when a fit needs them (align_study reads them then)
+    present = bool(study.logs) and all(Path(spec.path).exists() for spec in study.logs)
+    logs = read_study_logs(study) if present else None
+    try:
+        alignment = align_study(study, args.method, offsets, progress=not args.json, logs=logs,
+                                refit=tuple(args.refit), max_standard_error_s=args.max_standard_error,
+                                accept_uncertain=args.accept_uncertain, command=command_line(args))
+    except InputError as error:
+        refused = getattr(error, "alignment", None)
+        if args.json and refused is not None:  # what would have been stored and why; nothing was
+            sys.stdout.write(json.dumps(_payload(study, refused, reference, stored=False)) + "\n")
+        raise
+    events = logs[0] if logs is not None else alignment.events
+    coverage = study_coverage(study, events, alignment.models) if events is not None else None
     if args.json:
-        payload = {
-            "study": str(study.dir),
-            "devices": {device: model_summary(model) for device, model in alignment.models.items()},
-            "skipped": alignment.skipped,
-            "logs": {"rows_per_file": report.rows_per_file, "ambiguous_local_times": report.ambiguous_local_times,
-                     "nonexistent_local_times": report.nonexistent_local_times,
-                     "unknown_learners": report.unknown_learners, "warnings": report.warnings},
-        }
+        payload = _payload(study, alignment, reference, stored=True)
+        payload["coverage"] = None if coverage is None else coverage_report(coverage)
         sys.stdout.write(json.dumps(payload) + "\n")
         return 0
+    report = alignment.read_report
     if report.rows_per_file:
         print(f"read {report.rows} log events from {len(report.rows_per_file)} files")
     for warning in report.warnings:
         print(f"  note: {warning}")
-    print(f"{'device':<16}{'method':<9}{'offset_s':>10}{'se_s':>7}{'drift_ppm':>11}{'marks':>7}{'median|res|_s':>15}"
-          f"{'confidence':>12}")
-    for device, model in alignment.models.items():
-        figures = model_summary(model)
-        print(f"{device:<16}{model.method:<9}{_shown(figures['offset_s'], '+.3f'):>10}"
-              f"{_shown(figures['offset_standard_error_s'], '.2f'):>7}{_shown(figures['drift_ppm'], '+.2f'):>11}"
+    print(f"offsets at {reference_text(reference)} (the hour the study's first live session began); "
+          "se_s: standard error over the device's observed span")
+    print(f"{'clock':<16}{'method':<9}{'offset_s':>10}{'se_s':>7}{'drift_ppm':>11}{'marks':>7}{'median|res|_s':>15}"
+          f"{'confidence':>12}  decision")
+    for key, model in alignment.models.items():
+        figures = model_summary(model.at_reference(reference))
+        decision = alignment.decisions.get(model.device)
+        print(f"{key:<16}{model.method:<9}{_shown(figures['offset_s'], '+.3f'):>10}"
+              f"{_shown(_span_error(figures), '.2f'):>7}{_shown(figures['drift_ppm'], '+.2f'):>11}"
               f"{model.marks_used:>7}"
-              f"{_shown(figures['median_abs_residual_s'], '.3f'):>15}{_shown(figures['confidence'], '.2f'):>12}")
+              f"{_shown(figures['median_abs_residual_s'], '.3f'):>15}{_shown(figures['confidence'], '.2f'):>12}"
+              f"  {decision.decision if decision else ''}")
         for warning in model.warnings:
-            print(f"  {device}: {warning}")
-    for device, reason in alignment.skipped.items():
-        print(f"{device:<16}skipped: {reason}")
-    print("stored the chosen model per device in the study")
+            print(f"  {key}: {warning}")
+    for device, decision in alignment.decisions.items():
+        print(f"  {device}: {decision.decision}: {decision.reason}")
+    for line in coverage_lines(coverage_report(coverage)) if coverage is not None else []:
+        print(line)
+    print("added the new models to the study's clock history")
     return 0
+
+
+def _payload(study, alignment: Alignment, reference: int, stored: bool) -> dict:
+    """The JSON of `fieldmark align --json`: per clock key the model stated at the reference
+    instant, with the device's decision; per device the decision and why."""
+    report = alignment.read_report
+    devices = {}
+    for key, model in alignment.models.items():
+        decision = alignment.decisions.get(model.device)
+        devices[key] = {**model_summary(model.at_reference(reference)), **(decision.as_dict() if decision else {})}
+    return {
+        "study": str(study.dir),
+        "reference": reference_text(reference), "reference_ns": reference, "stored": stored,
+        "devices": devices,
+        "decisions": {device: decision.as_dict() for device, decision in alignment.decisions.items()},
+        "skipped": alignment.skipped,
+        "logs": {"rows_per_file": report.rows_per_file, "ambiguous_local_times": report.ambiguous_local_times,
+                 "nonexistent_local_times": report.nonexistent_local_times,
+                 "unknown_learners": report.unknown_learners, "warnings": report.warnings},
+    }
+
+
+def _span_error(figures: dict) -> float | None:
+    span = figures["span_standard_error_s"]
+    return span if span is not None else figures["offset_standard_error_s"]
 
 
 def _shown(value: float | None, spec: str) -> str:

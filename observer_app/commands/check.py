@@ -7,6 +7,7 @@ import sys
 from pathlib import Path
 
 from export.reader import read_manifest
+from observer_app.pipeline.coverage import coverage_lines
 from sync.errors import InputError
 
 
@@ -29,7 +30,8 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(None, "--folds", "needs at least 2 folds")
     if not 0 <= args.seed < 2**32:
         raise InputError(None, "--seed", f"must be a whole number from 0 to {2**32 - 1}")
-    labels = read_manifest(args.windows)["label_columns"]
+    manifest = read_manifest(args.windows)
+    labels = manifest["label_columns"]
     for dimension in args.dimension or []:
         if dimension not in labels:
             raise InputError(args.windows, dimension, f"no such dimension; the file has {', '.join(labels)}")
@@ -37,9 +39,12 @@ def run(args: argparse.Namespace) -> int:
 
     results = check_windows(args.windows, args.dimension, args.folds or DEFAULT_FOLDS, args.seed)
     if args.json:
-        payload = {"windows": str(args.windows), "dimensions": {result.dimension: result.as_dict() for result in results}}
+        payload = {"windows": str(args.windows), "coverage": manifest.get("coverage"),
+                   "dimensions": {result.dimension: result.as_dict() for result in results}}
         sys.stdout.write(json.dumps(payload) + "\n")
         return 0
+    if manifest.get("coverage"):  # files from before the manifest recorded coverage have none
+        print(coverage_lines(manifest["coverage"])[0])
     print(f"{'dimension':<16}{'rows':>7}{'learners':>10}{'kappa':>8}{'AUC':>7}   baseline kappa/AUC (majority, stratified)")
     for result in results:
         print(

@@ -13,6 +13,7 @@ from export.features import FeatureSettings
 from export.labelled_windows import ExportSettings
 from export.tables import LABEL_POLICIES
 from export.writer import FORMATS, manifest_path
+from observer_app.pipeline.coverage import coverage_lines
 from observer_app.pipeline.study_export import WindowChoice, export_study
 from observer_app.study.folder import load_study
 from observer_app.study.output_paths import check_output
@@ -87,6 +88,8 @@ def run(args: argparse.Namespace) -> int:
     print(f"wrote {summary['rows']} windows to {args.out} (manifest {manifest_path(args.out).name})")
     for dimension, counts in summary["rows_per_label"].items():
         print(f"  {dimension}: " + ", ".join(f"{code} {count}" for code, count in counts.items()))
+    for line in coverage_lines(summary["coverage"]):
+        print(f"  {line}")
     for warning in summary["warnings"]:
         print(f"  warning: {warning}")
     return 0

@@ -1,9 +1,10 @@
 """Exporting a study's labelled windows: the glue behind `fieldmark export` and the demo.
 
-The study (observer_app.study.folder), the store, the logs (sync.read_logs), the clock models
-and windows on the log's clock (sync.windows), the pairing of coders into units
-(agreement.pairing), then export/ for features, labels, pseudonyms and the file.  Each
-of those decides its own part; this module only passes the tables along.
+The study (observer_app.study.folder), the store, the logs (sync.read_logs), the study's
+units (observer_app.pipeline.units: observations on the log's clock, paired exactly as
+``fieldmark agree`` pairs them, adjudications placed by the observations they settle),
+windows on the log's clock (sync.windows), then export/ for features, labels, pseudonyms
+and the file.  Each of those decides its own part; this module only passes the tables along.
 """
 from __future__ import annotations
 
@@ -14,22 +15,25 @@ from pathlib import Path
 
 from tqdm import tqdm
 
-from agreement.pairing import pair_observations
 from export.labelled_windows import ExportSettings, label_windows
 from export.pseudonyms import pseudonym, read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.pipeline.alignment import read_study_logs, stored_clock_models
+from observer_app.pipeline.alignment import (read_study_logs, require_clock_models, stored_clock_decisions,
+                                            stored_clock_models)
+from observer_app.pipeline.coverage import coverage_report
+from observer_app.pipeline.units import require_placed, study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
 from observer_app.study.scheme_binding import check_scheme_binding
 from sync.clock import ClockModel
+from sync.coverage import Coverage, learner_coverage, unmatched_log_ids_problem
 from sync.errors import InputError
 from sync.windows import observations_to_windows
 
 CLOCK_SUMMARY_KEYS = ("device", "method", "offset_s", "drift_ppm", "reference_ns", "marks_used",
-                      "median_abs_residual_s", "confidence")
+                      "median_abs_residual_s", "confidence", "span_standard_error_s")
 STEPS = ("read the study", "read the logs", "put observations on the log's clock", "pair coders",
          "features and labels", "write")
 
@@ -48,7 +52,7 @@ def export_study(
     settings: ExportSettings = ExportSettings(), progress: bool | None = None,
 ) -> dict:
     """Write the study's labelled windows and manifest to ``out``; return a JSON-ready summary
-    (out, manifest, format, rows, rows_per_label, events, observations, units, warnings).
+    (out, manifest, format, rows, rows_per_label, events, observations, units, coverage, warnings).
 
     ``progress``: None shows a bar only on a terminal.  Raises InputError for the user's mistakes.
     """
@@ -66,6 +70,13 @@ def export_study(
             adjudications = store.adjudications()
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
+        models = stored_clock_models(study)
+        require_clock_models(study, observations, models)
+        decisions = stored_clock_decisions(study)
+        uncertain = dict(zip(decisions["model_key"].astype(str), decisions["uncertain_accepted"].astype(bool))) \
+            if len(decisions) else {}
+        found = study_units(study, observations, models)
+        placed = require_placed(found, adjudications)
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
@@ -73,21 +84,24 @@ def export_study(
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
-        models = stored_clock_models(study)
         try:
             windows = observations_to_windows(observations, models, study.roster, window.anchor, window.before_s,
                                               window.after_s)
         except ValueError as error:
             raise InputError(None, "--before/--after", str(error)) from None
+        coverage = learner_coverage(events, windows)
+        problem = unmatched_log_ids_problem(coverage)
+        if problem:
+            raise InputError(study.dir / ROSTER_FILE, "column log_id", problem)
         bar.update()
 
         bar.set_postfix_str(STEPS[3])
-        units, pairing = pair_observations(observations, dimensions, tolerance_s=study.window_seconds / 2.0)
+        units = found.units
         windows[UNIT] = windows["observation_id"].map(units.set_index("observation_id")[UNIT]) if len(units) else None
         bar.update()
 
         bar.set_postfix_str(STEPS[4])
-        result = label_windows(events, windows, study.roster, dimensions, could_not_observe, key, adjudications, settings)
+        result = label_windows(events, windows, study.roster, dimensions, could_not_observe, key, placed, settings)
         bar.update()
 
         bar.set_postfix_str(STEPS[5])
@@ -97,21 +111,40 @@ def export_study(
         parameters = {
             **settings.parameters(),
             "window": {"anchor": window.anchor, "before_s": window.before_s, "after_s": window.after_s},
-            "pairing_tolerance_s": study.window_seconds / 2.0,
+            "pairing_tolerance_s": found.report["pairing_tolerance_s"],
         }
         manifest = build_manifest(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
-            clock_models=[clock_summary(model, key) for model in models.values()],
+            clock_models=[{**clock_summary(model, key), "clock": _pseudonymous(clock, key),
+                           "uncertain_accepted": uncertain.get(clock, False)} for clock, model in models.items()],
             inputs=file_digests(*zip(*inputs)), output_format=output_format,
         )
+        manifest["coverage"] = coverage.summary()
         beside = write_windows(result, out, manifest)
         bar.update()
+    accepted = sorted(key for key, flag in uncertain.items() if flag and key in models)
+    clock_warnings = [f"clock {key} was stored above the uncertainty bound (--accept-uncertain); its windows may be "
+                      "misplaced" for key in accepted]
     return {
         "out": str(out), "manifest": str(beside), "format": output_format, "rows": manifest["rows"],
         "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
-        "observations": int(len(observations)), "units": pairing.units,
-        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])),
+        "observations": int(len(observations)), "units": found.report["units"],
+        "coverage": coverage_report(coverage),
+        "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + outside_warnings(coverage)
+                    + clock_warnings,
     }
+
+
+def outside_warnings(coverage: Coverage) -> list[str]:
+    """One warning per observed learner whose log events all fall outside their observed windows."""
+    return [f"learner {row.learner} (log_id {row.log_id!r}) has {row.events_in_logs} log events but none in any of "
+            f"their {row.windows} observed windows; check the clock models (fieldmark align) and the log's timezone"
+            for row in coverage.outside.itertuples()]
+
+
+def _pseudonymous(clock: str, key: bytes | None) -> str:
+    """A clock key ("device" or "device/session") as the manifest shows it: pseudonymised with the study's key."""
+    return clock if key is None else pseudonym(clock, key)
 
 
 def clock_summary(model: ClockModel, key: bytes | None = None) -> dict:

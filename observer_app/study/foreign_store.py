@@ -200,7 +200,11 @@ def _check_rows(rows: dict[str, pd.DataFrame], path: Path, study: Study) -> None
     refuse("codes", ~codes["dimension"].isin(allowed), "dimension {row[dimension]!r} is not in scheme.toml")
     known = codes.apply(lambda r: r["code"] is None or r["code"] in allowed.get(r["dimension"], ()), axis=1) \
         if len(codes) else pd.Series(dtype=bool)
-    refuse("codes", ~known.astype(bool), "code {row[code]!r} is not a code of dimension {row[dimension]!r} in scheme.toml")
+    if (~known.astype(bool)).any():
+        row = codes[~known.astype(bool)].iloc[0]
+        codes_of = study.scheme.dimension(row["dimension"]).code_names
+        refuse("codes", ~known.astype(bool), "code {row[code]!r} is not a code of dimension {row[dimension]!r} in "
+               f"scheme.toml (its codes: {', '.join(codes_of)})")
     if "absences" in rows:
         refuse("absences", ~rows["absences"]["learner"].isin(learners), "learner {row[learner]!r} is not in roster.csv")
     if "adjudications" in rows:

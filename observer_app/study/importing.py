@@ -69,15 +69,22 @@ def _import_store(study: Study, store: Store, path: Path) -> ImportResult:
     return result
 
 
+
+
 def _import_adjudications(study: Study, store: Store, path: Path, decisions: pd.DataFrame,
                           result: ImportResult) -> None:
-    """Adjudications whose unit the study has (after this import's observations); the rest are reported."""
-    from observer_app.pipeline.reliability_data import study_units  # pairing: only when there is something to check
+    """Adjudications that settle observations forming one of the study's units (after this import's
+    observations); the rest are reported, never stored."""
+    from observer_app.pipeline.units import placed_adjudications, study_units  # pairing: only when needed
 
-    units, _, _ = study_units(study)
-    known = decisions["unit"].isin(set(units["unit"].astype(str)))
+    found = study_units(study)
+    probe = decisions.assign(at=decisions["at_ns"])
+    if "observations" not in probe:
+        probe["observations"] = ""
+    placed, _ = placed_adjudications(found, probe)
+    known = decisions["adjudication_id"].isin(set(placed["adjudication_id"]))
     if (~known).any():
-        result.skipped.append(f"{int((~known).sum())} adjudications: their unit is not among the study's units "
+        result.skipped.append(f"{int((~known).sum())} adjudications: they settle no unit of the study "
                               "(first {}); record them in the study with fieldmark adjudicate".format(
                                   decisions.loc[~known, "unit"].iloc[0]))
     try:
@@ -164,7 +171,7 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
     """One reason per row ("" when the row is fine), computed column by column."""
     problems = pd.Series("", index=frame.index, dtype="object")
 
-    def flag(mask: pd.Series, reason: str) -> None:
+    def flag(mask: pd.Series, reason: str | pd.Series) -> None:
         nonlocal problems
         problems = problems.mask(mask & problems.eq(""), reason)
 
@@ -173,7 +180,7 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
     flag(frame["coder"].eq(""), "empty coder")
     flag(frame["learner"].eq(""), "empty learner")
     flag(~frame["learner"].isin(study.roster["learner"].dropna()) & frame["learner"].ne(""),
-         "learner not in roster.csv")
+         "learner '" + frame["learner"] + "' not in roster.csv")
     for column in ("time", "end"):
         text = frame[column]
         given = text.ne("")
@@ -187,9 +194,10 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
     flag(length.le(0), "end is not after time; the window must end after it starts")
     flag(length.gt(LONGEST_WINDOW_SECONDS), f"window longer than {LONGEST_WINDOW_SECONDS:.0f} s; check the end time")
     for dimension in dimensions:
-        valid = set(study.scheme.dimension(dimension).code_names)
+        valid = list(study.scheme.dimension(dimension).code_names)
         values = frame[dimension]
-        flag(values.ne("") & ~values.isin(valid), f"unknown {dimension} code (see scheme.toml)")
+        flag(values.ne("") & ~values.isin(valid),
+             f"unknown {dimension} code '" + values + f"' ({dimension} codes: {', '.join(valid)})")
     coded = pd.concat([frame[d].ne("") for d in dimensions], axis=1).any(axis=1)
     flag(~coded, "no code in any dimension")
     return problems

@@ -12,10 +12,13 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
+from agreement.dimensions import LEVELS
 from observer_app.study.tables import RESERVED_COLUMNS
 from sync.errors import InputError
 
-LEVELS = ("nominal", "ordinal")
+# A scheme codes categories: the first two of agreement's levels.  Interval and ratio
+# stay for long-format CSVs whose codes are numbers (agreement/dimensions.py).
+SCHEME_LEVELS: tuple[str, ...] = LEVELS[:2]
 _NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
 _COLOUR = re.compile(r"^#[0-9A-Fa-f]{6}$")
 _SCHEME_KEYS = {"name", "description"}
@@ -32,7 +35,10 @@ class Code:
 
 
 @dataclass(frozen=True)
-class Dimension:
+class SchemeDimension:
+    """A dimension as the scheme file defines it (codes with labels, keys and colours);
+    agreement/ sees it as agreement.dimensions.Dimension (pipeline/units.py)."""
+
     name: str
     level: str
     codes: tuple[Code, ...]
@@ -57,14 +63,14 @@ class Dimension:
 @dataclass(frozen=True)
 class Scheme:
     name: str
-    dimensions: tuple[Dimension, ...]
+    dimensions: tuple[SchemeDimension, ...]
     content_hash: str
 
     @property
     def dimension_names(self) -> tuple[str, ...]:
         return tuple(d.name for d in self.dimensions)
 
-    def dimension(self, name: str) -> Dimension:
+    def dimension(self, name: str) -> SchemeDimension:
         for dimension in self.dimensions:
             if dimension.name == name:
                 return dimension
@@ -125,7 +131,7 @@ def parse_scheme(raw: dict, path: Path) -> Scheme:
     entries = raw.get("dimensions")
     if not isinstance(entries, list) or not entries:
         raise InputError(path, "dimensions", "no dimensions; add at least one [[dimensions]] block")
-    dimensions: list[Dimension] = []
+    dimensions: list[SchemeDimension] = []
     keys_seen: dict[str, str] = {}
     for index, entry in enumerate(entries, start=1):
         dimensions.append(_parse_dimension(entry, index, path, keys_seen))
@@ -143,7 +149,7 @@ def parse_scheme(raw: dict, path: Path) -> Scheme:
     return Scheme(name=name, dimensions=tuple(dimensions), content_hash=content_hash)
 
 
-def _parse_dimension(entry: object, index: int, path: Path, keys_seen: dict[str, str]) -> Dimension:
+def _parse_dimension(entry: object, index: int, path: Path, keys_seen: dict[str, str]) -> SchemeDimension:
     where = f"dimensions #{index} "
     if not isinstance(entry, dict):
         raise InputError(path, f"dimensions #{index}", "must be a [[dimensions]] table")
@@ -155,8 +161,8 @@ def _parse_dimension(entry: object, index: int, path: Path, keys_seen: dict[str,
     if name in RESERVED_COLUMNS:
         raise InputError(path, f"{where}name", f"{name!r} is a reserved column name; choose another")
     level = entry.get("level", "nominal")
-    if level not in LEVELS:
-        raise InputError(path, f"{where}level", f"invalid level {level!r}; use one of {', '.join(LEVELS)}")
+    if level not in SCHEME_LEVELS:
+        raise InputError(path, f"{where}level", f"invalid level {level!r}; use one of {', '.join(SCHEME_LEVELS)}")
     raw_codes = entry.get("codes")
     if not isinstance(raw_codes, list) or len(raw_codes) < 2:
         raise InputError(path, f"{where}codes", "needs at least two [[dimensions.codes]] entries")
@@ -192,4 +198,4 @@ def _parse_dimension(entry: object, index: int, path: Path, keys_seen: dict[str,
     if could_not_observe not in (c.name for c in codes):
         raise InputError(path, f"{where}could_not_observe",
                          f"{could_not_observe!r} is not one of this dimension's codes; add it or fix the name")
-    return Dimension(name=name, level=level, codes=tuple(codes), could_not_observe=could_not_observe)
+    return SchemeDimension(name=name, level=level, codes=tuple(codes), could_not_observe=could_not_observe)

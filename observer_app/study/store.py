@@ -22,7 +22,31 @@ from observer_app.study import row_chain
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 from sync.errors import InputError
 
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 5
+
+# 2 -> 3: clock models become a history of kept decisions.  Each row says how it was
+# made (method: "manual", "marks", "borrowed", "auto"), by which command, on what
+# evidence (a one-line summary), which clock it is for (model_key: the device, or
+# "device/session_id" when a device's sessions disagree), whether it ends the device's
+# earlier decisions (replaces_earlier: `fieldmark align --refit DEVICE`) and whether a
+# fit above the uncertainty bound was accepted by the user (uncertain_accepted).  at_ns
+# is when it was fitted.  Rows from older stores read as their model JSON says
+# (observer_app/pipeline/alignment.py: the precedence).
+MIGRATION_CLOCK_HISTORY = """
+    ALTER TABLE clock_models ADD COLUMN method TEXT NOT NULL DEFAULT '';
+    ALTER TABLE clock_models ADD COLUMN command TEXT NOT NULL DEFAULT '';
+    ALTER TABLE clock_models ADD COLUMN evidence TEXT NOT NULL DEFAULT '';
+    ALTER TABLE clock_models ADD COLUMN model_key TEXT NOT NULL DEFAULT '';
+    ALTER TABLE clock_models ADD COLUMN replaces_earlier INTEGER NOT NULL DEFAULT 0;
+    ALTER TABLE clock_models ADD COLUMN uncertain_accepted INTEGER NOT NULL DEFAULT 0;
+    CREATE INDEX clock_models_by_device ON clock_models (device, at_ns);
+"""
+
+# An adjudication names the observations it settles (ids joined by "|"), so re-pairing
+# cannot orphan it; rows written before keep "" and are traced back through their unit id.
+MIGRATION_ADJUDICATED_OBSERVATIONS = """
+    ALTER TABLE adjudications ADD COLUMN observations TEXT NOT NULL DEFAULT '';
+    """
 
 # The imports table guarded like the rest; the hash chain's table (observer_app/study/row_chain.py);
 # code renames and merges as recorded decisions (fieldmark recode), applied when codes are read.
@@ -105,6 +129,8 @@ MIGRATIONS: tuple[str, ...] = (
     CREATE TRIGGER window_closures_no_delete BEFORE DELETE ON window_closures
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
     """,
+    MIGRATION_CLOCK_HISTORY,
+    MIGRATION_ADJUDICATED_OBSERVATIONS,
     MIGRATION_BOUNDARY,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
@@ -362,19 +388,40 @@ class Store:
             cursor.execute("INSERT INTO absences VALUES (?,?,?,?,?)", (absence_id, session_id, learner, state, to_ns(at)))
         return absence_id
 
-    def record_adjudication(self, *, unit: str, dimension: str, code: str, adjudicator: str, at: datetime,
-                            reason: str = "") -> str:
+    def record_adjudication(self, *, unit: str, observations: Iterable[str], dimension: str, code: str,
+                            adjudicator: str, at: datetime, reason: str = "") -> str:
+        """``observations``: the ids of the observations the decision settles (what it is keyed by)."""
         adjudication_id = new_id()
+        settled = "|".join(sorted(str(observation) for observation in observations))
+        if not settled:
+            raise ValueError("an adjudication must name the observations it settles")
         with self._transaction() as cursor:
-            cursor.execute("INSERT INTO adjudications VALUES (?,?,?,?,?,?,?)",
-                           (adjudication_id, unit, dimension, code, adjudicator, to_ns(at), reason))
+            cursor.execute("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, "
+                           "reason, observations) VALUES (?,?,?,?,?,?,?,?)",
+                           (adjudication_id, unit, dimension, code, adjudicator, to_ns(at), reason, settled))
         return adjudication_id
 
-    def record_clock_model(self, device: str, model_json: str, at: datetime) -> str:
-        model_id = new_id()
+    def record_clock_model(self, device: str, model_json: str, at: datetime, *, method: str = "",
+                           command: str = "", evidence: str = "", model_key: str = "",
+                           replaces_earlier: bool = False, uncertain_accepted: bool = False) -> str:
+        """Append one clock decision to the history (``at``: when it was fitted)."""
+        return self.record_clock_models([dict(device=device, model_json=model_json, method=method, command=command,
+                                              evidence=evidence, model_key=model_key or device,
+                                              replaces_earlier=replaces_earlier,
+                                              uncertain_accepted=uncertain_accepted)], at)[0]
+
+    def record_clock_models(self, rows: list[dict], at: datetime) -> list[str]:
+        """Several clock decisions in one transaction (all or none), each a dict with the
+        keys of :meth:`record_clock_model`."""
+        ids = [new_id() for _ in rows]
         with self._transaction() as cursor:
-            cursor.execute("INSERT INTO clock_models VALUES (?,?,?,?)", (model_id, device, model_json, to_ns(at)))
-        return model_id
+            cursor.executemany(
+                "INSERT INTO clock_models (model_id, device, model_json, at_ns, method, command, evidence, model_key, "
+                "replaces_earlier, uncertain_accepted) VALUES (?,?,?,?,?,?,?,?,?,?)",
+                [(model_id, row["device"], row["model_json"], to_ns(at), row.get("method", ""), row.get("command", ""),
+                  row.get("evidence", ""), row.get("model_key") or row["device"], int(bool(row.get("replaces_earlier"))),
+                  int(bool(row.get("uncertain_accepted")))) for model_id, row in zip(ids, rows)])
+        return ids
 
     def record_code_mapping(self, *, dimension: str, old_code: str, new_code: str, at: datetime,
                             reason: str = "") -> str:
@@ -517,20 +564,28 @@ class Store:
 
     def adjudications(self) -> pd.DataFrame:
         frame = self._frame(
-            "SELECT adjudication_id, unit, dimension, code, adjudicator, at_ns, reason FROM adjudications ORDER BY at_ns, rowid")
+            "SELECT adjudication_id, unit, observations, dimension, code, adjudicator, at_ns, reason "
+            "FROM adjudications ORDER BY at_ns, rowid")
         frame = self.apply_code_mappings(frame)
         frame["at"] = _times(frame.pop("at_ns"))
-        for column in ("adjudication_id", "unit", "dimension", "code", "adjudicator", "reason"):
+        for column in ("adjudication_id", "unit", "observations", "dimension", "code", "adjudicator", "reason"):
             frame[column] = frame[column].astype("string")
-        return frame[["adjudication_id", "unit", "dimension", "code", "adjudicator", "at", "reason"]]
+        return frame[["adjudication_id", "unit", "observations", "dimension", "code", "adjudicator", "at", "reason"]]
 
     def clock_models(self) -> pd.DataFrame:
-        """The newest clock model per device: device, model_json, at."""
+        """The whole clock-model history, one row per decision ever stored, by fitted time:
+        model_id, device, model_key, method, command, evidence, replaces_earlier,
+        uncertain_accepted, model_json, at (observer_app/study/tables.py: CLOCK HISTORY).
+        Which row each clock uses is the precedence's decision (pipeline/alignment.py)."""
         frame = self._frame(
-            "SELECT device, model_json, at_ns FROM clock_models WHERE rowid IN "
-            "(SELECT max(rowid) FROM clock_models GROUP BY device) ORDER BY device")
+            "SELECT model_id, device, model_key, method, command, evidence, replaces_earlier, uncertain_accepted, "
+            "model_json, at_ns FROM clock_models ORDER BY at_ns, rowid")
         frame["at"] = _times(frame.pop("at_ns"))
-        frame["device"] = frame["device"].astype("string")
+        frame["model_key"] = frame["model_key"].where(frame["model_key"] != "", frame["device"])
+        for column in ("model_id", "device", "model_key", "method", "command", "evidence"):
+            frame[column] = frame[column].astype("string")
+        for column in ("replaces_earlier", "uncertain_accepted"):
+            frame[column] = frame[column].astype(bool)
         return frame
 
     def codes_log(self) -> pd.DataFrame:

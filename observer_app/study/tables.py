@@ -34,8 +34,29 @@ SYNC MARKS (``Store.sync_marks()``):
 ABSENCES (``Store.absences()``):
     session_id, learner, state ("absent" | "returned"), at (datetime)
 
-ADJUDICATIONS (``Store.adjudications()``) -- append-only; the newest per (unit, dimension) wins:
-    adjudication_id, unit (string), dimension, code, adjudicator, at (datetime), reason
+ADJUDICATIONS (``Store.adjudications()``) -- append-only; keyed by the observations they settle:
+    adjudication_id, unit (string: the unit id when recorded, kept for the audit trail),
+    observations (string: the settled observation ids, sorted, joined by "|"; "" for rows
+    written before stores kept them), dimension, code, adjudicator, at (datetime), reason.
+    ``agreement.disagreements.place_adjudications`` puts each on the unit that now holds
+    its observations; the newest per (unit, dimension) wins.
+
+CLOCK HISTORY (``Store.clock_models()``) -- append-only, every clock decision ever stored,
+oldest fitted first:
+    model_id        string   UUID of the row
+    device          string   the coder device
+    model_key       string   the clock the model is for: the device, or "device/session_id"
+                             when that device's sessions got separate models (its clock was
+                             corrected between them)
+    method          string   "manual", "marks", "borrowed", "auto" ("" in rows from stores
+                             before the history: read the method from model_json)
+    command         string   the command that stored it ("fieldmark align --set-offset ..."; "" in old rows)
+    evidence        string   one line: what the model rests on (marks used, standard errors)
+    replaces_earlier bool    `--refit`: the device's earlier decisions no longer apply
+    uncertain_accepted bool  stored above the uncertainty bound with `--accept-uncertain`
+    model_json      string   ``sync.clock.ClockModel.to_json()``
+    at              datetime when it was fitted (UTC)
+  Which row a clock uses: ``observer_app.pipeline.alignment.stored_clock_models``.
 """
 from __future__ import annotations
 

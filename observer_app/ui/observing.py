@@ -19,7 +19,7 @@ from PySide6.QtWidgets import (QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidg
                                QSizePolicy, QVBoxLayout, QWidget)
 
 from observer_app.coding.live import CHANGED, LiveSession, SessionState
-from observer_app.study.scheme import Code, Dimension
+from observer_app.study.scheme import Code, SchemeDimension
 from observer_app.ui import theme as looks
 from observer_app.ui.theme import Theme
 
@@ -86,7 +86,7 @@ class TimeBar(QWidget):
 class CodeTile(QWidget):
     """One code: its key in a badge, its label, its scheme colour; filled when in effect."""
 
-    def __init__(self, dimension: Dimension, code: Code, on_click) -> None:
+    def __init__(self, dimension: SchemeDimension, code: Code, on_click) -> None:
         super().__init__()
         self.dimension = dimension
         self.code = code
@@ -148,7 +148,7 @@ class CodeTile(QWidget):
 class DimensionPad(QFrame):
     """One dimension: its name, whether it is still to code, and a tile per code."""
 
-    def __init__(self, dimension: Dimension, on_click) -> None:
+    def __init__(self, dimension: SchemeDimension, on_click) -> None:
         super().__init__()
         self.dimension = dimension
         self.setProperty("role", "panel")

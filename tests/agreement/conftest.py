@@ -4,6 +4,8 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 
+from sync.windows import observations_on_log_clock
+
 START = pd.Timestamp("2026-03-02 09:00", tz="UTC")
 
 
@@ -37,7 +39,7 @@ class ObservationBuilder:
                 frame[dimension] = None
             frame[dimension] = frame[dimension].astype("string")
         frame["slot"] = frame["slot"].astype("Int64")
-        return frame
+        return observations_on_log_clock(frame, {})  # no clock models: device times are log times
 
 
 @pytest.fixture

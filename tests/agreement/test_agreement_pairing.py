@@ -83,3 +83,31 @@ def test_units_table_has_documented_columns(observations):
     units, _ = pair_observations(observations.frame(), ["activity", "affect"], tolerance_s=10)
     assert list(units.columns) == list(UNIT_COLUMNS) + ["activity", "affect"]
     assert set(units["note"]) == {"leaning away", ""}
+
+
+def test_paired_run_pairs_only_windows_that_overlap_on_the_log_clock(observations):
+    from sync.clock import manual_model
+    from sync.windows import observations_on_log_clock
+
+    # Both laptops started slot 0 when their own clock said 09:00; ben's runs 28 s ahead,
+    # so on the log's clock his 20 s windows begin 28 s earlier: never the same moment.
+    observations.add("ann", "L01", 0, paired=True, slot=0, activity="on_task")
+    observations.add("ben", "L01", 0, paired=True, slot=0, activity="on_task")
+    observations.add("ann", "L02", 20, paired=True, slot=1, activity="on_task")
+    observations.add("ben", "L02", 20, paired=True, slot=1, activity="on_task")
+    frame = observations.frame().drop(columns=["log_start_ns", "log_end_ns"])
+    apart = observations_on_log_clock(frame, {"laptop-ben": manual_model("laptop-ben", 28.0)})
+    units, report = pair_observations(apart, ["activity"], tolerance_s=10)
+    assert len(units) == 0 and report.paired_run_not_overlapping == 4 and report.unmatched == 4
+    close = observations_on_log_clock(frame, {"laptop-ben": manual_model("laptop-ben", 5.0)})
+    units, report = pair_observations(close, ["activity"], tolerance_s=10)
+    assert report.units == 2 and set(units["matched_by"]) == {"slot"} and report.paired_run_not_overlapping == 0
+
+
+def test_pairing_id_names_the_paired_run_when_given(observations):
+    observations.add("ann", "L01", 0, paired=True, slot=0, activity="on_task")
+    observations.add("ben", "L01", 2, paired=True, slot=0, activity="on_task")
+    observations.add("cat", "L01", 4, paired=True, slot=0, activity="on_task")
+    frame = observations.frame().assign(pairing_id=["run-7", "run-7", "run-8"])
+    units, report = pair_observations(frame, ["activity"], tolerance_s=1)  # too tight for the time rule
+    assert set(units["coder"]) == {"ann", "ben"} and report.unmatched_by_coder == {"cat": 1}

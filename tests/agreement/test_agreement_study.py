@@ -49,6 +49,8 @@ def study(tmp_path_factory) -> Path:
                         session_id=sessions[coder], learner=f"L{index + 1:02d}", window_start=start,
                         window_end=start + timedelta(seconds=20), coded_at=start + timedelta(seconds=19),
                         codes={"activity": code, "affect": affect}, scheme_hash="test", slot=slot, note=note)
+    # both laptops' clocks were synchronised with the log server: the lab says so
+    assert call_cli("align", folder, "--set-offset", "laptop-ann=0", "--set-offset", "laptop-ben=0").returncode == 0
     return folder
 
 
@@ -143,11 +145,12 @@ def test_report_is_self_contained_html_with_plots(study, tmp_path):
                      "--rolling-window", "30")
     assert result.returncode == 0, result.stderr
     text = report.read_text()
-    images = re.findall(r"src='data:image/png;base64,([A-Za-z0-9+/=]+)'", text)
+    images = re.findall(r"src=[\"']data:image/png;base64,([A-Za-z0-9+/=]+)[\"']", text)
     assert len(images) == 3  # one confusion heatmap per dimension + the drift plot
     for image in images:
         assert base64.b64decode(image).startswith(b"\x89PNG\r\n\x1a\n")  # PNG signature (ISO/IEC 15948)
-    assert "http" not in text.lower().replace("http-equiv", "")
+    outside_images = re.sub(r"data:image/png;base64,[A-Za-z0-9+/=]+", "", text)  # base64 may spell anything
+    assert "http" not in outside_images.lower().replace("http-equiv", "")
     assert "ann + ben" in text
     assert [p.name for p in tmp_path.iterdir()] == ["reliability.html"]
 
@@ -191,8 +194,8 @@ def test_time_pairing_uses_the_logs_clock_once_devices_are_aligned(tmp_path):
                                          coded_at=start + timedelta(seconds=19),
                                          codes={"activity": ACTIVITY[index % 5], "affect": "focused"},
                                          scheme_hash="test")
-    before = json.loads(call_cli("agree", folder, "--json", "--resamples", "20").stdout)
-    assert before["pairing"]["units"] == 0 and before["pairing"]["clock"] == "device"
+    # no clock decision yet: agree refuses rather than pair on each laptop's own clock
+    assert_user_error(call_cli("agree", folder, "--json", "--resamples", "20"), "laptop-ann", "--set-offset laptop-ann=0")
     with Store(folder / "observations.sqlite") as store:
         for coder, offset in (("ann", 0.0), ("ben", 30.0)):
             # sync.clock convention: device time = log time + offset_s
@@ -200,3 +203,19 @@ def test_time_pairing_uses_the_logs_clock_once_devices_are_aligned(tmp_path):
     after = json.loads(call_cli("agree", folder, "--json", "--resamples", "20").stdout)
     assert after["pairing"]["units"] == 12 and after["pairing"]["clock"] == "log"
     assert after["dimensions"]["activity"]["percent_agreement"]["value"] == 1.0
+
+
+def test_report_escapes_every_name_it_shows(tmp_path):
+    """Coder, dimension and code names are the lab's own text: the report must show them,
+    never run them (HTML5 section 13.1.2: '<' in text starts a tag unless escaped)."""
+    rows = ["unit,coder,<b>mood</b>"]
+    rows += [f"u{unit},{coder},{'<script>x</script>' if (unit + (coder == 'ann')) % 3 else 'calm'}"
+             for unit in range(12) for coder in ("ann", "<img src=x onerror=alert(1)>")]
+    source = tmp_path / "coded.csv"
+    source.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    report = tmp_path / "reliability.html"
+    result = call_cli("agree", source, "--report", report, "--resamples", "50")
+    assert result.returncode == 0, result.stderr
+    text = report.read_text()
+    assert "<script>" not in text and "<img src=x" not in text and "<b>mood" not in text
+    assert "&lt;script&gt;x&lt;/script&gt;" in text and "&lt;b&gt;mood&lt;/b&gt;" in text

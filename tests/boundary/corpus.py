@@ -104,7 +104,19 @@ def make_study(folder: Path) -> Path:
     (folder / "logs" / "tiny.csv").write_text(GOOD_LOG)
     (folder / "study.toml").write_text(STUDY_HEAD + CSV_LOG_ENTRY.format(name="tiny.csv"))
     Store(folder / "observations.sqlite").close()  # migrated now, so a refused run has nothing to migrate
+    _decide_clocks(folder)
     return folder
+
+
+def _decide_clocks(folder: Path) -> None:
+    """The demo laptops' clocks taken as synchronised (a decision agree, adjudicate and export require)."""
+    import contextlib
+
+    from observer_app.cli import main
+
+    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()):
+        code = main(["align", str(folder), "--set-offset", "laptop-a=0", "--set-offset", "laptop-b=0"])
+    assert code == 0, "the corpus study's clocks could not be decided"
 
 
 def snapshot(folder: Path) -> dict[str, str]:

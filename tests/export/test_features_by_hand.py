@@ -5,7 +5,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from export.features import FEATURES, FeatureSettings, WindowEvents, compute_features, feature, feature_definitions
+from export.column_descriptions import feature_description
+from export.features import FEATURE_OF_COLUMN, FEATURES, FeatureSettings, WindowEvents, compute_features, feature
 
 S = 1_000_000_000  # one second in ns
 
@@ -118,9 +119,11 @@ def test_a_lab_adds_its_own_feature_as_one_function() -> None:
         return {"long_pauses": view.count_members(view.internal_gap_ns >= 5 * S)}
 
     registry["long_pauses"] = long_pauses
-    result = compute_features(EVENTS, windows([("a", 0, 40 * S)]), features=registry).iloc[0]
-    assert result["long_pauses"] == 3                                            # gaps 10, 6 and 9 s
-    assert feature_definitions(registry)["long_pauses"] == "Pauses of five seconds or more inside the window."
+    computed = compute_features(EVENTS, windows([("a", 0, 40 * S)]), features=registry)
+    assert computed.iloc[0]["long_pauses"] == 3                                  # gaps 10, 6 and 9 s
+    source = computed.attrs[FEATURE_OF_COLUMN]
+    assert source["long_pauses"] == "long_pauses" and source["event_count"] == "activity"
+    assert feature_description("long_pauses", source, registry) == "Pauses of five seconds or more inside the window."
     assert "long_pauses" not in FEATURES
 
 

@@ -71,11 +71,25 @@ def test_manifest_records_how_the_file_was_made(exported) -> None:
     assert manifest["clock_models"][0]["offset_s"] == 12.5
     assert manifest["inputs"] == {"logs/centre_north.csv": "sha256:00"}
     assert manifest["feature_columns"] == result.feature_columns
-    assert set(manifest["feature_definitions"]) >= {"activity", "pacing", "history", "persistence"}
+    assert set(manifest["feature_definitions"]) == set(result.feature_columns)     # keyed by output column
+    assert manifest["feature_definitions"]["event_count"] == "events in the window"
+    assert all(manifest["feature_definitions"][column] for column in result.feature_columns)
+    assert set(manifest["column_descriptions"]) == set(result.table.columns)
     embedded = json.loads(pq.read_schema(path).metadata[b"fieldmark"])
     # The manifest beside the data also records the data file's SHA-256 (a file cannot hold its own hash).
     assert manifest.pop(writer.DATA_DIGEST_KEY) == writer.file_sha256(path)
     assert embedded == manifest
+
+
+def test_parquet_fields_carry_their_descriptions(exported) -> None:
+    """Another tool reading the schema alone sees what each column means (field metadata)."""
+    path, result = exported
+    schema = pq.read_schema(path)
+    described = {field.name: field.metadata[b"description"].decode() for field in schema if field.metadata}
+    assert set(described) == set(result.table.columns)
+    assert "pseudonym" in described["learner"] and "cross-validation" in described["group"]
+    action_columns = [column for column in result.feature_columns if column.startswith("action_")]
+    assert action_columns and all(column[len("action_"):] in described[column] for column in action_columns)
 
 
 def test_file_digests_are_sha256_of_the_bytes(tmp_path) -> None:

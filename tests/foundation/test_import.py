@@ -55,8 +55,10 @@ def test_bad_rows_stop_the_import_and_name_their_lines(study: Path, tmp_path: Pa
     csv = write(tmp_path, GOOD + "ana,L77,2026-03-02T09:16:00+01:00,,,on_task,\n"
                 "ana,L03,2026-03-02T09:16:20,,,on_task,\nana,L04,2026-03-02T09:16:40+01:00,,,dancing,\n")
     result = call_cli("import", study, csv)
-    assert_user_error(result, "codes.csv", "line 5: learner not in roster.csv", "line 6", "no UTC offset",
-                      "line 7", "unknown activity code", "--skip-bad")
+    assert_user_error(result, "codes.csv", "line 5: learner 'L77' not in roster.csv", "line 6", "no UTC offset",
+                      "line 7", "unknown activity code 'dancing'",
+                      "(activity codes: on_task, task_discussion, off_task, rapid_guessing, away, not_visible)",
+                      "--skip-bad")
     with Store(study / "observations.sqlite") as store:
         assert store.observations().empty, "a failed import must write nothing"
 
@@ -104,3 +106,17 @@ def test_a_store_coded_with_codes_the_scheme_lacks_is_refused(study: Path, tmp_p
                            entered_at=t0 + timedelta(seconds=3), scheme_hash="0123456789abcdef")
     assert_user_error(call_cli("import", study, tmp_path / "device.sqlite"), "device.sqlite", "'dancing'",
                       "not a code of dimension 'activity'")
+
+
+def test_a_device_store_with_an_unknown_code_names_it_and_lists_the_dimensions_codes(study: Path, tmp_path: Path) -> None:
+    scheme_hash = load_study(study).scheme.content_hash
+    t0 = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)
+    device_path = tmp_path / "device.sqlite"
+    with Store(device_path) as device:
+        sid = device.start_session(coder="ben", device="tablet-2", mode="live", started_at=t0, monotonic_start=0.0,
+                                   window_seconds=20, order="fixed", seed=1, scheme_hash=scheme_hash)
+        device.record_observation(session_id=sid, learner="L02", window_start=t0, window_end=t0 + timedelta(seconds=20),
+                                  coded_at=t0 + timedelta(seconds=8), codes={"affect": "sleepy"},
+                                  scheme_hash=scheme_hash, slot=0)
+    assert_user_error(call_cli("import", study, device_path), "device.sqlite", "code 'sleepy'",
+                      "(its codes: focused, confused, frustrated, bored, unclear)")

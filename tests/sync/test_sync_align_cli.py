@@ -56,7 +56,8 @@ def test_align_json_recovers_the_planted_clocks_from_sync_marks(demo, study):
 
 
 def test_align_table_and_hand_set_offset(study):
-    result = call_cli("align", study, "--method", "auto", "--set-offset", "laptop-b=1.5")
+    # the small demo's automatic fit is above the 2 s bound: stored only when accepted
+    result = call_cli("align", study, "--method", "auto", "--set-offset", "laptop-b=1.5", "--accept-uncertain")
     assert result.returncode == 0, result.stderr
     assert re.search(r"laptop-b\s+manual\s+\+1\.500", result.stdout)
     assert re.search(r"laptop-a\s+auto\s+", result.stdout)

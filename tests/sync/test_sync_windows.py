@@ -101,3 +101,22 @@ def test_replay_windows_are_already_on_the_log_clock():
     assert live["start_ns"] == ns("2026-03-10T09:00:00Z")
     assert (replay["start_ns"], replay["end_ns"]) == (ns("2026-03-10T09:00:30Z"), ns("2026-03-10T09:00:50Z"))
     assert windows.attrs["warnings"] == []
+
+
+def test_observations_on_log_clock_moves_live_rows_and_keeps_replay_rows():
+    from sync.windows import observations_on_log_clock
+
+    obs = observations([("o1", "laptop-a", "L01", "2026-03-10T09:00:30Z", "2026-03-10T09:00:50Z",
+                         "2026-03-10T09:00:48Z", "on_task"),
+                        ("o2", "laptop-a", "L01", "2026-03-10T09:00:30Z", "2026-03-10T09:00:50Z",
+                         "2026-03-10T09:00:48Z", "on_task"),
+                        ("o3", "laptop-b", "L02", "2026-03-10T09:00:30Z", "2026-03-10T09:00:50Z",
+                         "2026-03-10T09:00:48Z", "on_task")]).assign(mode=["live", "replay", "live"])
+    moved = observations_on_log_clock(obs, {"laptop-a": manual_model("laptop-a", 30.0)})
+    # laptop-a 30 s ahead: its 09:00:30 is the log's 09:00:00; a replayed clip is on the log's clock already;
+    # laptop-b has no model: its own times, with a warning naming it
+    assert moved["log_start_ns"].tolist() == [ns("2026-03-10T09:00:00Z"), ns("2026-03-10T09:00:30Z"),
+                                              ns("2026-03-10T09:00:30Z")]
+    assert moved["log_end_ns"].tolist() == [ns("2026-03-10T09:00:20Z"), ns("2026-03-10T09:00:50Z"),
+                                            ns("2026-03-10T09:00:50Z")]
+    assert any("laptop-b" in warning for warning in moved.attrs["warnings"])

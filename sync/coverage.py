@@ -1,0 +1,112 @@
+"""Which observed learners the logs cover: the check before labels leave the study.
+
+A label is only worth exporting when the log holds the learner's events in the observed
+window.  Two mistakes look like idle learners otherwise: a roster ``log_id`` that the
+logs never use (a typo, "N-0001" for "n-0001", a missing "north/" prefix), and events
+that exist but fall outside every observed window (a wrong clock model or time zone).
+``learner_coverage`` counts, per observed learner, the events in their windows and in
+the whole log; ``unmatched_log_ids_problem`` words the first mistake, with a hint when
+the ids differ only by case, spaces or a prefix.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+SHOWN_IDS = 3
+COVERAGE_COLUMNS: tuple[str, ...] = ("learner", "log_id", "windows", "windows_without_events",
+                                     "events_in_windows", "events_in_logs")
+
+
+@dataclass(frozen=True)
+class Coverage:
+    """Per observed learner (COVERAGE_COLUMNS) and the log ids the logs hold."""
+
+    learners: pd.DataFrame
+    log_ids_in_logs: tuple[str, ...]
+
+    @property
+    def unmatched(self) -> pd.DataFrame:
+        """Observed learners whose log_id has no event anywhere in the logs."""
+        return self.learners[self.learners["events_in_logs"] == 0]
+
+    @property
+    def outside(self) -> pd.DataFrame:
+        """Observed learners with events in the logs but none in any observed window."""
+        return self.learners[(self.learners["events_in_logs"] > 0) & (self.learners["events_in_windows"] == 0)]
+
+    def summary(self) -> dict[str, int]:
+        """Counts only (no ids): what a manifest may keep."""
+        frame = self.learners
+        return {
+            "learners_observed": int(len(frame)),
+            "learners_with_events_in_windows": int((frame["events_in_windows"] > 0).sum()),
+            "learners_without_events_in_windows": int((frame["events_in_windows"] == 0).sum()),
+            "learners_without_events_in_logs": int((frame["events_in_logs"] == 0).sum()),
+            "windows": int(frame["windows"].sum()),
+            "windows_with_zero_events": int(frame["windows_without_events"].sum()),
+        }
+
+
+def learner_coverage(events: pd.DataFrame, windows: pd.DataFrame) -> Coverage:
+    """Coverage of ``windows`` (learner, log_id, start_ns, end_ns on the log's clock: the
+    WINDOWS table of sync/tables.py) by ``events`` (EVENTS, sorted by learner and time)."""
+    learner = events["learner"]
+    codes, names = ((learner.cat.codes.to_numpy(), learner.cat.categories.astype(str).to_numpy())
+                    if isinstance(learner.dtype, pd.CategoricalDtype) else pd.factorize(learner.astype(str)))
+    times = events["time_ns"].to_numpy(dtype=np.int64)
+    change = np.flatnonzero(codes[1:] != codes[:-1]) + 1  # events come in runs of one learner
+    run_starts = np.r_[0, change] if len(codes) else np.array([], dtype=np.int64)
+    run_ends = np.r_[change, len(codes)] if len(codes) else np.array([], dtype=np.int64)
+    run_names = np.asarray(names, dtype=object)[codes[run_starts]].astype(str) if len(codes) else np.array([], str)
+    runs = dict(zip(run_names, zip(run_starts, run_ends)))
+    log_id = windows["log_id"].astype(str).to_numpy()
+    start_ns = windows["start_ns"].to_numpy(dtype=np.int64)
+    end_ns = windows["end_ns"].to_numpy(dtype=np.int64)
+    in_window = np.zeros(len(windows), dtype=np.int64)
+    for value, rows in pd.Series(log_id).groupby(log_id).indices.items():  # per learner, vectorised within
+        begin, stop = runs.get(value, (0, 0))
+        own = times[begin:stop]
+        in_window[rows] = np.searchsorted(own, end_ns[rows], "left") - np.searchsorted(own, start_ns[rows], "left")
+    per_window = pd.DataFrame({"learner": windows["learner"].astype(str).to_numpy(), "log_id": log_id,
+                               "events": in_window})
+    table = per_window.groupby(["learner", "log_id"], sort=True).agg(
+        windows=("events", "size"), windows_without_events=("events", lambda counts: int((counts == 0).sum())),
+        events_in_windows=("events", "sum")).reset_index()
+    in_logs = pd.Series(run_ends - run_starts, index=run_names, dtype="int64")
+    table["events_in_logs"] = table["log_id"].map(in_logs).fillna(0).astype("int64")
+    return Coverage(learners=table[list(COVERAGE_COLUMNS)], log_ids_in_logs=tuple(sorted(run_names.tolist())))
+
+
+def _close(missing: str, present: list[str]) -> tuple[str, str] | None:
+    """A log id differing from ``missing`` only by case, spaces or a prefix, and how."""
+    squeezed = "".join(missing.split()).casefold()
+    for other in present:
+        squeezed_other = "".join(other.split()).casefold()
+        if squeezed_other == squeezed:
+            return other, "case or spaces"
+        if squeezed and (squeezed_other.endswith(squeezed) or squeezed.endswith(squeezed_other)) and squeezed_other:
+            return other, "a prefix"
+    return None
+
+
+def unmatched_log_ids_problem(coverage: Coverage) -> str | None:
+    """One sentence for observed learners whose log_id the logs never use (None when all are found)."""
+    unmatched = coverage.unmatched
+    if unmatched.empty:
+        return None
+    missing = unmatched["log_id"].tolist()
+    present = list(coverage.log_ids_in_logs)
+    shown = ", ".join(repr(value) for value in missing[:SHOWN_IDS])
+    more = f" and {len(missing) - SHOWN_IDS} more" if len(missing) > SHOWN_IDS else ""
+    examples = ", ".join(repr(value) for value in present[:SHOWN_IDS]) or "none"
+    hint = ""
+    for value in missing:
+        close = _close(value, present)
+        if close:
+            hint = f"; hint: the logs have {close[0]!r} for {value!r} (they differ only by {close[1]})"
+            break
+    return (f"{len(missing)} observed learner(s) have a log_id with no events anywhere in the logs: {shown}{more} "
+            f"(the logs have e.g. {examples}){hint}; fix the log_id column of roster.csv so its ids are the logs' ids")
