@@ -26,10 +26,13 @@ ROOT = Path(__file__).resolve().parents[2]
 DEMO_STUDY = ROOT / "demo_sessions" / "copy" / "study"
 BOM = b"\xef\xbb\xbf"
 
-# A tiny valid CSV log for learner L01 (log id n-5920 in the demo roster).
+# A tiny valid CSV log: two events for L01 (log id n-5920 in the demo roster), one for every other learner.
+_LOG_IDS = ("n-8472", "n-4462", "n-8449", "n-6802", "n-8313", "s-2567", "s-1138", "s-3880", "s-4815", "s-7284", "s-1871")
 GOOD_LOG = ("trainee,timestamp,event,result,step,skill,seconds\n"
             "n-5920,2026-03-10 08:55:36.459,attempt,pass,panel-1/step-01,isolate_supply,6.7\n"
-            "n-5920,2026-03-10 08:55:38.676,attempt,fail,panel-1/step-01,isolate_supply,7.9\n")
+            "n-5920,2026-03-10 08:55:38.676,attempt,fail,panel-1/step-01,isolate_supply,7.9\n"
+            + "".join(f"{log_id},2026-03-10 09:00:00.000,attempt,pass,panel-1/step-01,isolate_supply,5.0\n"
+                      for log_id in _LOG_IDS))
 CSV_LOG_ENTRY = """
 [[logs]]
 path = "logs/{name}"

@@ -10,6 +10,7 @@ import pandas as pd
 import pytest
 
 from agreement.pairing import unit_id
+from observer_app.study import row_chain
 from observer_app.study.foreign_store import read_foreign_store
 from observer_app.study.store import MIGRATION_ADJUDICATED_OBSERVATIONS, MIGRATIONS, SCHEMA_VERSION, Store, _statements
 from tests.conftest import assert_user_error, call_cli
@@ -101,6 +102,7 @@ def test_an_old_stores_adjudications_are_traced_to_their_observations(tmp_path: 
     ben = observations[(observations["coder"] == "ben") & (observations["learner"] == "L02")].sort_values("window_start")
     old_unit = unit_id([ann["observation_id"].iloc[0], ben["observation_id"].iloc[0]])
     connection = sqlite3.connect(study / "observations.sqlite")  # what the previous schema wrote
+    row_chain.register(connection)  # the store's insert trigger links the row into its hash chain
     connection.execute("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, reason) "
                        "VALUES ('a1', ?, 'activity', 'away', 'lead', 1, '')", (old_unit,))
     connection.commit()
