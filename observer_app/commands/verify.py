@@ -12,7 +12,9 @@ import sys
 from pathlib import Path
 
 from observer_app.study.folder import STORE_FILE
+from observer_app.study.foreign_store import reference_triggers
 from observer_app.study.row_chain import verify_chain
+from observer_app.study.store import SCHEMA_VERSION
 from sync.errors import InputError
 
 
@@ -38,7 +40,10 @@ def run(args: argparse.Namespace) -> int:
             if not connection.execute("SELECT 1 FROM sqlite_master WHERE name = 'row_chain'").fetchone():
                 raise InputError(path, None, "has no hash chain yet; open it once with this fieldmark version "
                                  "(any verb that reads the study) and verify again")
-            rows, first_break = verify_chain(connection)
+            version = int(connection.execute("PRAGMA user_version").fetchone()[0])
+            if version > SCHEMA_VERSION:
+                raise InputError(path, None, f"was written by a newer fieldmark (schema {version}); upgrade fieldmark")
+            rows, first_break = verify_chain(connection, reference_triggers(version))
         finally:
             connection.close()
     except sqlite3.DatabaseError as error:

@@ -66,7 +66,8 @@ def reference_schema(version: int) -> dict[str, tuple[str, ...]]:
         reference.close()
 
 
-def _reference_triggers(version: int) -> dict[str, str]:
+def reference_triggers(version: int) -> dict[str, str]:
+    """trigger name -> SQL of the guards fieldmark's migrations create at ``version``."""
     reference = sqlite3.connect(":memory:")
     try:
         for step in range(version):
@@ -115,7 +116,7 @@ def _read(connection: sqlite3.Connection, path: Path, study: Study | None) -> Fo
         raise InputError(path, None, f"written by a newer fieldmark (schema {version}); upgrade fieldmark first")
     schema = connection.execute("SELECT type, name, sql FROM sqlite_master").fetchall()
     expected_tables = reference_schema(version)
-    expected_triggers = _reference_triggers(version)
+    expected_triggers = reference_triggers(version)
     present_tables = {name for kind, name, _ in schema if kind == "table"}
     for kind, name, sql in schema:
         if kind == "view":

@@ -19,7 +19,6 @@ from dataclasses import dataclass
 
 CHAIN_TABLE = "row_chain"
 LINK_FUNCTION = "fieldmark_link"
-GUARDED_BY_NAME = ("_no_update", "_no_delete", "_chain")
 
 
 def link(previous: str | None, table: str, row_id: int, columns: str, values: str) -> str:
@@ -90,17 +89,21 @@ class ChainBreak:
     message: str
 
 
-def verify_chain(connection: sqlite3.Connection) -> tuple[int, ChainBreak | None]:
-    """(rows checked, the first break or None).  Read-only."""
-    triggers = {row[0] for row in connection.execute("SELECT name FROM sqlite_master WHERE type = 'trigger'")}
+def verify_chain(connection: sqlite3.Connection, guards: dict[str, str]) -> tuple[int, ChainBreak | None]:
+    """(rows checked, the first break or None).  Read-only.
+
+    ``guards``: trigger name -> SQL of the append-only triggers fieldmark's migrations
+    create at the store's version; each must be there unchanged, as must every table's
+    chain trigger.
+    """
+    triggers = {row[0]: row[1] for row in connection.execute("SELECT name, sql FROM sqlite_master WHERE type = 'trigger'")}
     tables = chained_tables(connection)
-    for table in tables + [CHAIN_TABLE]:
-        for suffix in GUARDED_BY_NAME:
-            if suffix == "_chain" and table == CHAIN_TABLE:
-                continue
-            if f"{table}{suffix}" not in triggers:
-                return 0, ChainBreak(table, None, f"its guard trigger {table}{suffix} was removed; the store was "
-                                                  "edited outside fieldmark")
+    expected = {**guards, **{f"{table}_chain": _trigger_sql(table, _columns(connection, table)) for table in tables}}
+    for name, sql in expected.items():
+        if triggers.get(name) != sql:
+            table = next((t for t in tables + [CHAIN_TABLE] if name.startswith(t + "_")), name)
+            return 0, ChainBreak(table, None, f"its guard trigger {name} was removed or changed; the store was "
+                                              "edited outside fieldmark")
     entries = connection.execute(f"SELECT seq, table_name, row_id, columns, link FROM {CHAIN_TABLE} ORDER BY seq").fetchall()
     values: dict[tuple[str, str], dict[int, str]] = {}
     for table, columns in {(entry[1], entry[3]) for entry in entries}:

@@ -17,6 +17,7 @@ from pathlib import Path
 
 import pytest
 
+from observer_app.study.foreign_store import reference_triggers
 from observer_app.study.store import CHAIN_VERSION, MIGRATIONS, SCHEMA_VERSION, Store, _statements
 from tests.conftest import assert_user_error, call_cli
 
@@ -104,14 +105,11 @@ def test_verify_passes_an_untouched_store(tmp_path: Path) -> None:
 
 
 def _edit_behind_fieldmark(path: Path, sql: str) -> None:
-    """A person with a SQLite shell who knows to drop the guards first."""
+    """A person with a SQLite shell who knows to drop the guards first, and puts them back exactly."""
+    guards = reference_triggers(SCHEMA_VERSION)
     connection = sqlite3.connect(path)
     connection.executescript("DROP TRIGGER codes_no_update; DROP TRIGGER codes_no_delete; DROP TRIGGER codes_chain;"
-                             + sql + """
-        CREATE TRIGGER codes_no_update BEFORE UPDATE ON codes
-            BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
-        CREATE TRIGGER codes_no_delete BEFORE DELETE ON codes
-            BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;""")
+                             + sql + guards["codes_no_update"] + ";" + guards["codes_no_delete"] + ";")
     connection.close()
     Store(path).close()  # fieldmark opens it again: the chain trigger comes back, nothing is adopted
 
@@ -153,3 +151,13 @@ def test_an_older_store_adopts_its_rows_into_the_chain_once(tmp_path: Path) -> N
     connection = sqlite3.connect(path)
     assert connection.execute("SELECT count(*) FROM row_chain").fetchone()[0] == 2
     connection.close()
+
+
+def test_verify_notices_a_weakened_guard(tmp_path: Path) -> None:
+    """A guard replaced by one that lets updates through (same name, other body) is a break too."""
+    path = filled_store(tmp_path / "o.sqlite")
+    connection = sqlite3.connect(path)
+    connection.executescript("DROP TRIGGER codes_no_update; CREATE TRIGGER codes_no_update BEFORE UPDATE ON codes "
+                             "WHEN 0 BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;")
+    connection.close()
+    assert_user_error(call_cli("verify", path), "codes_no_update", "changed")

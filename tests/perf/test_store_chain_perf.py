@@ -9,7 +9,8 @@ from datetime import datetime, timedelta, timezone
 from pathlib import Path
 
 from observer_app.study.row_chain import chained_tables, verify_chain
-from observer_app.study.store import Store
+from observer_app.study.foreign_store import reference_triggers
+from observer_app.study.store import SCHEMA_VERSION, Store
 
 T0 = datetime(2026, 3, 10, 8, tzinfo=timezone.utc)
 CODES = 300
@@ -51,7 +52,7 @@ def test_chain_cost_per_durable_code_and_verify_speed(tmp_path: Path) -> None:
     bulk.close()
     connection = sqlite3.connect(tmp_path / "bulk.sqlite")
     started = time.perf_counter()
-    rows, first_break = verify_chain(connection)
+    rows, first_break = verify_chain(connection, reference_triggers(SCHEMA_VERSION))
     verify_seconds = time.perf_counter() - started
     connection.close()
     print(f"\nper durable code: with chain {with_chain * 1e3:.2f} ms, without {without_chain * 1e3:.2f} ms, "
