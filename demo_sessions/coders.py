@@ -4,9 +4,17 @@ Whose turn it is comes from ``observer_app.coding.schedule.RoundRobin`` and noth
 coder runs their own schedule object with the study's window, order and seed.  A coded
 session at a centre has two parts:
 
-- paired: both coders start together on a shared signal and follow the same schedule
-  over the whole roster (same learner, same slot).  Both devices store the same
-  ``paired_start`` value: the lead coder's clock reading at the signal;
+- paired: exactly what the app's signal start does (observer_app/coding/shared_start.py).
+  The two devices share a pairing code; one coder counts "3, 2, 1, now" and each
+  presses the start key on "now" after their own reaction time (0.15-0.55 s, so the
+  presses differ by up to 0.4 s).  Each device anchors slot 0 at its own press on its
+  own clock.  As in the app, the session row is written when the coder leaves the start
+  form, SETUP_SECONDS before the countdown, with the pairing id and no start time; the
+  store reads slot 0's start (``paired_start``) from the press, so the two devices'
+  values differ by their clocks' offset.  Both follow the same schedule over the whole
+  roster (same learner, same slot), each timing windows on its own drifting clock.
+  Each press is stored as a paired sync mark (kind "signal start", the pairing id),
+  and so is a press on the closing countdown at the end of the run ("signal end");
 - solo: each coder follows their own schedule over their half of the roster and may
   close a turn early once everything is coded (``RoundRobin.finish_early``).
 
@@ -33,6 +41,8 @@ from demo_sessions.latent_states import LatentStates, draw_categorical
 from demo_sessions.scenario import ACTIVITY_STATES, AFFECT_STATES, Scenario
 from demo_sessions.simulator_log import ATTEMPT
 from observer_app.coding.schedule import RoundRobin
+from observer_app.coding.shared_start import new_pairing_code
+from observer_app.study.store import SIGNAL_END, SIGNAL_START
 
 NAMESPACE = uuid.UUID("0b6a61d2-4f3e-5c7a-9e1d-3a2b8c4d5e6f")
 ACTIVITY_NOT_SEEN = "not_visible"
@@ -54,6 +64,11 @@ AFFECT_NEIGHBOURS = {
 }
 ISOLATION_SECONDS = 6.0  # a mark is only made on an action with no other action this close
 MONOTONIC_START = 86_400.0  # the laptops had been up a day; only differences matter
+# A coder's key press after the spoken "now" (from memory: simple reaction times to a
+# spoken cue are a few tenths of a second); drawn from their own stream, so the rest of
+# the demo does not move when this changes.
+REACTION_RANGE_S = (0.15, 0.55)
+SETUP_SECONDS = 30.0  # start form to countdown: the clock check and the pairing code read out
 
 
 @dataclass(frozen=True)
@@ -71,11 +86,13 @@ class CodingSession:
 class CodingRecord:
     """Everything the coders' devices write, plus the truth behind each window."""
 
-    sessions: pd.DataFrame      # session_id, coder, device, mode, paired_start, started_at,
-                                # monotonic_start, window_seconds, order, seed, present, ended_at
+    sessions: pd.DataFrame      # session_id, coder, device, mode, paired_start, started_ns,
+                                # monotonic_start, window_seconds, order, seed, present, ended_ns,
+                                # pairing_id (None when solo)
     observations: pd.DataFrame  # observation_id, session_id, device, learner, slot, window_start,
                                 # window_end, coded_at, <dimensions>
-    marks: pd.DataFrame         # mark_id, session_id, device, learner, marked_at, event_ns
+    marks: pd.DataFrame         # mark_id, session_id, device, learner, marked_at, event_ns (log time
+                                # of the marked action, or of the press for a signal), kind, pairing_id
     corrections: pd.DataFrame   # observation_id, dimension, first_code (the slip), corrected_at;
                                 # the observation's final code is the one in ``observations``
     truth: pd.DataFrame         # observation_id, coder, device, learner, activity, affect,
@@ -131,35 +148,53 @@ def simulate_coding(rng: np.random.Generator, scenario: Scenario, seed: int, clo
                     states: LatentStates, events: pd.DataFrame, sessions: tuple[CodingSession, ...]) -> CodingRecord:
     """Both coders over every centre's session; see the module docstring for the rules."""
     window = float(scenario.window_seconds)
-    session_rows, turn_rows = [], []
+    session_rows, turn_rows, signal_rows = [], [], []
+    reactions = np.random.default_rng([seed, 12]).uniform(*REACTION_RANGE_S, size=(len(sessions), 2, 2))
     for centre_index, session in enumerate(sessions):
         halves = (session.learners[: len(session.learners) // 2], session.learners[len(session.learners) // 2:])
         solo_start = scenario.paired_minutes * 60 + float(rng.uniform(20, 60))
         parts = (("paired", 0.0, scenario.paired_minutes * 60),
                  ("solo", solo_start, scenario.coded_minutes * 60 - solo_start))
+        pairing_id = new_pairing_code(uuid.UUID(_stable_id(seed, session.centre, "pairing")).bytes)
         for part, true_start, true_duration in parts:
-            start_ns = session.coding_start_ns + int(round(true_start * 1e9))
-            lead_reading = int(clocks[0].device_from_log(start_ns))
+            signal_ns = session.coding_start_ns + int(round(true_start * 1e9))
             for coder_index, (coder, clock) in enumerate(zip(scenario.coders, clocks)):
-                learners = session.learners if part == "paired" else halves[coder_index]
+                paired = part == "paired"
+                learners = session.learners if paired else halves[coder_index]
                 session_id = _stable_id(seed, session.centre, clock.device, part)
+                # paired: slot 0 starts at this coder's own press; solo: when they start
+                start_ns = signal_ns + int(round(reactions[centre_index, coder_index, 0] * 1e9)) if paired else signal_ns
                 started_ns = int(clock.device_from_log(start_ns))
+                if paired:
+                    closing_ns = (session.coding_start_ns + int(round((true_start + true_duration) * 1e9))
+                                  + int(round(reactions[centre_index, coder_index, 1] * 1e9)))
+                    for kind, press_ns in ((SIGNAL_START, start_ns), (SIGNAL_END, closing_ns)):
+                        signal_rows.append({
+                            "mark_id": _stable_id(seed, "signal", session_id, kind), "session_id": session_id,
+                            "device": clock.device, "learner": "",
+                            "marked_at": pd.Timestamp(int(clock.device_from_log(press_ns)), tz="UTC"),
+                            "event_ns": press_ns, "kind": kind, "pairing_id": pairing_id})
                 schedule = RoundRobin(list(learners), window, order=scenario.schedule_order,
                                       seed=scenario.schedule_seed, paired=part == "paired")
                 duration = float(clock.device_seconds(true_duration))
                 turns = _turns(schedule, duration, rng, window, scenario.early_finish)
                 session_rows.append({
                     "session_id": session_id, "coder": coder, "device": clock.device, "mode": "live",
-                    "paired_start": lead_reading if part == "paired" else None, "started_ns": started_ns,
-                    "monotonic_start": MONOTONIC_START + 3600.0 * centre_index + true_start,
+                    "paired_start": None,  # typed starts only; a signal start's is its press (a mark)
+                    "started_ns": started_ns - int(round(SETUP_SECONDS * 1e9)) * paired,
+                    "monotonic_start": MONOTONIC_START + 3600.0 * centre_index + true_start - SETUP_SECONDS * paired,
                     "window_seconds": window, "order": scenario.schedule_order, "seed": scenario.schedule_seed,
                     "present": "\n".join(learners),
                     "ended_ns": started_ns + int(round((turns[-1][3] + 5.0) * 1e9)),
+                    "pairing_id": pairing_id if paired else None,
                 })
                 for slot, learner, begin, end, coded in turns:
                     turn_rows.append((session_id, coder_index, centre_index, learner, slot, begin, end, coded,
                                       started_ns, start_ns))
-    return _code_turns(rng, scenario, seed, clocks, states, events, sessions, session_rows, turn_rows)
+    record = _code_turns(rng, scenario, seed, clocks, states, events, sessions, session_rows, turn_rows)
+    marks = pd.concat([record.marks.assign(kind="", pairing_id=None), pd.DataFrame(signal_rows)], ignore_index=True)
+    return CodingRecord(sessions=record.sessions, observations=record.observations, marks=marks,
+                        corrections=record.corrections, truth=record.truth)
 
 
 def _code_turns(rng: np.random.Generator, scenario: Scenario, seed: int, clocks: tuple[DeviceClock, ...],

@@ -82,6 +82,7 @@ def write_device_store(path: Path, device: str, record: CodingRecord, scheme_has
                 window_seconds=session.window_seconds, order=session.order, seed=session.seed,
                 scheme_hash=scheme_hash, session_id=session.session_id, present=session.present.split("\n"),
                 paired_start=None if pd.isna(session.paired_start) else pd.Timestamp(int(session.paired_start), tz="UTC"),
+                pairing_id=None if pd.isna(session.pairing_id) else session.pairing_id,
             )
         store.record_observations(pd.DataFrame(), observations, DIMENSIONS)
         for slip, window in zip(slips.itertuples(index=False), corrected.itertuples()):
@@ -93,7 +94,8 @@ def write_device_store(path: Path, device: str, record: CodingRecord, scheme_has
                 code_id=f"{slip.observation_id}:{slip.dimension}:corrected")
         for mark in marks.itertuples(index=False):
             store.record_sync_mark(session_id=mark.session_id, marked_at=mark.marked_at, learner=mark.learner,
-                                   note="attempt seen", mark_id=mark.mark_id)
+                                   note="countdown" if mark.kind else "attempt seen", mark_id=mark.mark_id,
+                                   kind=mark.kind, pairing_id=None if pd.isna(mark.pairing_id) else mark.pairing_id)
         for session in sessions.itertuples(index=False):
             store.end_session(session.session_id, pd.Timestamp(session.ended_ns, tz="UTC"))
 

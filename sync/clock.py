@@ -36,7 +36,8 @@ class ClockModel:
     """Offset and drift of one device's clock relative to the log, with the evidence.
 
     offset_standard_error_s: the offset's standard error at the reference (marks: robust SD
-    of the kept residuals / sqrt(kept marks); auto: split samples); NaN when not known.
+    of the kept residuals / sqrt(kept marks); auto: bootstrap over windows, see
+    sync/clock_refine.py); NaN when not known.
     span_standard_error_s: the standard error of device -> log time over the device's
     whole observed span, drift included (the largest over the span; it grows away from the
     reference); NaN when not known.  The uncertainty gate of ``fieldmark align`` uses it.

@@ -9,28 +9,32 @@ needs no hints about which code means a busy or a quiet log.  Counting is exact 
 vectorised over all offsets at once: each event near a window adds +1 on the run of grid
 offsets that would put it inside, in per-code difference arrays summed by np.bincount.
 
+Before it, a gross stage (sync/clock_gross.py) scores every offset within ±14 h on a
+10 s grid; when its best offset lies beyond ±300 s and clearly beats everything within,
+the scan is centred there instead, and the model's warning names the mistake it looks
+like (a clock set in the wrong hour by hand, a wrong UTC offset in imported times).
+
 This coarse scan finds the offset to within a few seconds.  The fine stage
 (sync/clock_refine.py) then reads the log around each window with a hidden-state chain
 and scores offsets 0.1 s apart by how well each code names the state at the window's
 middle, where a coder's "what filled most of the window" is decided.
 
-Drift: the observations are cut into time-ordered chunks (each coding session apart from
-the others when there are two or more, otherwise parts of the one session), each chunk's
-offset is found by the fine stage near the overall estimate, and a Theil-Sen slope
-through the chunk offsets gives the drift; a last fine scan of all observations with the
-drift taken out gives the offset at the reference time.  Its standard error comes from
-split samples (the offset found in each of 8 random groups of observations), and the
-drift's from that over the chunks' spread in time.
+Drift and errors (``sync.clock_refine.fit_clock_line``): the observations are cut into
+time-ordered groups (each coding session apart from the others when there are two or
+more, otherwise parts of the one session); each group's offset is the fine stage's peak
+with a bootstrap standard error, and a weighted least-squares line through them gives
+the offset at the reference time, the drift, and their covariance -- hence the offset's
+standard error and the largest standard error over the observed span, drift included.
 """
 from __future__ import annotations
 
 import numpy as np
 import pandas as pd
 from scipy.special import xlogy
-from scipy.stats import theilslopes
 
 from sync.clock import ClockModel
-from sync.clock_refine import middle_states
+from sync.clock_gross import gross_mistake, gross_totals
+from sync.clock_refine import fit_clock_line, middle_states
 from sync.event_table import learner_blocks
 from sync.time_column import datetime_column_ns
 
@@ -38,21 +42,14 @@ DEFAULT_RANGE_S = 300.0
 DEFAULT_STEP_S = 0.5
 FINE_STEP_S = 0.1
 FINE_HALF_WIDTH_S = 30.0
-CHUNKS = 12
-MIN_CHUNK_OBSERVATIONS = 100
-SESSION_GAP_S = 3600.0
-ROUGH_DRIFT_CHUNKS = 4
-SPLITS = 8
-MIN_SPLIT_OBSERVATIONS = 30
 UNCERTAIN_OFFSET_S = 1.0
 UNCERTAIN_DRIFT_PPM = 10.0
-MIN_DRIFT_SPAN_S = 3600.0
 AMBIGUOUS_BELOW = 0.25
 CLEAR_PEAK_SPREADS = 20.0  # a peak this many noise spreads above the far level is clear
 INFORMATIVE_SHARE = 0.5  # dimensions at least half as prominent as the best one are used
 SEPARATION_WINDOWS = 3.0  # rivals are offsets more than 3 window lengths beyond the peak
 PAIRS_PER_BLOCK = 4_000_000
-LIKELIHOOD_INTERVAL = 0.5  # log-likelihood units: about one standard error either side of the best offset
+GROSS_WINS = 2.0  # a far offset must score twice the best near one to move the scan there
 PEAK_REGION = 0.3  # the peak region: scores within 30% of the peak's height above the median
 
 
@@ -219,7 +216,8 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
     devices = observations["device"].unique()
     if len(devices) != 1:
         raise ValueError(f"scan_offset takes one device's observations, got {list(devices)}")
-    candidates = default_candidates() if candidates is None else np.asarray(candidates, dtype=np.float64)
+    gross = candidates is None
+    candidates = default_candidates() if gross else np.asarray(candidates, dtype=np.float64)
     if len(candidates) > 2 and not np.allclose(np.diff(candidates), candidates[1] - candidates[0]):
         raise ValueError("candidates must be an evenly spaced ascending grid")
     usable = observations.dropna(subset=["window_start", "window_end"])
@@ -248,15 +246,16 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
 
     everyone = np.arange(len(start))
     separation_s = SEPARATION_WINDOWS * window_s
+    if gross and len(start):
+        candidates = candidates + _gross_shift(event_ns, blocks, learners, start, end, labels, sizes)
     per_dimension = curves(everyone, candidates, list(range(len(dimensions))))
     informative = _informative_dimensions(candidates, per_dimension, separation_s)
 
-    def curve(rows: np.ndarray, offsets_s: np.ndarray, shift_ns: np.ndarray | int = 0) -> np.ndarray:
-        """The summed score of the informative dimensions."""
-        return np.sum(curves(rows, offsets_s, informative, shift_ns), axis=0)
-
     scores = np.sum([per_dimension[column] for column in informative], axis=0)
     estimate, confidence, warnings = locate_peak(candidates, scores, separation_s)
+    mistake = gross_mistake(estimate) if gross else None
+    if mistake:
+        warnings.append(mistake)
     left_out = [dimensions[column] for column in range(len(dimensions)) if column not in informative]
     if left_out:
         warnings.append(f"left out of the scan, their codes do not follow log activity: {', '.join(left_out)}")
@@ -270,115 +269,33 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
                            [sizes[column] for column in informative], rates)
 
     near = _fine_grid(estimate)
-    offset, drift, residual, lever_s, drift_warnings = _drift(states.window_scores(near, middle), near, start,
-                                                              reference)
-    # Final offset from all observations at once, with the drift taken out of the windows
-    # (device - drift * (device - reference); the error, drift * offset, is microseconds).
-    shift = np.round(drift * 1e-6 * (start - reference)).astype(np.int64)
-    final = _fine_grid(offset)
-    per_window = states.window_scores(final, middle, shift)
-    offset = likelihood_peak(final, per_window.sum(axis=0))
-    standard_error = _split_sample_error(per_window, final)
-    if standard_error > UNCERTAIN_OFFSET_S:
-        warnings.append(f"offset uncertain: standard error {standard_error:.1f} s (few windows show the "
-                        "learner's activity change); sync marks pin it down")
-    chunks = len(_time_chunks(start))
-    drift_error = _drift_error_ppm(standard_error, chunks, lever_s)
-    if drift_error > UNCERTAIN_DRIFT_PPM:
-        warnings.append(f"drift uncertain: standard error about {drift_error:.0f} ppm (each of the {chunks} groups "
-                        f"of observations gives its offset only to about {standard_error * np.sqrt(chunks):.1f} s); "
-                        "sync marks pin it down")
+    line = fit_clock_line(states.window_scores(near, middle), near, start, reference)
+    if line.drift_error_ppm > UNCERTAIN_DRIFT_PPM:
+        warnings.append(f"drift uncertain: standard error about {line.drift_error_ppm:.0f} ppm; sync marks pin it down")
+    if line.span_error_s > UNCERTAIN_OFFSET_S:
+        warnings.append(f"offset uncertain: standard error {line.span_error_s:.1f} s over the observed span "
+                        "(few windows show the learner's activity change); sync marks pin it down")
     return ClockModel(
-        device=str(devices[0]), method="auto", offset_s=offset, drift_ppm=drift, reference_ns=reference,
-        marks_used=0, median_abs_residual_s=residual, confidence=confidence, offset_standard_error_s=standard_error,
-        warnings=tuple(warnings + drift_warnings),
+        device=str(devices[0]), method="auto", offset_s=line.offset_s, drift_ppm=line.drift_ppm, reference_ns=reference,
+        marks_used=0, median_abs_residual_s=line.residual_s, confidence=confidence,
+        offset_standard_error_s=line.offset_error_s, span_standard_error_s=line.span_error_s,
+        warnings=tuple(warnings) + line.warnings,
         scan_offsets_s=tuple(float(x) for x in candidates), scan_scores=tuple(round(float(s), 6) for s in scores),
     )
 
 
-def likelihood_peak(offsets_s: np.ndarray, scores: np.ndarray) -> float:
-    """The middle of the contiguous run of offsets whose log-likelihood is within
-    LIKELIHOOD_INTERVAL of the best (the apex, or the centre of a flat top)."""
+def _gross_shift(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], learners: np.ndarray,
+                 start: np.ndarray, end: np.ndarray, labels: np.ndarray, sizes: list[int]) -> float:
+    """Where to centre the ±DEFAULT_RANGE_S scan: 0, or the gross stage's best offset
+    (sync/clock_gross.py) when it lies beyond that range and scores at least
+    GROSS_WINS times the best score within it (rounded to the scan's step)."""
+    offsets_s, totals, exposures = gross_totals(event_ns, blocks, learners, start, end, labels, sizes)
+    scores = likelihood_ratio_curve(totals, exposures)
+    near = np.abs(offsets_s) <= DEFAULT_RANGE_S
     best = int(np.argmax(scores))
-    inside = scores >= scores[best] - LIKELIHOOD_INTERVAL
-    left = right = best
-    while left > 0 and inside[left - 1]:
-        left -= 1
-    while right < len(scores) - 1 and inside[right + 1]:
-        right += 1
-    return float((offsets_s[left] + offsets_s[right]) / 2)
-
-
-def _drift(per_window: np.ndarray, grid: np.ndarray, start: np.ndarray,
-           reference: int) -> tuple[float, float, float, float, list[str]]:
-    """(offset at reference, drift ppm, median abs chunk residual s, lever arm s, warnings)
-    from chunk scans; ``per_window`` holds each window's fine-stage score on ``grid``, the
-    fine grid around the coarse estimate.  The lever arm is sqrt(sum of squared chunk-time
-    deviations), which sets how well the slope is known (0 when no drift is fitted)."""
-    chunks = _time_chunks(start)
-    span_s = (start.max() - start.min()) / 1e9 if len(start) else 0.0
-    if len(chunks) < 2 or span_s < MIN_DRIFT_SPAN_S:
-        offset = likelihood_peak(grid, per_window.sum(axis=0)) if len(start) else float(np.mean(grid))
-        return offset, 0.0, float("nan"), 0.0, [
-            f"drift not estimated (needs two or more groups of {MIN_CHUNK_OBSERVATIONS} observations spread over "
-            f"{MIN_DRIFT_SPAN_S / 3600:.0f} hour or more); assumed 0 ppm"]
-    centres, offsets = [], []
-    for rows in chunks:
-        offset = likelihood_peak(grid, per_window[rows].sum(axis=0))
-        centres.append((np.median(start[rows]) - reference) / 1e9 - offset)
-        offsets.append(offset)
-    centres, offsets = np.asarray(centres), np.asarray(offsets)
-    slope = theilslopes(offsets, centres)[0]
-    intercept = float(np.median(offsets - slope * centres))
-    # With two groups the line passes through both: no residual to speak of.
-    residual = float(np.median(np.abs(offsets - (intercept + slope * centres)))) if len(chunks) > 2 else float("nan")
-    warnings = []
-    if len(chunks) < ROUGH_DRIFT_CHUNKS:
-        warnings.append(f"drift rests on only {len(chunks)} groups of observations; treat it as rough "
-                        "(sync marks pin it down)")
-    lever = float(np.sqrt(np.sum((centres - centres.mean()) ** 2)))
-    return intercept, float(slope * 1e6), residual, lever, warnings
-
-
-def _drift_error_ppm(standard_error_s: float, chunks: int, lever_s: float) -> float:
-    """Standard error of the drift: each of ``chunks`` groups holds about 1/chunks of the
-    observations, so its offset is known to about standard_error_s * sqrt(chunks), and a
-    least-squares slope through them to that over the lever arm.  NaN when not fitted."""
-    if lever_s <= 0 or not np.isfinite(standard_error_s):
-        return float("nan")
-    return standard_error_s * np.sqrt(chunks) / lever_s * 1e6
-
-
-def _split_sample_error(per_window: np.ndarray, grid: np.ndarray) -> float:
-    """Standard error of the offset by split samples: the observations are dealt at random
-    (fixed seed) into SPLITS groups, each group's offset is found on ``grid`` from the sum of its rows of
-    ``per_window`` (each window's fine-stage score), and
-    SE = sd(group offsets) / sqrt(SPLITS).  NaN when there are too few observations."""
-    count = len(per_window)
-    splits = min(SPLITS, count // MIN_SPLIT_OBSERVATIONS)
-    if splits < 2:
-        return float("nan")
-    groups = np.random.default_rng(0).permutation(count) % splits
-    offsets = [likelihood_peak(grid, per_window[groups == group].sum(axis=0))
-               for group in range(splits)]
-    return float(np.std(offsets, ddof=1) / np.sqrt(splits))
-
-
-def _time_chunks(start: np.ndarray) -> list[np.ndarray]:
-    """Time-ordered groups of observations for the drift fit: first split where coding
-    paused for more than SESSION_GAP_S (separate sessions), then each session into parts
-    of at least MIN_CHUNK_OBSERVATIONS, about CHUNKS parts in all.  Sessions too small to
-    give an offset of their own are left out."""
-    order = np.argsort(start, kind="stable")
-    breaks = np.flatnonzero(np.diff(start[order]) > SESSION_GAP_S * 1e9) + 1
-    sessions = [session for session in np.split(order, breaks) if len(session) >= MIN_CHUNK_OBSERVATIONS]
-    if len(sessions) >= 2:
-        return sessions
-    chunks = []
-    for session in sessions:
-        parts = max(1, min(len(session) // MIN_CHUNK_OBSERVATIONS, int(np.ceil(CHUNKS * len(session) / len(start)))))
-        chunks.extend(np.array_split(session, parts))
-    return chunks
+    if near[best] or scores[best] < GROSS_WINS * max(float(scores[near].max()), 0.0) or scores[best] <= 0:
+        return 0.0
+    return float(np.round(offsets_s[best] / DEFAULT_STEP_S) * DEFAULT_STEP_S)
 
 
 def _code_numbers(observations: pd.DataFrame, dimensions: list[str]) -> tuple[np.ndarray, list[int]]:

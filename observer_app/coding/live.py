@@ -10,10 +10,17 @@ i.e. after SQLite committed it with synchronous=FULL.  If the write fails the co
 not shown and the state carries the error.
 
 Time: the session measures time in *elapsed seconds on the schedule's grid*, read from
-the monotonic clock (it never jumps).  The grid's zero is the session start (solo)
-or the shared start time both coders typed (paired), so two paired devices count the
-same slots.  Window bounds written to the store are that zero plus the grid offsets;
-entry times are the device's wall clock at the moment of the key press.
+the monotonic clock (it never jumps).  The grid's zero is the session start (solo),
+the coder's key press on the spoken "now" (paired, signal start: observer_app/coding/
+shared_start.py), or the shared start time both coders typed (paired, typed start), so
+two paired devices count the same slots.  The signal start reads no wall clock, so two
+devices whose clocks differ by half a minute still share the grid to within the coders'
+reaction times; the press is stored as a paired sync mark (kind "signal start", the
+run's pairing id), and so is a second countdown at the end of the run ("signal end"),
+from which align reads the devices' relative offset and drift.  A typed start needs the
+clock difference the coders read off the clock-check screen, within a bound.  Window
+bounds written to the store are the zero (on this device's wall clock) plus the grid
+offsets; entry times are the device's wall clock at the moment of the key press.
 
 Rules this module decides (one home each):
 - Solo: the turn ends as soon as every dimension is coded, or at the window end.
@@ -24,7 +31,8 @@ Rules this module decides (one home each):
   Pause, paired: the shared grid runs on (windows that pass become no-code rows);
   only coding is blocked, so both coders stay on the same learner.
 - Marking the current learner absent ends their turn at once in solo mode; in paired
-  mode the turn runs to the boundary so both devices stay aligned.
+  mode the turn runs to the boundary so both devices stay aligned, and the learner's
+  later slots are skipped (nothing coded, nothing written), never removed.
 - Undo retracts the newest code still in effect with a retraction row (code NULL)
   that supersedes it; nothing is deleted.  Re-coding a dimension in the same window
   writes a correction that supersedes the earlier code.
@@ -32,11 +40,14 @@ Rules this module decides (one home each):
   time comes from the monotonic clock when it is still comparable with the wall clock
   (same boot, no suspend), else from wall-clock time since the session started.
   Paired: the slot follows from elapsed time; windows missed while the app was down
-  become no-code rows.  Solo: the downtime counts as a pause; an unfinished window
+  become no-code rows.  After a reboot a signal-started run is re-anchored from the
+  wall clock and the stored press (the grid's zero on this device's wall clock), and
+  the session says so: the coders compare check codes.  Solo: the downtime counts as a pause; an unfinished window
   continues, a finished one is followed by the next learner.
 """
 from __future__ import annotations
 
+import math
 import sqlite3
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
@@ -46,8 +57,11 @@ import pandas as pd
 
 from observer_app.coding.schedule import RoundRobin, Turn
 from observer_app.coding.clock import Clock
+from observer_app.coding.shared_start import (
+    TYPED_START_BOUND_S, Countdown, read_clock_difference, schedule_check_code,
+)
 from observer_app.study.scheme_binding import scheme_fits_store
-from observer_app.study.store import Store, new_id
+from observer_app.study.store import SIGNAL_END, SIGNAL_START, Store, new_id
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, window_counts
 
@@ -89,8 +103,8 @@ class SessionState:
     slot: int
     round: int
     window_seconds: float
-    time_left: float  # seconds left in the window; before a paired start, seconds until it
-    waiting: bool  # paired run whose shared start time is still ahead
+    time_left: float  # seconds left in the window; before a typed paired start, seconds until it
+    waiting: bool  # paired run whose start (typed time or signal) is still ahead
     paused: bool
     ended: bool
     paired: bool
@@ -102,6 +116,11 @@ class SessionState:
     absent: tuple[str, ...]  # learner ids currently marked absent
     message: str  # what the last action did, for the status line
     error: str | None  # a failed write: shown until the next successful one
+    awaiting_signal: bool = False  # signal start: waiting for this coder's key press on "now"
+    pairing_id: str = ""  # the code both devices of a paired run share ("" when solo)
+    check_code: str = ""  # paired, started: equal on both screens when both are in step
+    skipped: bool = False  # paired: the current learner is absent, their slot is skipped
+    countdown: str = ""  # the countdown word to read aloud now ("" when none is running)
 
 
 @dataclass(frozen=True)
@@ -129,8 +148,9 @@ class InterruptedSession:
     coder: str
     device: str
     started_at: datetime
-    paired_start: datetime | None
+    paired_start: datetime | None  # start of slot 0 on this device (None: solo, or a signal not given yet)
     codes_saved: int
+    pairing_id: str | None = None
 
 
 def elapsed_since_start(monotonic_start: float, started_at: datetime, clock: Clock) -> float:
@@ -139,11 +159,16 @@ def elapsed_since_start(monotonic_start: float, started_at: datetime, clock: Clo
     Why: the monotonic clock is immune to wall-clock corrections but restarts on reboot
     and stops during suspend; then only the wall clock knows how much time passed.
     """
+    return _elapsed_and_source(monotonic_start, started_at, clock)[0]
+
+
+def _elapsed_and_source(monotonic_start: float, started_at: datetime, clock: Clock) -> tuple[float, bool]:
+    """(seconds since start, whether the wall clock had to be used)."""
     by_monotonic = clock.monotonic() - monotonic_start
     by_wall = (clock.now_utc() - started_at).total_seconds()
     if by_monotonic >= 0 and abs(by_monotonic - by_wall) <= COMPARABLE_TOLERANCE_SECONDS:
-        return by_monotonic
-    return by_wall
+        return by_monotonic, False
+    return by_wall, True
 
 
 def _session_codes(store: Store, session_id: str) -> pd.DataFrame:
@@ -167,6 +192,7 @@ def find_interrupted_session(study: Study, store: Store) -> InterruptedSession |
         session_id=str(row["session_id"]), coder=str(row["coder"]), device=str(row["device"]),
         started_at=row["started_at"].to_pydatetime(), paired_start=paired_start,
         codes_saved=len(_session_codes(store, str(row["session_id"]))),
+        pairing_id=None if pd.isna(row["pairing_id"]) else str(row["pairing_id"]),
     )
 
 
@@ -174,7 +200,8 @@ class LiveSession:
     """One coder's live session.  Create with ``start`` or ``resume``."""
 
     def __init__(self, study: Study, store: Store, clock: Clock, *, session_id: str, coder: str, device: str,
-                 schedule: RoundRobin, origin_wall: datetime, origin_monotonic: float, start_elapsed: float) -> None:
+                 schedule: RoundRobin, origin_wall: datetime, origin_monotonic: float, start_elapsed: float,
+                 pairing_id: str | None = None, awaiting_signal: bool = False) -> None:
         self.study = study
         self.store = store
         self.clock = clock
@@ -200,12 +227,29 @@ class LiveSession:
         self._last_code_id: str | None = None
         self._message = ""
         self._error: str | None = None
+        self.pairing_id = pairing_id
+        self._awaiting_signal = awaiting_signal
+        self.countdown = Countdown(clock.monotonic)  # "3, 2, 1, now" for the coder who reads it aloud
 
     # -- creation ----------------------------------------------------------------------
     @classmethod
     def start(cls, study: Study, store: Store, clock: Clock, *, coder: str, device: str,
-              paired_start: datetime | None = None, present: Iterable[str] | None = None) -> LiveSession:
-        """Write the session row and begin at slot 0 (solo) or on the shared grid (paired)."""
+              paired_start: datetime | None = None, present: Iterable[str] | None = None,
+              pairing_id: str | None = None, signal: bool = False, typed_clock_difference_s: float | None = None,
+              difference_bound_s: float = TYPED_START_BOUND_S) -> LiveSession:
+        """Write the session row and begin at slot 0 (solo), on the typed shared grid, or
+        (``signal``) wait for this coder's key press on the countdown's "now".
+
+        A typed start (``paired_start``) needs ``typed_clock_difference_s``, the clock
+        difference the coders read off the clock-check screen; above
+        ``difference_bound_s`` it is refused with an InputError that offers the signal.
+        """
+        if signal and (paired_start is not None or not pairing_id):
+            raise ValueError("a signal start takes a pairing id and no typed start time")
+        if paired_start is not None:
+            if typed_clock_difference_s is None:
+                raise ValueError("a typed paired start needs the clock difference the coders typed")
+            typed_clock_difference_s = read_clock_difference(str(typed_clock_difference_s), difference_bound_s)
         learners = list(study.roster["learner"].astype(str))
         chosen = set(learners if present is None else present)
         present_list = [learner for learner in learners if learner in chosen]
@@ -214,15 +258,17 @@ class LiveSession:
             coder=coder, device=device, mode="live", started_at=started_at, monotonic_start=monotonic_start,
             window_seconds=study.window_seconds, order=study.order, seed=study.seed,
             scheme_hash=study.scheme.content_hash, paired_start=paired_start, present=present_list,
+            pairing_id=pairing_id, typed_clock_difference_s=typed_clock_difference_s,
         )
         origin_wall = paired_start or started_at
         start_elapsed = (started_at - origin_wall).total_seconds()
         schedule = RoundRobin(learners, study.window_seconds, order=study.order, seed=study.seed,
-                              paired=paired_start is not None, present=present_list)
+                              paired=paired_start is not None or signal, present=present_list)
         session = cls(study, store, clock, session_id=session_id, coder=coder, device=device, schedule=schedule,
                       origin_wall=origin_wall, origin_monotonic=monotonic_start - start_elapsed,
-                      start_elapsed=start_elapsed)
-        session._message = "Session started"
+                      start_elapsed=start_elapsed, pairing_id=pairing_id, awaiting_signal=signal)
+        session._message = ("Waiting for the start signal: press Enter on \"now\"" if signal
+                            else "Session started")
         session._catch_up()
         return session
 
@@ -233,19 +279,30 @@ class LiveSession:
         row = sessions[sessions["session_id"] == session_id].iloc[0]
         started_at = row["started_at"].to_pydatetime()
         paired_start = None if pd.isna(row["paired_start"]) else row["paired_start"].to_pydatetime()
+        pairing_id = None if pd.isna(row["pairing_id"]) else str(row["pairing_id"])
+        signal = pairing_id is not None and pd.isna(row["typed_clock_difference_s"])
         origin_wall = paired_start or started_at
-        start_elapsed = (started_at - origin_wall).total_seconds()
-        now_elapsed = start_elapsed + elapsed_since_start(float(row["monotonic_start"]), started_at, clock)
+        since_start, by_wall = _elapsed_and_source(float(row["monotonic_start"]), started_at, clock)
+        now_elapsed = (started_at - origin_wall).total_seconds() + since_start
+        # a signal run's coder joined at the press (slot 0), whatever the session row says
+        start_elapsed = 0.0 if signal else (started_at - origin_wall).total_seconds()
         learners = list(study.roster["learner"].astype(str))
         present = [learner for learner in str(row["present"]).split("\n") if learner]
         seed = 0 if pd.isna(row["seed"]) else int(row["seed"])
         schedule = RoundRobin(learners, float(row["window_seconds"]), order=str(row["order"]), seed=seed,
-                              paired=paired_start is not None, present=present)
+                              paired=paired_start is not None or signal, present=present)
+        awaiting = signal and paired_start is None
         session = cls(study, store, clock, session_id=session_id, coder=str(row["coder"]), device=str(row["device"]),
                       schedule=schedule, origin_wall=origin_wall, origin_monotonic=clock.monotonic() - now_elapsed,
-                      start_elapsed=start_elapsed)
+                      start_elapsed=start_elapsed, pairing_id=pairing_id, awaiting_signal=awaiting)
+        if awaiting:
+            session._message = "Resumed: still waiting for the start signal; press Enter on \"now\""
+            return session
         session._replay(now_elapsed)
         session._message = f"Resumed at slot {session.schedule.current.slot + 1}"
+        if by_wall and schedule.paired:
+            session._message += (" after a restart: re-anchored from this device's wall clock and the stored "
+                                 "start; compare check codes with your partner")
         return session
 
     def _replay(self, now_elapsed: float) -> None:
@@ -320,7 +377,9 @@ class LiveSession:
     # -- time ----------------------------------------------------------------------------
     @property
     def elapsed(self) -> float:
-        """Seconds on the schedule's grid (negative before a paired start)."""
+        """Seconds on the schedule's grid (negative before a paired start; -inf until the signal)."""
+        if self._awaiting_signal:
+            return -math.inf
         return self.clock.monotonic() - self._origin_monotonic
 
     def _wall(self, elapsed: float) -> datetime:
@@ -347,7 +406,7 @@ class LiveSession:
 
     def _close(self, turn: Turn, window: _Window | None) -> None:
         """A turn ended: write a no-code row unless it has a row or was before this coder joined."""
-        if turn.learner is None or turn.end <= self._start_elapsed or turn.slot in self._recorded_slots:
+        if turn.learner is None or turn.skipped or turn.end <= self._start_elapsed or turn.slot in self._recorded_slots:
             return
         if window is not None and window.has_row:
             if turn.end < window.turn.end:  # solo: finished early, so the window really ended now
@@ -377,10 +436,14 @@ class LiveSession:
             return "The session has ended"
         if self._paused:
             return "Paused: press Space to go on"
+        if self._awaiting_signal:
+            return "Waiting for the start signal: press Enter on \"now\""
         if self.elapsed < 0:
             return "The shared start time has not come yet"
         if self._window.turn.learner is None:
             return "Nobody is present to observe"
+        if self._window.turn.skipped:
+            return f"{self.label(self._window.turn.learner)} is absent: this slot is skipped"
         return None
 
     def press(self, key: str) -> bool:
@@ -568,6 +631,45 @@ class LiveSession:
         self._emit(CHANGED)
         return marked_at
 
+    def signal_start(self) -> bool:
+        """This coder pressed the start key on "now": slot 0 begins here, on this device's
+        monotonic clock; the press is stored as the run's paired start mark."""
+        if not self._awaiting_signal or self._ended:
+            return False
+        monotonic, wall = self.clock.monotonic(), self.clock.now_utc()
+        if self._paired_mark(SIGNAL_START, wall) is None:
+            return False
+        self._awaiting_signal = False
+        self._origin_monotonic, self._origin_wall, self._start_elapsed = monotonic, wall, 0.0
+        self.schedule.advance_to(0.0)
+        self._window = _Window(self.schedule.current, new_id())
+        self._message = f"Started on the signal at {wall:%H:%M:%S} on this clock"
+        self._emit(CHANGED)
+        return True
+
+    def signal_end(self) -> bool:
+        """This coder pressed the key on the closing countdown's "now": a second paired mark,
+        so align can read the two clocks' drift as well as their offset."""
+        if self._awaiting_signal or self._ended or not self.pairing_id:
+            self._message = "The closing signal is for a paired run that has started"
+            self._emit(CHANGED)
+            return False
+        wall = self.clock.now_utc()
+        if self._paired_mark(SIGNAL_END, wall) is None:
+            return False
+        self._message = f"Closing signal stored at {wall:%H:%M:%S}; end the session with F10 twice"
+        self._emit(CHANGED)
+        return True
+
+    def _paired_mark(self, kind: str, wall: datetime) -> str | None:
+        try:
+            return self.store.record_sync_mark(session_id=self.session_id, marked_at=wall, note="countdown",
+                                               pairing_id=self.pairing_id, kind=kind)
+        except sqlite3.Error as error:
+            self._error = f"NOT SAVED: {kind} ({error})"
+            self._emit(CHANGED)
+            return None
+
     def end(self) -> SessionSummary:
         """Write the session's end row; the summary is read back from the store."""
         if not self._ended:
@@ -596,6 +698,11 @@ class LiveSession:
             time_left = -elapsed
         else:
             time_left = max(0.0, turn.end - elapsed)
+        check_code = ""
+        if self.schedule.paired and not waiting:
+            run_key = self.pairing_id or f"{self._origin_wall:%Y-%m-%dT%H:%M:%S}"
+            check_code = schedule_check_code(run_key, self.schedule.learners, self.schedule.window,
+                                             self.schedule.order, self.schedule.seed, turn.slot, turn.learner)
         upcoming = self.schedule.upcoming(1)[0] if self.schedule.present else None
         return SessionState(
             session_id=self.session_id, learner=turn.learner, label=self.label(turn.learner),
@@ -605,7 +712,9 @@ class LiveSession:
             coded={d: code for d, (code, _) in self._window.coded.items()}, missing=self.missing,
             saved_count=self._saved_count, last_saved_at=self._last_saved_at, last_code_id=self._last_code_id,
             absent=tuple(learner for learner in self.schedule.learners if learner not in self.schedule.present),
-            message=self._message, error=self._error,
+            message=self._message, error=self._error, awaiting_signal=self._awaiting_signal,
+            pairing_id=self.pairing_id or "", check_code=check_code, skipped=turn.skipped,
+            countdown=self.countdown.word(),
         )
 
     def summary(self) -> SessionSummary:

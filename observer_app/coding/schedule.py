@@ -10,9 +10,10 @@ Rules:
   drawn from ``(seed, round number)`` ("shuffled").  Learners absent when their turn
   comes are skipped without using up time; a returning learner is picked up at their
   place in the current round if it has not passed yet, else in the next round.
-- Paired mode: turn n always covers [n * window, (n + 1) * window), so two coders with
-  the same settings, roster, absences and shared start time are always on the same
-  learner in the same slot.
+- Paired mode: turn n always covers [n * window, (n + 1) * window) and always belongs
+  to the same learner: an absent learner keeps their slot, which is skipped (the turn
+  says so), not removed.  So two coders with the same settings and roster are on the
+  same learner in the same slot even when one marks an absence the other does not.
 - Solo mode: a turn may finish early (all dimensions coded); the next turn starts at
   that moment and later boundaries are counted from it.
 """
@@ -32,6 +33,7 @@ class Turn:
     start: float
     end: float
     round: int
+    skipped: bool = False  # paired mode: the learner was absent when the slot began
 
 
 class RoundRobin:
@@ -84,12 +86,13 @@ class RoundRobin:
                 self._round_order = self.round_order(self._round)
                 self._position = 0
             candidate = self._round_order[self._position] if self._round_order else None
-            if candidate in self._present:
+            if candidate in self._present or (self.paired and candidate is not None):
                 learner = candidate
                 break
         if learner is None:
             self._position = -1 if not self._round_order else self._position
-        return Turn(slot=slot, learner=learner, start=start, end=self._boundary(slot + 1), round=self._round)
+        return Turn(slot=slot, learner=learner, start=start, end=self._boundary(slot + 1), round=self._round,
+                    skipped=learner is not None and learner not in self._present)
 
     # -- queries and events --------------------------------------------------------
     @property
@@ -112,7 +115,8 @@ class RoundRobin:
         """Solo mode: end the current turn now and start the next one; returns the ended turn."""
         if self.paired:
             raise RuntimeError("paired sessions advance on the slot boundary only")
-        ended = Turn(self._current.slot, self._current.learner, self._current.start, elapsed, self._current.round)
+        ended = Turn(self._current.slot, self._current.learner, self._current.start, elapsed, self._current.round,
+                     self._current.skipped)
         self._anchor, self._anchor_slot = elapsed, self._current.slot + 1
         self._current = self._next_turn(self._current.slot + 1, elapsed)
         return ended
@@ -123,11 +127,12 @@ class RoundRobin:
             raise RuntimeError("paired sessions stay on the shared slot grid; use advance_to")
         self._anchor, self._anchor_slot = elapsed, self._current.slot
         turn = self._current
-        self._current = Turn(turn.slot, turn.learner, elapsed, self._boundary(turn.slot + 1), turn.round)
+        self._current = Turn(turn.slot, turn.learner, elapsed, self._boundary(turn.slot + 1), turn.round, turn.skipped)
         return self._current
 
     def mark_absent(self, learner: str) -> None:
-        """Skip this learner from their next turn on (the current turn is not cut short)."""
+        """Skip this learner from their next turn on (the current turn is not cut short;
+        paired mode: their slots stay, skipped)."""
         self._present.discard(learner)
 
     def mark_returned(self, learner: str) -> None:

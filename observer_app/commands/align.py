@@ -102,7 +102,7 @@ def run(args: argparse.Namespace) -> int:
     for warning in report.warnings:
         print(f"  note: {warning}")
     print(f"offsets at {reference_text(reference)} (the hour the study's first live session began); "
-          "se_s: standard error over the device's observed span")
+          f"se_s: standard error over the device's observed span, fits stored only below {args.max_standard_error:g} s")
     print(f"{'clock':<16}{'method':<9}{'offset_s':>10}{'se_s':>7}{'drift_ppm':>11}{'marks':>7}{'median|res|_s':>15}"
           f"{'confidence':>12}  decision")
     for key, model in alignment.models.items():
@@ -117,6 +117,13 @@ def run(args: argparse.Namespace) -> int:
             print(f"  {key}: {warning}")
     for device, decision in alignment.decisions.items():
         print(f"  {device}: {decision.decision}: {decision.reason}")
+    for device, borrowing in alignment.borrowed.items():
+        print(f"  {device}: borrowed {borrowing.partner}'s model, {borrowing.relative_offset_s:+.3f} s relative, "
+              f"from {borrowing.marks_used} paired signal marks")
+    for check in alignment.typed_differences:
+        if check["agrees"] is False:
+            print(f"  warning: {check['device']}'s coders typed a clock difference of {check['typed_s']:+.1f} s to "
+                  f"{check['partner']}, but the paired signals measured {check['measured_s']:+.3f} s")
     for line in coverage_lines(coverage_report(coverage)) if coverage is not None else []:
         print(line)
     print("added the new models to the study's clock history")
@@ -137,6 +144,8 @@ def _payload(study, alignment: Alignment, reference: int, stored: bool) -> dict:
         "devices": devices,
         "decisions": {device: decision.as_dict() for device, decision in alignment.decisions.items()},
         "skipped": alignment.skipped,
+        "borrowed": {device: borrowing.as_dict() for device, borrowing in alignment.borrowed.items()},
+        "typed_clock_differences": alignment.typed_differences,
         "logs": {"rows_per_file": report.rows_per_file, "ambiguous_local_times": report.ambiguous_local_times,
                  "nonexistent_local_times": report.nonexistent_local_times,
                  "unknown_learners": report.unknown_learners, "warnings": report.warnings},

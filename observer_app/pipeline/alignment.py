@@ -6,8 +6,10 @@ The one place that decides which method a device gets when fitting:
   "auto":  the automatic scan of its live observations;
   "best":  marks when at least MIN_MARKS_FOR_BEST marks name learners with log events,
            otherwise the automatic scan.
-Replay observations are left out of the scan (a replayed clip is coded against the log
-itself, not a device's wall clock), and so are could-not-observe codes.  Marks are
+A device without sync marks of its own borrows its paired partner's model, moved by the
+relative offset read from the runs' signal marks (``borrowed_models``), before any
+automatic scan.  Replay observations are left out of the scan (a replayed clip is coded
+against the log itself, not a device's wall clock), and so are could-not-observe codes.  Marks are
 fitted per device and per session; the sessions share one model only when their fits
 agree (sync/clock_sessions.py).
 
@@ -37,6 +39,7 @@ from tqdm import tqdm
 from observer_app.study.store import Store, now_utc
 from observer_app.study.folder import Study
 from sync.clock import ClockModel, manual_model
+from sync.clock_pairs import partner_time_ns, relative_offsets
 from sync.clock_marks import fit_from_marks
 from sync.clock_scan import scan_offset
 from sync.clock_sessions import clock_key, model_for, session_model, sessions_apart
@@ -76,6 +79,8 @@ class Alignment:
     skipped: dict[str, str] = field(default_factory=dict)
     decisions: dict[str, ClockDecision] = field(default_factory=dict)
     events: pd.DataFrame | None = None  # the EVENTS read for the fits; None when no fit needed the logs
+    borrowed: dict[str, "Borrowing"] = field(default_factory=dict)
+    typed_differences: list[dict] = field(default_factory=list)
 
 
 def gate_error(model: ClockModel) -> float:
@@ -111,6 +116,7 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
         decisions[device] = ClockDecision(device, "kept hand-set",
                                           f"a hand-set offset is a person's decision; pass --refit {device} to replace it")
     refused: list[tuple[str, str, float]] = []
+    accepted: set[str] = set()
     for key, model in alignment.models.items():
         device = model.device
         if model.method == "manual":
@@ -121,12 +127,20 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
         uncertain = not (error < max_standard_error_s)
         if uncertain and not accept_uncertain:
             refused.append((key, model.method, error))
-        verb = "refitted" if device in refit else "stored"
+        elif uncertain:
+            accepted.add(key)
+        verb = "refitted" if device in refit else "borrowed" if model.method == "borrowed" else "stored"
         reason = _evidence(model) + (f"; above the bound of {max_standard_error_s:g} s, accepted with "
                                      "--accept-uncertain" if uncertain else "")
-        if device not in decisions or decisions[device].decision != "refused":
-            decisions[device] = ClockDecision(device, "refused" if uncertain and not accept_uncertain else verb,
-                                              reason, uncertain_accepted=uncertain and accept_uncertain)
+        earlier = decisions.get(device)
+        if earlier is not None:  # a device whose sessions got their own models: one reason per clock
+            reason = f"{earlier.reason} | {key}: {reason}"
+        elif key != device:
+            reason = f"{key}: {reason}"
+        refused_here = uncertain and not accept_uncertain
+        decisions[device] = ClockDecision(
+            device, "refused" if refused_here or (earlier and earlier.decision == "refused") else verb, reason,
+            uncertain_accepted=(uncertain and accept_uncertain) or bool(earlier and earlier.uncertain_accepted))
     for device, why in alignment.skipped.items():
         decisions.setdefault(device, ClockDecision(device, "skipped", why))
     alignment.decisions = dict(sorted(decisions.items()))
@@ -143,13 +157,20 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
         raise problem
     rows = [dict(device=model.device, model_key=key, model_json=model.to_json(), method=model.method,
                  command=command, evidence=_evidence(model),
-                 replaces_earlier=model.device in refit,
-                 uncertain_accepted=decisions[model.device].uncertain_accepted)
+                 replaces_earlier=model.device in refit, uncertain_accepted=key in accepted)
             for key, model in alignment.models.items()]
     if rows:
         with Store(study.store_path) as store:
             store.record_clock_models(rows, now_utc())
-    kept_models = {key: model for key, model in stored_clock_models(study).items() if key.split("/")[0] in kept}
+    in_effect = stored_clock_decisions(study)
+    for device, method_, fitted in zip(in_effect["device"].astype(str), in_effect["method"], in_effect["at"]):
+        decision = alignment.decisions.get(device)
+        stored_method = next((m.method for m in alignment.models.values() if m.device == device), None)
+        if decision and decision.decision in ("stored", "refitted") and stored_method not in (None, method_):
+            alignment.decisions[device] = ClockDecision(
+                device, decision.decision, f"{decision.reason}; the {method_} model fitted {fitted:%Y-%m-%dT%H:%M:%SZ} "
+                "ranks higher and stays in effect", decision.uncertain_accepted)
+    kept_models = {key: model for key, model in stored_clock_models(study).items() if model.device in kept}
     alignment.models = dict(sorted({**alignment.models, **kept_models}.items()))
     return alignment
 
@@ -164,6 +185,7 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
         observations = store.observations(study.scheme.dimension_names)
         marks = store.sync_marks()
         devices = sorted(set(store.sessions()["device"].astype(str)))
+    marks = marks[marks["kind"].fillna("") == ""]  # signal marks match the partner's, not the log
     unknown = sorted(set(manual_offsets) - set(devices))
     if unknown:
         raise InputError(None, "--set-offset", f"no sessions from device {unknown[0]!r} in the store; "
@@ -181,6 +203,7 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
     known = set(events["learner"].cat.categories.astype(str))
     models = {device: manual_model(device, offset) for device, offset in manual_offsets.items()}
     skipped: dict[str, str] = {}
+    to_scan = []
     for device in tqdm(to_fit, desc="aligning devices", unit="device", disable=None if progress else True):
         device_marks = marks[(marks["device"] == device) & marks["log_id"].isin(known)]
         live = observations[(observations["device"] == device) & (observations["mode"] == "live")]
@@ -189,12 +212,140 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
             models.update(_fit_marks_by_session(device_marks, events, live))
         elif use_marks:
             skipped[device] = "no sync marks that name a learner with log events"
-        elif len(live):
+        else:
+            to_scan.append(device)
+    # a device without marks of its own borrows a paired partner's model before any automatic scan;
+    # partners whose hand-set offset is kept (leave_out) lend theirs too
+    relative = paired_relative_offsets(study)
+    kept = {key: model for key, model in stored_clock_models(study).items() if key in leave_out} if leave_out else {}
+    borrowed = borrowings({**kept, **models}, study, relative) if method != "auto" else {}
+    for device, borrowing in borrowed.items():
+        models[device] = borrowing.model
+        skipped.pop(device, None)
+    for device in to_scan:
+        live = observations[(observations["device"] == device) & (observations["mode"] == "live")]
+        if device in borrowed:
+            continue
+        if len(live):
             models[device] = scan_offset(_observable(live, study), events, list(study.scheme.dimension_names))
         else:
             skipped[device] = "no live observations to scan"
-    return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped,
-                     events=events if to_fit else None)
+    return Alignment(models=dict(sorted(models.items())), read_report=report, skipped=skipped, borrowed=borrowed,
+                     typed_differences=typed_difference_checks(study, relative), events=events if to_fit else None)
+
+
+@dataclass(frozen=True)
+class Borrowing:
+    """A device's model taken from its paired partner: whose, and through which signals."""
+
+    model: ClockModel
+    partner: str
+    relative_offset_s: float  # this device minus the partner, at the partner's model reference
+    marks_used: int
+    pairing_ids: tuple[str, ...]
+
+    def as_dict(self) -> dict:
+        return {"from": self.partner, "relative_offset_s": round(self.relative_offset_s, 3),
+                "signal_marks_used": self.marks_used, "pairing_ids": list(self.pairing_ids)}
+
+
+def paired_relative_offsets(study: Study) -> pd.DataFrame:
+    """``sync.clock_pairs.relative_offsets`` of every signal mark in the study's store."""
+    with Store(study.store_path) as store:
+        marks = store.sync_marks()
+    marks = marks[marks["kind"].fillna("").ne("") & marks["pairing_id"].notna()]
+    return relative_offsets(pd.DataFrame({
+        "pairing_id": marks["pairing_id"].astype(str), "device": marks["device"].astype(str),
+        "kind": marks["kind"].astype(str), "marked_ns": marks["marked_at"].astype("int64")}))
+
+
+def borrowed_models(own: dict[str, ClockModel], study: Study) -> dict[str, ClockModel]:
+    """Models for devices without one of their own, borrowed from a paired partner that has one.
+
+    The partner's model is moved by the relative offset (and drift) read from the paired
+    runs' signal marks; its uncertainty adds the signals' to the partner's.  Method
+    "borrowed" ranks below the device's own marks (precedence: alignment's callers).
+    """
+    return {device: borrowing.model
+            for device, borrowing in borrowings(own, study, paired_relative_offsets(study)).items()}
+
+
+def borrowings(own: dict[str, ClockModel], study: Study, relative: pd.DataFrame) -> dict[str, Borrowing]:
+    """The borrowed model of every device in ``relative`` lacking its own, with where it came from."""
+    lenders = {key: model for key, model in own.items()  # device-wide models only, not per-session ones
+               if "/" not in key and model.method not in ("borrowed", "identity")}
+    owners = {model.device for model in own.values()}
+    found: dict[str, Borrowing] = {}
+    for row in relative.to_dict("records"):
+        for device, partner in ((row["device_a"], row["device_b"]), (row["device_b"], row["device_a"])):
+            if device in owners or partner not in lenders:
+                continue
+            borrowing = _borrow(device, lenders[partner], row)
+            best = found.get(device)
+            if best is None or _error(borrowing.model) < _error(best.model):
+                found[device] = borrowing
+    return dict(sorted(found.items()))
+
+
+def _error(model: ClockModel) -> float:
+    """The gate's standard error of a lender; a hand-set offset is a person's decision and counts as exact."""
+    error = gate_error(model)
+    return 0.0 if math.isnan(error) and model.method == "manual" else error
+
+
+def _borrow(device: str, lender: ClockModel, row: dict) -> Borrowing:
+    """The lender's line composed with the relative line, re-expressed as one clock line."""
+    reference = int(lender.reference_ns)
+    hour = 3_600_000_000_000
+    log_ns = np.array([reference, reference + hour], dtype=np.int64)
+    mine = partner_time_ns(row, lender.device, lender.to_device_ns(log_ns))
+    offsets = (mine - log_ns) / 1e9
+    drift = (offsets[1] - offsets[0]) / (hour / 1e9) * 1e6
+    relative_error = float(row["standard_error_s"])
+    lender_error = _error(lender)
+    lender_span = lender_error
+    pairing_ids = tuple(str(row["pairing_ids"]).split(","))
+    model = ClockModel(
+        device=device, method="borrowed", offset_s=float(offsets[0]), drift_ppm=float(drift), reference_ns=reference,
+        marks_used=int(row["marks_used"]),
+        offset_standard_error_s=float(math.hypot(lender_error, relative_error)) if math.isfinite(lender_error) else math.nan,
+        span_standard_error_s=float(math.hypot(lender_span, relative_error)) if math.isfinite(lender_span) else math.nan,
+        warnings=(f"borrowed from {lender.device} ({lender.method}) through {int(row['marks_used'])} paired signal "
+                  f"marks of run(s) {', '.join(pairing_ids)}",))
+    relative = float(offsets[0] - lender.offset_s)
+    return Borrowing(model=model, partner=lender.device, relative_offset_s=relative,
+                     marks_used=int(row["marks_used"]), pairing_ids=pairing_ids)
+
+
+TYPED_DIFFERENCE_TOLERANCE_S = 1.0  # a difference read off two screens by eye, to the second
+
+
+def typed_difference_checks(study: Study, relative: pd.DataFrame) -> list[dict]:
+    """Each typed clock difference (typed start) against what the runs' signal marks measured.
+
+    One dict per session with a typed difference and a partner device in ``relative``:
+    session_id, device, partner, typed_s, measured_s (partner minus this device at the
+    session's start, NaN when no signal pairs the two), agrees.
+    """
+    with Store(study.store_path) as store:
+        sessions = store.sessions()
+    typed = sessions[sessions["typed_clock_difference_s"].notna() & sessions["pairing_id"].notna()]
+    checks = []
+    for session in typed.to_dict("records"):
+        partners = sessions[(sessions["pairing_id"] == session["pairing_id"])
+                            & (sessions["device"] != session["device"])]["device"].astype(str).unique()
+        for partner in partners:
+            device = str(session["device"])
+            pair = relative[((relative["device_a"] == device) & (relative["device_b"] == partner))
+                            | ((relative["device_a"] == partner) & (relative["device_b"] == device))]
+            start = np.array([session["started_at"].value], dtype=np.int64)
+            measured = float((partner_time_ns(pair.iloc[0], device, start)[0] - start[0]) / 1e9) if len(pair) else math.nan
+            typed_s = float(session["typed_clock_difference_s"])
+            checks.append({"session_id": str(session["session_id"]), "device": device, "partner": str(partner),
+                           "typed_s": typed_s, "measured_s": None if math.isnan(measured) else round(measured, 3),
+                           "agrees": None if math.isnan(measured)
+                           else bool(abs(measured - typed_s) <= TYPED_DIFFERENCE_TOLERANCE_S)})
+    return checks
 
 
 def _fit_marks_by_session(marks: pd.DataFrame, events: pd.DataFrame, live: pd.DataFrame) -> dict[str, ClockModel]:
@@ -240,6 +391,8 @@ def _evidence(model: ClockModel) -> str:
     if model.method == "auto":
         shown = f"{model.confidence:.2f}" if math.isfinite(model.confidence) else "unknown"
         return f"automatic scan of live windows (confidence {shown}), {errors}"
+    if model.method == "borrowed":
+        return f"{model.warnings[0] if model.warnings else 'borrowed from a paired partner'}, {errors}"
     return "set by hand" if model.method == "manual" else model.method
 
 

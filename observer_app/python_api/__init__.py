@@ -102,7 +102,7 @@ def align(study: Study, *, method: str = "best", offsets: dict[str, float] | Non
     """
     from observer_app.pipeline.alignment import align_study, model_summary
 
-    alignment = align_study(study, method=method, manual_offsets=offsets)
+    alignment = align_study(study, method=method, manual_offsets=offsets, command=f"fieldmark.align(method={method!r})")
     rows = {device: model_summary(model) for device, model in alignment.models.items()}
     return pd.DataFrame.from_dict(rows, orient="index").rename_axis("device")
 

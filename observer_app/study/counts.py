@@ -38,6 +38,6 @@ def session_table(store: Store) -> pd.DataFrame:
     observations = store.observations([])
     windows = observations.groupby("session_id", observed=True).size()
     table = sessions[["session_id", "coder", "device", "mode", "started_at", "ended_at"]].copy()
-    table["paired"] = sessions["paired_start"].notna()
+    table["paired"] = sessions["paired_start"].notna() | sessions["pairing_id"].notna()
     table["windows"] = windows.reindex(table["session_id"]).fillna(0).astype("int64").to_numpy()
     return table

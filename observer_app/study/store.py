@@ -22,7 +22,7 @@ from observer_app.study import row_chain
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 from sync.errors import InputError
 
-SCHEMA_VERSION = 5
+SCHEMA_VERSION = 6
 
 # 2 -> 3: clock models become a history of kept decisions.  Each row says how it was
 # made (method: "manual", "marks", "borrowed", "auto"), by which command, on what
@@ -46,6 +46,18 @@ MIGRATION_CLOCK_HISTORY = """
 # cannot orphan it; rows written before keep "" and are traced back through their unit id.
 MIGRATION_ADJUDICATED_OBSERVATIONS = """
     ALTER TABLE adjudications ADD COLUMN observations TEXT NOT NULL DEFAULT '';
+    """
+
+# A paired run's signal start: the pairing id both devices share (typed from one to the
+# other), what kind of sync mark a row is ("" for a mark on a learner's action; the
+# start and end signals of a paired run), and the clock difference coders typed when
+# they chose a typed wall-clock start instead of the signal (seconds, partner minus this
+# device; NULL when none was typed).
+MIGRATION_PAIRED_SIGNAL = """
+    ALTER TABLE sessions ADD COLUMN pairing_id TEXT;
+    ALTER TABLE sessions ADD COLUMN typed_clock_difference_s REAL;
+    ALTER TABLE sync_marks ADD COLUMN pairing_id TEXT;
+    ALTER TABLE sync_marks ADD COLUMN kind TEXT NOT NULL DEFAULT '';
     """
 
 # The imports table guarded like the rest; the hash chain's table (observer_app/study/row_chain.py);
@@ -131,11 +143,23 @@ MIGRATIONS: tuple[str, ...] = (
     """,
     MIGRATION_CLOCK_HISTORY,
     MIGRATION_ADJUDICATED_OBSERVATIONS,
+    MIGRATION_PAIRED_SIGNAL,
     MIGRATION_BOUNDARY,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
 CHAIN_VERSION = MIGRATIONS.index(MIGRATION_BOUNDARY) + 1  # the version from which stores carry the hash chain
 STORE_MODE = 0o600  # owner-only, like secret.key: the store holds who was observed doing what
+
+_SESSION_COLUMNS = ("session_id, coder, device, mode, paired_start_ns, started_ns, monotonic_start, window_seconds, "
+                    "schedule_order, seed, scheme_hash, present, pairing_id, typed_clock_difference_s")
+SIGNAL_START, SIGNAL_END = "signal start", "signal end"
+MARK_KINDS: tuple[str, ...] = ("", SIGNAL_START, SIGNAL_END)
+# Where slot 0 of a paired run began on the device's clock: the typed shared start, or
+# the coder's key press on the start signal (its first mark; nothing while it is awaited).
+# (one grouped pass over the marks, joined per session, rather than a lookup per row)
+_PAIRED_START_NS = "COALESCE(s.paired_start_ns, signal.signal_ns)"
+_SIGNAL_JOIN = ("LEFT JOIN (SELECT session_id, min(marked_ns) AS signal_ns FROM sync_marks "
+                f"WHERE kind = '{SIGNAL_START}' GROUP BY session_id) signal USING (session_id) ")
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
@@ -158,6 +182,13 @@ def _nullable_ns(values: pd.Series) -> list[int | None]:
     if stamps.isna().any():
         numbers = [None if missing else n for n, missing in zip(numbers, stamps.isna())]
     return numbers
+
+
+def _optional(frame: pd.DataFrame, column: str) -> list:
+    """A column that older callers may leave out -> Python values, None for missing."""
+    if column not in frame:
+        return [None] * len(frame)
+    return [None if pd.isna(value) else value for value in frame[column]]
 
 
 def _times(values: pd.Series) -> pd.Series:
@@ -238,14 +269,19 @@ class Store:
         self, *, coder: str, device: str, mode: str, started_at: datetime, monotonic_start: float,
         window_seconds: float, order: str, seed: int | None, scheme_hash: str,
         paired_start: datetime | None = None, present: Iterable[str] = (), session_id: str | None = None,
+        pairing_id: str | None = None, typed_clock_difference_s: float | None = None,
     ) -> str:
+        """One session row.  ``pairing_id``: the code both devices of a paired run share;
+        ``typed_clock_difference_s``: the clock difference the coders typed (partner minus
+        this device) when they started on a typed wall-clock time."""
         session_id = session_id or new_id()
         with self._transaction() as cursor:
             cursor.execute(
-                "INSERT INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
+                f"INSERT INTO sessions ({_SESSION_COLUMNS}) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
                 (session_id, coder, device, mode, None if paired_start is None else to_ns(paired_start),
                  to_ns(started_at), float(monotonic_start), float(window_seconds), order, seed,
-                 scheme_hash, "\n".join(present)),
+                 scheme_hash, "\n".join(present), pairing_id,
+                 None if typed_clock_difference_s is None else float(typed_clock_difference_s)),
             )
         return session_id
 
@@ -331,7 +367,7 @@ class Store:
             _nullable_ns(sessions["paired_start"]), _nullable_ns(sessions["started_at"]),
             sessions["monotonic_start"].astype(float), sessions["window_seconds"].astype(float), sessions["order"],
             [None if pd.isna(seed) else int(seed) for seed in sessions["seed"]], sessions["scheme_hash"],
-            [""] * len(sessions),
+            [""] * len(sessions), _optional(sessions, "pairing_id"), _optional(sessions, "typed_clock_difference_s"),
         )
         given = observations[dimensions].notna() & observations[dimensions].ne("") if dimensions else None
         coded_ns = _nullable_ns(observations["coded_at"])
@@ -354,7 +390,8 @@ class Store:
         note_rows = [(f"{o}:note", o, text, entered)
                      for o, text, entered in zip(observations["observation_id"], notes, coded_ns) if text]
         with self._transaction() as cursor:
-            cursor.executemany("INSERT OR IGNORE INTO sessions VALUES (?,?,?,?,?,?,?,?,?,?,?,?)", session_rows)
+            cursor.executemany(f"INSERT OR IGNORE INTO sessions ({_SESSION_COLUMNS}) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
+                               session_rows)
             cursor.executemany("INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)", observation_rows)
             added = max(cursor.rowcount, 0)  # direct inserts only (total_changes would count the chain's rows too)
             cursor.executemany("INSERT OR IGNORE INTO codes VALUES (?,?,?,?,?,NULL)", code_rows)
@@ -375,11 +412,17 @@ class Store:
         return note_id
 
     def record_sync_mark(self, *, session_id: str, marked_at: datetime, learner: str = "", note: str = "",
-                         mark_id: str | None = None) -> str:
+                         mark_id: str | None = None, pairing_id: str | None = None, kind: str = "") -> str:
+        """A sync mark: ``kind`` "" for a mark on a learner's action (matched to the log),
+        or a paired run's SIGNAL_START / SIGNAL_END (matched to the partner's mark of the
+        same ``pairing_id`` and kind)."""
+        if kind not in MARK_KINDS:
+            raise ValueError(f"sync mark kind must be one of {MARK_KINDS}, got {kind!r}")
         mark_id = mark_id or new_id()
         with self._transaction() as cursor:
-            cursor.execute("INSERT OR IGNORE INTO sync_marks VALUES (?,?,?,?,?)",
-                           (mark_id, session_id, learner, to_ns(marked_at), note))
+            cursor.execute("INSERT OR IGNORE INTO sync_marks (mark_id, session_id, learner, marked_ns, note, "
+                           "pairing_id, kind) VALUES (?,?,?,?,?,?,?)",
+                           (mark_id, session_id, learner, to_ns(marked_at), note, pairing_id, kind))
         return mark_id
 
     def record_absence(self, *, session_id: str, learner: str, state: str, at: datetime) -> str:
@@ -486,19 +529,24 @@ class Store:
 
     def sessions(self) -> pd.DataFrame:
         frame = self._frame(
-            "SELECT s.session_id, s.coder, s.device, s.mode, s.paired_start_ns, s.started_ns, s.monotonic_start, "
-            "s.window_seconds, s.schedule_order AS \"order\", s.seed, s.scheme_hash, s.present, e.ended_ns "
-            "FROM sessions s LEFT JOIN session_ends e USING (session_id) ORDER BY s.started_ns, s.rowid")
+            f"SELECT s.session_id, s.coder, s.device, s.mode, {_PAIRED_START_NS} AS paired_start_ns, s.started_ns, "
+            "s.monotonic_start, "
+            "s.window_seconds, s.schedule_order AS \"order\", s.seed, s.scheme_hash, s.present, e.ended_ns, "
+            "s.pairing_id, s.typed_clock_difference_s "
+            f"FROM sessions s LEFT JOIN session_ends e USING (session_id) {_SIGNAL_JOIN}"
+            "ORDER BY s.started_ns, s.rowid")
         frame["paired_start"] = _times(frame.pop("paired_start_ns"))
         frame["started_at"] = _times(frame.pop("started_ns"))
         frame["ended_at"] = _times(frame.pop("ended_ns"))
         frame["seed"] = frame["seed"].astype("Int64")
         frame["monotonic_start"] = frame["monotonic_start"].astype("float64")
         frame["window_seconds"] = frame["window_seconds"].astype("float64")
-        for column in ("session_id", "coder", "device", "mode", "order", "scheme_hash", "present"):
+        frame["typed_clock_difference_s"] = frame["typed_clock_difference_s"].astype("float64")
+        for column in ("session_id", "coder", "device", "mode", "order", "scheme_hash", "present", "pairing_id"):
             frame[column] = frame[column].astype("string")
         return frame[["session_id", "coder", "device", "mode", "paired_start", "started_at", "monotonic_start",
-                      "window_seconds", "order", "seed", "scheme_hash", "present", "ended_at"]]
+                      "window_seconds", "order", "seed", "scheme_hash", "present", "ended_at", "pairing_id",
+                      "typed_clock_difference_s"]]
 
     def observations(self, dimensions: Iterable[str] | None = None) -> pd.DataFrame:
         """The current view: newest code per (observation, dimension), retractions applied.
@@ -507,10 +555,11 @@ class Store:
         every dimension that has ever been coded, sorted.
         """
         base = self._frame(
-            "SELECT o.observation_id, o.session_id, s.coder, s.device, s.mode, s.paired_start_ns, o.learner, "
+            f"SELECT o.observation_id, o.session_id, s.coder, s.device, s.mode, {_PAIRED_START_NS} AS paired_start_ns, "
+            "s.pairing_id, o.learner, "
             "o.slot, o.clip, o.window_start_ns, COALESCE(w.window_end_ns, o.window_end_ns) AS window_end_ns, "
             "o.created_ns, o.no_code, o.scheme_hash "
-            "FROM observations o JOIN sessions s USING (session_id) "
+            f"FROM observations o JOIN sessions s USING (session_id) {_SIGNAL_JOIN}"
             "LEFT JOIN (SELECT observation_id, window_end_ns FROM window_closures WHERE rowid IN "
             "(SELECT max(rowid) FROM window_closures GROUP BY observation_id)) w USING (observation_id) "
             "ORDER BY o.window_start_ns, o.rowid")
@@ -540,7 +589,8 @@ class Store:
         frame["window_start"] = _times(frame.pop("window_start_ns"))
         frame["window_end"] = _times(frame.pop("window_end_ns"))
         frame["slot"] = frame["slot"].astype("Int64")
-        for column in ("observation_id", "session_id", "coder", "device", "mode", "learner", "clip", "scheme_hash"):
+        for column in ("observation_id", "session_id", "coder", "device", "mode", "pairing_id", "learner", "clip",
+                       "scheme_hash"):
             frame[column] = frame[column].astype("string")
         coded_any = frame[dimensions].notna().any(axis=1) if dimensions else pd.Series(False, index=frame.index)
         frame["no_code"] = ~coded_any.to_numpy(dtype=bool)
@@ -548,12 +598,12 @@ class Store:
 
     def sync_marks(self) -> pd.DataFrame:
         frame = self._frame(
-            "SELECT m.mark_id, m.session_id, s.device, s.coder, m.learner, m.marked_ns, m.note "
+            "SELECT m.mark_id, m.session_id, s.device, s.coder, m.learner, m.marked_ns, m.note, m.pairing_id, m.kind "
             "FROM sync_marks m JOIN sessions s USING (session_id) ORDER BY m.marked_ns, m.rowid")
         frame["marked_at"] = _times(frame.pop("marked_ns"))
-        for column in ("mark_id", "session_id", "device", "coder", "learner", "note"):
+        for column in ("mark_id", "session_id", "device", "coder", "learner", "note", "pairing_id", "kind"):
             frame[column] = frame[column].astype("string")
-        return frame[["mark_id", "session_id", "device", "coder", "learner", "marked_at", "note"]]
+        return frame[["mark_id", "session_id", "device", "coder", "learner", "marked_at", "note", "pairing_id", "kind"]]
 
     def absences(self) -> pd.DataFrame:
         frame = self._frame("SELECT session_id, learner, state, at_ns FROM absences ORDER BY at_ns, rowid")

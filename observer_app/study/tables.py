@@ -10,7 +10,10 @@ superseded rows hidden.  One row per coded window.
     coder           string   who coded
     device          string   device label (the clock it was coded on)
     mode            string   "live" or "replay"
-    paired_start    datetime shared start time of a paired run (NaT when solo/replay)
+    paired_start    datetime start of slot 0 of a paired run on this device's clock (NaT when solo/replay);
+                             a signal start's press, or the typed shared start time
+    pairing_id      string   the code both devices of a paired run share (NA when solo, replay,
+                             or a paired run from before signal starts)
     learner         string   roster learner id
     slot            Int64    schedule slot number (NA for replay)
     clip            string   replay clip id ("" for live)
@@ -26,10 +29,14 @@ superseded rows hidden.  One row per coded window.
 SESSIONS (``Store.sessions()``):
     session_id, coder, device, mode, paired_start, started_at (datetime UTC),
     monotonic_start (float, the device's monotonic clock at start, seconds),
-    window_seconds (float), order (string), seed (Int64), scheme_hash, ended_at (datetime, NaT open)
+    window_seconds (float), order (string), seed (Int64), scheme_hash, ended_at (datetime, NaT open),
+    pairing_id (string, NA unless paired), typed_clock_difference_s (float, NaN unless the coders
+    started on a typed wall-clock time: the difference they typed, partner minus this device)
 
 SYNC MARKS (``Store.sync_marks()``):
-    mark_id, session_id, device, coder, learner (string, "" when none), marked_at (datetime), note
+    mark_id, session_id, device, coder, learner (string, "" when none), marked_at (datetime), note,
+    pairing_id (string, NA unless a paired signal), kind ("" for a mark on a learner's action,
+    "signal start" / "signal end" for a paired run's countdown key press)
 
 ABSENCES (``Store.absences()``):
     session_id, learner, state ("absent" | "returned"), at (datetime)
@@ -61,7 +68,7 @@ oldest fitted first:
 from __future__ import annotations
 
 OBSERVATION_COLUMNS: tuple[str, ...] = (
-    "observation_id", "session_id", "coder", "device", "mode", "paired_start", "learner",
+    "observation_id", "session_id", "coder", "device", "mode", "paired_start", "pairing_id", "learner",
     "slot", "clip", "window_start", "window_end", "coded_at",
 )
 OBSERVATION_TAIL_COLUMNS: tuple[str, ...] = ("no_code", "note", "scheme_hash", "corrected")

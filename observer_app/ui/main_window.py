@@ -8,6 +8,7 @@ store (no end row), so the next start offers to resume it.
 """
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 from PySide6.QtCore import Qt
@@ -165,12 +166,26 @@ class MainWindow(QMainWindow):
         if choice.replay:
             self.start_replay(choice)
             return
-        self.session = LiveSession.start(self.study, self.store, self.clock, coder=choice.coder, device=choice.device,
-                                         paired_start=choice.paired_start, present=choice.present)
-        check = ClockCheck(self.session)
+        if choice.paired_start is not None:  # typed start: the clock check comes first and may refuse it
+            check = ClockCheck(None, study=self.study, clock=self.clock, device=choice.device,
+                               pairing_id=choice.pairing_id or "")
+            check.difference_typed.connect(lambda seconds: self._start_live(choice, seconds))
+            check.signal_requested.connect(lambda: self.start_session(replace(choice, paired_start=None, signal=True)))
+        else:
+            self.session = LiveSession.start(self.study, self.store, self.clock, coder=choice.coder,
+                                             device=choice.device, present=choice.present,
+                                             pairing_id=choice.pairing_id, signal=choice.signal)
+            check = ClockCheck(self.session)
+            check.done.connect(self.show_observing)
         check.set_theme(self.theme)
-        check.done.connect(self.show_observing)
         self._show(check)
+
+    def _start_live(self, choice: StartChoice, typed_clock_difference_s: float) -> None:
+        """A typed paired start whose clock difference the clock check accepted."""
+        self.session = LiveSession.start(self.study, self.store, self.clock, coder=choice.coder, device=choice.device,
+                                         paired_start=choice.paired_start, present=choice.present,
+                                         pairing_id=choice.pairing_id, typed_clock_difference_s=typed_clock_difference_s)
+        self.show_observing()
 
     def start_replay(self, choice: StartChoice) -> None:
         open_session = find_open_replay(self.study, self.store, choice.coder)

@@ -33,6 +33,8 @@ COMMAND_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
     (Qt.Key.Key_F4, "F4", "who is here: mark absent or back", ""),
     (Qt.Key.Key_F5, "F5", "sync mark (this device's clock, now)", "sync mark"),
     (Qt.Key.Key_F6, "F6", "discreet mode on / off", ""),
+    (Qt.Key.Key_F7, "F7", "paired: show the countdown to read aloud (3, 2, 1, now)", ""),
+    (Qt.Key.Key_F9, "F9", "paired: press on the closing countdown's \"now\" (a second paired mark)", ""),
     (Qt.Key.Key_F10, "F10", "end the session (press twice)", "end"),
     (Qt.Key.Key_F1, "F1", "show / hide all keys", "all keys"),
 )
@@ -397,11 +399,15 @@ class ObservingScreen(CodingKeysMixin, QWidget):
             self.turn_caption.setText("SESSION ENDED")
         elif state.paused:
             self.turn_caption.setText("PAUSED  -  press Space to go on")
+        elif state.awaiting_signal:
+            self.turn_caption.setText(f"PAIRING CODE {state.pairing_id}  -  ONE OF YOU COUNTS \"3, 2, 1, NOW\" "
+                                      "(F7 SHOWS IT)  -  BOTH PRESS ENTER ON \"NOW\"  -  FIRST UP")
         elif state.waiting:
             self.turn_caption.setText("WAITING FOR THE SHARED START  -  FIRST UP")
         else:
-            self.turn_caption.setText("NOW OBSERVING")
-        self.learner_label.setText(state.label or "nobody present")
+            self.turn_caption.setText("NOW OBSERVING" + (f"  -  CHECK CODE {state.check_code}" if state.check_code else ""))
+        self.learner_label.setText((state.label or "nobody present")
+                                   + ("  (absent: slot skipped)" if state.skipped else ""))
         self.next_label.setText(state.next_label or "-")
         mode = "paired" if state.paired else "solo"
         self.slot_label.setText(f"slot {state.slot + 1} · round {state.round + 1} · {mode}")
@@ -419,8 +425,15 @@ class ObservingScreen(CodingKeysMixin, QWidget):
                                   f"slot {state.slot + 1} · still to code: {missing}{absent}")
 
     def _render_time(self, state: SessionState) -> None:
+        if state.awaiting_signal:
+            self.time_label.setText(state.countdown or "ready")
+            self.time_bar.fraction = 0.0
+            self.time_bar.update()
+            return
         seconds = max(0, math.ceil(state.time_left - 1e-9))
-        if state.waiting:
+        if state.countdown:  # the closing countdown, read aloud by one of the coders
+            self.time_label.setText(state.countdown)
+        elif state.waiting:
             self.time_label.setText(f"{seconds // 60}:{seconds % 60:02d}")
             self.time_bar.fraction = 0.0
         else:
@@ -445,6 +458,16 @@ class ObservingScreen(CodingKeysMixin, QWidget):
     # -- input -------------------------------------------------------------------------
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
         key = event.key()
+        if key == Qt.Key.Key_F7 and self.session.schedule.paired:
+            self.session.countdown.begin()
+            return
+        if key == Qt.Key.Key_F9:
+            self.session.signal_end()
+            return
+        if self.session.state().awaiting_signal and key in (Qt.Key.Key_Return, Qt.Key.Key_Enter) \
+                and not event.isAutoRepeat():
+            self.session.signal_start()
+            return
         if self._handled_common_key(event):
             return
         if key == Qt.Key.Key_Space:

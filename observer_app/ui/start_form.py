@@ -1,5 +1,9 @@
-"""Start-session form: coder, device label, solo, paired (with the shared start) or replay, who is present.
+"""Start-session form: coder, device label, solo, paired or replay, who is present.
 
+Paired runs share a pairing code: the form shows a fresh one, which one coder reads to
+the other, who types it over their own.  The run then starts on a spoken countdown
+(the default; the clocks need not agree) or, for coders whose clocks agree within a
+second, on a typed wall-clock time (the clock check asks for the difference).
 Tab moves between fields, Space ticks a learner, Enter starts, Escape goes back.
 The window length is the study's (study.toml); it is shown, not chosen here, so
 every coder of the study uses the same one.
@@ -15,11 +19,14 @@ from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem, QVBoxLayout, QWidget
 
 from observer_app.coding.clock import Clock
-from observer_app.coding.shared_start import parse_shared_start, suggested_start_times
+from observer_app.coding.shared_start import (
+    TYPED_START_BOUND_S, new_pairing_code, parse_shared_start, read_pairing_code, suggested_start_times,
+)
 from observer_app.study.folder import Study
 from sync.errors import InputError
 
-SOLO, PAIRED = "Solo - I code alone", "Paired - another coder codes the same learners"
+SOLO, PAIRED = "Solo - I code alone", "Paired - start together on a spoken countdown"
+PAIRED_TYPED = f"Paired - start at a typed time (clocks within {TYPED_START_BOUND_S:g} s)"
 REPLAY = "Replay - code clips of the ticked learners' logs"
 
 
@@ -30,6 +37,8 @@ class StartChoice:
     paired_start: datetime | None
     present: tuple[str, ...]
     replay: bool = False  # code replayed log clips of the ticked learners instead of watching live
+    pairing_id: str | None = None  # paired runs: the code both devices share
+    signal: bool = False  # paired run starting on the spoken countdown (paired_start is then None)
 
 
 class StartForm(QWidget):
@@ -51,7 +60,9 @@ class StartForm(QWidget):
         self.coder.setPlaceholderText("your coder name or initials")
         self.device = QLineEdit(device or socket.gethostname())
         self.mode = QComboBox()
-        self.mode.addItems([SOLO, PAIRED, REPLAY])
+        self.mode.addItems([SOLO, PAIRED, PAIRED_TYPED, REPLAY])
+        self.pairing = QLineEdit(new_pairing_code())
+        self.pairing.setToolTip("Read this code to your partner, or type the code your partner reads to you")
         self.shared_start = QComboBox()
         self.shared_start.setEditable(True)
         self.shared_start.setToolTip("Both coders type or pick the same time (study time zone)")
@@ -66,6 +77,8 @@ class StartForm(QWidget):
         form.addRow("Coder", self.coder)
         form.addRow("Device label", self.device)
         form.addRow("Mode", self.mode)
+        self.pairing_caption = QLabel("Pairing code (read yours out, or type your partner's)")
+        form.addRow(self.pairing_caption, self.pairing)
         self.shared_start_caption = QLabel(f"Shared start ({study.timezone})")
         form.addRow(self.shared_start_caption, self.shared_start)
         form.addRow("Who is present (Space ticks)", self.present)
@@ -88,9 +101,12 @@ class StartForm(QWidget):
         self.coder.setFocus()
 
     def _mode_changed(self) -> None:
-        paired = self.mode.currentText() == PAIRED
-        self.shared_start.setEnabled(paired)
-        self.shared_start_caption.setEnabled(paired)
+        paired = self.mode.currentText() in (PAIRED, PAIRED_TYPED)
+        typed = self.mode.currentText() == PAIRED_TYPED
+        self.pairing.setEnabled(paired)
+        self.pairing_caption.setEnabled(paired)
+        self.shared_start.setEnabled(typed)
+        self.shared_start_caption.setEnabled(typed)
 
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
         if event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
@@ -106,8 +122,15 @@ class StartForm(QWidget):
             self.error.setText("Type the coder's name or initials.")
             self.coder.setFocus()
             return
-        paired_start = None
-        if self.mode.currentText() == PAIRED:
+        paired_start, pairing_id = None, None
+        if self.mode.currentText() in (PAIRED, PAIRED_TYPED):
+            try:
+                pairing_id = read_pairing_code(self.pairing.text())
+            except InputError as error:
+                self.error.setText(error.line())
+                self.pairing.setFocus()
+                return
+        if self.mode.currentText() == PAIRED_TYPED:
             try:
                 paired_start = parse_shared_start(self.shared_start.currentText(), self.study.timezone,
                                                   self.clock.now_utc())
@@ -124,4 +147,5 @@ class StartForm(QWidget):
         self.error.setText("")
         self.started.emit(StartChoice(coder=coder, device=self.device.text().strip() or socket.gethostname(),
                                       paired_start=paired_start, present=present,
-                                      replay=self.mode.currentText() == REPLAY))
+                                      replay=self.mode.currentText() == REPLAY, pairing_id=pairing_id,
+                                      signal=self.mode.currentText() == PAIRED))

@@ -17,8 +17,9 @@ def test_demo_agree_step_matches_scikit_learn(tmp_path):
         paired = store.observations(study.scheme.dimension_names)
     paired = paired[paired["paired_start"].notna()]
     for dimension in study.scheme.dimensions:
-        # Paired-run windows share (paired_start, slot, learner); the could-not-observe code is left out.
-        wide = paired.pivot_table(index=["paired_start", "slot", "learner"], columns="coder",
+        # Paired-run windows share (run, slot, learner), the run being its pairing id (each laptop's
+        # paired_start is its own clock's reading of the start signal); could-not-observe left out.
+        wide = paired.pivot_table(index=["pairing_id", "slot", "learner"], columns="coder",
                                   values=dimension.name, aggfunc="first")
         wide = wide.dropna()
         wide = wide[(wide != dimension.could_not_observe).all(axis=1)]

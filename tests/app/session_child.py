@@ -17,7 +17,7 @@ study = load_study(sys.argv[1])
 store = Store(study.store_path)
 clock = FakeClock(monotonic=7000.0)
 shared = clock.now_utc() + timedelta(seconds=5)
-session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=shared)
+session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=shared)
 print("start", shared.isoformat(), flush=True)
 keys = "1q2w3e4r0t"
 step = 0

@@ -128,21 +128,84 @@ def test_a_whole_session_coded_with_the_keyboard_alone(qtbot, window):
         assert connection.execute("SELECT count(*) FROM session_ends").fetchone() == (1,)
 
 
-def test_paired_start_typed_in_the_form(qtbot, window):
+def _paired_form(qtbot, window, downs: int):
     press(qtbot, window, Qt.Key.Key_S)
     form = window.page
     press(qtbot, window, None, "ben")
     form.mode.setFocus()
-    press(qtbot, window, Qt.Key.Key_Down)  # paired
+    for _ in range(downs):
+        press(qtbot, window, Qt.Key.Key_Down)
+    return form
+
+
+def test_paired_start_typed_in_the_form_needs_a_small_typed_clock_difference(qtbot, window):
+    form = _paired_form(qtbot, window, 2)  # paired, typed time
+    press(qtbot, window, Qt.Key.Key_Tab)
+    assert focused(window) is form.pairing  # the code shown here is read to the partner
     press(qtbot, window, Qt.Key.Key_Tab)
     assert focused(window) in (form.shared_start, form.shared_start.lineEdit())
     form.shared_start.lineEdit().selectAll()
     press(qtbot, window, None, "9:05")  # 08:05 UTC in Berlin on 9 March (CET, UTC+1; EU summer time starts 29 March)
     press(qtbot, window, Qt.Key.Key_Return)
-    assert isinstance(window.page, ClockCheck)
+    check = window.page
+    assert isinstance(check, ClockCheck) and check.session is None
+    assert focused(window) is check.difference
+    press(qtbot, window, None, "3")
+    press(qtbot, window, Qt.Key.Key_Return)
+    assert window.page is check and "more than the 1 s" in check.error.text()  # refused, the signal offered
+    ARTIFACTS.mkdir(exist_ok=True)
+    check.grab().save(str(ARTIFACTS / "clock_check_typed_refused.png"))
     with sqlite3.connect(window.study.store_path) as connection:
-        paired_ns = connection.execute("SELECT paired_start_ns FROM sessions").fetchone()[0]
+        assert connection.execute("SELECT count(*) FROM sessions").fetchone()[0] == 0
+    check.difference.selectAll()
+    press(qtbot, window, None, "-0.5")
+    press(qtbot, window, Qt.Key.Key_Return)
+    assert isinstance(window.page, ObservingScreen)
+    with sqlite3.connect(window.study.store_path) as connection:
+        paired_ns, pairing_id, typed = connection.execute(
+            "SELECT paired_start_ns, pairing_id, typed_clock_difference_s FROM sessions").fetchone()
     assert paired_ns == 1773043500 * 10**9  # 2026-03-09T08:05:00Z as Unix seconds (date -d ... +%s)
+    assert pairing_id == form.pairing.text() and typed == -0.5
+
+
+def test_signal_start_from_the_form_anchors_on_the_enter_key(qtbot, window):
+    form = _paired_form(qtbot, window, 1)  # paired, spoken countdown
+    press(qtbot, window, Qt.Key.Key_Tab)
+    form.pairing.selectAll()
+    press(qtbot, window, None, "km7-qx")  # the code the partner read out
+    press(qtbot, window, Qt.Key.Key_Return)
+    assert isinstance(window.page, ClockCheck) and window.page.session.pairing_id == "KM7QX"
+    press(qtbot, window, Qt.Key.Key_Return)
+    screen = window.page
+    assert isinstance(screen, ObservingScreen)
+    assert "KM7QX" in screen.turn_caption.text() and screen.time_label.text() == "ready"
+    press(qtbot, window, Qt.Key.Key_F7)
+    screen.session.tick()
+    assert screen.time_label.text() == "3"
+    ARTIFACTS.mkdir(exist_ok=True)
+    screen.grab().save(str(ARTIFACTS / "observing_waiting_for_signal.png"))
+    window.clock.advance(3.2)
+    screen.session.tick()
+    assert screen.time_label.text() == "now"
+    press(qtbot, window, Qt.Key.Key_Return)  # on "now"
+    state = screen.session.state()
+    assert not state.awaiting_signal and state.check_code in screen.turn_caption.text()
+    window.clock.advance(25)
+    press(qtbot, window, Qt.Key.Key_F9)  # the closing countdown's "now"
+    with sqlite3.connect(window.study.store_path) as connection:
+        marks = connection.execute("SELECT kind, pairing_id FROM sync_marks ORDER BY marked_ns").fetchall()
+    assert marks == [("signal start", "KM7QX"), ("signal end", "KM7QX")]
+    ARTIFACTS.mkdir(exist_ok=True)
+    screen.grab().save(str(ARTIFACTS / "observing_paired_signal.png"))
+
+
+def test_a_refused_typed_start_can_switch_to_the_signal(qtbot, window):
+    _paired_form(qtbot, window, 2)
+    press(qtbot, window, Qt.Key.Key_Return)
+    assert isinstance(window.page, ClockCheck) and window.page.session is None
+    press(qtbot, window, Qt.Key.Key_F2)
+    assert isinstance(window.page, ClockCheck) and window.page.session is not None
+    assert window.page.session.state().awaiting_signal
 
 
 def test_interrupted_session_is_offered_and_resumed_from_the_overview(qtbot, tmp_path):
@@ -150,7 +213,7 @@ def test_interrupted_session_is_offered_and_resumed_from_the_overview(qtbot, tmp
     study = load_study(folder)
     clock = FakeClock()
     with Store(study.store_path) as store:
-        session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=clock.now_utc())
+        session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=clock.now_utc())
         session.press("1")
     clock.advance(50)
     window = MainWindow(folder, clock=clock, device="laptop-1")

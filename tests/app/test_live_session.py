@@ -62,7 +62,7 @@ def test_solo_window_that_ends_uncoded_is_an_explicit_no_code_row(study, store, 
 
 def test_paired_session_advances_only_on_the_slot_boundary(study, store, clock):
     start = clock.now_utc()
-    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=start)
+    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=start)
     session.press("2")
     session.press("w")
     assert session.state().learner == "L01"  # all coded, still the same learner
@@ -77,7 +77,7 @@ def test_paired_session_advances_only_on_the_slot_boundary(study, store, clock):
 
 def test_paired_start_in_the_future_waits_and_refuses_codes(study, store, clock):
     start = clock.now_utc() + timedelta(seconds=45)
-    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=start)
+    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=start)
     state = session.state()
     assert state.waiting and state.time_left == pytest.approx(45)
     assert session.press("1")  # a code key, but nothing is stored before the start
@@ -90,7 +90,7 @@ def test_paired_start_in_the_future_waits_and_refuses_codes(study, store, clock)
 
 def test_late_joiner_in_a_paired_run_starts_on_the_shared_grid(study, store, clock):
     start = clock.now_utc() - timedelta(seconds=130)  # the partner began 130 s ago
-    session = LiveSession.start(study, store, clock, coder="ben", device="laptop-2", paired_start=start)
+    session = LiveSession.start(study, store, clock, coder="ben", device="laptop-2", typed_clock_difference_s=0.0, paired_start=start)
     expected_slot = math.floor(130 / 20)
     assert session.state().slot == expected_slot
     assert session.state().learner == ROSTER_ORDER[expected_slot % 6]
@@ -99,7 +99,7 @@ def test_late_joiner_in_a_paired_run_starts_on_the_shared_grid(study, store, clo
 
 
 def test_undo_writes_a_retraction_and_keeps_the_original(study, store, clock):
-    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=clock.now_utc())
+    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=clock.now_utc())
     session.press("3")
     session.press("e")
     assert session.undo()
@@ -120,7 +120,7 @@ def test_undo_writes_a_retraction_and_keeps_the_original(study, store, clock):
 
 
 def test_recoding_a_dimension_supersedes_the_earlier_code(study, store, clock):
-    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=clock.now_utc())
+    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=clock.now_utc())
     session.press("1")
     session.press("3")
     rows = raw(study, "SELECT code_id, code, supersedes FROM codes ORDER BY rowid")
@@ -188,7 +188,7 @@ def test_solo_pause_stops_time_and_resume_gives_a_fresh_window(study, store, clo
 
 
 def test_paired_pause_keeps_the_shared_grid(study, store, clock):
-    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=clock.now_utc())
+    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=clock.now_utc())
     session.pause()
     clock.advance(65)
     session.tick()
@@ -272,8 +272,8 @@ def test_two_paired_devices_stay_on_the_same_learner_for_an_hour(tmp_path):
     second = FakeClock(monotonic=123.0, wall=first.now_utc() + timedelta(seconds=37))
     shared = first.now_utc() + timedelta(seconds=30)
     stores = [Store(s.store_path) for s in studies]
-    ana = LiveSession.start(studies[0], stores[0], first, coder="ana", device="laptop-1", paired_start=shared)
-    ben = LiveSession.start(studies[1], stores[1], second, coder="ben", device="laptop-2", paired_start=shared)
+    ana = LiveSession.start(studies[0], stores[0], first, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=shared)
+    ben = LiveSession.start(studies[1], stores[1], second, coder="ben", device="laptop-2", typed_clock_difference_s=0.0, paired_start=shared)
     first.advance(37)
     keys = "123qwe0t"
     compared = 0
@@ -320,7 +320,7 @@ def test_elapsed_time_uses_the_wall_clock_when_monotonic_is_not_comparable():
 def test_reopening_resumes_an_interrupted_session(study, clock, paired):
     store = Store(study.store_path)
     session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1",
-                                paired_start=clock.now_utc() if paired else None)
+                                typed_clock_difference_s=0.0, paired_start=clock.now_utc() if paired else None)
     for _ in range(4):  # four learners fully coded
         clock.advance(6)
         session.press("1")
@@ -343,9 +343,10 @@ def test_reopening_resumes_an_interrupted_session(study, clock, paired):
     if paired:
         expected = math.floor((4 * 20 + 2 + 47) / 20)  # 129 s on the grid -> slot 6
         assert state.slot == expected
-        assert state.learner == "L02"  # slot 6: L06 absent, so the round goes L01..L05, then L01 (5), L02 (6)
-        # the slot the app died in and the one that passed while it was down: L05 coded, L01 missed
-        assert raw(study, "SELECT slot, no_code FROM observations WHERE slot >= 4 ORDER BY slot") == [(4, 0), (5, 1)]
+        assert state.learner == "L01"  # slot 6: L06 absent keeps slot 5 (skipped), so slot 6 opens round 2
+        assert state.skipped is False
+        # the slot the app died in: L05 coded; L06's slot passed while it was down, skipped, so no row
+        assert raw(study, "SELECT slot, no_code FROM observations WHERE slot >= 4 ORDER BY slot") == [(4, 0)]
     else:
         assert state.slot == 4 and state.learner == "L05"
         assert state.coded == {"activity": "rapid_guessing"} and state.missing == ("affect",)

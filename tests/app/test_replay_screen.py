@@ -15,6 +15,7 @@ from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from observer_app.ui.main_window import MainWindow
+from observer_app.ui.start_form import REPLAY
 from observer_app.ui.replay import ReplayScreen
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
@@ -106,8 +107,8 @@ def test_the_start_form_replay_choice_opens_the_replay_screen_and_resumes(qtbot,
         form = window.page
         qtbot.keyClicks(form.coder, "rhea")
         form.mode.setFocus()
-        qtbot.keyClick(form.mode, Qt.Key.Key_Down)
-        qtbot.keyClick(form.mode, Qt.Key.Key_Down)  # solo -> paired -> replay
+        for _ in range(3):  # solo -> paired (countdown) -> paired (typed time) -> replay
+            qtbot.keyClick(form.mode, Qt.Key.Key_Down)
         qtbot.keyClick(QApplication.focusWidget() or form, Qt.Key.Key_Return)
         assert isinstance(window.page, ReplayScreen)
         return window.page
@@ -139,7 +140,7 @@ def test_a_log_that_cannot_be_read_is_one_line_on_the_start_form(qtbot, tmp_path
     qtbot.keyClick(window.page, Qt.Key.Key_S)
     form = window.page
     qtbot.keyClicks(form.coder, "rhea")
-    form.mode.setCurrentIndex(2)  # replay
+    form.mode.setCurrentText(REPLAY)
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
     assert window.page is form and "centre_north.csv" in form.error.text() and "\n" not in form.error.text()
     with Store(load_study(folder).store_path) as store:

@@ -20,7 +20,7 @@ def test_end_of_a_paired_session_reports_kappa_against_the_imported_partner(stud
     clocks = [FakeClock(monotonic=100.0), FakeClock(monotonic=90000.0)]
     shared = clocks[0].now_utc()
     stores = [Store(study.store_path), Store(study.store_path)]  # as if the partner's store was imported
-    ana, ben = (LiveSession.start(study, store, clock, coder=coder, device=device, paired_start=shared)
+    ana, ben = (LiveSession.start(study, store, clock, coder=coder, device=device, typed_clock_difference_s=0.0, paired_start=shared)
                 for store, clock, coder, device in zip(stores, clocks, ("ana", "ben"), ("laptop-1", "laptop-2")))
     codes = {"ana": {"activity": [], "affect": []}, "ben": {"activity": [], "affect": []}}
     for _ in range(60):  # 60 windows of 20 s
@@ -54,7 +54,7 @@ def test_end_of_a_paired_session_reports_kappa_against_the_imported_partner(stud
 
 
 def test_no_agreement_before_the_partner_is_imported_or_for_a_solo_session(study, store, clock):
-    paired = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", paired_start=clock.now_utc())
+    paired = LiveSession.start(study, store, clock, coder="ana", device="laptop-1", typed_clock_difference_s=0.0, paired_start=clock.now_utc())
     paired.press("1")
     solo = LiveSession.start(study, store, clock, coder="ana", device="laptop-1")
     solo.press("1")

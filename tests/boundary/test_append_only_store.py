@@ -141,7 +141,9 @@ def test_an_older_store_adopts_its_rows_into_the_chain_once(tmp_path: Path) -> N
         for statement in _statements(MIGRATIONS[step]):
             connection.execute(statement)
     connection.execute(f"PRAGMA user_version = {CHAIN_VERSION - 1}")
-    connection.execute("INSERT INTO sessions VALUES ('s1','ana','laptop-a','live',NULL,0,0.0,20,'fixed',1,'h1','')")
+    connection.execute("INSERT INTO sessions (session_id, coder, device, mode, paired_start_ns, started_ns, "
+                       "monotonic_start, window_seconds, schedule_order, seed, scheme_hash, present) "
+                       "VALUES ('s1','ana','laptop-a','live',NULL,0,0.0,20,'fixed',1,'h1','')")
     connection.execute("INSERT INTO observations VALUES ('o1','s1','L01',0,'',0,20000000000,1,0,'h1')")
     connection.commit()
     connection.close()

@@ -90,13 +90,13 @@ def test_coder_vs_truth_figures_are_computed_from_the_study(demo_run):
 
 
 def test_agreement_figures_match_scikit_learn_on_the_paired_windows(demo_run):
-    """The agree step's Cohen's kappa equals scikit-learn's on the paired slots (same start, slot, learner)."""
+    """The agree step's Cohen's kappa equals scikit-learn's on the paired slots (same run, slot, learner)."""
     out, _, _ = demo_run
     summary = json.loads((out / "summary.json").read_text())
     with Store(out / "study" / "observations.sqlite") as store:
         observations = store.observations(["activity", "affect"])
     paired = observations[observations["paired_start"].notna()]
-    wide = paired.pivot_table(index=["paired_start", "slot"], columns="coder", values=["activity", "affect"],
+    wide = paired.pivot_table(index=["pairing_id", "slot"], columns="coder", values=["activity", "affect"],
                               aggfunc="first")
     for dimension, unseen in (("activity", "not_visible"), ("affect", "unclear")):
         both = wide[dimension].dropna()

@@ -144,6 +144,43 @@ def test_a_version_1_store_migrates_forward_and_keeps_its_rows(tmp_path: Path) -
         assert store.observations(["activity"]).loc[0, "window_end"] == pd.Timestamp("1970-01-01T00:00:07Z")
     with Store(tmp_path / "study.sqlite") as study:  # a newer store imports an older one's rows
         assert study.append_rows(read_foreign_store(path, None).rows)["codes"] == 1
+        assert study.sessions()["pairing_id"].isna().all()  # columns an older store lacks take their defaults
+
+
+def test_an_older_device_store_without_pairing_columns_merges_by_column_name(tmp_path: Path) -> None:
+    from observer_app.study.store import MIGRATION_PAIRED_SIGNAL, MIGRATIONS, _statements
+    path = tmp_path / "device.sqlite"
+    connection = sqlite3.connect(path)
+    before = MIGRATIONS.index(MIGRATION_PAIRED_SIGNAL)
+    for step in range(before):
+        for statement in _statements(MIGRATIONS[step]):
+            connection.execute(statement)
+    connection.execute(f"PRAGMA user_version = {before}")
+    connection.execute("INSERT INTO sessions VALUES ('s1','ana','laptop-a','live',5,0,0.0,20,'fixed',1,'h1','')")
+    connection.execute("INSERT INTO sync_marks VALUES ('m1','s1','L01',7,'attempt seen')")
+    connection.commit()
+    connection.close()
+    with Store(tmp_path / "study.sqlite") as study:
+        first = study.append_rows(read_foreign_store(path, None).rows)
+        assert first["sessions"] == 1 and first["sync_marks"] == 1
+        assert sum(study.append_rows(read_foreign_store(path, None).rows).values()) == 0  # idempotent
+        marks, sessions = study.sync_marks(), study.sessions()
+    assert list(marks["kind"]) == [""] and marks["pairing_id"].isna().all()
+    assert sessions.loc[0, "paired_start"] == pd.Timestamp(5, tz="UTC") and pd.isna(sessions.loc[0, "pairing_id"])
+    assert pd.isna(sessions.loc[0, "typed_clock_difference_s"])
+
+
+def test_a_signal_start_mark_gives_the_session_its_paired_start(tmp_path: Path) -> None:
+    from observer_app.study.store import SIGNAL_START
+    with Store(tmp_path / "o.sqlite") as store:
+        sid = store.start_session(coder="ana", device="laptop-a", mode="live", started_at=T0, monotonic_start=1.0,
+                                  window_seconds=20, order="fixed", seed=1, scheme_hash="h", pairing_id="KM7QX")
+        assert store.sessions()["paired_start"].isna().all()  # awaiting the signal
+        store.record_sync_mark(session_id=sid, marked_at=T0 + timedelta(seconds=9), pairing_id="KM7QX",
+                               kind=SIGNAL_START)
+        assert store.sessions().loc[0, "paired_start"] == pd.Timestamp(T0 + timedelta(seconds=9))
+        with pytest.raises(ValueError):
+            store.record_sync_mark(session_id=sid, marked_at=T0, kind="whenever")
 
 
 def test_an_early_window_end_replaces_the_planned_end_exactly(tmp_path: Path) -> None:

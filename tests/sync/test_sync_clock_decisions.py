@@ -276,3 +276,12 @@ def test_span_standard_error_is_the_line_s_prediction_error_at_the_span_s_ends(p
     expected = float(np.max(se_mean / np.sqrt(ols.scale) * _robust_sd(residual)))
     assert model.span_standard_error_s == pytest.approx(expected, rel=1e-4)  # residuals are kept to 1 microsecond
     assert model.span_standard_error_s > model.offset_standard_error_s  # drift grows it away from the marks
+
+
+def test_a_newer_automatic_fit_does_not_displace_sync_marks(study):
+    assert align_json(study)["devices"][DEVICE]["method"] == "marks"
+    payload = align_json(study, "--method", "auto", "--accept-uncertain")
+    decision = payload["decisions"][DEVICE]
+    assert decision["decision"] == "stored" and "marks model" in decision["reason"] and "stays in effect" in decision["reason"]
+    assert stored_clock_models(load_study(study))[DEVICE].method == "marks"  # marks beat auto, newer or not
+    assert list(history(study)["method"]) == ["marks", "auto"]
