@@ -356,11 +356,11 @@ def _store_cases() -> list[Case]:
         "store_newer_schema": _sql("PRAGMA user_version = 999;"),
         "store_no_version": _sql("PRAGMA user_version = 0;"),
         "store_missing_table": _sql("DROP TABLE notes;"),
-        "store_adjudication_in_1989": _sql("INSERT INTO adjudications VALUES ('a1', 'x', 'activity', "
+        "store_adjudication_in_1989": _sql("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, reason) VALUES ('a1', 'x', 'activity', "
                                            "'on_task', 'lead', 1, '');"),
-        "store_adjudication_future": _sql("INSERT INTO adjudications VALUES ('a2', 'x', 'activity', 'on_task', 'lead', "
+        "store_adjudication_future": _sql("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, reason) VALUES ('a2', 'x', 'activity', 'on_task', 'lead', "
                                           "9000000000000000000, '');"),
-        "store_adjudication_unknown_code": _sql("INSERT INTO adjudications VALUES ('a3', 'x', 'activity', 'dancing', "
+        "store_adjudication_unknown_code": _sql("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, reason) VALUES ('a3', 'x', 'activity', 'dancing', "
                                                 "'lead', 1780000000000000000, '');"),
         "store_code_dimension_unknown": _sql(_drop_guards("codes") + "UPDATE codes SET dimension = 'mood' WHERE rowid = 1;"),
     }
@@ -376,10 +376,10 @@ def _store_cases() -> list[Case]:
                       {"{input}": b"SQLite format 3\x00" + b"\x00" * 84}, needles=("input.sqlite",),
                       input_name="input.sqlite"))
     cases.append(Case("store_clock_model_left_out_accepted", ("import", "{study}", "{input}"),
-                      {"{input}": _foreign_store(_sql("INSERT INTO clock_models VALUES ('m1', 'laptop-a', '{}', 1);"))},
+                      {"{input}": _foreign_store(_sql("INSERT INTO clock_models (model_id, device, model_json, at_ns) VALUES ('m1', 'laptop-a', '{}', 1);"))},
                       expect="accepted", input_name="input.sqlite"))
     cases.append(Case("store_adjudication_unknown_unit_left_out_accepted", ("import", "{study}", "{input}"),
-                      {"{input}": _foreign_store(_sql("INSERT INTO adjudications VALUES ('a1', 'no-such-unit', "
+                      {"{input}": _foreign_store(_sql("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, reason) VALUES ('a1', 'no-such-unit', "
                                                       "'activity', 'on_task', 'lead', 1780000000000000000, '');"))},
                       expect="accepted", input_name="input.sqlite"))
     return cases

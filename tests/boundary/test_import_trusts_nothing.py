@@ -44,7 +44,7 @@ def device_copy(tmp_path: Path, sql: str = "") -> Path:
 
 def test_clock_models_in_a_device_store_are_never_imported(study: Path, tmp_path: Path) -> None:
     before = store_rows(study / "observations.sqlite")["clock_models"]
-    device = device_copy(tmp_path, "INSERT INTO clock_models VALUES ('m1', 'laptop-a', '{\"offset_s\": 999}', "
+    device = device_copy(tmp_path, "INSERT INTO clock_models (model_id, device, model_json, at_ns) VALUES ('m1', 'laptop-a', '{\"offset_s\": 999}', "
                                    "9000000000000000000);")
     result = call_cli("import", study, device)
     assert result.returncode == 0, result.stderr
