@@ -71,7 +71,8 @@ JSON_TOP_KEYS: tuple[str, ...] = (
     "pairing",         # study only: observations, units, paired_observations, unmatched,
                        # unmatched_by_coder, units_by_method, paired_run_not_overlapping (paired-run
                        # observations left unpaired: no overlap on the log's clock), clock ("log" once
-                       # every live device is aligned, else "device"), pairing_tolerance_s
+                       # every live device is aligned, else "device"), pairing_tolerance_s,
+                       # unplaced_adjudications (settling observations no unit holds now)
     "dimensions",      # {dimension name: JSON_DIMENSION_KEYS}
     "by",              # --by pair|session: list of {"pair"|"session", "dimensions"}, else null
     "certification",   # --certify CODER: per coder and dimension, else null

@@ -27,6 +27,7 @@ from scipy.stats import theilslopes
 from sync.clock import ClockModel, MarkResidual
 from sync.event_table import learner_blocks
 from sync.time_column import datetime_column_ns
+from sync.robust_spread import robust_sd
 
 SEARCH_RANGE_S = 300.0
 VOTE_BIN_S = 1.0
@@ -106,7 +107,7 @@ def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame,
         device=model.device, method="marks", offset_s=model.offset_s, drift_ppm=model.drift_ppm,
         reference_ns=model.reference_ns, marks_used=int(keep.sum()),
         median_abs_residual_s=float(np.median(np.abs(residual))), confidence=float(keep.mean()),
-        offset_standard_error_s=_robust_sd(residual[keep]) / np.sqrt(keep.sum()) if keep.sum() > 1 else float("nan"),
+        offset_standard_error_s=robust_sd(residual[keep]) / np.sqrt(keep.sum()) if keep.sum() > 1 else float("nan"),
         span_standard_error_s=span_error,
         warnings=tuple(dict.fromkeys(warnings)), residuals=residuals)
 
@@ -192,7 +193,7 @@ def _span_standard_error(model: ClockModel, matched: np.ndarray, residual: np.nd
     """
     if len(residual) < 2:
         return float("nan")
-    sigma = _robust_sd(residual)
+    sigma = robust_sd(residual)
     since = (matched - model.reference_ns) / 1e9
     ends = (model.to_log_ns(span_device_ns) - model.reference_ns) / 1e9
     if model.drift_ppm == 0.0 or np.ptp(since) == 0.0:
@@ -204,10 +205,5 @@ def _span_standard_error(model: ClockModel, matched: np.ndarray, residual: np.nd
     return float(np.sqrt(variance.max()))
 
 
-def _robust_sd(residual: np.ndarray) -> float:
-    """1.4826 x median absolute deviation: the SD of normal residuals, unmoved by outliers."""
-    return 1.4826 * float(np.median(np.abs(residual - np.median(residual)))) if len(residual) else 0.0
-
-
 def _outlier_limit(residual: np.ndarray) -> float:
-    return max(OUTLIER_FLOOR_S, OUTLIER_ROBUST_SD * _robust_sd(residual))
+    return max(OUTLIER_FLOOR_S, OUTLIER_ROBUST_SD * robust_sd(residual))

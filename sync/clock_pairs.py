@@ -19,6 +19,8 @@ import numpy as np
 import pandas as pd
 from scipy.stats import theilslopes
 
+from sync.robust_spread import robust_sd
+
 # The spread of the difference between two people's key presses on one spoken "now"
 # (from memory: simple auditory reaction times vary between people by about 0.1 s SD,
 # so the difference of two has about 0.15 s).  It floors every standard error below,
@@ -79,7 +81,7 @@ def _fit_pair(device_a: str, device_b: str, a_ns: np.ndarray, b_ns: np.ndarray, 
         slope, free = 0.0, len(gap) - 1
     intercept = float(np.median(gap - slope * since))
     residual = gap - (intercept + slope * since)
-    scatter = 1.4826 * float(np.median(np.abs(residual - np.median(residual)))) if free > 0 else 0.0
+    scatter = robust_sd(residual) if free > 0 else 0.0
     return {
         "device_a": device_a, "device_b": device_b, "offset_s": intercept, "drift_ppm": slope * 1e6,
         "standard_error_s": max(scatter, REACTION_DIFFERENCE_SD_S) / np.sqrt(len(gap)),

@@ -37,6 +37,7 @@ from sync.clock_gross import gross_mistake, gross_totals
 from sync.clock_refine import fit_clock_line, middle_states
 from sync.event_table import learner_blocks
 from sync.time_column import datetime_column_ns
+from sync.robust_spread import robust_sd
 
 DEFAULT_RANGE_S = 300.0
 DEFAULT_STEP_S = 0.5
@@ -145,7 +146,7 @@ def locate_peak(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) 
     """(estimate, confidence, warnings) from a score curve.
 
     Offsets more than ``separation_s`` beyond the peak are the "far" level: its median is
-    the baseline and its robust spread (1.4826 * MAD) the noise.  The estimate is the
+    the baseline and its robust spread (sync/robust_spread.py) the noise.  The estimate is the
     middle of the contiguous peak region (scores within 30% of the peak's height above
     the baseline): the apex of a sharp peak, the centre of a plateau.
     confidence = separation * clearness, where separation = 1 - (best far score -
@@ -190,7 +191,7 @@ def peak_prominence(offsets_s: np.ndarray, scores: np.ndarray, separation_s: flo
     far = np.abs(offsets_s - offsets_s[best]) > separation_s
     level = scores[far] if far.sum() >= 10 else scores
     base = float(np.median(level))
-    noise = 1.4826 * float(np.median(np.abs(level - base)))
+    noise = robust_sd(level)
     height = float(scores[best]) - base
     return float("inf") if noise <= 0 < height else (0.0 if noise <= 0 else height / noise)
 

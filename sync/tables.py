@@ -34,6 +34,12 @@ SYNC MARKS for ``sync.clock_marks.fit_from_marks`` -- the store's SYNC MARKS col
 OBSERVATIONS for ``sync.clock_scan.scan_offset`` -- the store's OBSERVATIONS columns
   (at least device, window_start, window_end and the dimensions) plus log_id as above.
 
+OBSERVATIONS ON THE LOG'S CLOCK -- ``sync.windows.observations_on_log_clock``; what
+agreement.pairing pairs: every column of the observations table plus
+    log_start_ns  int64  window start, UTC ns on the log's clock (replay rows: as coded)
+    log_end_ns    int64  window end, UTC ns on the log's clock
+  ``attrs["warnings"]`` names live devices without a clock model (their own times used).
+
 WINDOWS -- one row per observation, what export consumes (``sync.windows``):
     every column of the observations table (observer_app/study/tables.py) plus
     log_id      string  roster.log_id of the observed learner ("" when not in the roster)

@@ -24,7 +24,6 @@ from sync.tables import WINDOW_EXTRA_COLUMNS
 from sync.time_column import datetime_column_ns
 
 ANCHORS: tuple[str, ...] = ("start", "coded")
-LOG_CLOCK_COLUMNS: tuple[str, ...] = ("log_start_ns", "log_end_ns")
 
 
 def _models_per_row(observations: pd.DataFrame, clock_models: dict[str, ClockModel],

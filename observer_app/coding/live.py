@@ -52,6 +52,7 @@ import sqlite3
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
+from zoneinfo import ZoneInfo
 
 import pandas as pd
 
@@ -64,6 +65,7 @@ from observer_app.study.scheme_binding import scheme_fits_store
 from observer_app.study.store import SIGNAL_END, SIGNAL_START, Store, new_id
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, window_counts
+from observer_app.study.importing import IMPORTED_ORDER
 
 CHANGED = "changed"  # anything a listener should redraw
 TICK = "tick"  # only the time moved
@@ -111,6 +113,8 @@ class SessionState:
     coded: dict[str, str]  # dimension -> code in effect in this window
     missing: tuple[str, ...]  # dimensions not coded yet in this window, scheme order
     saved_count: int  # code rows this session has made durable (corrections included)
+    coded_windows: int  # windows of this session with at least one code in effect
+    missed_windows: int  # windows of this session that ran out with nothing coded (no-code rows)
     last_saved_at: datetime | None
     last_code_id: str | None  # the newest code row made durable (its id in the store)
     absent: tuple[str, ...]  # learner ids currently marked absent
@@ -179,11 +183,16 @@ def _session_codes(store: Store, session_id: str) -> pd.DataFrame:
     return codes[codes["observation_id"].isin(set(ids))]
 
 
-def find_interrupted_session(study: Study, store: Store) -> InterruptedSession | None:
-    """The newest live session of this scheme without an end row, or None."""
+def find_interrupted_session(study: Study, store: Store, device: str) -> InterruptedSession | None:
+    """The newest live session of this scheme and this device without an end row, or None.
+
+    Sessions imported from a CSV or merged from another device's store are not this
+    device's to resume (a CSV session never has an end row).
+    """
     sessions = store.sessions()
     open_sessions = sessions[(sessions["mode"] == "live") & sessions["ended_at"].isna()
-                             & ((sessions["scheme_hash"] == study.scheme.content_hash) | scheme_fits_store(study, store))]
+                             & ((sessions["scheme_hash"] == study.scheme.content_hash) | scheme_fits_store(study, store))
+                             & (sessions["order"] != IMPORTED_ORDER) & (sessions["device"] == device)]
     if open_sessions.empty:
         return None
     row = open_sessions.iloc[-1]
@@ -223,6 +232,8 @@ class LiveSession:
         self._paused_time_left = 0.0
         self._ended = False
         self._saved_count = 0
+        self._coded_windows: set[str] = set()  # observation ids with a code in effect
+        self._missed_windows = 0
         self._last_saved_at: datetime | None = None
         self._last_code_id: str | None = None
         self._message = ""
@@ -321,6 +332,8 @@ class LiveSession:
         code_ids = {(o, d): (c, i) for o, d, c, i in zip(latest["observation_id"], latest["dimension"],
                                                          latest["code"], latest["code_id"]) if c is not None}
         rows = {int(slot): str(oid) for slot, oid in zip(observations["slot"], observations["observation_id"])}
+        self._coded_windows = {observation_id for observation_id, _ in code_ids}
+        self._missed_windows = int((observations["no_code"].astype(bool) & observations["note"].eq("")).sum())
         self._recorded_slots = set(rows)
 
         def apply_until(moment: float) -> None:
@@ -422,6 +435,9 @@ class LiveSession:
                                       observation_id=None if window is None else window.observation_id)
         except sqlite3.Error as error:
             self._error = f"NOT SAVED: empty window of {self._labels.get(turn.learner, turn.learner)} ({error})"
+            return
+        self._missed_windows += 1
+        self._message = f"Time ran out: {self.label(turn.learner)} not coded (counted as missed)"
 
     def _finish_turn(self) -> None:
         """Solo: end the current turn now and move to the next learner."""
@@ -472,9 +488,11 @@ class LiveSession:
         if previous is not None:
             self._undo = [entry for entry in self._undo if entry.code_id != previous[1]]
         window.coded[dimension] = (code, code_id)
+        self._coded_windows.add(window.observation_id)
         self._undo.append(_UndoEntry(code_id, window, dimension, code))
         label = self.study.scheme.dimension(dimension).code(code).label
-        self._message = f"Saved {dimension}: {label}" + (" (corrected)" if previous else "")
+        self._message = (f"Saved for {self.label(window.turn.learner)}: {dimension} {label}"
+                         + (" (corrected)" if previous else ""))
         if not self.schedule.paired and not self.missing:
             self._finish_turn()
         self._emit(CHANGED)
@@ -522,9 +540,10 @@ class LiveSession:
             return False
         self._undo.pop()
         entry.window.coded.pop(entry.dimension, None)
-        learner = entry.window.turn.learner or ""
-        where = "" if entry.window is self._window else f" for {self._labels.get(learner, learner)}"
-        self._message = f"Undone {entry.dimension}: {entry.code}{where}"
+        if not entry.window.coded:
+            self._coded_windows.discard(entry.window.observation_id)
+        label = self.study.scheme.dimension(entry.dimension).code(entry.code).label
+        self._message = f"Undone for {self.label(entry.window.turn.learner)}: {entry.dimension} {label}"
         self._emit(CHANGED)
         return True
 
@@ -567,10 +586,10 @@ class LiveSession:
         if not self._record_presence(learner, "absent"):
             return False
         self.schedule.mark_absent(learner)
-        self._message = f"{self._labels.get(learner, learner)} marked absent"
         if learner == self._window.turn.learner and not self.schedule.paired and not self._paused \
                 and self.elapsed >= 0:
             self._finish_turn()
+        self._message = f"{self._labels.get(learner, learner)} marked absent"
         self._emit(CHANGED)
         return True
 
@@ -627,7 +646,8 @@ class LiveSession:
             self._error = f"NOT SAVED: sync mark ({error})"
             self._emit(CHANGED)
             return None
-        self._message = f"Sync mark at {marked_at:%H:%M:%S} UTC"
+        local = marked_at.astimezone(ZoneInfo(self.study.timezone))
+        self._message = f"Sync mark at {local:%H:%M:%S %Z}"
         self._emit(CHANGED)
         return marked_at
 
@@ -710,7 +730,8 @@ class LiveSession:
             window_seconds=self.schedule.window, time_left=time_left, waiting=waiting, paused=self._paused,
             ended=self._ended, paired=self.schedule.paired,
             coded={d: code for d, (code, _) in self._window.coded.items()}, missing=self.missing,
-            saved_count=self._saved_count, last_saved_at=self._last_saved_at, last_code_id=self._last_code_id,
+            saved_count=self._saved_count, coded_windows=len(self._coded_windows),
+            missed_windows=self._missed_windows, last_saved_at=self._last_saved_at, last_code_id=self._last_code_id,
             absent=tuple(learner for learner in self.schedule.learners if learner not in self.schedule.present),
             message=self._message, error=self._error, awaiting_signal=self._awaiting_signal,
             pairing_id=self.pairing_id or "", check_code=check_code, skipped=turn.skipped,

@@ -12,13 +12,16 @@ Rules this module decides (one home each):
   pick.  Start is inclusive, end exclusive (as in sync/windows.py).  A clip's id is
   f"{log_id}@{start_ns}"; two coders replaying the same clip share that id, which is
   what agreement/pairing.py pairs replay codes by.
-- Which clips are offered: every clip with at least one event, for the learners the
-  coder picked, in time order (ties in roster order).  With ``sample=N`` a seeded random
-  sample of N of those clips (numpy default_rng(seed), without replacement), still in
-  time order.  The choice is stored in the session row: present = the learners,
-  order = "time" or "sample:N", seed = the seed; reopening rebuilds the same list.
+- Which clips are offered: with a plan (observer_app/coding/replay_plan.py) the clips
+  the plan gives this coder, in the plan's seeded random order; the session row's
+  order is "plan:<plan id>".  Without one, every clip with at least one event, for the
+  learners the coder picked, in time order (ties in roster order); with ``sample=N`` a
+  seeded random sample of N of those clips (numpy default_rng(seed), without
+  replacement), still in time order (order "time" or "sample:N").  Reopening rebuilds
+  the same list; a plan whose clips differ from this device's logs is refused.
 - A clip ends as soon as every dimension is coded; the next clip follows.  Skipping a
-  clip with nothing coded writes a no-code row.  Undo retracts the newest code still in
+  clip with nothing coded writes a no-code row; Backspace right after a skip undoes the
+  skip (back to that clip; coding it later supersedes the no-code row).  Undo retracts the newest code still in
   effect (a retraction row; nothing is deleted) and, when that code belongs to an
   earlier clip, goes back to that clip so it can be coded again; once it is coded again
   the coder returns to the furthest clip reached.
@@ -31,21 +34,26 @@ from __future__ import annotations
 
 import sqlite3
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass
+import json
+from dataclasses import asdict, dataclass
 from datetime import datetime
 
 import numpy as np
 import pandas as pd
 
+from observer_app.coding.replay_plan import ReplayRule, assign_clips, clips_digest, plan_id
 from observer_app.pipeline.alignment import read_study_logs
 from observer_app.coding.clock import Clock
 from observer_app.study.scheme_binding import scheme_fits_store
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study
+from observer_app.study.importing import IMPORTED_ORDER
+from sync.errors import InputError
 
 CHANGED = "changed"
 ALL_CLIPS = "time"
 SAMPLE_PREFIX = "sample:"
+PLAN_PREFIX = "plan:"
 
 Listener = Callable[[str], None]
 
@@ -97,21 +105,54 @@ def _utc(ns: int) -> datetime:
     return pd.Timestamp(int(ns), tz="UTC").to_pydatetime()
 
 
-def find_open_replay(study: Study, store: Store, coder: str) -> str | None:
-    """The newest replay session of this coder and scheme without an end row, or None."""
+def find_open_replay(study: Study, store: Store, coder: str, device: str) -> str | None:
+    """The newest replay session of this coder, device and scheme without an end row, or None.
+
+    Sessions imported from a CSV or merged from another device are never reopened here.
+    """
     sessions = store.sessions()
     open_sessions = sessions[(sessions["mode"] == "replay") & sessions["ended_at"].isna()
-                             & (sessions["coder"] == coder)
+                             & (sessions["coder"] == coder) & (sessions["device"] == device)
+                             & (sessions["order"] != IMPORTED_ORDER)
                              & ((sessions["scheme_hash"] == study.scheme.content_hash) | scheme_fits_store(study, store))]
     return None if open_sessions.empty else str(open_sessions["session_id"].iloc[-1])
 
 
 @dataclass(frozen=True)
 class _UndoEntry:
-    code_id: str
+    code_id: str | None  # None: the entry is a skip
     position: int
-    dimension: str
-    code: str
+    dimension: str = ""
+    code: str = ""
+
+
+def planned_clips(study: Study, store: Store, events: pd.DataFrame, rule: ReplayRule, coder: str,
+                  stored_plan: str | None = None) -> tuple[str, pd.DataFrame]:
+    """(plan id, this coder's CLIPS in plan order); stores the plan the first time it is made.
+
+    A stored plan with the same rule whose clip digest differs from this device's logs
+    is refused: the coder is told instead of getting a different plan silently.
+    """
+    if coder not in rule.coders:
+        raise InputError(None, "coder", f"{coder!r} is not one of this plan's coders ({', '.join(rule.coders)}); "
+                                        "type one of them as the coder, or add the name to the plan's coders")
+    clips = cut_clips(events, study.roster, rule.learners, study.window_seconds)
+    digest = clips_digest(clips)
+    rule_json = json.dumps(asdict(rule), sort_keys=True)
+    plans = store.replay_plans()
+    same_rule = plans[(plans["rule_json"] == rule_json) | (plans["plan_id"] == (stored_plan or ""))]
+    if len(same_rule) and digest not in set(same_rule["clips_digest"]):
+        raise InputError(None, "replay plan", f"this device's logs differ from the ones plan "
+                                              f"{same_rule['plan_id'].iloc[0]} was cut from (clip digest "
+                                              f"{digest[:12]} vs {same_rule['clips_digest'].iloc[0][:12]}); copy the "
+                                              "study's logs from the device that made the plan, then start again")
+    identity = stored_plan or plan_id(rule, digest)
+    assignment = assign_clips(clips, rule)
+    store.record_replay_plan(plan_id=identity, rule_json=rule_json, description=rule.describe(),
+                             clips_digest=digest, created_at=pd.Timestamp.now(tz="UTC").to_pydatetime(),
+                             assignment=assignment)
+    mine = assignment[assignment["coder"] == coder]
+    return identity, mine[list(CLIP_COLUMNS)].reset_index(drop=True)
 
 
 @dataclass(frozen=True)
@@ -129,7 +170,9 @@ class ReplayState:
     events: pd.DataFrame  # the clip's events: time_ns, action, outcome, item, offset_s
     coded: dict[str, str]
     missing: tuple[str, ...]
-    saved_count: int
+    saved_count: int  # code rows (corrections and retractions included)
+    coded_clips: int  # clips with at least one code in effect
+    skipped_clips: int  # clips left with nothing coded
     finished: bool  # every clip has been coded or skipped
     ended: bool
     message: str
@@ -157,6 +200,7 @@ class ReplaySession:
         self._observation_ids: dict[int, str] = {}
         self._coded: dict[int, dict[str, tuple[str, str]]] = {}
         self._undo: list[_UndoEntry] = []
+        self._skipped: set[int] = set()  # positions skipped with nothing coded
         self._listeners: list[Listener] = []
         self._saved_count = 0
         self._ended = False
@@ -167,19 +211,23 @@ class ReplaySession:
     @classmethod
     def start(cls, study: Study, store: Store, clock: Clock, *, coder: str, device: str,
               learners: Iterable[str] | None = None, sample: int | None = None,
-              seed: int | None = None) -> ReplaySession:
-        """Read the logs, cut the clips and write the session row (see the module docstring)."""
+              seed: int | None = None, rule: ReplayRule | None = None) -> ReplaySession:
+        """Read the logs, cut (or plan) the clips and write the session row (see the module docstring)."""
         roster_ids = list(study.roster["learner"].astype(str))
         chosen = set(roster_ids if learners is None else learners)
         learners = [learner for learner in roster_ids if learner in chosen]
         seed = study.seed if seed is None else seed
         events, _ = read_study_logs(study)
-        clips = cut_clips(events, study.roster, learners, study.window_seconds, sample, seed)
+        if rule is not None:
+            identity, clips = planned_clips(study, store, events, rule, coder)
+            order, seed, learners = f"{PLAN_PREFIX}{identity}", rule.seed, list(rule.learners)
+        else:
+            clips = cut_clips(events, study.roster, learners, study.window_seconds, sample, seed)
+            order = ALL_CLIPS if sample is None else f"{SAMPLE_PREFIX}{sample}"
         session_id = store.start_session(
             coder=coder, device=device, mode="replay", started_at=clock.now_utc(),
             monotonic_start=clock.monotonic(), window_seconds=study.window_seconds,
-            order=ALL_CLIPS if sample is None else f"{SAMPLE_PREFIX}{sample}", seed=seed,
-            scheme_hash=study.scheme.content_hash, present=learners,
+            order=order, seed=seed, scheme_hash=study.scheme.content_hash, present=learners,
         )
         session = cls(study, store, clock, session_id=session_id, events=events, clips=clips)
         session._message = f"{len(clips)} clips to code"
@@ -194,8 +242,18 @@ class ReplaySession:
         sample = int(order.removeprefix(SAMPLE_PREFIX)) if order.startswith(SAMPLE_PREFIX) else None
         learners = [learner for learner in str(row["present"]).split("\n") if learner]
         events, _ = read_study_logs(study)
-        clips = cut_clips(events, study.roster, learners, float(row["window_seconds"]), sample,
-                          0 if pd.isna(row["seed"]) else int(row["seed"]))
+        if order.startswith(PLAN_PREFIX):
+            identity = order.removeprefix(PLAN_PREFIX)
+            stored = store.replay_plan(identity)
+            if stored is None:
+                raise InputError(study.store_path, f"session {session_id}", f"its replay plan {identity} is not in "
+                                 "this store; import the store of the device that made the plan")
+            rule = ReplayRule(**{key: tuple(value) if isinstance(value, list) else value
+                                 for key, value in json.loads(stored[0]["rule_json"]).items()})
+            _, clips = planned_clips(study, store, events, rule, str(row["coder"]), stored_plan=identity)
+        else:
+            clips = cut_clips(events, study.roster, learners, float(row["window_seconds"]), sample,
+                              0 if pd.isna(row["seed"]) else int(row["seed"]))
         session = cls(study, store, clock, session_id=session_id, events=events, clips=clips)
         session._restore()
         return session
@@ -218,6 +276,8 @@ class ReplaySession:
                 for dimension in self._dimensions
                 if (observation_id, dimension) in latest.index and pd.notna(latest.loc[(observation_id, dimension), "code"])
             }
+        self._skipped = {positions[clip] for clip, empty in zip(mine["clip"].astype(str), mine["no_code"])
+                         if empty and clip in positions}
         if self._observation_ids:
             last = max(self._observation_ids)
             partly = 0 < len(self._coded[last]) < len(self._dimensions)
@@ -277,7 +337,9 @@ class ReplaySession:
         coded[dimension] = (code, code_id)
         self._undo.append(_UndoEntry(code_id, position, dimension, code))
         label = self.study.scheme.dimension(dimension).code(code).label
-        self._message = f"Saved {dimension}: {label}" + (" (corrected)" if previous else "")
+        learner = self.label(str(self.clips.iloc[position]["learner"]))
+        self._message = f"Saved for {learner}, clip {position + 1}: {dimension} {label}" + (
+            " (corrected)" if previous else "")
         if not self.missing:
             self._move_on()
         self._emit()
@@ -312,8 +374,10 @@ class ReplaySession:
                 self._error = f"NOT SAVED: skipped clip ({error})"
                 self._emit()
                 return False
+        self._undo.append(_UndoEntry(None, position))
+        self._skipped.add(position)
         self._move_on()
-        self._message = f"Skipped clip {position + 1}"
+        self._message = f"Skipped clip {position + 1} ({self.label(str(self.clips.iloc[position]['learner']))})"
         self._emit()
         return True
 
@@ -349,13 +413,22 @@ class ReplaySession:
             self._emit()
             return False
         entry = self._undo[-1]
+        if entry.code_id is None:  # undo a skip: back to the skipped clip, nothing to retract
+            self._undo.pop()
+            self._skipped.discard(entry.position)
+            self._position = entry.position
+            learner = self.label(str(self.clips.iloc[entry.position]["learner"]))
+            self._message = f"Skip undone: back to clip {entry.position + 1} ({learner})"
+            self._emit()
+            return True
         if self._write(entry.position, entry.dimension, None, supersedes=entry.code_id) is None:
             return False
         self._undo.pop()
         self._coded[entry.position].pop(entry.dimension, None)
         back = entry.position != self._position
         self._position = entry.position
-        self._message = f"Undone {entry.dimension}: {entry.code}" + (f" (back to clip {entry.position + 1})" if back else "")
+        label = self.study.scheme.dimension(entry.dimension).code(entry.code).label
+        self._message = f"Undone {entry.dimension}: {label}" + (f" (back to clip {entry.position + 1})" if back else "")
         self._emit()
         return True
 
@@ -408,6 +481,8 @@ class ReplaySession:
             label="" if clip is None else self.label(str(clip["learner"])),
             start=None if clip is None else _utc(clip["start_ns"]), end=None if clip is None else _utc(clip["end_ns"]),
             events=events, coded={d: c for d, (c, _) in self._coded.get(self._position, {}).items()},
-            missing=self.missing, saved_count=self._saved_count, finished=done, ended=self._ended,
+            missing=self.missing, saved_count=self._saved_count,
+            coded_clips=sum(1 for codes in self._coded.values() if codes),
+            skipped_clips=len(self._skipped - {p for p, codes in self._coded.items() if codes}), finished=done, ended=self._ended,
             message=self._message, error=self._error,
         )

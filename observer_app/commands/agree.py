@@ -129,6 +129,9 @@ def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: 
         per_coder = ", ".join(f"{coder} {count}" for coder, count in pairing["unmatched_by_coder"].items())
         out.write(f"Pairing: {pairing['observations']} observations, {pairing['units']} units, "
                   f"{pairing['unmatched']} unmatched{f' ({per_coder})' if per_coder else ''}\n")
+        if pairing.get("unplaced_adjudications"):
+            out.write(f"  warning: {pairing['unplaced_adjudications']} adjudications settle observations that are no "
+                      "longer one unit (export stops on them); adjudicate the units --disagreements lists again\n")
         if pairing.get("paired_run_not_overlapping"):
             out.write(f"  {pairing['paired_run_not_overlapping']} observations of paired runs left unpaired: "
                       "their windows do not overlap on the log's clock\n")
@@ -189,6 +192,11 @@ def check_options(args: argparse.Namespace) -> None:
 def run(args: argparse.Namespace) -> int:
     check_options(args)
     units, dimensions, pairing, found = load_units(args)
+    placed = None
+    if found is not None:
+        with Store(found.store_path) as store:
+            placed, unplaced = placed_adjudications(found, store.adjudications())
+        pairing = {**pairing, "unplaced_adjudications": len(unplaced)}
     units = select_coders(units, args.coders)
     include = args.include_could_not_observe
     if args.certify and args.certify not in set(units["coder"].astype(str)):
@@ -208,11 +216,7 @@ def run(args: argparse.Namespace) -> int:
                              args.certify_pairs, include) if args.certify else None)
 
     if args.disagreements:
-        adjudications = None
-        if found is not None:
-            with Store(found.store_path) as store:
-                adjudications, _ = placed_adjudications(found, store.adjudications())
-        table = list_disagreements(units, dimensions, adjudications)
+        table = list_disagreements(units, dimensions, placed)
         write_atomically(args.disagreements, table.to_csv(index=False))
     if args.report:
         # matplotlib and Jinja2: only loaded when a report is asked for

@@ -13,6 +13,7 @@ import sys
 from dataclasses import dataclass
 from pathlib import Path
 
+import pandas as pd
 from tqdm import tqdm
 
 from export.labelled_windows import ExportSettings, label_windows
@@ -47,6 +48,22 @@ class WindowChoice:
     after_s: float | None = None
 
 
+def replay_sampling(store: Store, observations: pd.DataFrame) -> list[dict]:
+    """The replay plans behind the exported observations: their sampling rule, digest and caution.
+
+    A plan that keeps only clips with at least K events skews labels away from idle
+    learners; whoever trains on the export must know, so the rule travels with it.
+    """
+    sessions = store.sessions()
+    used = sessions[sessions["session_id"].isin(set(observations["session_id"]))]
+    plan_ids = {str(order).removeprefix("plan:") for order in used["order"] if str(order).startswith("plan:")}
+    plans = store.replay_plans()
+    return [{"plan_id": row.plan_id, "rule": row.description, "clips_digest": row.clips_digest,
+             **({"caution": "only clips with at least K log events were coded: labels are skewed away from "
+                            "idle learners"} if json.loads(row.rule_json).get("min_events", 1) > 1 else {})}
+            for row in plans.itertuples() if row.plan_id in plan_ids]
+
+
 def export_study(
     study_dir: Path, out: Path, output_format: str = "parquet", window: WindowChoice = WindowChoice(),
     settings: ExportSettings = ExportSettings(), progress: bool | None = None,
@@ -68,6 +85,7 @@ def export_study(
             check_scheme_binding(study, store)
             observations = store.observations(dimensions)
             adjudications = store.adjudications()
+            sampling = replay_sampling(store, observations)
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
         models = stored_clock_models(study)
@@ -112,6 +130,7 @@ def export_study(
             **settings.parameters(),
             "window": {"anchor": window.anchor, "before_s": window.before_s, "after_s": window.after_s},
             "pairing_tolerance_s": found.report["pairing_tolerance_s"],
+            "replay_sampling": sampling,
         }
         manifest = build_manifest(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,

@@ -9,6 +9,7 @@ from collections.abc import Iterable
 
 import pandas as pd
 
+from observer_app.study.importing import IMPORTED_ORDER
 from observer_app.study.store import Store
 
 
@@ -33,11 +34,15 @@ def window_counts(observations: pd.DataFrame) -> pd.DataFrame:
 
 
 def session_table(store: Store) -> pd.DataFrame:
-    """One row per session: coder, device, mode, paired, started_at, ended_at (NaT: interrupted), windows."""
+    """One row per session: coder, device, mode, paired, imported, started_at, ended_at (NaT: open), windows.
+
+    imported: the session came from a CSV (it has no end row, and is not interrupted).
+    """
     sessions = store.sessions()
     observations = store.observations([])
     windows = observations.groupby("session_id", observed=True).size()
     table = sessions[["session_id", "coder", "device", "mode", "started_at", "ended_at"]].copy()
     table["paired"] = sessions["paired_start"].notna() | sessions["pairing_id"].notna()
+    table["imported"] = (sessions["order"] == IMPORTED_ORDER).to_numpy(dtype=bool)
     table["windows"] = windows.reindex(table["session_id"]).fillna(0).astype("int64").to_numpy()
     return table

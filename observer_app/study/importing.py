@@ -30,6 +30,10 @@ _OFFSET = r"(?:Z|z|[+-]\d{2}(?::?\d{2})?)$"
 _CONTROL = r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]"
 SHOWN_PROBLEMS = 3
 
+# The schedule order written on sessions that came from a CSV: they have no end row, yet
+# nothing about them can be resumed (observer_app/coding/live.py leaves them alone).
+IMPORTED_ORDER = "imported"
+
 
 @dataclass
 class ImportResult:
@@ -158,7 +162,7 @@ def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> Im
     sessions["paired_start"] = pd.NaT
     sessions["monotonic_start"] = 0.0
     sessions["window_seconds"] = study.window_seconds
-    sessions["order"] = "imported"
+    sessions["order"] = IMPORTED_ORDER
     sessions["seed"] = pd.NA
     sessions["scheme_hash"] = study.scheme.content_hash
     added = store.record_observations(sessions, good, present_dimensions)

@@ -22,7 +22,7 @@ from observer_app.study import row_chain
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
 from sync.errors import InputError
 
-SCHEMA_VERSION = 6
+SCHEMA_VERSION = 7
 
 # 2 -> 3: clock models become a history of kept decisions.  Each row says how it was
 # made (method: "manual", "marks", "borrowed", "auto"), by which command, on what
@@ -59,6 +59,23 @@ MIGRATION_PAIRED_SIGNAL = """
     ALTER TABLE sync_marks ADD COLUMN pairing_id TEXT;
     ALTER TABLE sync_marks ADD COLUMN kind TEXT NOT NULL DEFAULT '';
     """
+
+# 5 -> 6: replay plans (observer_app/coding/replay_plan.py): the rule, the digest of the clips it was
+# cut from, and which coder codes which clip in which order.  Append-only like the rest.
+REPLAY_PLANS_MIGRATION = """
+    CREATE TABLE replay_plans (
+        plan_id TEXT PRIMARY KEY, rule_json TEXT NOT NULL, description TEXT NOT NULL,
+        clips_digest TEXT NOT NULL, created_ns INTEGER NOT NULL);
+    CREATE TABLE replay_assignments (
+        plan_id TEXT NOT NULL REFERENCES replay_plans, position INTEGER NOT NULL, clip TEXT NOT NULL,
+        coder TEXT NOT NULL, double INTEGER NOT NULL, PRIMARY KEY (plan_id, clip, coder));
+    """ + "".join(
+    f"""
+    CREATE TRIGGER {table}_no_update BEFORE UPDATE ON {table}
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER {table}_no_delete BEFORE DELETE ON {table}
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;"""
+    for table in ("replay_plans", "replay_assignments"))
 
 # The imports table guarded like the rest; the hash chain's table (observer_app/study/row_chain.py);
 # code renames and merges as recorded decisions (fieldmark recode), applied when codes are read.
@@ -144,6 +161,8 @@ MIGRATIONS: tuple[str, ...] = (
     MIGRATION_CLOCK_HISTORY,
     MIGRATION_ADJUDICATED_OBSERVATIONS,
     MIGRATION_PAIRED_SIGNAL,
+    # 5 -> 6: replay plans and their double-coding assignment.
+    REPLAY_PLANS_MIGRATION,
     MIGRATION_BOUNDARY,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
@@ -163,7 +182,8 @@ _SIGNAL_JOIN = ("LEFT JOIN (SELECT session_id, min(marked_ns) AS signal_ns FROM 
 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
-    "adjudications", "clock_models", "imports", "window_closures", "row_chain", "code_mappings",
+    "adjudications", "clock_models", "imports", "window_closures", "replay_plans", "replay_assignments",
+    "row_chain", "code_mappings",
 )
 
 
@@ -491,6 +511,39 @@ class Store:
     def record_import(self, content_hash: str, source: str, at: datetime) -> None:
         with self._transaction() as cursor:
             cursor.execute("INSERT OR IGNORE INTO imports VALUES (?,?,?)", (content_hash, source, to_ns(at)))
+
+    def record_replay_plan(self, *, plan_id: str, rule_json: str, description: str, clips_digest: str,
+                           created_at: datetime, assignment: pd.DataFrame) -> bool:
+        """Store a plan and its ASSIGNMENT rows (position, clip, coder, double); False if it was stored already."""
+        with self._transaction() as cursor:
+            cursor.execute("INSERT OR IGNORE INTO replay_plans VALUES (?,?,?,?,?)",
+                           (plan_id, rule_json, description, clips_digest, to_ns(created_at)))
+            if cursor.rowcount == 0:
+                return False
+            cursor.executemany(
+                "INSERT INTO replay_assignments VALUES (?,?,?,?,?)",
+                zip([plan_id] * len(assignment), assignment["position"].astype(int).tolist(),
+                    assignment["clip"].astype(str).tolist(), assignment["coder"].astype(str).tolist(),
+                    assignment["double"].astype(int).tolist()))
+        return True
+
+    def replay_plan(self, plan_id: str) -> tuple[dict, pd.DataFrame] | None:
+        """A stored plan (plan_id, rule_json, description, clips_digest) and its assignment rows, or None."""
+        plan = self._frame("SELECT plan_id, rule_json, description, clips_digest FROM replay_plans WHERE plan_id = ?",
+                           (plan_id,))
+        if plan.empty:
+            return None
+        rows = self._frame("SELECT position, clip, coder, double FROM replay_assignments WHERE plan_id = ? "
+                           "ORDER BY position, coder", (plan_id,))
+        rows["double"] = rows["double"].astype(bool)
+        return plan.iloc[0].to_dict(), rows
+
+    def replay_plans(self) -> pd.DataFrame:
+        """Every stored plan: plan_id, rule_json, description, clips_digest, created_at."""
+        frame = self._frame("SELECT plan_id, rule_json, description, clips_digest, created_ns FROM replay_plans "
+                            "ORDER BY rowid")
+        frame["created_at"] = _times(frame.pop("created_ns"))
+        return frame
 
     def append_rows(self, rows: Mapping[str, pd.DataFrame]) -> dict[str, int]:
         """Rows of other stores, table by table in one transaction: new ids added, known ids left alone.

@@ -29,9 +29,15 @@ superseded rows hidden.  One row per coded window.
 SESSIONS (``Store.sessions()``):
     session_id, coder, device, mode, paired_start, started_at (datetime UTC),
     monotonic_start (float, the device's monotonic clock at start, seconds),
-    window_seconds (float), order (string), seed (Int64), scheme_hash, ended_at (datetime, NaT open),
+    window_seconds (float), order (string: "fixed"/"shuffled" live, "time"/"sample:N"/"plan:<plan id>"
+    replay, "imported" for sessions from a CSV), seed (Int64), scheme_hash, ended_at (datetime, NaT open),
     pairing_id (string, NA unless paired), typed_clock_difference_s (float, NaN unless the coders
     started on a typed wall-clock time: the difference they typed, partner minus this device)
+
+REPLAY PLANS (``Store.replay_plans()``; observer_app/coding/replay_plan.py decides them):
+    plan_id, rule_json (the ReplayRule as JSON), description (the rule in words), clips_digest
+    (SHA-256 of the candidate clips), created_at (datetime); ``Store.replay_plan(id)`` adds the
+    assignment rows: position (plan order), clip, coder, double (bool: coded by two coders)
 
 SYNC MARKS (``Store.sync_marks()``):
     mark_id, session_id, device, coder, learner (string, "" when none), marked_at (datetime), note,

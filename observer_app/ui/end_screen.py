@@ -10,35 +10,40 @@ from agreement.statistics import estimate_text
 from observer_app.coding.live import SessionSummary
 from observer_app.coding.end_agreement import PartnerAgreement
 from observer_app.study.folder import Study
-from observer_app.ui.overview import count_table
+from observer_app.ui.overview import TABLE_KEYS_HINT, count_table, scroll_table
 
 
 class EndScreen(QWidget):
     done = Signal()
 
     def __init__(self, study: Study, summary: SessionSummary, *, paired: bool = False,
-                 agreement: PartnerAgreement | None = None) -> None:
+                 agreement: PartnerAgreement | None = None, unit: str = "windows") -> None:
+        """``unit``: what the session coded, "windows" (live) or "clips" (replay)."""
         super().__init__()
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
         layout = QVBoxLayout(self)
-        layout.setContentsMargins(48, 32, 48, 32)
+        layout.setContentsMargins(48, 24, 48, 16)
         title = QLabel("Session ended")
         title.setProperty("role", "title")
         layout.addWidget(title)
         self.figures = QLabel(
-            f"{summary.windows} windows  ·  {summary.coded_windows} coded  ·  "
-            f"{summary.missed_windows} missed (ended with no code)  ·  {summary.sync_marks} sync marks")
+            f"{summary.windows} {unit}  ·  {summary.coded_windows} coded  ·  {summary.missed_windows} "
+            + ("skipped (no code)" if unit == "clips" else
+               f"missed (ended with no code)  ·  {summary.sync_marks} sync marks"))
         self.figures.setStyleSheet("font-size: 16pt;")
+        self.figures.setWordWrap(True)
         layout.addWidget(self.figures)
         self.agreement = QLabel(self._agreement_text(paired, agreement))
         self.agreement.setWordWrap(True)
         self.agreement.setStyleSheet("font-size: 14pt;")
         layout.addWidget(self.agreement)
-        self.table = count_table(study, summary.counts, summary.per_learner)
+        self.table = count_table(study, summary.counts, summary.per_learner, only_counted=True)
         layout.addWidget(self.table, 1)
-        hint = QLabel("Every code above is read back from the store.   Enter or Esc back to the study")
-        hint.setProperty("role", "caption")
-        layout.addWidget(hint)
+        self.keys_label = QLabel(f"Every code above is read back from the store.  ·  {TABLE_KEYS_HINT}  ·  "
+                                 f"<b>Enter</b> or <b>Esc</b> back to the study")
+        self.keys_label.setWordWrap(True)
+        self.keys_label.setProperty("role", "caption")
+        layout.addWidget(self.keys_label)
 
     @staticmethod
     def _agreement_text(paired: bool, agreement: PartnerAgreement | None) -> str:
@@ -54,5 +59,5 @@ class EndScreen(QWidget):
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
         if event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter, Qt.Key.Key_Escape):
             self.done.emit()
-        else:
+        elif not scroll_table(self.table, event.key()):
             super().keyPressEvent(event)

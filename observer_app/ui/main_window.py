@@ -8,14 +8,16 @@ store (no end row), so the next start offers to resume it.
 """
 from __future__ import annotations
 
+import socket
 from dataclasses import replace
 from pathlib import Path
+from types import TracebackType
 
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeyEvent, QKeySequence, QShortcut
 from PySide6.QtWidgets import QFileDialog, QLabel, QMainWindow, QStackedWidget, QVBoxLayout, QWidget
 
-from observer_app.coding.live import LiveSession, SessionSummary
+from observer_app.coding.live import LiveSession, SessionSummary, summarise_session
 from observer_app.coding.replay import ReplaySession, find_open_replay
 from observer_app.coding.end_agreement import partner_agreement
 from observer_app.coding.clock import Clock, SystemClock
@@ -29,6 +31,7 @@ from observer_app.ui.end_screen import EndScreen
 from observer_app.ui.observing import ObservingScreen
 from observer_app.ui.overview import StudyOverview
 from observer_app.ui.replay import ReplayScreen
+from observer_app.ui.slot_errors import append_error_log, error_line
 from observer_app.ui.start_form import StartChoice, StartForm
 from sync.errors import InputError
 
@@ -45,8 +48,9 @@ class WelcomePage(QWidget):
         title = QLabel("fieldmark")
         title.setProperty("role", "title")
         layout.addWidget(title)
-        layout.addWidget(QLabel("<p style='font-size:16pt'><b>O</b> open a study folder<br>"
-                                "<b>C</b> create a new study in an empty folder<br><b>Ctrl+Q</b> quit</p>"))
+        self.keys_label = QLabel("<p style='font-size:16pt'><b>O</b> open a study folder<br>"
+                                 "<b>C</b> create a new study in an empty folder<br><b>Ctrl+Q</b> quit</p>")
+        layout.addWidget(self.keys_label)
         self.error = QLabel("")
         self.error.setProperty("role", "warning")
         self.error.setWordWrap(True)
@@ -70,19 +74,30 @@ class MainWindow(QMainWindow):
                  discreet: bool = False) -> None:
         super().__init__()
         self.clock = clock or SystemClock()
-        self.device = device
+        self.device = device or socket.gethostname()  # the device label sessions are stored with
         self.theme = looks.DISCREET if discreet else looks.LIGHT
         self.study: Study | None = None
         self.store: Store | None = None
         self.session: LiveSession | None = None
         self.overview: StudyOverview | None = None
         self.stack = QStackedWidget()
-        self.setCentralWidget(self.stack)
+        self.error_bar = QLabel()
+        self.error_bar.setWordWrap(True)
+        self.error_bar.hide()
+        central = QWidget()
+        column = QVBoxLayout(central)
+        column.setContentsMargins(0, 0, 0, 0)
+        column.setSpacing(0)
+        column.addWidget(self.error_bar)
+        column.addWidget(self.stack, 1)
+        self.setCentralWidget(central)
         self.setWindowTitle("fieldmark")
         self.resize(1280, 800)
-        QShortcut(QKeySequence(Qt.Key.Key_F6), self, self.toggle_discreet)
-        QShortcut(QKeySequence("Ctrl+Q"), self, self.close)
+        # Application-wide: they must work even when no window manager marks the window active.
+        for keys, action in ((QKeySequence(Qt.Key.Key_F6), self.toggle_discreet), (QKeySequence("Ctrl+Q"), self.close)):
+            QShortcut(keys, self, action, context=Qt.ShortcutContext.ApplicationShortcut)
         self.setStyleSheet(looks.stylesheet(self.theme))
+        self._style_error_bar()
         self.welcome = WelcomePage(self)
         if study_dir is None:
             self._show(self.welcome)
@@ -101,6 +116,22 @@ class MainWindow(QMainWindow):
         self.stack.setCurrentWidget(page)
         page.setFocus()
 
+    def show_error(self, error: BaseException, trace: TracebackType | None) -> None:
+        """An exception escaped a slot: one line on screen, the traceback in the study's error log."""
+        where = ""
+        if self.study is not None:
+            try:
+                where = f" Details: {append_error_log(self.study.dir, error, trace)}."
+            except OSError as failure:
+                where = f" (The error log could not be written: {failure}.)"
+        self.error_bar.setText(f"Something failed and was not done: {error_line(error)}. "
+                               f"Codes already saved are safe.{where}")
+        self.error_bar.show()
+
+    def _style_error_bar(self) -> None:
+        self.error_bar.setStyleSheet(f"background: {self.theme.warning}; color: #FFFFFF; font-size: 13pt;"
+                                     f" padding: 6px 16px;")
+
     @property
     def page(self) -> QWidget:
         return self.stack.currentWidget()
@@ -108,6 +139,7 @@ class MainWindow(QMainWindow):
     def toggle_discreet(self) -> None:
         self.theme = looks.LIGHT if self.theme is looks.DISCREET else looks.DISCREET
         self.setStyleSheet(looks.stylesheet(self.theme))
+        self._style_error_bar()
         for index in range(self.stack.count()):
             page = self.stack.widget(index)
             if hasattr(page, "set_theme"):
@@ -144,7 +176,7 @@ class MainWindow(QMainWindow):
         if self.overview is not None:
             self.stack.removeWidget(self.overview)
             self.overview.deleteLater()
-        self.overview = StudyOverview(study, self.store)
+        self.overview = StudyOverview(study, self.store, self.device)
         self.overview.start_requested.connect(self.show_start_form)
         self.overview.resume_requested.connect(self.resume_session)
         self.overview.open_requested.connect(self.choose_study)
@@ -188,17 +220,23 @@ class MainWindow(QMainWindow):
         self.show_observing()
 
     def start_replay(self, choice: StartChoice) -> None:
-        open_session = find_open_replay(self.study, self.store, choice.coder)
+        open_session = find_open_replay(self.study, self.store, choice.coder, choice.device)
         try:
             replay = (ReplaySession.reopen(self.study, self.store, self.clock, open_session) if open_session else
                       ReplaySession.start(self.study, self.store, self.clock, coder=choice.coder,
-                                          device=choice.device, learners=choice.present))
+                                          device=choice.device, learners=choice.present, rule=choice.rule))
         except InputError as error:
             self.page.error.setText(error.line())
             return
         screen = ReplayScreen(replay, self.theme)
-        screen.ended.connect(lambda _: self.show_overview())
+        screen.ended.connect(self.show_replay_end)
         self._show(screen)
+
+    def show_replay_end(self, session_id: str) -> None:
+        summary = summarise_session(self.store, session_id, self.study.scheme.dimension_names)
+        end = EndScreen(self.study, summary, unit="clips")
+        end.done.connect(self.show_overview)
+        self._show(end)
 
     def resume_session(self, session_id: str) -> None:
         self.session = LiveSession.reopen(self.study, self.store, self.clock, session_id)
@@ -216,6 +254,15 @@ class MainWindow(QMainWindow):
                         agreement=partner_agreement(self.study, self.store, summary.session_id) if paired else None)
         end.done.connect(self.show_overview)
         self._show(end)
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        """F6 and Ctrl+Q when the shortcuts did not fire (no window manager marked the window active)."""
+        if event.key() == Qt.Key.Key_F6:
+            self.toggle_discreet()
+        elif event.key() == Qt.Key.Key_Q and event.modifiers() & Qt.KeyboardModifier.ControlModifier:
+            self.close()
+        else:
+            super().keyPressEvent(event)
 
     def closeEvent(self, event) -> None:  # noqa: N802
         page = self.page

@@ -14,7 +14,7 @@ import math
 import zoneinfo
 
 from PySide6.QtCore import QRectF, QSize, Qt, QTimer, Signal
-from PySide6.QtGui import QColor, QFont, QKeyEvent, QPainter, QPainterPath, QPen
+from PySide6.QtGui import QColor, QFont, QFontMetrics, QKeyEvent, QPainter, QPainterPath, QPen
 from PySide6.QtWidgets import (QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
                                QSizePolicy, QVBoxLayout, QWidget)
 
@@ -39,6 +39,23 @@ COMMAND_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
     (Qt.Key.Key_F1, "F1", "show / hide all keys", "all keys"),
 )
 TICK_MILLISECONDS = 100
+# Keys that only modify another key: pressing them alone is not a mistake worth a hint.
+MODIFIER_KEYS = frozenset({Qt.Key.Key_Shift, Qt.Key.Key_Control, Qt.Key.Key_Alt, Qt.Key.Key_Meta, Qt.Key.Key_AltGr,
+                           Qt.Key.Key_CapsLock, Qt.Key.Key_NumLock, Qt.Key.Key_Super_L, Qt.Key.Key_Super_R})
+
+
+def unknown_key_hint(event: QKeyEvent) -> str:
+    """What the screen says when a key means nothing here ("" for a modifier pressed alone)."""
+    if event.key() in MODIFIER_KEYS:
+        return ""
+    text = event.text()
+    name = f"'{text}'" if text and text.isprintable() and not text.isspace() else "That key"
+    return f"{name} is not a key of this screen  ·  F1 lists the keys"
+
+
+def local_time(moment, zone: zoneinfo.ZoneInfo, pattern: str = "%H:%M:%S") -> str:
+    """A time as every screen writes it: in the study's zone, with the zone's abbreviation."""
+    return f"{moment.astimezone(zone).strftime(pattern)} {moment.astimezone(zone):%Z}"
 
 
 def key_list_html(scheme, command_keys, closing: str) -> str:
@@ -57,6 +74,57 @@ def key_list_html(scheme, command_keys, closing: str) -> str:
 def dimension_title(name: str) -> str:
     """A dimension or code name as the screen writes it: 'rapid_guessing' -> 'Rapid guessing'."""
     return name.replace("_", " ").capitalize()
+
+
+class FitLabel(QLabel):
+    """One line of large text that shrinks to fit its width instead of widening the window.
+
+    A 40-character roster label at arm's-length size is wider than a 1280-pixel screen;
+    the text steps down from ``points`` (never below ``floor``) until it fits, and is
+    elided only if even the floor is too wide.
+    """
+
+    def __init__(self, floor: float = 16.0) -> None:
+        super().__init__()
+        self._points = 13.0
+        self._floor = floor
+        self._rest = ""
+        self._full = ""
+        self.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
+
+    def set_look(self, points: float, rest: str = "") -> None:
+        """The largest size in points and the rest of the style (colour, weight)."""
+        self._points, self._rest = points, rest
+        self._fit()
+
+    def setText(self, text: str) -> None:  # noqa: N802 (Qt name)
+        self._full = text
+        self._fit()
+
+    def full_text(self) -> str:
+        return self._full
+
+    def _font(self, points: float) -> QFont:
+        font = QFont(self.font())
+        font.setPointSizeF(points)
+        font.setBold("bold" in self._rest)
+        return font
+
+    def _fit(self) -> None:
+        points = self._points
+        width = max(1, self.width() - 2)
+        while points > self._floor and QFontMetrics(self._font(points)).horizontalAdvance(self._full) > width:
+            points = max(self._floor, points - 2)
+        metrics = QFontMetrics(self._font(points))
+        shown = metrics.elidedText(self._full, Qt.TextElideMode.ElideRight, width)
+        self.setStyleSheet(f"font-size: {points}pt; {self._rest}")
+        self.setFixedHeight(QFontMetrics(self._font(self._points)).height() + 4)
+        super().setText(shown)
+
+    def resizeEvent(self, event) -> None:  # noqa: N802
+        super().resizeEvent(event)
+        if event.oldSize().width() != event.size().width():
+            self._fit()
 
 
 class TimeBar(QWidget):
@@ -97,7 +165,8 @@ class CodeTile(QWidget):
         self.scale = 1.0
         self._on_click = on_click
         self.setFocusPolicy(Qt.FocusPolicy.NoFocus)
-        self.setMinimumHeight(46)
+        self.setMinimumHeight(36)
+        self.setMaximumHeight(66)
         self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Expanding)
         self.setToolTip(f"key {code.key.upper()}: {code.label}")
 
@@ -143,6 +212,11 @@ class CodeTile(QWidget):
         painter.setFont(label_font)
         painter.setPen(QColor(looks.readable_text(fill, theme)))
         text_box = QRectF(badge.right() + 16, box.top(), box.right() - badge.right() - 26, box.height())
+        smallest = label_font.pointSizeF() * 0.7  # shrink a long label before eliding it
+        while (painter.fontMetrics().horizontalAdvance(self.code.label) > text_box.width()
+               and label_font.pointSizeF() > smallest):
+            label_font.setPointSizeF(label_font.pointSizeF() - 1)
+            painter.setFont(label_font)
         label = painter.fontMetrics().elidedText(self.code.label, Qt.TextElideMode.ElideRight, int(text_box.width()))
         painter.drawText(text_box, Qt.AlignmentFlag.AlignVCenter | Qt.AlignmentFlag.AlignLeft, label)
 
@@ -150,7 +224,8 @@ class CodeTile(QWidget):
 class DimensionPad(QFrame):
     """One dimension: its name, whether it is still to code, and a tile per code."""
 
-    def __init__(self, dimension: SchemeDimension, on_click) -> None:
+    def __init__(self, dimension: SchemeDimension, on_click, slots: int = 0) -> None:
+        """``slots``: the most codes any pad has; empty slots keep every pad's tiles the same height."""
         super().__init__()
         self.dimension = dimension
         self.setProperty("role", "panel")
@@ -167,7 +242,9 @@ class DimensionPad(QFrame):
         layout.addLayout(header)
         self.tiles = [CodeTile(dimension, code, on_click) for code in dimension.codes]
         for tile in self.tiles:
-            layout.addWidget(tile)
+            layout.addWidget(tile, 1)
+        for _ in range(max(0, slots - len(self.tiles))):
+            layout.addStretch(1)
 
     def show_code(self, code: str | None, theme: Theme, scale: float) -> None:
         for tile in self.tiles:
@@ -182,6 +259,12 @@ class DimensionPad(QFrame):
         else:
             self.state.setText("✓ " + self.dimension.code(code).label)
             self.state.setStyleSheet(f"font-size: {points}pt; font-weight: bold; color: {theme.text};")
+
+
+def pads_for(scheme, on_click) -> list[DimensionPad]:
+    """One pad per dimension, tiles of equal height across pads."""
+    slots = max(len(dimension.codes) for dimension in scheme.dimensions)
+    return [DimensionPad(dimension, on_click, slots) for dimension in scheme.dimensions]
 
 
 class NoteEdit(QLineEdit):
@@ -253,6 +336,16 @@ class CodingKeysMixin:
             return False
         return True
 
+    def _show_unknown_key(self, event: QKeyEvent) -> None:
+        if event.key() == Qt.Key.Key_F6 or event.modifiers() & Qt.KeyboardModifier.ControlModifier:
+            event.ignore()  # the window's keys (F6 discreet, Ctrl+Q quit): let the window have them
+            return
+        hint = unknown_key_hint(event)
+        if hint:
+            self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt;"
+                                             f" color: {self.theme.warning}; font-weight: bold;")
+            self.message_label.setText(hint)
+
     def _clicked(self, dimension: str, code: str) -> None:
         self.session.code(dimension, code)
         self.setFocus()
@@ -293,13 +386,13 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         header = QHBoxLayout()
         turn = QVBoxLayout()
         self.turn_caption = QLabel()
-        self.learner_label = QLabel()
+        self.learner_label = FitLabel(floor=20)
         turn.addWidget(self.turn_caption)
         turn.addWidget(self.learner_label)
         header.addLayout(turn, 3)
         upcoming = QVBoxLayout()
         self.next_caption = QLabel("NEXT")
-        self.next_label = QLabel()
+        self.next_label = FitLabel(floor=13)
         self.slot_label = QLabel()
         for label in (self.next_caption, self.next_label, self.slot_label):
             label.setAlignment(Qt.AlignmentFlag.AlignRight)
@@ -319,9 +412,9 @@ class ObservingScreen(CodingKeysMixin, QWidget):
 
         pads = QHBoxLayout()
         pads.setSpacing(18)
-        self.pads = [DimensionPad(dimension, self._clicked) for dimension in session.study.scheme.dimensions]
+        self.pads = pads_for(session.study.scheme, self._clicked)
         for pad in self.pads:
-            pads.addWidget(pad, 1, Qt.AlignmentFlag.AlignTop)
+            pads.addWidget(pad, 1)
         root.addLayout(pads, 1)
 
         self.note_edit = NoteEdit(self._save_note, self._close_note)
@@ -343,6 +436,11 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         panel_layout.addWidget(self.presence_caption)
         panel_layout.addWidget(self.presence, 1)
         self.presence_panel.hide()
+        self.pause_cover = QLabel(self)  # paused: the whole screen changes, so nobody codes into a pause
+        self.pause_cover.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.pause_cover.setWordWrap(True)
+        self.pause_cover.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.pause_cover.hide()
         self.help = QLabel(self)
         self.help.setTextFormat(Qt.TextFormat.RichText)
         self.help.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
@@ -365,8 +463,8 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         caption = f"font-size: {13 * scale}pt; color: {theme.quiet_text}; letter-spacing: 2px;"
         self.turn_caption.setStyleSheet(caption)
         self.next_caption.setStyleSheet(caption)
-        self.learner_label.setStyleSheet(f"font-size: {looks.LEARNER_POINTS * scale}pt; font-weight: bold;")
-        self.next_label.setStyleSheet(f"font-size: {looks.NEXT_POINTS * scale}pt; color: {theme.text};")
+        self.learner_label.set_look(looks.LEARNER_POINTS * scale, "font-weight: bold;")
+        self.next_label.set_look(looks.NEXT_POINTS * scale, f"color: {theme.text};")
         self.slot_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * scale}pt; color: {theme.quiet_text};")
         self.time_label.setStyleSheet(f"font-size: {looks.TIME_POINTS * scale}pt; font-weight: bold;")
         self.status_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * scale}pt;")
@@ -381,6 +479,8 @@ class ObservingScreen(CodingKeysMixin, QWidget):
             f"QListWidget::item {{ padding: 6px; }}"
             f"QListWidget::item:selected {{ background: {looks.blend(theme.accent, theme.surface, 0.35).name()};"
             f" color: {theme.text}; }}")
+        self.pause_cover.setStyleSheet(f"background: {looks.blend(theme.accent, theme.background, 0.55).name()};"
+                                       f" color: {theme.text};")
         self.time_bar.theme = theme
         self.keys_label.setText(" &nbsp;·&nbsp; ".join(f"<b>{key}</b> {short}" for _, key, _, short in COMMAND_KEYS if short))
         self._render_help()
@@ -413,16 +513,35 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         self.slot_label.setText(f"slot {state.slot + 1} · round {state.round + 1} · {mode}")
         for pad in self.pads:
             pad.show_code(state.coded.get(pad.dimension.name), theme, self._scale)
+        self._render_pause(state)
         self.message_label.setText(state.message)
         colour = theme.warning if state.error else theme.text
         self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt; color: {colour};")
         if state.error:
             self.message_label.setText(state.error)
-        last = "-" if state.last_saved_at is None else f"{state.last_saved_at.astimezone(self._zone):%H:%M:%S}"
+        last = "-" if state.last_saved_at is None else local_time(state.last_saved_at, self._zone)
         missing = ", ".join(dimension_title(d) for d in state.missing) or "nothing"
         absent = f" · absent: {', '.join(self.session.label(a) for a in state.absent)}" if state.absent else ""
-        self.status_label.setText(f"Saved: <b>{state.saved_count}</b> · last save {last} · "
-                                  f"slot {state.slot + 1} · still to code: {missing}{absent}")
+        missed = (f"<span style='color:{theme.warning}'><b>{state.missed_windows}</b> ran out uncoded</span>"
+                  if state.missed_windows else "0 ran out uncoded")
+        self.status_label.setText(f"Windows coded: <b>{state.coded_windows}</b> · {missed} · last save {last} · "
+                                  f"still to code: {missing}{absent}")
+
+    def _render_pause(self, state: SessionState) -> None:
+        if not state.paused or state.ended:
+            self.pause_cover.hide()
+            return
+        grid = "<br>The shared grid runs on: windows that pass are saved as missed." if state.paired else ""
+        self.pause_cover.setText(
+            f"<div style='font-size:{looks.LEARNER_POINTS * self._scale}pt; font-weight:bold;"
+            f" letter-spacing:6px'>PAUSED</div>"
+            f"<p style='font-size:{looks.NEXT_POINTS * self._scale}pt'>Press <b>Space</b> to go on with "
+            f"{state.label or 'the session'}</p>"
+            f"<p style='font-size:{looks.STATUS_POINTS * self._scale}pt'>Nothing is coded while paused.{grid}"
+            f"<br>F10 twice ends the session · F1 all keys</p>")
+        self.pause_cover.setGeometry(self.rect())
+        self.pause_cover.raise_()
+        self.pause_cover.show()
 
     def _render_time(self, state: SessionState) -> None:
         if state.awaiting_signal:
@@ -448,6 +567,7 @@ class ObservingScreen(CodingKeysMixin, QWidget):
     def resizeEvent(self, event) -> None:  # noqa: N802
         super().resizeEvent(event)
         self.help.setGeometry(self.rect().adjusted(60, 40, -60, -40))
+        self.pause_cover.setGeometry(self.rect())
         self._place_presence()
 
     def _place_presence(self) -> None:
@@ -479,7 +599,7 @@ class ObservingScreen(CodingKeysMixin, QWidget):
         elif key == Qt.Key.Key_F5:
             self.session.sync_mark()
         elif not (event.text() and self.session.press(event.text())):
-            super().keyPressEvent(event)
+            self._show_unknown_key(event)
 
     def _end_pressed(self) -> None:
         if self._confirmed_end():

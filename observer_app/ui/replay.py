@@ -16,19 +16,27 @@ from PySide6.QtWidgets import (QAbstractItemView, QHBoxLayout, QHeaderView, QLab
 
 from observer_app.coding.replay import ReplaySession
 from observer_app.ui import theme as looks
-from observer_app.ui.observing import CodingKeysMixin, DimensionPad, NoteEdit, dimension_title, key_list_html
+from observer_app.ui.observing import CodingKeysMixin, FitLabel, NoteEdit, dimension_title, key_list_html, pads_for
+from observer_app.ui.overview import scroll_table
 from observer_app.ui.theme import Theme
 
 # (Qt key, how the key is written on screen, what it does, the short form for the hint line)
 REPLAY_KEYS: tuple[tuple[Qt.Key, str, str, str], ...] = (
     (Qt.Key.Key_F8, "F8", "could not observe: every dimension still to code", "rest not observable"),
     (Qt.Key.Key_PageDown, "PgDn", "skip this clip (stored as a clip with no code)", "skip clip"),
-    (Qt.Key.Key_Backspace, "Backspace", "undo the last code (goes back to its clip)", "undo"),
+    (Qt.Key.Key_Down, "↑ ↓", "scroll the clip's events", "scroll events"),
+    (Qt.Key.Key_Backspace, "Backspace", "undo the last code or skip (goes back to its clip)", "undo"),
     (Qt.Key.Key_Return, "Enter", "write a note for this clip", "note"),
     (Qt.Key.Key_F10, "F10", "end the session (press twice)", "end"),
     (Qt.Key.Key_F1, "F1", "show / hide all keys", "all keys"),
 )
 EVENT_HEADERS = ("Seconds into clip", "Action", "Outcome", "Item")
+
+
+def short_names(values) -> list[str]:
+    """An xAPI verb or activity IRI by its last path part ('.../verbs/attempted' -> 'attempted')."""
+    return [text.rstrip("/").rsplit("/", 1)[-1] if text.startswith(("http://", "https://")) else text
+            for text in values.astype(str)]
 
 
 class ReplayScreen(CodingKeysMixin, QWidget):
@@ -50,7 +58,7 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         header = QHBoxLayout()
         who = QVBoxLayout()
         self.caption = QLabel()
-        self.learner_label = QLabel()
+        self.learner_label = FitLabel(floor=16)
         who.addWidget(self.caption)
         who.addWidget(self.learner_label)
         header.addLayout(who, 3)
@@ -71,9 +79,9 @@ class ReplayScreen(CodingKeysMixin, QWidget):
 
         pads = QHBoxLayout()
         pads.setSpacing(18)
-        self.pads = [DimensionPad(dimension, self._clicked) for dimension in session.study.scheme.dimensions]
+        self.pads = pads_for(session.study.scheme, self._clicked)
         for pad in self.pads:
-            pads.addWidget(pad, 1, Qt.AlignmentFlag.AlignTop)
+            pads.addWidget(pad, 1)
         root.addLayout(pads, 2)
 
         self.note_edit = NoteEdit(self._save_note, self._close_note)
@@ -101,7 +109,7 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         scale = looks.DISCREET_SCALE if theme is looks.DISCREET else 1.0
         self._scale = scale
         self.caption.setStyleSheet(f"font-size: {13 * scale}pt; color: {theme.quiet_text}; letter-spacing: 2px;")
-        self.learner_label.setStyleSheet(f"font-size: {looks.NEXT_POINTS * 1.5 * scale}pt; font-weight: bold;")
+        self.learner_label.set_look(looks.NEXT_POINTS * 1.5 * scale, "font-weight: bold;")
         self.range_label.setStyleSheet(f"font-size: {looks.NEXT_POINTS * scale}pt; color: {theme.text};")
         self.events_table.setStyleSheet(
             f"QTableWidget {{ font-size: {looks.TILE_POINTS * scale}pt; background: {theme.surface};"
@@ -133,15 +141,15 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         self.learner_label.setText(state.label or "-")
         if state.start is not None:
             start, end = state.start.astimezone(self._zone), state.end.astimezone(self._zone)
-            self.range_label.setText(f"{start:%Y-%m-%d}<br><b>{start:%H:%M:%S} – {end:%H:%M:%S}</b>"
+            self.range_label.setText(f"{start:%Y-%m-%d}<br><b>{start:%H:%M:%S} – {end:%H:%M:%S} {end:%Z}</b>"
                                      f"<br><span style='font-size:{looks.STATUS_POINTS}pt'>log clock, "
                                      f"{self.session.study.timezone}</span>")
         else:
             self.range_label.setText("")
         events = state.events
         self.events_table.setRowCount(len(events))
-        columns = (events["offset_s"].map("{:.1f} s".format), events["action"].astype(str),
-                   events["outcome"].astype(str), events["item"].astype(str))
+        columns = (events["offset_s"].map("{:.1f} s".format), short_names(events["action"]),
+                   short_names(events["outcome"]), short_names(events["item"]))
         for column, values in enumerate(columns):
             for row, value in enumerate(values):
                 item = QTableWidgetItem(value)
@@ -154,8 +162,9 @@ class ReplayScreen(CodingKeysMixin, QWidget):
         self.message_label.setStyleSheet(f"font-size: {looks.STATUS_POINTS * self._scale}pt; color: {colour};")
         self.message_label.setText(state.error or state.message)
         missing = ", ".join(dimension_title(d) for d in state.missing) or "nothing"
-        self.status_label.setText(f"Saved: <b>{state.saved_count}</b> · clip {min(state.position + 1, state.clips)} "
-                                  f"of {state.clips} · {len(events)} events · still to code: {missing}")
+        self.status_label.setText(f"Clips coded: <b>{state.coded_clips}</b> · skipped {state.skipped_clips} · "
+                                  f"clip {min(state.position + 1, state.clips)} of {state.clips} · {len(events)} events"
+                                  f" · still to code: {missing}")
 
     def _render_help(self) -> None:
         self.help.setText(key_list_html(self.session.study.scheme, REPLAY_KEYS, "Esc or F1 closes this list."))
@@ -170,8 +179,10 @@ class ReplayScreen(CodingKeysMixin, QWidget):
             return
         if event.key() == Qt.Key.Key_PageDown:
             self.session.skip()
+        elif event.key() in (Qt.Key.Key_Up, Qt.Key.Key_Down):
+            scroll_table(self.events_table, event.key())
         elif not (event.text() and self.session.press(event.text())):
-            super().keyPressEvent(event)
+            self._show_unknown_key(event)
 
     def _end_pressed(self) -> None:
         if self._confirmed_end():

@@ -16,9 +16,11 @@ from datetime import datetime
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
-from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (QComboBox, QFormLayout, QGridLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
+                               QSpinBox, QVBoxLayout, QWidget)
 
 from observer_app.coding.clock import Clock
+from observer_app.coding.replay_plan import ReplayRule, parse_sample
 from observer_app.coding.shared_start import (
     TYPED_START_BOUND_S, new_pairing_code, parse_shared_start, read_pairing_code, suggested_start_times,
 )
@@ -39,6 +41,7 @@ class StartChoice:
     replay: bool = False  # code replayed log clips of the ticked learners instead of watching live
     pairing_id: str | None = None  # paired runs: the code both devices share
     signal: bool = False  # paired run starting on the spoken countdown (paired_start is then None)
+    rule: ReplayRule | None = None  # replay: how clips are sampled and shared out (None: every clip, time order)
 
 
 class StartForm(QWidget):
@@ -82,6 +85,7 @@ class StartForm(QWidget):
         self.shared_start_caption = QLabel(f"Shared start ({study.timezone})")
         form.addRow(self.shared_start_caption, self.shared_start)
         form.addRow("Who is present (Space ticks)", self.present)
+        self._add_replay_plan(form)
         form.addRow("Window length", QLabel(f"{study.window_seconds:g} s each, {study.order} order (from study.toml)"))
         layout.addLayout(form)
         self.error = QLabel("")
@@ -100,7 +104,41 @@ class StartForm(QWidget):
         self.shared_start.addItems(suggested_start_times(self.clock.now_utc(), self.study.timezone))
         self.coder.setFocus()
 
+    def _add_replay_plan(self, form: QFormLayout) -> None:
+        """Replay only: the sample, the fewest events a clip needs, the double-coded share, the coders."""
+        self.sample = QLineEdit("5 per learner")
+        self.sample.setPlaceholderText("5 per learner, 20% of all, or all")
+        self.sample.setToolTip("5 = five clips per learner; 20% = a fifth of all clips; all = every clip")
+        self.min_events = QSpinBox()
+        self.min_events.setRange(1, 999)
+        self.min_events.setPrefix("clips with at least ")
+        self.min_events.setSuffix(" event(s)")
+        self.double_share = QSpinBox()
+        self.double_share.setRange(0, 100)
+        self.double_share.setSuffix(" % double-coded")
+        self.plan_coders = QLineEdit()
+        self.plan_coders.setPlaceholderText("coders sharing the plan (default: you)")
+        row = QWidget()
+        grid = QGridLayout(row)  # two by two, so no field is squeezed below its text
+        grid.setContentsMargins(0, 0, 0, 0)
+        for number, widget in enumerate((self.sample, self.min_events, self.double_share, self.plan_coders)):
+            grid.addWidget(widget, number // 2, number % 2)
+        self.plan_caption = QLabel(f"Replay plan (seed {self.study.seed})")
+        form.addRow(self.plan_caption, row)
+        self.plan_row = row
+
+    def replay_rule(self, coder: str, present: tuple[str, ...]) -> ReplayRule:
+        """The plan the replay fields describe; InputError names the field to fix."""
+        per_learner, share = parse_sample(self.sample.text())
+        coders = tuple(dict.fromkeys(name.strip() for name in self.plan_coders.text().split(",") if name.strip()))
+        return ReplayRule(learners=present, per_learner=per_learner, share=share, min_events=self.min_events.value(),
+                          seed=self.study.seed, double_share=self.double_share.value() / 100,
+                          coders=coders or (coder,))
+
     def _mode_changed(self) -> None:
+        replay = self.mode.currentText() == REPLAY
+        self.plan_row.setVisible(replay)
+        self.plan_caption.setVisible(replay)
         paired = self.mode.currentText() in (PAIRED, PAIRED_TYPED)
         typed = self.mode.currentText() == PAIRED_TYPED
         self.pairing.setEnabled(paired)
@@ -144,8 +182,16 @@ class StartForm(QWidget):
             self.error.setText("Tick at least one learner who is present.")
             self.present.setFocus()
             return
+        replay = self.mode.currentText() == REPLAY
+        rule = None
+        if replay:
+            try:
+                rule = self.replay_rule(coder, present)
+            except InputError as error:
+                self.error.setText(error.line())
+                self.sample.setFocus()
+                return
         self.error.setText("")
         self.started.emit(StartChoice(coder=coder, device=self.device.text().strip() or socket.gethostname(),
-                                      paired_start=paired_start, present=present,
-                                      replay=self.mode.currentText() == REPLAY, pairing_id=pairing_id,
-                                      signal=self.mode.currentText() == PAIRED))
+                                      paired_start=paired_start, present=present, replay=replay, rule=rule,
+                                      pairing_id=pairing_id, signal=self.mode.currentText() == PAIRED))

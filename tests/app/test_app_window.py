@@ -106,12 +106,14 @@ def test_a_whole_session_coded_with_the_keyboard_alone(qtbot, window):
     assert isinstance(end, EndScreen)
     assert "8 windows" in end.figures.text() and "2 missed" in end.figures.text()  # Bench 3 left, Bench 4 ran out
     table = end.table
-    headers = [table.horizontalHeaderItem(c).text() for c in range(table.columnCount())]
-    rows = {table.item(r, 0).text(): [table.item(r, c).text() for c in range(1, table.columnCount())]
+    headers = [table.horizontalHeaderItem(c).text().replace("\n", " ") for c in range(table.columnCount())]
+    rows = {table.item(r, 0).text(): dict(zip(headers[1:], (table.item(r, c).text() for c in range(1, table.columnCount()))))
             for r in range(table.rowCount())}
-    assert headers[1] == "Bench 1" and headers[-1] == "All"
-    assert rows["activity · Working on the panel"][0] == "1" and rows["activity · Working on the panel"][-1] == "2"
-    assert rows["affect · Could not tell"][-1] == "2"  # Bench 6 by key, Bench 1 by F8
+    assert table.item(0, 0).text() == "All learners" and table.item(1, 0).text() == "Bench 1"
+    assert "Bench 2" not in rows  # absent from the session: the end screen lists only learners it observed
+    assert rows["Bench 1"]["Working on the panel"] == "1" and rows["All learners"]["Working on the panel"] == "2"
+    assert rows["All learners"]["Could not tell"] == "2"  # Bench 6 by key, Bench 1 by F8
+    assert rows["Bench 4"]["Missed (no code)"] == "1"
     press(qtbot, window, Qt.Key.Key_Return)
     assert isinstance(window.page, StudyOverview)
 
@@ -222,9 +224,9 @@ def test_interrupted_session_is_offered_and_resumed_from_the_overview(qtbot, tmp
     assert "interrupted" in window.overview.resume_banner.text()
     ARTIFACTS.mkdir(exist_ok=True)
     window.overview.grab().save(str(ARTIFACTS / "overview_resume_offer.png"))
-    scroll = window.overview.scroller.verticalScrollBar()
+    scroll = window.overview.counts_table.verticalScrollBar()
     press(qtbot, window, Qt.Key.Key_PageDown)
-    assert scroll.maximum() == 0 or scroll.value() > 0  # the overview scrolls from the keyboard
+    assert scroll.maximum() == 0 or scroll.value() > 0  # the learners table scrolls from the keyboard
     press(qtbot, window, Qt.Key.Key_R)
     screen = window.page
     assert isinstance(screen, ObservingScreen)

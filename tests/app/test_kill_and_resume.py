@@ -57,7 +57,7 @@ def test_killed_session_resumes_at_the_right_slot_with_every_acknowledged_code(t
     for monotonic in (12.0, child_monotonic):
         clock = FakeClock(monotonic=monotonic, wall=reopened_at)
         with Store(study.store_path) as store:
-            interrupted = find_interrupted_session(study, store)
+            interrupted = find_interrupted_session(study, store, "laptop-1")
             assert interrupted is not None and interrupted.codes_saved >= len(acknowledged)
             session = LiveSession.reopen(study, store, clock, interrupted.session_id)
             state = session.state()

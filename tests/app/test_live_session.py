@@ -262,7 +262,7 @@ def test_end_of_session_counts_match_the_keys_pressed(study, store, clock):
     missed = summary.per_learner.set_index("learner")["missed_windows"].to_dict()
     assert missed["L03"] == 1 and missed["L01"] == 1  # the 3rd and 7th windows: L03 and L01 (roster order)
     assert raw(study, "SELECT count(*) FROM session_ends") == [(1,)]
-    assert find_interrupted_session(study, store) is None
+    assert find_interrupted_session(study, store, "laptop-1") is None
 
 
 def test_two_paired_devices_stay_on_the_same_learner_for_an_hour(tmp_path):
@@ -335,7 +335,7 @@ def test_reopening_resumes_an_interrupted_session(study, clock, paired):
     store.close()
     clock.advance(47)
     store = Store(study.store_path)
-    interrupted = find_interrupted_session(study, store)
+    interrupted = find_interrupted_session(study, store, "laptop-1")
     assert interrupted is not None and interrupted.session_id == session.session_id
     assert interrupted.codes_saved == 9
     resumed = LiveSession.reopen(study, store, clock, interrupted.session_id)

@@ -114,7 +114,10 @@ def test_the_start_form_replay_choice_opens_the_replay_screen_and_resumes(qtbot,
         return window.page
 
     replay = start_replay()
-    assert len(replay.session.clips) > 100  # every learner ticked: every clip with an event
+    clips = replay.session.clips  # the default plan: 5 clips of each ticked learner, not all 730
+    assert len(clips) == 60 and clips.groupby("learner").size().eq(5).all()
+    sessions = replay.session.store.sessions()
+    assert sessions.loc[sessions["coder"] == "rhea", "order"].str.startswith("plan:").all()
     for key in "1q2w":
         qtbot.keyClick(replay, key)
     assert replay.session.state().position == 2

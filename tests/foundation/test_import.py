@@ -120,3 +120,14 @@ def test_a_device_store_with_an_unknown_code_names_it_and_lists_the_dimensions_c
                                   scheme_hash=scheme_hash, slot=0)
     assert_user_error(call_cli("import", study, device_path), "device.sqlite", "code 'sleepy'",
                       "(its codes: focused, confused, frustrated, bored, unclear)")
+
+
+def test_a_spreadsheet_saved_csv_with_bom_and_crlf_imports(study: Path, tmp_path: Path) -> None:
+    roster = study / "roster.csv"  # the roster re-saved by a spreadsheet program as well
+    roster.write_bytes(b"\xef\xbb\xbf" + roster.read_bytes().replace(b"\n", b"\r\n"))
+    csv = tmp_path / "codes.csv"
+    csv.write_bytes(b"\xef\xbb\xbf" + GOOD.replace("\n", "\r\n").encode())
+    result = call_cli("import", study, csv)
+    assert result.returncode == 0, result.stderr
+    with Store(study / "observations.sqlite") as store:
+        assert sorted(store.observations(["activity", "affect"])["learner"]) == ["L01", "L01", "L02"]

@@ -139,6 +139,7 @@ def test_a_version_1_store_migrates_forward_and_keeps_its_rows(tmp_path: Path) -
     connection.close()
     with Store(path) as store:
         assert store.schema_version == SCHEMA_VERSION == len(MIGRATIONS)
+        assert store.replay_plans().empty  # every later table exists after migrating forward
         assert store.observations(["activity"]).loc[0, "activity"] == "on_task"
         store.record_window_end("o1", datetime(1970, 1, 1, 0, 0, 7, tzinfo=timezone.utc))
         assert store.observations(["activity"]).loc[0, "window_end"] == pd.Timestamp("1970-01-01T00:00:07Z")

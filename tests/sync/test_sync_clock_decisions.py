@@ -262,7 +262,8 @@ def test_span_standard_error_is_the_line_s_prediction_error_at_the_span_s_ends(p
     of the kept residuals in place of the OLS sigma it must equal span_standard_error_s."""
     import statsmodels.api as sm
 
-    from sync.clock_marks import _robust_sd, fit_from_marks
+    from sync.clock_marks import fit_from_marks
+    from sync.robust_spread import robust_sd
     built = planted_marks
     span = (int(built.observations["window_start"].min().value), int(built.observations["window_end"].max().value))
     model = fit_from_marks(built.marks, built.events, span)
@@ -273,7 +274,7 @@ def test_span_standard_error_is_the_line_s_prediction_error_at_the_span_s_ends(p
     ols = sm.OLS(gap, sm.add_constant(since)).fit()
     ends = (model.to_log_ns(np.array(span)) - model.reference_ns) / 1e9
     se_mean = ols.get_prediction(sm.add_constant(ends, has_constant="add")).se_mean
-    expected = float(np.max(se_mean / np.sqrt(ols.scale) * _robust_sd(residual)))
+    expected = float(np.max(se_mean / np.sqrt(ols.scale) * robust_sd(residual)))
     assert model.span_standard_error_s == pytest.approx(expected, rel=1e-4)  # residuals are kept to 1 microsecond
     assert model.span_standard_error_s > model.offset_standard_error_s  # drift grows it away from the marks
 

@@ -120,3 +120,32 @@ def test_observations_on_log_clock_moves_live_rows_and_keeps_replay_rows():
     assert moved["log_end_ns"].tolist() == [ns("2026-03-10T09:00:20Z"), ns("2026-03-10T09:00:50Z"),
                                             ns("2026-03-10T09:00:50Z")]
     assert any("laptop-b" in warning for warning in moved.attrs["warnings"])
+
+
+def test_the_clock_mapping_of_pairing_and_of_export_windows_is_the_same():
+    """Pairing (observations_on_log_clock) and export's windows (observations_to_windows)
+    must put every observed window at the same log instants, for any clock model."""
+    from hypothesis import given, settings, strategies as st
+
+    from sync.clock import ClockModel
+    from sync.windows import observations_on_log_clock
+
+    @settings(max_examples=40, deadline=None)
+    @given(offset=st.floats(-50_000, 50_000), drift=st.floats(-500, 500), starts=st.lists(
+        st.integers(0, 10 * 86_400), min_size=1, max_size=20), replay=st.booleans())
+    def check(offset, drift, starts, replay):
+        base = pd.Timestamp("2026-03-10T08:00:00Z")
+        obs = pd.DataFrame({
+            "observation_id": [f"o{i}" for i in range(len(starts))], "device": "laptop-a", "learner": "L01",
+            "window_start": [base + pd.Timedelta(seconds=s) for s in starts],
+            "window_end": [base + pd.Timedelta(seconds=s + 20) for s in starts],
+            "coded_at": [base + pd.Timedelta(seconds=s + 15) for s in starts], "activity": "on_task",
+            "mode": "replay" if replay else "live"})
+        models = {"laptop-a": ClockModel(device="laptop-a", method="marks", offset_s=offset, drift_ppm=drift,
+                                         reference_ns=ns("2026-03-12T00:00:00Z"))}
+        moved = observations_on_log_clock(obs, models)
+        windows = observations_to_windows(obs, models, ROSTER)
+        assert moved["log_start_ns"].tolist() == windows["start_ns"].tolist()
+        assert moved["log_end_ns"].tolist() == windows["end_ns"].tolist()
+
+    check()
