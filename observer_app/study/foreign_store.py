@@ -33,14 +33,15 @@ TIME_LIMIT_SECONDS = 60.0
 PROGRESS_STEPS = 10_000  # SQLite instructions between two looks at the clock
 # Tables whose rows come into the study, in an order that keeps references valid.
 IMPORTED_TABLES: tuple[str, ...] = ("sessions", "session_ends", "observations", "codes", "notes", "sync_marks",
-                                    "absences", "window_closures", "adjudications")
+                                    "absences", "window_closures", "replay_plans", "replay_assignments",
+                                    "adjudications")
 NEVER_IMPORTED: tuple[str, ...] = ("clock_models", "imports", row_chain.CHAIN_TABLE)
 # Integer time columns per table (UTC ns); each must be an integer in the plausible range.
 TIME_COLUMNS: dict[str, tuple[str, ...]] = {
     "sessions": ("started_ns",), "session_ends": ("ended_ns",),
     "observations": ("window_start_ns", "window_end_ns", "created_ns"), "codes": ("entered_ns",),
     "notes": ("entered_ns",), "sync_marks": ("marked_ns",), "absences": ("at_ns",),
-    "window_closures": ("window_end_ns",), "adjudications": ("at_ns",),
+    "window_closures": ("window_end_ns",), "adjudications": ("at_ns",), "replay_plans": ("created_ns",),
 }
 SECOND = 1_000_000_000
 

@@ -558,17 +558,19 @@ class Store:
                 if frame.empty:
                     continue
                 columns = list(frame.columns)
-                key = columns[0]
+                primary = sorted((row[5], row[1]) for row in cursor.execute(f'PRAGMA table_info("{table}")') if row[5])
+                keys = [columns.index(name) for _, name in primary] or [0]
                 records = list(frame.astype(object).where(frame.notna(), None).itertuples(index=False, name=None))
                 stored = {}
                 for start in range(0, len(records), 500):
-                    keys = [record[0] for record in records[start:start + 500]]
-                    marks = ",".join("?" * len(keys))
-                    stored.update({row[0]: row for row in cursor.execute(
-                        f'SELECT {", ".join(columns)} FROM "{table}" WHERE "{key}" IN ({marks})', keys)})
+                    firsts = sorted({record[keys[0]] for record in records[start:start + 500]}, key=str)
+                    marks = ",".join("?" * len(firsts))
+                    stored.update({tuple(row[i] for i in keys): row for row in cursor.execute(
+                        f'SELECT {", ".join(columns)} FROM "{table}" WHERE "{columns[keys[0]]}" IN ({marks})', firsts)})
                 for record in records:
-                    if record[0] in stored and tuple(stored[record[0]]) != tuple(record):
-                        raise RowConflict(table, str(record[0]))
+                    key = tuple(record[i] for i in keys)
+                    if key in stored and tuple(stored[key]) != tuple(record):
+                        raise RowConflict(table, "/".join(map(str, key)))
                 cursor.executemany(f'INSERT OR IGNORE INTO "{table}" ({", ".join(columns)}) '
                                    f'VALUES ({",".join("?" * len(columns))})', records)
                 counts[table] = max(cursor.rowcount, 0)

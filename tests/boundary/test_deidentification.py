@@ -189,8 +189,8 @@ def test_an_interrupted_session_resumes_after_a_label_change_but_not_after_a_rem
                                       order="fixed", seed=1, scheme_hash=load_study(study).scheme.content_hash)
     edit_scheme(study, 'label = "Working on the panel"', 'label = "Wiring the panel"')   # a new hash, same codes
     with Store(study / "observations.sqlite") as store:
-        found = find_interrupted_session(load_study(study), store)
+        found = find_interrupted_session(load_study(study), store, "laptop-c")
     assert found is not None and found.session_id == session
     edit_scheme(study, 'name = "rapid_guessing"', 'name = "guessing"')                  # coded code gone
     with Store(study / "observations.sqlite") as store:
-        assert find_interrupted_session(load_study(study), store) is None
+        assert find_interrupted_session(load_study(study), store, "laptop-c") is None
