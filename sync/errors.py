@@ -18,6 +18,10 @@ class InputError(Exception):
         self.message = message
         super().__init__(self.line())
 
+    def __reduce__(self):
+        # So that an error raised in a worker process arrives whole in the parent.
+        return (InputError, (self.file, self.where, self.message))
+
     def line(self) -> str:
         """One line: ``file: where: message`` with the empty parts left out."""
         parts = [p for p in (self.file, self.where) if p]

@@ -34,8 +34,17 @@ def _category(values, length: int) -> pd.Categorical:
         return pd.Categorical.from_codes(np.zeros(length, dtype=np.int8), categories=[""])
     series = pd.Series(values)
     if isinstance(series.dtype, pd.CategoricalDtype):
-        series = series.cat.add_categories([""]) if "" not in series.cat.categories else series
-        return pd.Categorical(series.fillna(""))
+        # Codes and categories directly: pandas' own add_categories walks Arrow-backed
+        # categories one by one, which costs seconds for a platform's 20,000 learner ids.
+        categories = series.cat.categories.to_numpy(dtype=object)
+        codes = series.cat.codes.to_numpy()
+        blank = np.flatnonzero(categories == "")
+        if blank.size == 0:
+            categories = np.append(categories, "")
+            blank = np.array([len(categories) - 1])
+        if (codes < 0).any():
+            codes = np.where(codes < 0, blank[0], codes)
+        return pd.Categorical.from_codes(codes, categories=categories, validate=False)
     return pd.Categorical(series.astype("str").fillna("").str.strip())
 
 

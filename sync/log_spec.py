@@ -23,7 +23,7 @@ KEYS: tuple[str, ...] = ("path", "format", "timezone", "encoding", "delimiter", 
 FOLDER_SUFFIXES: dict[str, tuple[str, ...]] = {
     "csv": (".csv", ".tsv", ".txt"),
     "parquet": (".parquet", ".pq"),
-    "xapi": (".json", ".jsonl", ".ndjson"),
+    "xapi": (".json", ".jsonl", ".ndjson", ".gz"),
 }
 
 
@@ -47,10 +47,13 @@ class LogSpec:
     label: str = ""
 
     def files(self) -> list[Path]:
-        """The files this entry stands for: the path itself, or a folder's matching files."""
+        """The files this entry stands for: the path itself, or a folder's matching files
+        (Parquet: also in partition folders below it, as a hive-partitioned dataset)."""
         if self.path.is_dir():
             suffixes = FOLDER_SUFFIXES[self.format]
-            return sorted(p for p in self.path.iterdir() if p.is_file() and p.suffix.lower() in suffixes)
+            found = self.path.rglob("*") if self.format == "parquet" else self.path.iterdir()
+            return sorted(p for p in found if p.is_file() and p.suffix.lower() in suffixes
+                          and not any(part.startswith((".", "_")) for part in p.relative_to(self.path).parts))
         return [self.path]
 
 

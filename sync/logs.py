@@ -2,7 +2,9 @@
 from __future__ import annotations
 
 from collections.abc import Iterable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import pandas as pd
 
@@ -10,18 +12,22 @@ from sync.csv_reader import read_csv_log
 from sync.errors import InputError
 from sync.event_table import combine_events
 from sync.local_time import LocalTimeCounts
+from sync.log_cache import LogCache, events_from_entry, events_to_entry, part_from_entry, part_to_entry
 from sync.log_spec import LogSpec
 from sync.parquet_reader import read_parquet_log
-from sync.xapi_reader import read_xapi_log
+from sync.xapi_reader import read_xapi_log, resolve_statements
 
-READERS = {"csv": read_csv_log, "parquet": read_parquet_log, "xapi": read_xapi_log}
+READERS = {"csv": read_csv_log, "parquet": read_parquet_log}
+FILE_THREADS = 2
 
 
 @dataclass
 class ReadReport:
-    """What reading the logs found: rows per file, DST decisions, learners not in the roster."""
+    """What reading the logs found: rows kept per file (and rows read, before the filter to
+    the observed learners), DST decisions, learners not in the roster."""
 
     rows_per_file: dict[str, int] = field(default_factory=dict)
+    rows_read_per_file: dict[str, int] = field(default_factory=dict)
     ambiguous_local_times: int = 0
     nonexistent_local_times: int = 0
     unknown_learners: dict[str, int] = field(default_factory=dict)
@@ -31,29 +37,66 @@ class ReadReport:
     def rows(self) -> int:
         return sum(self.rows_per_file.values())
 
+    @property
+    def rows_read(self) -> int:
+        return sum(self.rows_read_per_file.values())
 
-def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
+
+def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = None,
+              only_log_ids: Iterable[str] | None = None, cache_dir: Path | None = None) -> tuple[pd.DataFrame, ReadReport]:
     """Read every file of every spec into one EVENTS table (sync/tables.py).
 
     ``known_log_ids`` (the roster's log_id column) lets the report name learners the
-    roster does not know, with their event counts; they are kept, not fatal.  Raises
-    ``InputError`` for a missing file or any malformed input.
+    roster does not know, with their event counts; they are kept, not fatal.
+    ``only_log_ids`` keeps just those learners' events, filtered while reading (each
+    learner's whole log is kept, so history figures are unchanged); the report counts
+    rows read and rows kept.  ``cache_dir`` keeps each parsed file there (sync/log_cache.py),
+    keyed by its digest, so an unchanged file is not parsed again.  Raises ``InputError``
+    for a missing file or any malformed input.
     """
     report = ReadReport()
     counts = LocalTimeCounts()
-    parts = []
+    only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
+    parts, statement_parts = [], []
+    cache = LogCache(cache_dir) if cache_dir is not None else None
     for spec in specs:
         if not spec.path.exists():
             raise InputError(spec.path, None, "does not exist; fix the path of its [[logs]] entry in study.toml")
         files = spec.files()
         if not files:
             raise InputError(spec.path, None, f"is a folder with no {spec.format} files")
-        for path in files:
-            events, file_counts, warnings = READERS[spec.format](spec, path)
-            parts.append(events)
-            counts = counts + file_counts
-            report.rows_per_file[str(path)] = len(events)
-            report.warnings.extend(warnings)
+        if spec.format == "xapi":
+            for path in files:
+                part = _through_cache(cache, spec, path, only, lambda: read_xapi_log(spec, path, only),
+                                      part_to_entry, lambda table, meta: part_from_entry(str(path), table, meta))
+                statement_parts.append(part)
+                counts = counts + part.counts
+                report.rows_read_per_file[str(path)] = part.rows_read
+                report.warnings.extend(part.warnings)
+            continue
+
+        def read_one(path: Path, spec: LogSpec = spec):
+            return _through_cache(cache, spec, path, only, lambda: READERS[spec.format](spec, path, only),
+                                  lambda result: events_to_entry(*result), events_from_entry)
+
+        # Files of a folder (a partitioned dataset) two at a time: Arrow reads without
+        # Python's lock, so one file's parsing overlaps the other's reading.
+        with ThreadPoolExecutor(max_workers=FILE_THREADS) as pool:
+            for path, (events, file_counts, warnings, rows_read) in zip(files, pool.map(read_one, files)):
+                if events is not None:
+                    parts.append(events)
+                counts = counts + file_counts
+                report.rows_per_file[str(path)] = 0 if events is None else len(events)
+                report.rows_read_per_file[str(path)] = rows_read
+                report.warnings.extend(warnings)
+    if statement_parts:
+        statements, warnings = resolve_statements(statement_parts)
+        report.warnings.extend(warnings)
+        kept = statements["source"].value_counts(sort=False) if statements is not None else {}
+        for part in statement_parts:
+            report.rows_per_file[part.source] = int(kept.get(part.source, 0))
+        if statements is not None:
+            parts.append(statements)
     events = combine_events(parts)
     report.ambiguous_local_times = counts.ambiguous
     report.nonexistent_local_times = counts.nonexistent
@@ -71,3 +114,17 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
             report.warnings.append(f"{len(unknown)} learners in the logs are not in the roster's log_id column "
                                    f"(e.g. {shown}); their events are kept but no observation will use them")
     return events, report
+
+
+def _through_cache(cache: LogCache | None, spec: LogSpec, path: Path, only: frozenset[str] | None,
+                   read, to_entry, from_entry):
+    """``read()``'s result for one file, from the cache when its digest and settings match."""
+    if cache is None:
+        return read()
+    prefix, entry = cache.key(spec, path, only)
+    found = cache.load(entry)
+    if found is not None:
+        return from_entry(*found)
+    result = read()
+    cache.store(prefix, entry, *to_entry(result))
+    return result

@@ -1,10 +1,15 @@
 """xAPI statements -> EVENTS, per xAPI 1.0.3 (and 2.0 / IEEE 9274.1.1 where it differs).
 
-A file holds a JSON array of statements, or one statement per line (JSON lines).
+A file holds JSON lines, a JSON array, or pages of results as a learning record store
+hands them over (``{"statements": [...], "more": ...}``), optionally gzipped; a folder
+entry reads every file.  Files are read in blocks (sync/json_blocks.py), decoded by
+msgspec into the few fields below, so memory grows with the events kept, not the file.
 Mapping (section numbers are xAPI 1.0.3 Part Two):
   learner    actor's Inverse Functional Identifier (2.4.2.3): account.name, else mbox
              (the "mailto:" IRI as written), else mbox_sha1sum, else openid.  Identified
              Groups count as one learner; anonymous Groups (members only) are left out.
+             When the logs' accounts come from several homePages, an account learner is
+             written ``homePage|name`` (and a warning says so), so none are merged.
   time_ns    timestamp (2.4.7); when a statement has none, stored (2.4.8) -- counted.
              Stamps without an offset are local to the entry's timezone.
   action     verb.id (2.4.3)
@@ -15,23 +20,37 @@ Mapping (section numbers are xAPI 1.0.3 Part Two):
              fractional seconds.  Years and months have no fixed length, so they are
              refused with the line number.
   source_row the line the statement starts on (JSON lines: its line; array: where the
-             statement's object opens).
+             statement's object opens; a one-line page: the page's line).
+Across all files read together: a statement id seen twice is counted once (the first);
+voided statements (2.3.2) are dropped, and the voiding statements are not events.
 """
 from __future__ import annotations
 
-import json
+import gc
+import multiprocessing
 import re
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field
+from itertools import repeat
 from pathlib import Path
 
+import msgspec
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.json as pajson
 
 from sync.errors import InputError
+from sync.plausible_values import check_durations
 from sync.event_table import build_events
+from sync.json_blocks import BLOCK_BYTES, StatementBlocks, count_lines, parallel_stretches, plain_json_lines
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
-from sync.plausible_values import check_durations
 from sync.time_column import parse_time_column
+
+VOIDED = "http://adlnet.gov/expapi/verbs/voided"  # xAPI 1.0.3 Part Two 2.3.2
+QUALIFIER = "|"
 
 _DURATION = re.compile(
     r"^P(?:(?P<weeks>\d+(?:[.,]\d+)?)W|(?:(?P<years>\d+(?:[.,]\d+)?)Y)?(?:(?P<months>\d+(?:[.,]\d+)?)M)?"
@@ -56,166 +75,396 @@ def iso_duration_seconds(text: str) -> float:
     return sum(float(parts[name].replace(",", ".")) * scale for name, scale in _SECONDS_PER.items() if parts[name])
 
 
-def _statements(path: Path, encoding: str) -> list[tuple[int, object]]:
-    """(line, statement) pairs from a JSON array or JSON lines file; InputError on bad JSON."""
-    name = str(path)
-    try:
-        text = path.read_text(encoding=encoding).removeprefix("\ufeff")  # a byte order mark is not JSON
-    except UnicodeDecodeError as error:
-        raise InputError(name, f"byte {error.start}", f"is not valid {encoding} text; "
-                         "set encoding = \"...\" in its [[logs]] entry") from None
-    stripped = text.lstrip(" \t\r\n")
-    if not stripped:
-        raise InputError(name, None, "is empty; export the statements again or remove its [[logs]] entry")
-    if stripped.startswith("["):
-        start = len(text) - len(stripped)
-        decoder = json.JSONDecoder(parse_constant=_refuse_constant)
+
+
+class Account(msgspec.Struct, gc=False):
+    homePage: str | None = None
+    name: str | None = None
+
+
+class Actor(msgspec.Struct, gc=False):
+    objectType: str | None = None
+    mbox: str | None = None
+    mbox_sha1sum: str | None = None
+    openid: str | None = None
+    account: Account | None = None
+
+
+class Verb(msgspec.Struct, gc=False):
+    id: str | None = None
+
+
+class Target(msgspec.Struct, gc=False):
+    objectType: str | None = None
+    id: str | None = None
+
+
+class Result(msgspec.Struct, gc=False):
+    success: bool | None = None
+    completion: bool | None = None
+    duration: str | None = None
+
+
+class Statement(msgspec.Struct, gc=False):
+    """The fields of a statement (2.4) the event table uses; a page of results has ``statements``."""
+
+    id: str | None = None
+    actor: Actor | None = None
+    verb: Verb | None = None
+    target: Target | None = msgspec.field(default=None, name="object")
+    result: Result | None = None
+    timestamp: str | None = None
+    stored: str | None = None
+    statements: list[Statement] | None = None
+
+
+@dataclass
+class StatementPart:
+    """One file's statements before the cross-file rules (ids, voiding, homePages) apply."""
+
+    source: str
+    table: pa.Table | None
+    voided: set[str] = field(default_factory=set)
+    home_pages: set[str] = field(default_factory=set)
+    counts: LocalTimeCounts = field(default_factory=LocalTimeCounts)
+    warnings: list[str] = field(default_factory=list)
+    rows_read: int = 0
+    used_stored: int = 0
+    statements_seen: int = 0
+    anonymous: int = 0
+
+
+def _identities(actors: list[Actor | None]) -> tuple[pa.Array, pa.Array]:
+    """(identifier, homePage) per actor (2.4.2.3); homePage only where the account names it."""
+    accounts = [actor.account if actor is not None else None for actor in actors]
+    names = pa.array([account.name or None if account is not None else None for account in accounts], pa.string())
+    homes = pa.array([account.homePage or "" if account is not None else None for account in accounts], pa.string())
+    others = pa.array([actor.mbox or actor.mbox_sha1sum or actor.openid or None if actor is not None else None
+                       for actor in actors], pa.string())
+    named = names.is_valid()
+    return pc.if_else(named, names, others), pc.if_else(named, homes, pa.scalar(None, pa.string()))
+
+
+def _outcome(result: Result | None) -> int:
+    if result is None:
+        return 0
+    if result.success is True:
+        return 1
+    if result.success is False:
+        return 2
+    return 3 if result.completion is True else 0
+
+
+OUTCOME_NAMES = ["", "correct", "incorrect", "completed"]
+
+
+_SECONDS_ONLY = r"^PT\d+(?:\.\d+)?S$"  # the common shape, read by Arrow without a regex per text
+
+
+def _durations(texts: list | pa.Array, name: str, lines: np.ndarray) -> np.ndarray:
+    """ISO 8601 durations -> seconds, parsing each distinct text once."""
+    encoded = (texts if isinstance(texts, pa.Array) else pa.array(texts, pa.string())).dictionary_encode()
+    uniques = encoded.dictionary
+    seconds = np.full(len(uniques) + 1, np.nan)
+    simple = pc.match_substring_regex(uniques, _SECONDS_ONLY).to_numpy(zero_copy_only=False)
+    if simple.any():
+        digits = pc.utf8_slice_codeunits(uniques.filter(pa.array(simple)), 2, -1)
+        seconds[np.flatnonzero(simple)] = pc.cast(digits, pa.float64()).to_numpy(zero_copy_only=False)
+    codes = pc.fill_null(encoded.indices, len(uniques)).to_numpy(zero_copy_only=False)
+    for position in np.flatnonzero(~simple):
         try:
-            statements, end = decoder.raw_decode(text, start)
-        except json.JSONDecodeError as error:
-            raise InputError(name, f"line {error.lineno} column {error.colno}",
-                             f"malformed JSON ({error.msg}); fix the statement there") from None
-        except (ValueError, RecursionError) as error:
-            raise InputError(name, None, f"unreadable JSON ({_reason(error)}); export the statements again") from None
-        if not isinstance(statements, list):
-            raise InputError(name, "line 1", "must be a JSON array of statements or one statement per line")
-        if text[end:].strip():
-            line = text.count("\n", 0, end) + 1
-            raise InputError(name, f"line {line}", "data after the end of the JSON array; a file holds one array "
-                             "of statements (or one statement per line): remove the rest or split the file")
-        lines = _array_element_lines(text, start, len(statements))
-        return list(zip(lines, statements))
-    result = []
-    for number, line in enumerate(text.splitlines(), start=1):
-        if not line.strip():
-            continue
-        try:
-            result.append((number, json.loads(line, parse_constant=_refuse_constant)))
-        except json.JSONDecodeError as error:
-            raise InputError(name, f"line {number} column {error.colno}",
-                             f"malformed JSON ({error.msg}); each line must hold one whole statement") from None
-        except (ValueError, RecursionError) as error:
-            raise InputError(name, f"line {number}", f"unreadable JSON ({_reason(error)}); fix the statement") from None
+            seconds[position] = iso_duration_seconds(uniques[position].as_py())
+        except ValueError as error:
+            line = int(lines[np.flatnonzero(codes == position)[0]])
+            raise InputError(name, f"line {line} result.duration", str(error)) from None
+    result = seconds[codes]
+    check_durations(result, name, "result.duration", lines, "line")
     return result
 
 
-def _refuse_constant(name: str) -> float:
-    raise ValueError(f"{name} is not a JSON number")
-
-
-def _reason(error: BaseException) -> str:
-    return "nested too deeply" if isinstance(error, RecursionError) else str(error).split(";")[0]
-
-
-# Where the standard fixes a field's JSON type (xAPI 1.0.3 Part Two 2.4.2.3, 2.4.3, 2.4.4, 2.4.5).
-_TEXT_FIELDS = (("actor", "account", "name"), ("actor", "mbox"), ("actor", "mbox_sha1sum"), ("actor", "openid"),
-                ("verb", "id"), ("object", "id"), ("timestamp",), ("stored",), ("result", "duration"))
-_TRUTH_FIELDS = (("result", "success"), ("result", "completion"))
-
-
-def _type_problem(statement: dict) -> str | None:
-    """The first field whose JSON type the standard forbids, as a sentence; None when all fit."""
-    for fields, wanted, kind in ((_TEXT_FIELDS, str, "text"), (_TRUTH_FIELDS, bool, "true or false")):
-        for path in fields:
-            value: object = statement
-            for key in path:
-                value = value.get(key) if isinstance(value, dict) else None
-            if value is not None and not isinstance(value, wanted):
-                return f"{'.'.join(path)} must be {kind}, not {type(value).__name__} {str(value)[:40]!r}"
-    return None
-
-
-def _array_element_lines(text: str, start: int, count: int) -> list[int]:
-    """The line each top-level element of the JSON array at ``start`` begins on."""
-    decoder = json.JSONDecoder()
-    lines, position = [], start + 1
-    line = text.count("\n", 0, position) + 1
-    whitespace = re.compile(r"[\s,]*")
-    for _ in range(count):
-        skip = whitespace.match(text, position).end()
-        line += text.count("\n", position, skip)
-        lines.append(line)
-        _, end = decoder.raw_decode(text, skip)
-        line += text.count("\n", skip, end)
-        position = end
-    return lines
-
-
-def _learner(actor: object) -> str | None:
-    """The actor's Inverse Functional Identifier (xAPI 1.0.3 Part Two 2.4.2.3), or None."""
-    if not isinstance(actor, dict):
+def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, name: str,
+                 only: frozenset[str] | None, part: StatementPart) -> pa.Table | None:
+    """One block's events as a compact Arrow table (text dictionary-encoded)."""
+    learner, home = _identities([s.actor for s in statements])
+    verb_ids = pa.array([s.verb.id if s.verb is not None else None for s in statements], pa.string())
+    targets = [s.target for s in statements]
+    identified = learner.is_valid().to_numpy(zero_copy_only=False)
+    no_verb = identified & ~verb_ids.is_valid().to_numpy(zero_copy_only=False)
+    if no_verb.any():
+        raise InputError(name, f"line {int(lines[np.flatnonzero(no_verb)[0]])}",
+                         "statement has no verb.id (xAPI 1.0.3 Part Two 2.4.3); fix or remove it")
+    voiding = pc.fill_null(pc.equal(verb_ids, VOIDED), False).to_numpy(zero_copy_only=False) & identified
+    for position in np.flatnonzero(voiding):
+        target = targets[position]
+        if target is not None and target.objectType == "StatementRef" and target.id:
+            part.voided.add(target.id.lower())
+    part.home_pages.update(page for page in pc.unique(home).to_pylist() if page is not None)
+    part.rows_read += int(identified.sum())
+    keep = identified & ~voiding
+    if only is not None:
+        qualified = pc.binary_join_element_wise(home, learner, QUALIFIER)
+        wanted = pa.array(sorted(only), pa.string())
+        keep &= (pc.fill_null(pc.is_in(learner, wanted), False).to_numpy(zero_copy_only=False)
+                 | pc.fill_null(pc.is_in(qualified, wanted), False).to_numpy(zero_copy_only=False))
+    kept = np.flatnonzero(keep)
+    if kept.size == 0:
         return None
-    account = actor.get("account")
-    if isinstance(account, dict) and account.get("name"):
-        return str(account["name"])
-    for key in ("mbox", "mbox_sha1sum", "openid"):
-        if actor.get(key):
-            return str(actor[key])
-    return None
+    if kept.size < len(statements):
+        statements = [statements[i] for i in kept]
+        targets = [targets[i] for i in kept]
+        learner, home, verb_ids = learner.take(kept), home.take(kept), verb_ids.take(kept)
+        lines = lines[kept]
+    stamps = [s.timestamp or s.stored for s in statements]
+    part.used_stored += sum(1 for s in statements if not s.timestamp)
+    time_ns, counts = parse_time_column(pd.Series(stamps, dtype="str"), "iso", spec.timezone,
+                                        name, "timestamp", lines, row_word="line")
+    part.counts = part.counts + counts
+    results = [s.result for s in statements]
+    durations = [r.duration if r is not None else None for r in results]
+    return pa.table({
+        "learner": learner.dictionary_encode(),
+        "home": home.dictionary_encode(),
+        "time_ns": pa.array(time_ns, pa.int64()),
+        "action": verb_ids.dictionary_encode(),
+        "outcome": pa.array(np.fromiter(map(_outcome, results), np.int8, len(results))),
+        "item": pa.array([t.id if t is not None and t.id is not None else "" for t in targets],
+                         pa.string()).dictionary_encode(),
+        "duration_s": pa.array(_durations(durations, name, lines), pa.float64()),
+        "id": pa.array([s.id for s in statements], pa.string()),
+        "row": pa.array(lines, pa.int64()),
+    })
 
 
-def _outcome(result: dict) -> str:
-    if result.get("success") is True:
-        return "correct"
-    if result.get("success") is False:
-        return "incorrect"
-    if result.get("completion") is True:
-        return "completed"
-    return ""
+_TEXT = pa.string()
+ARROW_SCHEMA = pa.schema([
+    ("id", _TEXT),
+    ("actor", pa.struct([("mbox", _TEXT), ("mbox_sha1sum", _TEXT), ("openid", _TEXT),
+                         ("account", pa.struct([("homePage", _TEXT), ("name", _TEXT)]))])),
+    ("verb", pa.struct([("id", _TEXT)])),
+    ("object", pa.struct([("objectType", _TEXT), ("id", _TEXT)])),
+    ("result", pa.struct([("success", pa.bool_()), ("completion", pa.bool_()), ("duration", _TEXT)])),
+    ("timestamp", _TEXT),
+    ("stored", _TEXT),
+])
 
 
-def read_xapi_log(spec: LogSpec, path: Path) -> tuple[pd.DataFrame, LocalTimeCounts, list[str]]:
-    """One file of xAPI statements -> (EVENTS rows, DST counts, warnings)."""
+def _field(column: pa.Array, *path: str) -> pa.Array:
+    """A nested text field with "" read as missing (as the exact path reads it)."""
+    value = column
+    for name in path:
+        value = pc.struct_field(value, name)
+    return pc.if_else(pc.equal(value, ""), pa.scalar(None, value.type), value) if value.type == _TEXT else value
+
+
+def _read_with_arrow(spec: LogSpec, path: Path, only: frozenset[str] | None) -> StatementPart | None:
+    """The fast path: a plain JSON-lines file whose every line is one statement of the
+    usual shape, read by Arrow's JSON reader (C++, every core, in blocks).
+
+    Returns None -- and the exact path (msgspec, line by line) reads the file -- when
+    anything is unusual: another layout, a blank line, a field of another type, an
+    actor without identifier, a statement without verb, any error to report.
+    """
     name = str(path)
-    records = _statements(path, spec.encoding)
-    if not records:
+    if not plain_json_lines(path, spec.encoding):
+        return None
+    part = StatementPart(source=name, table=None)
+    tables, rows = [], 0
+    try:
+        reader = pajson.open_json(path, read_options=pajson.ReadOptions(block_size=BLOCK_BYTES),
+                                  parse_options=pajson.ParseOptions(explicit_schema=ARROW_SCHEMA,
+                                                                    unexpected_field_behavior="ignore"))
+        for batch in reader:
+            lines = np.arange(rows + 1, rows + batch.num_rows + 1, dtype=np.int64)
+            rows += batch.num_rows
+            table = _arrow_block(batch, lines, spec, name, only, part)
+            if table is False:
+                return None
+            if table is not None:
+                tables.append(table)
+    except (pa.ArrowInvalid, InputError):
+        return None
+    if rows == 0 or rows != count_lines(path):
+        return None
+    part.statements_seen = rows
+    part.table = pa.concat_tables(tables) if tables else None
+    return part
+
+
+def _arrow_block(batch: pa.RecordBatch, lines: np.ndarray, spec: LogSpec, name: str,
+                 only: frozenset[str] | None, part: StatementPart) -> pa.Table | None | bool:
+    """One Arrow block -> the same table as ``_block_table``; False sends the file to the exact path."""
+    actor, verb, target, result = (batch.column(key) for key in ("actor", "verb", "object", "result"))
+    names = _field(actor, "account", "name")
+    named = names.is_valid()
+    learner = pc.if_else(named, names, pc.coalesce(_field(actor, "mbox"), _field(actor, "mbox_sha1sum"),
+                                                    _field(actor, "openid")))
+    verb_ids = _field(verb, "id")
+    if learner.null_count or verb_ids.null_count:
+        return False
+    home = pc.if_else(named, pc.coalesce(_field(actor, "account", "homePage"), ""), pa.scalar(None, _TEXT))
+    voiding = pc.equal(verb_ids, VOIDED).to_numpy(zero_copy_only=False)
+    if voiding.any():
+        refs = batch.filter(pa.array(voiding)).column("object")
+        is_ref = pc.fill_null(pc.equal(pc.struct_field(refs, "objectType"), "StatementRef"), False)
+        part.voided.update(text.lower() for text in _field(refs, "id").filter(is_ref).to_pylist() if text)
+    part.home_pages.update(page for page in pc.unique(home).to_pylist() if page is not None)
+    part.rows_read += batch.num_rows
+    keep = ~voiding
+    if only is not None:
+        wanted = pa.array(sorted(only), _TEXT)
+        qualified = pc.binary_join_element_wise(home, learner, QUALIFIER)
+        keep &= (pc.is_in(learner, wanted).to_numpy(zero_copy_only=False)
+                 | pc.fill_null(pc.is_in(qualified, wanted), False).to_numpy(zero_copy_only=False))
+    if not keep.all():
+        mask = pa.array(keep)
+        batch, lines = batch.filter(mask), lines[keep]
+        learner, home, verb_ids = learner.filter(mask), home.filter(mask), verb_ids.filter(mask)
+        target, result = batch.column("object"), batch.column("result")
+    if batch.num_rows == 0:
+        return None
+    timestamp = _field(batch.column("timestamp"))
+    part.used_stored += timestamp.null_count
+    stamps = pc.coalesce(timestamp, _field(batch.column("stored")))
+    time_ns, counts = parse_time_column(stamps.to_pandas(), "iso", spec.timezone, name, "timestamp", lines,
+                                        row_word="line")
+    part.counts = part.counts + counts
+    success = pc.struct_field(result, "success").to_numpy(zero_copy_only=False)
+    completion = pc.struct_field(result, "completion").to_numpy(zero_copy_only=False)
+    outcome = np.where(success == True, 1, np.where(success == False, 2,  # noqa: E712 (None compares False)
+                                                    np.where(completion == True, 3, 0))).astype(np.int8)  # noqa: E712
+    return pa.table({
+        "learner": learner.dictionary_encode(),
+        "home": home.dictionary_encode(),
+        "time_ns": pa.array(time_ns, pa.int64()),
+        "action": verb_ids.dictionary_encode(),
+        "outcome": pa.array(outcome),
+        "item": pc.fill_null(_field(target, "id"), "").dictionary_encode(),
+        "duration_s": pa.array(_durations(pc.struct_field(result, "duration"), name, lines), pa.float64()),
+        "id": batch.column("id"),
+        "row": pa.array(lines, pa.int64()),
+    })
+
+
+def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None) -> StatementPart:
+    """One file of xAPI statements -> a StatementPart; ``only`` keeps just those learners.
+
+    ``only`` matches a learner's identifier and its ``homePage|name`` form, so it can be
+    given before it is known whether the logs need qualified account names.  A large
+    plain JSON-lines file is split at line breaks into one stretch per core, read in
+    parallel processes (decoding holds Python's lock, so threads would not help).
+    """
+    name = str(path)
+    try:
+        part = _read_with_arrow(spec, path, only)
+        pieces = [part] if part is not None else _read_exactly(spec, path, only)
+    except (msgspec.DecodeError, msgspec.ValidationError, ValueError, RecursionError) as error:
+        # whatever the block reader could not place (trailing data, NaN, deep nesting, huge numbers): one line
+        reason = "nested too deeply" if isinstance(error, RecursionError) else str(error).split(";")[0][:120]
+        raise InputError(name, None, f"unreadable JSON ({reason}); a file holds one JSON array of statements or one "
+                         "statement per line -- export the statements again") from None
+    part = StatementPart(source=name, table=None)
+    for piece in pieces:
+        part.voided |= piece.voided
+        part.home_pages |= piece.home_pages
+        part.counts = part.counts + piece.counts
+        for counter in ("rows_read", "used_stored", "statements_seen", "anonymous"):
+            setattr(part, counter, getattr(part, counter) + getattr(piece, counter))
+    tables = [piece.table for piece in pieces if piece.table is not None]
+    part.table = pa.concat_tables(tables) if tables else None
+    if part.statements_seen == 0:
         raise InputError(name, None, "holds no statements; export them again or remove its [[logs]] entry")
-    columns: dict[str, list] = {key: [] for key in ("learner", "time", "action", "outcome", "item", "duration", "row")}
-    no_actor = used_stored = 0
-    for line, statement in records:
-        if not isinstance(statement, dict):
-            raise InputError(name, f"line {line}", "is not a statement (a JSON object); fix or remove it")
-        problem = _type_problem(statement)
-        if problem:
-            raise InputError(name, f"line {line}", f"{problem} (xAPI 1.0.3 Part Two 2.4); fix or remove the statement")
-        learner = _learner(statement.get("actor"))
-        if learner is None:
-            no_actor += 1
-            continue
-        verb = statement.get("verb")
-        if not isinstance(verb, dict) or not verb.get("id"):
-            raise InputError(name, f"line {line}", "statement has no verb.id (xAPI 1.0.3 Part Two 2.4.3); fix or remove it")
-        stamp = statement.get("timestamp")
-        if not stamp:
-            stamp = statement.get("stored")
-            used_stored += 1
-        target = statement.get("object")
-        result = statement.get("result") if isinstance(statement.get("result"), dict) else {}
-        duration = np.nan
-        if result.get("duration") is not None:
-            try:
-                duration = iso_duration_seconds(result["duration"])
-            except ValueError as error:
-                raise InputError(name, f"line {line} result.duration", str(error)) from None
-        columns["learner"].append(learner)
-        columns["time"].append(stamp if isinstance(stamp, str) else None)
-        columns["action"].append(str(verb["id"]))
-        columns["outcome"].append(_outcome(result))
-        columns["item"].append(str(target.get("id", "")) if isinstance(target, dict) else "")
-        columns["duration"].append(duration)
-        columns["row"].append(line)
-    warnings = []
-    if no_actor:
-        warnings.append(f"{name}: {no_actor} statements left out: actor has no identifier (anonymous group)")
-    if used_stored:
-        warnings.append(f"{name}: {used_stored} statements have no timestamp; their stored time was used")
-    rows = np.asarray(columns["row"], dtype=np.int64)
-    if rows.size == 0:
+    if part.rows_read == 0:
         raise InputError(name, None, "holds no statement with an identified actor")
-    check_durations(np.asarray(columns["duration"], dtype=np.float64), name, "result.duration", rows, "line")
-    time_ns, counts = parse_time_column(pd.Series(columns["time"], dtype="str"), "iso", spec.timezone,
-                                        name, "timestamp", rows, row_word="line")
-    events = build_events(learner=columns["learner"], time_ns=time_ns, action=columns["action"],
-                          outcome=columns["outcome"], item=columns["item"], skill=None,
-                          duration_s=np.asarray(columns["duration"], dtype=np.float64), source=name, source_row=rows)
-    return events, counts, warnings
+    if part.anonymous:
+        part.warnings.append(f"{name}: {part.anonymous} statements left out: actor has no identifier (anonymous group)")
+    if part.used_stored:
+        part.warnings.append(f"{name}: {part.used_stored} statements have no timestamp; their stored time was used")
+    return part
+
+
+def _read_exactly(spec: LogSpec, path: Path, only: frozenset[str] | None) -> list[StatementPart]:
+    """The exact path: msgspec block by block, in parallel stretches for a large file."""
+    stretches = parallel_stretches(path, spec.encoding)
+    if len(stretches) > 1:
+        with ProcessPoolExecutor(len(stretches), mp_context=multiprocessing.get_context("fork")) as pool:
+            pieces = list(pool.map(_read_stretch, repeat(spec), repeat(path), repeat(only), stretches))
+    else:
+        pieces = [_read_stretch(spec, path, only, None)]
+    return pieces
+
+
+def _read_stretch(spec: LogSpec, path: Path, only: frozenset[str] | None,
+                  stretch: tuple[int, int] | None) -> StatementPart:
+    """The statements of the whole file, or of the bytes [start, end) of a JSON-lines file."""
+    name = str(path)
+    part = StatementPart(source=name, table=None)
+    tables = []
+    collecting = gc.isenabled()
+    gc.disable()  # millions of short-lived, acyclic objects: collection passes would only cost time
+    try:
+        for statements, lines in StatementBlocks(path, spec.encoding, Statement, stretch=stretch):
+            part.statements_seen += len(statements)
+            before = part.rows_read
+            table = _block_table(statements, lines, spec, name, only, part)
+            part.anonymous += len(statements) - (part.rows_read - before)
+            if table is not None:
+                tables.append(table)
+            del statements
+    finally:
+        if collecting:
+            gc.enable()
+    part.table = pa.concat_tables(tables) if tables else None
+    return part
+
+
+def resolve_statements(parts: list[StatementPart]) -> tuple[pd.DataFrame | None, list[str]]:
+    """Apply the cross-file rules to every file's statements -> (EVENTS rows, warnings).
+
+    A statement id seen again is counted once (the first file, first line); a statement
+    some statement voids is dropped; account learners are qualified by homePage when
+    the logs hold more than one.  Unsorted; ``combine_events`` sorts.
+    """
+    warnings: list[str] = []
+    home_pages = set().union(*(part.home_pages for part in parts))
+    tables = [(number, part.table) for number, part in enumerate(parts) if part.table is not None]
+    if not tables:
+        return None, warnings
+    table = pa.concat_tables([t.append_column("file", pa.array(np.full(len(t), n, np.int32))) for n, t in tables])
+    table = table.unify_dictionaries()
+    learner = pc.cast(table["learner"], pa.string())
+    if len(home_pages) > 1:
+        qualified = pc.binary_join_element_wise(pc.cast(table["home"], pa.string()), learner, QUALIFIER)
+        learner = pc.coalesce(qualified, learner)
+        shown = ", ".join(sorted(home_pages)[:3])
+        warnings.append(f"xAPI accounts come from {len(home_pages)} homePages ({shown}): account learners are "
+                        f"written homePage{QUALIFIER}name; use that form in roster.csv's log_id")
+    ids = pc.utf8_lower(table["id"]).combine_chunks().dictionary_encode()
+    codes = pc.fill_null(ids.indices, -1).to_numpy(zero_copy_only=False)
+    keep = np.ones(len(codes), dtype=bool)
+    if len(ids.dictionary) < int((codes >= 0).sum()):  # some id seen twice: keep its first row
+        _, first = np.unique(codes, return_index=True)
+        keep[:] = False
+        keep[first] = True
+        keep |= codes < 0
+    duplicates = int((~keep).sum())
+    voided = set().union(*(part.voided for part in parts))
+    if voided:
+        hit = pc.is_in(ids.dictionary, pa.array(sorted(voided), pa.string())).to_numpy(zero_copy_only=False)
+        is_voided = np.append(hit, False)[codes]
+        warnings.append(f"{int((is_voided & keep).sum())} voided statements dropped (xAPI 2.3.2)")
+        keep &= ~is_voided
+    if duplicates:
+        warnings.append(f"{duplicates} statements appear more than once (same id); each was counted once")
+    rows = np.flatnonzero(keep)
+    if rows.size < len(table):
+        table, learner = table.take(rows), learner.take(rows)
+    file_codes = table["file"].to_numpy()
+    events = build_events(
+        learner=pd.Categorical(learner.dictionary_encode().to_pandas()) if len(learner) else [],
+        time_ns=table["time_ns"].to_numpy(), action=table["action"].to_pandas(),
+        outcome=pd.Categorical.from_codes(table["outcome"].to_numpy().astype(np.int8), OUTCOME_NAMES),
+        item=table["item"].to_pandas(), skill=None, duration_s=table["duration_s"].to_numpy(),
+        source="", source_row=table["row"].to_numpy())
+    sources, inverse = np.unique([part.source for part in parts], return_inverse=True)
+    events["source"] = pd.Categorical.from_codes(inverse[file_codes], sources)
+    return events, warnings

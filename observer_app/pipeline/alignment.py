@@ -28,6 +28,8 @@ states another; otherwise align refuses (nothing stored) unless the user accepts
 """
 from __future__ import annotations
 
+from collections.abc import Iterable
+
 import json
 import math
 from dataclasses import dataclass, field
@@ -405,18 +407,22 @@ def _observable(observations: pd.DataFrame, study: Study) -> pd.DataFrame:
     return observations
 
 
+PARSED_LOGS_DIR = "parsed_logs"  # sync/log_cache.py: owner-only, keyed by digest, never exported
 NO_LOGS_FOR_ALIGN = ("no logs declared; add a [[logs]] entry, "
                      "or give every device's offset with --set-offset DEVICE=SECONDS")
 
 
-def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN) -> tuple[pd.DataFrame, ReadReport]:
+def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
+                    only_log_ids: Iterable[str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
     """The study's [[logs]] as one EVENTS table (sync/tables.py), learners checked against the roster.
 
-    ``if_missing`` is what to tell the user when study.toml declares no logs.
+    ``if_missing`` is what to tell the user when study.toml declares no logs;
+    ``only_log_ids`` keeps just those learners' (whole) logs, filtered while reading.
     """
     if not study.logs:
         raise InputError(study.dir / "study.toml", "[[logs]]", if_missing)
-    return read_logs(study.logs, known_log_ids=study.roster["log_id"].dropna().astype(str))
+    return read_logs(study.logs, known_log_ids=study.roster["log_id"].dropna().astype(str),
+                     only_log_ids=only_log_ids, cache_dir=study.dir / PARSED_LOGS_DIR)
 
 
 def stored_clock_decisions(study: Study) -> pd.DataFrame:

@@ -69,7 +69,8 @@ def export_study(
     settings: ExportSettings = ExportSettings(), progress: bool | None = None,
 ) -> dict:
     """Write the study's labelled windows and manifest to ``out``; return a JSON-ready summary
-    (out, manifest, format, rows, rows_per_label, events, observations, units, coverage, warnings).
+    (out, manifest, format, rows, rows_per_label, events (the observed learners' events),
+    events_read (log rows read to find them), observations, units, coverage, warnings).
 
     ``progress``: None shows a bar only on a terminal.  Raises InputError for the user's mistakes.
     """
@@ -98,7 +99,16 @@ def export_study(
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
-        events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs")
+        # Only the observed learners' logs are read (each whole: history features need it).
+        observed = set(observations["learner"].astype(str))
+        roster = study.roster.dropna(subset=["log_id"])
+        observed_log_ids = roster.loc[roster["learner"].astype(str).isin(observed), "log_id"].astype(str)
+        events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs",
+                                              only_log_ids=observed_log_ids)
+        if not set(observed_log_ids) <= set(events["learner"].astype(str).unique()):
+            # Some observed id is not in the logs: read them whole, so that the coverage
+            # check can show the ids the logs do use (it refuses the export either way).
+            events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs")
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
@@ -146,7 +156,7 @@ def export_study(
                       "misplaced" for key in accepted]
     return {
         "out": str(out), "manifest": str(beside), "format": output_format, "rows": manifest["rows"],
-        "rows_per_label": manifest["rows_per_label"], "events": int(len(events)),
+        "rows_per_label": manifest["rows_per_label"], "events": int(len(events)), "events_read": read_report.rows_read,
         "observations": int(len(observations)), "units": found.report["units"],
         "coverage": coverage_report(coverage),
         "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + outside_warnings(coverage)

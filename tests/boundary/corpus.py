@@ -452,7 +452,7 @@ def _xapi_cases() -> list[Case]:
         _xapi("xapi_duration_huge", _jsonl(statement(result={"duration": "PT" + "9" * 400 + "S"})), ("line 1",)),
         _xapi("xapi_object_id_list", _jsonl(statement(object={"id": [1]})), ("line 1",)),
         _xapi("xapi_nan_literal", '{"actor": {"mbox": "mailto:a@example.org"}, "verb": {"id": "v"}, '
-                                  '"timestamp": "2026-03-10T07:55:36Z", "result": {"duration": NaN}}\n', ("line 1",)),
+                                  '"timestamp": "2026-03-10T07:55:36Z", "result": {"duration": NaN}}\n', ("x.jsonl",)),
         _xapi("xapi_array_of_numbers", "[1, 2, 3]", ("x.json",), suffix="json"),
         _xapi("xapi_object_not_array", json.dumps(good), ("x.json",), expect="accepted", suffix="json"),
         _xapi("xapi_bom_array_accepted", BOM + json.dumps([good]).encode(), expect="accepted", suffix="json"),
@@ -460,7 +460,7 @@ def _xapi_cases() -> list[Case]:
         _xapi("xapi_binary", b"\xff\xfe\x00" * 30, ("x.jsonl",)),
         _xapi("xapi_big_integer", '{"actor": {"mbox": "mailto:a@example.org"}, "verb": {"id": "v"}, '
                                   '"timestamp": "2026-03-10T07:55:36Z", "result": {"success": ' + "9" * 5000 + '}}\n',
-              ("line 1",)),
+              ("x.jsonl",)),
     ]
     return cases
 

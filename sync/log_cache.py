@@ -1,0 +1,94 @@
+"""Parsed logs kept in the study folder, so the next verb does not parse a file again.
+
+An entry is keyed by the file's content digest (SHA-256) together with everything that
+shapes the result (format, time zone, encoding, delimiter, time format, column mapping,
+the learner filter): a changed file or setting misses and is parsed afresh, and the
+stale entry of that file is removed.  Entries hold learners' log events, like logs/
+itself: the folder and files are owner-only (0o700 / 0o600) and export never lists them.
+Each entry is a Parquet table plus a JSON sidecar (counts, warnings, rows read), written
+to a temporary name and renamed, so a crash leaves no half entry.
+"""
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+from dataclasses import asdict
+from pathlib import Path
+
+import pandas as pd
+import pyarrow as pa
+import pyarrow.parquet as pq
+
+from sync.local_time import LocalTimeCounts
+from sync.log_spec import LogSpec
+from sync.xapi_reader import StatementPart
+
+CACHE_VERSION = 1  # bump when what a reader produces changes
+
+
+class LogCache:
+    """Load and store parsed files under ``folder`` (created owner-only on first store)."""
+
+    def __init__(self, folder: Path) -> None:
+        self.folder = Path(folder)
+
+    def key(self, spec: LogSpec, path: Path, only: frozenset[str] | None) -> tuple[str, str]:
+        """(the file's entry prefix, the full entry name)."""
+        with open(path, "rb") as handle:
+            content = hashlib.file_digest(handle, "sha256").hexdigest()
+        settings = json.dumps([CACHE_VERSION, spec.format, spec.timezone, spec.encoding, spec.delimiter,
+                               spec.time_format, sorted(spec.columns.items()), sorted(only) if only else None])
+        prefix = hashlib.sha256(str(Path(path).resolve()).encode()).hexdigest()[:16]
+        return prefix, f"{prefix}-{content[:32]}-{hashlib.sha256(settings.encode()).hexdigest()[:16]}"
+
+    def load(self, entry: str) -> tuple[pa.Table, dict] | None:
+        table_path, meta_path = self.folder / f"{entry}.parquet", self.folder / f"{entry}.json"
+        if not (table_path.exists() and meta_path.exists()):
+            return None
+        try:
+            return pq.read_table(table_path), json.loads(meta_path.read_text())
+        except (OSError, ValueError, pa.ArrowInvalid):
+            return None  # unreadable entry: parse again (and overwrite it)
+
+    def store(self, prefix: str, entry: str, table: pa.Table, meta: dict) -> None:
+        self.folder.mkdir(mode=0o700, parents=True, exist_ok=True)
+        os.chmod(self.folder, 0o700)
+        for stale in self.folder.glob(f"{prefix}-*"):
+            if not stale.name.startswith(entry):
+                stale.unlink(missing_ok=True)
+        for suffix, write in ((".parquet", lambda path: pq.write_table(table, path)),
+                              (".json", lambda path: path.write_text(json.dumps(meta)))):
+            temporary = self.folder / f"{entry}{suffix}.partial"
+            descriptor = os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
+            os.close(descriptor)
+            write(temporary)
+            os.chmod(temporary, 0o600)
+            os.replace(temporary, self.folder / f"{entry}{suffix}")
+
+
+def events_to_entry(events: pd.DataFrame | None, counts: LocalTimeCounts, warnings: list[str],
+                    rows_read: int) -> tuple[pa.Table, dict]:
+    """A CSV/Parquet reader's result as (table, sidecar)."""
+    table = pa.Table.from_pandas(events, preserve_index=False) if events is not None else pa.table({})
+    return table, {"counts": asdict(counts), "warnings": warnings, "rows_read": rows_read, "empty": events is None}
+
+
+def events_from_entry(table: pa.Table, meta: dict) -> tuple[pd.DataFrame | None, LocalTimeCounts, list[str], int]:
+    events = None if meta["empty"] else table.to_pandas()
+    return events, LocalTimeCounts(**meta["counts"]), list(meta["warnings"]), int(meta["rows_read"])
+
+
+def part_to_entry(part: StatementPart) -> tuple[pa.Table, dict]:
+    """An xAPI file's statements (before the cross-file rules) as (table, sidecar)."""
+    meta = {"counts": asdict(part.counts), "warnings": part.warnings, "voided": sorted(part.voided),
+            "home_pages": sorted(part.home_pages), "empty": part.table is None,
+            **{name: getattr(part, name) for name in ("rows_read", "used_stored", "statements_seen", "anonymous")}}
+    return (part.table if part.table is not None else pa.table({})), meta
+
+
+def part_from_entry(source: str, table: pa.Table, meta: dict) -> StatementPart:
+    return StatementPart(source=source, table=None if meta["empty"] else table, voided=set(meta["voided"]),
+                         home_pages=set(meta["home_pages"]), counts=LocalTimeCounts(**meta["counts"]),
+                         warnings=list(meta["warnings"]), rows_read=meta["rows_read"], used_stored=meta["used_stored"],
+                         statements_seen=meta["statements_seen"], anonymous=meta["anonymous"])
