@@ -15,13 +15,14 @@ from sync.errors import InputError
 STUDY_FILES = ("observations.sqlite", "observations.sqlite-wal", "observations.sqlite-shm",
                "observations.sqlite-journal", "secret.key", "study.toml", "scheme.toml", "roster.csv")
 LOGS_FOLDER = "logs"
+CACHE_FOLDER = "parsed_logs"
 
 
 def protected_paths(study_dir: Path, log_paths: Iterable[Path] = ()) -> tuple[list[Path], list[Path]]:
     """(files, folders) of a study that no output may touch; log paths may lie outside the folder."""
     study_dir = Path(study_dir).resolve()
     files = [study_dir / name for name in STUDY_FILES]
-    folders = [study_dir / LOGS_FOLDER]
+    folders = [study_dir / LOGS_FOLDER, study_dir / CACHE_FOLDER]
     for log in log_paths:
         resolved = Path(log).resolve()
         (folders if resolved.is_dir() else files).append(resolved)
