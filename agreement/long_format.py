@@ -13,15 +13,18 @@ import pandas as pd
 
 from agreement.dimensions import LEVELS, Dimension
 from agreement.tables import LONG_FORMAT_KEY_COLUMNS, LONG_FORMAT_OPTIONAL_COLUMNS, MATCHED_BY_GIVEN, UNIT_COLUMNS
+from sync.csv_header import check_header
 from sync.errors import InputError
+from sync.plausible_values import RANGE_TEXT, outside_range
 
 
 def read_text_csv(path: Path) -> pd.DataFrame:
     """A CSV a person wrote, every cell as text ("" when empty), header names stripped."""
+    if not path.is_file():
+        raise InputError(path, None, "file not found" if not path.exists() else "is not a file; pass a CSV file")
+    check_header(path)
     try:
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
-    except FileNotFoundError:
-        raise InputError(path, None, "file not found") from None
+        frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, encoding="utf-8-sig")
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as error:
         raise InputError(path, None, f"not a readable CSV file ({str(error).splitlines()[0]})") from None
     frame.columns = [str(column).strip() for column in frame.columns]
@@ -76,9 +79,14 @@ def read_long_csv(path: str | Path, level: str | None = None,
         row = int(np.flatnonzero(repeated.to_numpy())[0]) + 2
         raise InputError(path, f"row {row}", f"coder {frame['coder'].iloc[row - 2]!r} coded unit "
                                              f"{frame['unit'].iloc[row - 2]!r} twice; keep one row")
+    coders = frame["coder"].nunique()
+    if coders < 2:
+        raise InputError(path, "column coder", f"{coders} coder found; agreement needs units coded by at least two")
     dimensions = []
     for name in dimension_names:
         present = sorted(set(frame[name]) - {""})
+        if not present:
+            raise InputError(path, f"column {name}", "holds no codes; fill it in or remove the column")
         codes = _ordered_codes(path, name, present, level, order)
         if level in ("interval", "ratio") and not all(_is_number(code) for code in codes):
             raise InputError(path, f"column {name}", f"{level} codes must be numbers")
@@ -88,6 +96,10 @@ def read_long_csv(path: str | Path, level: str | None = None,
     if "time" in frame and (time.isna() & (frame["time"] != "")).any():
         row = int(np.flatnonzero((time.isna() & (frame["time"] != "")).to_numpy())[0]) + 2
         raise InputError(path, f"row {row}", "time is not ISO 8601 (e.g. 2026-03-02T09:15:00+01:00)")
+    implausible = outside_range(time)
+    if implausible.any():
+        row = int(np.flatnonzero(implausible.to_numpy())[0]) + 2
+        raise InputError(path, f"row {row}", f"time {frame['time'].iloc[row - 2]!r} is not {RANGE_TEXT}; fix the date")
     units = pd.DataFrame({
         "unit": frame["unit"],
         "coder": frame["coder"],

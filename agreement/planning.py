@@ -50,6 +50,8 @@ def simulated_width(pairs: int, kappa: float, prevalence: np.ndarray, confidence
     with np.errstate(all="ignore"):
         kappas = coefficients.kappa_from_contingency(draws, coefficients.disagreement_weights(k, "none"))
     kappas = kappas[np.isfinite(kappas)]
+    if kappas.size == 0:
+        raise ValueError("kappa is undefined in every simulated sample (one code takes nearly every share)")
     tail = (1.0 - confidence) / 2.0
     low, high = np.quantile(kappas, [tail, 1.0 - tail])
     return float(high - low)

@@ -257,7 +257,9 @@ def step_export(run: DemoRun) -> None:
     path = run.out / WINDOWS_FILE
     # the south centre's xAPI log names help requests with a verb IRI; say so, as a lab would
     features = FeatureSettings(help_actions=FeatureSettings().help_actions + (SOUTH_VERBS["help_request"],))
-    exported = export_study(run.study.dir, path, settings=ExportSettings(features=features), progress=False)
+    # the roster columns the study allows out ([export] attributes: the site), as `fieldmark export` does
+    settings = ExportSettings(features=features, attributes=run.study.export_attributes)
+    exported = export_study(run.study.dir, path, settings=settings, progress=False)
     run.summary["windows"] = {"written": exported["rows"], "path": str(path)}
     counts = pd.DataFrame([{"dimension": dimension, "code": code, "windows": count}
                            for dimension, codes in exported["rows_per_label"].items() for code, count in codes.items()])

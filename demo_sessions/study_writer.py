@@ -39,6 +39,11 @@ def study_toml(scenario: Scenario, seed: int) -> str:
         f"window_seconds = {scenario.window_seconds}",
         f'order = "{scenario.schedule_order}"',
         f"seed = {scenario.schedule_seed}",
+        "",
+        "# Roster columns allowed into exports (nothing else leaves the study): the site lets",
+        "# `fieldmark check --by site --transfer site` ask whether a detector works at both centres.",
+        "[export]",
+        'attributes = ["site"]',
     ]
     for centre in scenario.centres:
         lines += ["", f"# centre {centre.name}", "[[logs]]", f'path = "{centre.log_file}"', f'format = "{centre.log_format}"']

@@ -115,6 +115,11 @@ def check_dimension(
 
 def _check_dimension(features, labels, groups, dimension, settings, context, weights) -> DimensionCheck:
     splits = grouped_folds(labels, groups, settings.folds, settings.seed)
+    for train, _ in splits:
+        if labels.iloc[train].nunique() < 2:
+            raise InputError(None, f"dimension {dimension}", f"a fold of learners holds only code "
+                             f"{labels.iloc[train].iloc[0]!r}; each code needs windows of several learners "
+                             "(check fewer dimensions or code more learners)")
     tuned = tuned_out_of_fold(settings.model, features, labels, groups, splits, settings.seed, weights)
     codes = tuned.codes
     baselines = {}
@@ -197,6 +202,9 @@ def check_windows(path: Path, dimensions: list[str] | None = None, settings: Che
         features, labels, groups = windows_xy(table, manifest, path, dimension)
         if groups.nunique() < 2:
             raise InputError(path, dimension, "needs labelled windows of at least two learners for grouped folds")
+        if labels.nunique() < 2:
+            raise InputError(path, dimension, f"every labelled window has code {labels.iloc[0]!r}; a detector "
+                             "needs at least two codes to tell apart")
         labelled = table[table[dimension].notna()].reset_index(drop=True)
         context = labelled[[column for column in (*allowed, CODERS, LABEL_SOURCE_PREFIX + dimension)
                             if column in labelled]]

@@ -19,9 +19,9 @@ from export.features import FEATURE_OF_COLUMN, FEATURES, FeatureFunction, Featur
 from export.label_confidence import label_confidences
 from export.labels import REPRESENTATIVE, resolve_labels, unit_keys
 from export.pseudonyms import pseudonymise
+from export.attributes import attribute_names, check_attributes
 from export.tables import (
-    CODERS, GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, ROSTER_PRIVATE_COLUMNS, END, START, UNIT,
-    WINDOW_ID,
+    CODERS, GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, END, START, UNIT, WINDOW_ID,
 )
 
 
@@ -33,6 +33,7 @@ class ExportSettings:
     policy: str = "first-coder"
     keep_could_not_observe: bool = False
     keep_ids: bool = False
+    attributes: tuple[str, ...] = ()  # roster columns allowed out (export/attributes.py); none by default
 
     def parameters(self) -> dict:
         """JSON-ready record of the settings."""
@@ -82,8 +83,19 @@ def label_windows(
     )
     chosen = windows.loc[labels[REPRESENTATIVE].to_numpy()].reset_index(drop=True)
     computed = compute_features(events, chosen, settings.features, features)
-    attribute_columns = [column for column in roster.columns if column not in ROSTER_PRIVATE_COLUMNS]
-    attributes = roster.set_index(LEARNER)[attribute_columns].reindex(chosen[LEARNER].to_numpy()).reset_index(drop=True)
+    label_part = labels[[column for dimension in dimensions for column in (dimension, LABEL_SOURCE_PREFIX + dimension)]]
+    posterior, confidence_columns, confidence = label_confidences(
+        windows.assign(**{UNIT: unit_keys(windows)}), list(dimensions), dict(could_not_observe))
+    label_part = pd.concat([label_part.reset_index(drop=True),
+                            posterior.reindex(labels[UNIT].to_numpy()).reset_index(drop=True)], axis=1)
+    feature_columns = [column for column in computed.columns if column not in (START, END)]
+    wanted = list(settings.attributes)
+    check_attributes(roster, wanted, chosen[LEARNER].astype(str))
+    renamed = attribute_names(wanted, {WINDOW_ID, LEARNER, GROUP, LOG_ID, MODE, CODERS, START, END,
+                                       *label_part.columns, *feature_columns})
+    attributes = (roster.set_index(LEARNER)[wanted].reindex(chosen[LEARNER].to_numpy()).reset_index(drop=True)
+                  .rename(columns=renamed))
+    attribute_columns = list(renamed.values())
     if settings.keep_ids:
         identity = pd.DataFrame({
             WINDOW_ID: labels[UNIT].astype("string"),
@@ -94,12 +106,6 @@ def label_windows(
     else:
         learner = pseudonymise(chosen[LEARNER], key)
         identity = pd.DataFrame({WINDOW_ID: pseudonymise(labels[UNIT], key), LEARNER: learner, GROUP: learner})
-    label_part = labels[[column for dimension in dimensions for column in (dimension, LABEL_SOURCE_PREFIX + dimension)]]
-    posterior, confidence_columns, confidence = label_confidences(
-        windows.assign(**{UNIT: unit_keys(windows)}), list(dimensions), dict(could_not_observe))
-    label_part = pd.concat([label_part.reset_index(drop=True),
-                            posterior.reindex(labels[UNIT].to_numpy()).reset_index(drop=True)], axis=1)
-    feature_columns = [column for column in computed.columns if column not in (START, END)]
     table = pd.concat(
         [identity, attributes, pd.DataFrame({MODE: chosen[MODE].astype("string"), CODERS: labels[CODERS]}),
          computed[[START, END]], label_part.reset_index(drop=True), computed[feature_columns]],

@@ -59,6 +59,13 @@ def read_secret_key(path: Path) -> bytes:
     except FileNotFoundError:
         raise InputError(path, None, "secret key missing; pseudonymous export needs the study's secret.key "
                          "(fieldmark init creates it), or pass --keep-ids to export raw ids") from None
+    except OSError as error:
+        raise InputError(path, None, f"secret key cannot be read ({error.strerror}); it must be the file "
+                         "fieldmark init wrote, restored from the study's backup") from None
     if len(key) < MINIMUM_KEY_BYTES:
         raise InputError(path, None, f"secret key has {len(key)} bytes, needs at least {MINIMUM_KEY_BYTES}")
+    if len(set(key)) == 1:
+        # A key of one repeated byte (a zeroed or placeholder file) makes every pseudonym guessable.
+        raise InputError(path, None, f"secret key is {len(key)} copies of byte {key[0]}, not a random key; "
+                         "restore the study's real secret.key from its backup")
     return key

@@ -6,7 +6,10 @@ per label, and which columns are features, labels and the group.  Parquet files 
 the same JSON in their schema metadata (key ``fieldmark``), so they are self-describing.
 
 Both files are written to temporary names in the target folder and renamed only when
-complete: a failed export leaves nothing half-written.
+complete: a failed export leaves nothing half-written.  Two renames cannot be atomic
+together, so the manifest beside the data file records the data file's SHA-256
+(``data_sha256``) and every reader refuses a pair that does not match; temporary files
+left by a killed export are removed by the next export to the same folder.
 """
 from __future__ import annotations
 
@@ -25,6 +28,8 @@ from export.labelled_windows import LabelledWindows
 from export.tables import GROUP, METADATA_KEY
 
 FORMATS: tuple[str, ...] = ("parquet", "csv")
+DATA_DIGEST_KEY = "data_sha256"
+TEMPORARY_SUFFIX = ".partial"
 ROWS_PER_BATCH = 65_536
 
 
@@ -95,8 +100,9 @@ def write_windows(result: LabelledWindows, path: Path, manifest: dict, progress:
     table = table.cast(described_schema(table.schema, manifest.get("column_descriptions", {})))
     table = table.replace_schema_metadata({**(table.schema.metadata or {}), METADATA_KEY: text.encode()})
     beside = manifest_path(path)
-    data_temporary = path.with_name(f".{path.name}.{os.getpid()}.partial")
-    manifest_temporary = beside.with_name(f".{beside.name}.{os.getpid()}.partial")
+    remove_stale_temporaries(path.parent)
+    data_temporary = path.with_name(f".{path.name}.{os.getpid()}{TEMPORARY_SUFFIX}")
+    manifest_temporary = beside.with_name(f".{beside.name}.{os.getpid()}{TEMPORARY_SUFFIX}")
     try:
         batches = table.to_batches(max_chunksize=ROWS_PER_BATCH)
         with tqdm(total=table.num_rows, unit="rows", desc="writing", disable=not progress) as bar:
@@ -110,10 +116,35 @@ def write_windows(result: LabelledWindows, path: Path, manifest: dict, progress:
                     for batch in batches:
                         writer.write_batch(batch)
                         bar.update(batch.num_rows)
-        manifest_temporary.write_text(text + "\n", encoding="utf-8")
+        beside_text = json.dumps({**manifest, DATA_DIGEST_KEY: file_sha256(data_temporary)}, indent=2,
+                                 sort_keys=True, default=str)
+        manifest_temporary.write_text(beside_text + "\n", encoding="utf-8")
         os.replace(data_temporary, path)
         os.replace(manifest_temporary, beside)
     finally:
         data_temporary.unlink(missing_ok=True)
         manifest_temporary.unlink(missing_ok=True)
     return beside
+
+
+def remove_stale_temporaries(folder: Path) -> list[Path]:
+    """Delete ``.<name>.<pid>.partial`` files in ``folder`` whose writing process is gone."""
+    removed = []
+    for candidate in Path(folder).glob(f".*{TEMPORARY_SUFFIX}"):
+        pid_text = candidate.name[: -len(TEMPORARY_SUFFIX)].rpartition(".")[2]
+        if pid_text.isdigit() and not _running(int(pid_text)):
+            candidate.unlink(missing_ok=True)
+            removed.append(candidate)
+    return removed
+
+
+def _running(pid: int) -> bool:
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except (PermissionError, OverflowError, OSError):
+        return True
+    return True

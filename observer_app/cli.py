@@ -23,9 +23,11 @@ COMMANDS: tuple[str, ...] = (
     "observer_app.commands.align",
     "observer_app.commands.agree",
     "observer_app.commands.adjudicate",
+    "observer_app.commands.recode",
     "observer_app.commands.plan",
     "observer_app.commands.export",
     "observer_app.commands.check",
+    "observer_app.commands.verify",
     "demo_sessions.command",
 )
 
@@ -40,9 +42,11 @@ SUMMARIES: dict[str, tuple[str, str]] = {
     "observer_app.commands.align": ("align", "fit each device's clock model against the logs"),
     "observer_app.commands.agree": ("agree", "inter-rater reliability per dimension, coder pair and session"),
     "observer_app.commands.adjudicate": ("adjudicate", "record adjudicated codes for disagreeing units"),
+    "observer_app.commands.recode": ("recode", "record that a coded code was renamed or merged into another"),
     "observer_app.commands.plan": ("plan", "paired observations needed for a kappa interval of a given width"),
     "observer_app.commands.export": ("export", "labelled, de-identified windows (Parquet or CSV) and a manifest"),
     "observer_app.commands.check": ("check", "grouped cross-validated detector check of exported windows"),
+    "observer_app.commands.verify": ("verify", "check the observation store against its hash chain"),
     "demo_sessions.command": ("demo", "build the demo study and run every step on it"),
 }
 

@@ -15,6 +15,7 @@ from sync.errors import InputError
 from sync.event_table import build_events
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
+from sync.plausible_values import check_durations
 from sync.time_column import parse_time_column
 
 DELIMITER_CANDIDATES = ",;\t|"
@@ -64,6 +65,10 @@ def read_csv_log(spec: LogSpec, path: Path,
     if missing:
         raise InputError(name, "header", f"has no column for {', '.join(missing)}; the file has "
                          f"{', '.join(header) or 'no columns'} -- fix [logs.columns] in study.toml")
+    repeated = sorted({column for column in spec.columns.values() if header.count(column) > 1})
+    if repeated:
+        raise InputError(name, "header", f"column {repeated[0]!r} appears more than once; rename the other "
+                         "so it is clear which one to read")
     table, rows, rows_read = _read_arrow(spec, path, header, delimiter, only)
     if rows_read == 0:
         raise InputError(name, None, "has a header but no rows; export the log again or remove its [[logs]] entry")
@@ -216,12 +221,18 @@ def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str, rows: np.
 
 
 def _durations(values: pd.Series, name: str, column: str, rows: np.ndarray) -> np.ndarray:
-    if pd.api.types.is_numeric_dtype(values.dtype):
-        return values.to_numpy(dtype=np.float64, na_value=np.nan)
+    if pd.api.types.is_numeric_dtype(values.dtype) and not pd.api.types.is_bool_dtype(values.dtype):
+        seconds = values.to_numpy(dtype=np.float64, na_value=np.nan)
+        check_durations(seconds, name, column, rows)
+        return seconds
     trimmed = pc.utf8_trim_whitespace(pa.array(values.astype("str")))
     try:  # Arrow's cast when every text is a number; the exact path below names the first that is not
         numbers = pc.cast(pc.if_else(pc.equal(trimmed, ""), pa.scalar(None, pa.string()), trimmed), pa.float64())
-        return numbers.to_numpy(zero_copy_only=False)
+        seconds = numbers.to_numpy(zero_copy_only=False)
+        written_nan = pc.fill_null(pc.is_nan(numbers), False)  # empty cells are nulls, not NaN
+        if not pc.any(written_nan).as_py():  # a written "nan" is not a duration: the exact path names it
+            check_durations(seconds, name, column, rows)
+            return seconds
     except pa.ArrowInvalid:
         pass
     text = values.astype("str").str.strip()
@@ -231,4 +242,6 @@ def _durations(values: pd.Series, name: str, column: str, rows: np.ndarray) -> n
         first = np.flatnonzero(bad)[0]
         raise InputError(name, f"column {column}, row {int(rows[first])}",
                          f"{text.iloc[first][:40]!r} is not a number of seconds")
-    return numbers.to_numpy(dtype=np.float64, na_value=np.nan)
+    seconds = numbers.to_numpy(dtype=np.float64, na_value=np.nan)
+    check_durations(seconds, name, column, rows)
+    return seconds

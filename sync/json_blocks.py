@@ -295,6 +295,9 @@ class StatementBlocks:
             self._locate_exact("[" + buffer.decode("utf-8", errors="replace"), lines_before, whole=False)
             raise InputError(self.name, f"line {lines_before + 1}", "the JSON array is not closed with ]; "
                              "export the statements again")
+        if buffer.strip(_WHITESPACE + b",")[1:].strip(_WHITESPACE):
+            raise InputError(self.name, f"line {lines_before + 1}", "data after the end of the JSON array; a file "
+                             "holds one array of statements (or one statement per line): remove the rest")
 
     def _decode_array(self, chunk: bytes, opens: np.ndarray, lines_before: int) -> tuple[list, np.ndarray]:
         try:

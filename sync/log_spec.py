@@ -98,12 +98,13 @@ def log_spec_from_toml(entry: dict, study_dir: Path, index: int) -> LogSpec:
                              f"{timezone!r} is not an IANA time zone; write e.g. \"Europe/Berlin\"") from None
     encoding = _text(entry, "encoding", index) or "utf-8"
     try:
-        codecs.lookup(encoding)
+        if not codecs.lookup(encoding)._is_text_encoding:
+            raise LookupError(encoding)
     except LookupError:
         raise InputError("study.toml", _where(index, "encoding"),
                          f"{encoding!r} is not a known text encoding; write e.g. \"utf-8\" or \"cp1252\"") from None
     delimiter = entry.get("delimiter")
-    if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1):
+    if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1 or delimiter in "\r\n\"'"):
         raise InputError("study.toml", _where(index, "delimiter"),
                          "must be one character, e.g. \",\" or \";\" or \"\\t\"; leave it out to detect")
     time_format = _text(entry, "time_format", index) or "auto"

@@ -58,6 +58,10 @@ def read_parquet_log(spec: LogSpec, path: Path,
     if parquet.metadata.num_rows == 0:
         raise InputError(name, None, "has no rows; export the log again or remove its [[logs]] entry")
     wanted = sorted(set(spec.columns.values()) - set(partition))
+    nested = [column for column in wanted if pa.types.is_nested(schema.field(column).type)]
+    if nested:
+        raise InputError(name, f"column {nested[0]}", f"holds {schema.field(nested[0]).type} values, not single "
+                         "values; export the log with one plain value per cell")
     text_columns = [spec.columns[role] for role in TEXT_ROLES
                     if spec.columns.get(role) in wanted and _is_text(schema.field(spec.columns[role]).type)]
     parquet = pq.ParquetFile(path, read_dictionary=text_columns)

@@ -21,6 +21,7 @@ import pandas as pd
 from sync.clock import NAT
 from sync.errors import InputError
 from sync.local_time import LocalTimeCounts, local_to_utc_ns
+from sync.plausible_values import RANGE_TEXT, ns_outside_range, utc_ns
 
 EPOCH_MS_THRESHOLD = 1e11
 # [ \t] rather than \s: RE2 can run these, so pandas matches them in Arrow, not row by row.
@@ -51,10 +52,10 @@ def parse_time_column(values: pd.Series, time_format: str, timezone: str | None,
     """
     dtype = values.dtype
     if isinstance(dtype, pd.DatetimeTZDtype):
-        result = values.dt.tz_convert("UTC").dt.as_unit("ns").array.asi8.copy()
+        result = utc_ns(values)
         counts = LocalTimeCounts()
     elif pd.api.types.is_datetime64_dtype(dtype):
-        naive = values.dt.as_unit("ns").array.asi8
+        naive = utc_ns(values)  # wall-clock numbers; out of range -> NaT
         result, counts = local_to_utc_ns(naive, _require_timezone(timezone, file, column))
     elif is_pattern(time_format):
         result, counts = _parse_pattern(values.astype("str"), time_format, timezone, file, column)
@@ -65,6 +66,7 @@ def parse_time_column(values: pd.Series, time_format: str, timezone: str | None,
         result, counts = _epoch_ns(values.to_numpy(dtype=np.float64, na_value=np.nan), time_format), LocalTimeCounts()
     else:
         result, counts = _parse_text(values.astype("str"), time_format, timezone, file, column)
+    result[ns_outside_range(result)] = NAT
     missing = result == NAT
     if missing.any():
         _raise_bad_rows(values, missing, rows, file, column, row_word, time_format)
@@ -80,7 +82,7 @@ def _read_pattern(text: pd.Series, pattern: str) -> pd.Series:
 def _parse_pattern(text: pd.Series, pattern: str, timezone: str | None, file: str,
                    column: str) -> tuple[np.ndarray, LocalTimeCounts]:
     text = text.str.strip()
-    parsed = _read_pattern(text.where(text != ""), pattern).dt.as_unit("ns").array.asi8.astype(np.int64)
+    parsed = utc_ns(_read_pattern(text.where(text != ""), pattern))  # out of the plausible range -> NaT
     if "%z" in pattern or "%Z" in pattern:
         return parsed, LocalTimeCounts()
     read = parsed != NAT
@@ -130,7 +132,8 @@ def _epoch_ns(numbers: np.ndarray, time_format: str) -> np.ndarray:
     else:
         scale = 1e6 if time_format == "epoch_ms" else 1e9
     result = np.full(numbers.shape, NAT, dtype=np.int64)
-    finite = np.isfinite(numbers)
+    with np.errstate(invalid="ignore", over="ignore"):
+        finite = np.isfinite(numbers) & (np.abs(numbers * scale) < 2.0 ** 62)
     result[finite] = np.round(numbers[finite] * scale).astype(np.int64)
     return result
 
@@ -148,12 +151,12 @@ def _parse_text(text: pd.Series, time_format: str, timezone: str | None, file: s
     has_offset = (text.str.contains(_OFFSET_PATTERN, regex=True) & present).to_numpy(dtype=bool)
     if has_offset.any():
         aware = pd.to_datetime(text[has_offset], format="ISO8601", utc=True, errors="coerce", cache=False)
-        result[has_offset] = aware.dt.as_unit("ns").array.asi8
+        result[has_offset] = utc_ns(aware)
     naive_rows = present.to_numpy(dtype=bool) & ~has_offset
     counts = LocalTimeCounts()
     if naive_rows.any():
-        naive = pd.to_datetime(text[naive_rows], format="ISO8601", errors="coerce",
-                               cache=False).dt.as_unit("ns").array.asi8  # its cache costs more than it saves
+        naive = utc_ns(pd.to_datetime(text[naive_rows], format="ISO8601", errors="coerce",
+                                      cache=False))  # its cache costs more than it saves; out of range -> NaT
         parsed = naive != NAT
         if parsed.any():
             utc, counts = local_to_utc_ns(naive, _require_timezone(timezone, file, column))
@@ -172,9 +175,9 @@ def _raise_bad_rows(values: pd.Series, missing: np.ndarray, rows: np.ndarray, fi
     if blank:
         raise InputError(file, f"column {column}, {row_word} {shown}{more}",
                          "the time is empty; every event needs its time")
-    expected = (f"does not match time_format \"{time_format}\"" if is_pattern(time_format) else
-                "is not a time; write ISO 8601 (2026-03-29T14:05:00+02:00) or epoch seconds/milliseconds, "
-                "or set time_format to a strftime pattern")
+    expected = (f"does not match time_format \"{time_format}\" (or is not {RANGE_TEXT})" if is_pattern(time_format)
+                else f"is not a time {RANGE_TEXT}; write ISO 8601 (2026-03-29T14:05:00+02:00) or epoch "
+                     "seconds/milliseconds, or set time_format to a strftime pattern")
     raise InputError(file, f"column {column}, {row_word} {shown}{more}",
                      f"{str(first)[:40]!r} {expected}{_suggestion(values, time_format)}")
 

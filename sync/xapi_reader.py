@@ -42,6 +42,7 @@ import pyarrow.compute as pc
 import pyarrow.json as pajson
 
 from sync.errors import InputError
+from sync.plausible_values import check_durations
 from sync.event_table import build_events
 from sync.json_blocks import BLOCK_BYTES, StatementBlocks, count_lines, parallel_stretches, plain_json_lines
 from sync.local_time import LocalTimeCounts
@@ -176,7 +177,9 @@ def _durations(texts: list | pa.Array, name: str, lines: np.ndarray) -> np.ndarr
         except ValueError as error:
             line = int(lines[np.flatnonzero(codes == position)[0]])
             raise InputError(name, f"line {line} result.duration", str(error)) from None
-    return seconds[codes]
+    result = seconds[codes]
+    check_durations(result, name, "result.duration", lines, "line")
+    return result
 
 
 def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, name: str,
@@ -351,11 +354,14 @@ def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None)
     parallel processes (decoding holds Python's lock, so threads would not help).
     """
     name = str(path)
-    part = _read_with_arrow(spec, path, only)
-    if part is not None:
-        pieces = [part]
-    else:
-        pieces = _read_exactly(spec, path, only)
+    try:
+        part = _read_with_arrow(spec, path, only)
+        pieces = [part] if part is not None else _read_exactly(spec, path, only)
+    except (msgspec.DecodeError, msgspec.ValidationError, ValueError, RecursionError) as error:
+        # whatever the block reader could not place (trailing data, NaN, deep nesting, huge numbers): one line
+        reason = "nested too deeply" if isinstance(error, RecursionError) else str(error).split(";")[0][:120]
+        raise InputError(name, None, f"unreadable JSON ({reason}); a file holds one JSON array of statements or one "
+                         "statement per line -- export the statements again") from None
     part = StatementPart(source=name, table=None)
     for piece in pieces:
         part.voided |= piece.voided

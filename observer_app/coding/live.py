@@ -61,6 +61,7 @@ from observer_app.coding.clock import Clock
 from observer_app.coding.shared_start import (
     TYPED_START_BOUND_S, Countdown, read_clock_difference, schedule_check_code,
 )
+from observer_app.study.scheme_binding import scheme_fits_store
 from observer_app.study.store import SIGNAL_END, SIGNAL_START, Store, new_id
 from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, window_counts
@@ -190,7 +191,7 @@ def find_interrupted_session(study: Study, store: Store, device: str) -> Interru
     """
     sessions = store.sessions()
     open_sessions = sessions[(sessions["mode"] == "live") & sessions["ended_at"].isna()
-                             & (sessions["scheme_hash"] == study.scheme.content_hash)
+                             & ((sessions["scheme_hash"] == study.scheme.content_hash) | scheme_fits_store(study, store))
                              & (sessions["order"] != IMPORTED_ORDER) & (sessions["device"] == device)]
     if open_sessions.empty:
         return None

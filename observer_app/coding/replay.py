@@ -44,6 +44,7 @@ import pandas as pd
 from observer_app.coding.replay_plan import ReplayRule, assign_clips, clips_digest, plan_id
 from observer_app.pipeline.alignment import read_study_logs
 from observer_app.coding.clock import Clock
+from observer_app.study.scheme_binding import scheme_fits_store
 from observer_app.study.store import Store, new_id
 from observer_app.study.folder import Study
 from observer_app.study.importing import IMPORTED_ORDER
@@ -113,7 +114,7 @@ def find_open_replay(study: Study, store: Store, coder: str, device: str) -> str
     open_sessions = sessions[(sessions["mode"] == "replay") & sessions["ended_at"].isna()
                              & (sessions["coder"] == coder) & (sessions["device"] == device)
                              & (sessions["order"] != IMPORTED_ORDER)
-                             & (sessions["scheme_hash"] == study.scheme.content_hash)]
+                             & ((sessions["scheme_hash"] == study.scheme.content_hash) | scheme_fits_store(study, store))]
     return None if open_sessions.empty else str(open_sessions["session_id"].iloc[-1])
 
 

@@ -29,6 +29,7 @@ from agreement.breakdowns import (
 )
 from observer_app.pipeline.units import StudyUnits, load_study_units, no_observations_error, placed_adjudications
 from observer_app.study.store import Store
+from observer_app.study.output_paths import check_output
 from sync.errors import InputError
 
 
@@ -56,6 +57,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
                         help=f"units per rolling-kappa window (default {ROLLING_WINDOW})")
     parser.add_argument("--resamples", type=int, default=DEFAULT_RESAMPLES, help="bootstrap resamples (default 1000)")
     parser.add_argument("--seed", type=int, default=1, help="bootstrap seed (default 1)")
+    parser.add_argument("--force", action="store_true", help="replace the --report or --disagreements file if it exists")
     parser.set_defaults(run=run)
 
 
@@ -93,8 +95,6 @@ def select_coders(units: pd.DataFrame, coders_option: str | None) -> pd.DataFram
 
 def write_atomically(path: Path, text: str) -> None:
     """Write to a temporary name beside ``path``, then rename: never a half-written file."""
-    if not path.parent.exists():
-        raise InputError(path, None, "the folder does not exist")
     handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
         with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
@@ -166,11 +166,31 @@ def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: 
             out.write(f"  {coder}: {verdict} -- {details}\n")
 
 
+MOST_RESAMPLES = 100_000
+MOST_UNITS = 1_000_000
+
+
+def check_options(args: argparse.Namespace) -> None:
+    """Every number in range, every output path writable and off the study's own files."""
+    if not 1 <= args.resamples <= MOST_RESAMPLES:
+        raise InputError(None, "--resamples", f"must be from 1 to {MOST_RESAMPLES} (1000 or more for a reported interval)")
+    if not 2 <= args.rolling_window <= MOST_UNITS:
+        raise InputError(None, "--rolling-window", f"must be from 2 to {MOST_UNITS}")
+    if not 0 <= args.seed < 2**32:
+        raise InputError(None, "--seed", f"must be a whole number from 0 to {2**32 - 1}")
+    if not (math.isfinite(args.certify_kappa) and -1 <= args.certify_kappa <= 1):
+        raise InputError(None, "--certify-kappa", f"{args.certify_kappa!r} is not a kappa between -1 and 1")
+    if not 1 <= args.certify_pairs <= MOST_UNITS:
+        raise InputError(None, "--certify-pairs", f"must be from 1 to {MOST_UNITS}")
+    source = Path(args.source)
+    for option, path in (("--report", args.report), ("--disagreements", args.disagreements)):
+        if path is not None:
+            check_output(path, option, study_dir=source if source.is_dir() else None,
+                         log_paths=[] if source.is_dir() else [source], force=args.force)
+
+
 def run(args: argparse.Namespace) -> int:
-    if args.resamples < 1:
-        raise InputError(None, "--resamples", "must be at least 1 (1000 or more for a reported interval)")
-    if args.rolling_window < 2:
-        raise InputError(None, "--rolling-window", "must be at least 2")
+    check_options(args)
     units, dimensions, pairing, found = load_units(args)
     placed = None
     if found is not None:

@@ -12,6 +12,7 @@ from observer_app.pipeline.alignment import (DEFAULT_MAX_STANDARD_ERROR_S, METHO
 from observer_app.pipeline.coverage import coverage_lines, coverage_report, study_coverage
 from observer_app.study.folder import load_study
 from sync.errors import InputError
+from sync.plausible_values import LARGEST_OFFSET_SECONDS
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
@@ -51,6 +52,9 @@ def parse_offsets(texts: list[str]) -> dict[str, float]:
             value = math.nan
         if not sign or not device.strip() or not math.isfinite(value):
             raise InputError(None, "--set-offset", f"{text!r} is not DEVICE=SECONDS, e.g. laptop-a=31.5")
+        if abs(value) > LARGEST_OFFSET_SECONDS:
+            raise InputError(None, "--set-offset", f"{text!r}: more than {LARGEST_OFFSET_SECONDS:.0f} s (30 days) "
+                             "is a wrong date on the device, not a clock offset; fix the device's date")
         offsets[device.strip()] = value
     return offsets
 

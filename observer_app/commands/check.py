@@ -52,6 +52,8 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(None, "--resamples", f"{args.resamples} is too few for a 95 % interval; use 100 or more")
     if args.report is not None and not args.report.parent.is_dir():
         raise InputError(args.report, None, "its folder does not exist; create it or choose another --report path")
+    if not 0 <= args.seed < 2**32:
+        raise InputError(None, "--seed", f"must be a whole number from 0 to {2**32 - 1}")
     manifest = read_manifest(args.windows)
     labels = manifest["label_columns"]
     for dimension in args.dimension or []:

@@ -15,8 +15,14 @@ from export.tables import LABEL_POLICIES
 from export.writer import FORMATS, manifest_path
 from observer_app.pipeline.coverage import coverage_lines
 from observer_app.pipeline.study_export import WindowChoice, export_study
+from observer_app.study.folder import load_study
+from observer_app.study.output_paths import check_output
 from sync.errors import InputError
+from sync.plausible_values import LONGEST_WINDOW_SECONDS, check_option_seconds
 from sync.windows import ANCHORS
+
+
+MOST_TOP_ACTIONS = 1000
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
@@ -48,26 +54,32 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
                         help="an action this soon after the previous one is rapid (default %(default)s)")
     parser.add_argument("--top-actions", type=int, default=defaults.top_actions, metavar="K",
                         help="one count column for each of the K most frequent actions (default %(default)s)")
+    parser.add_argument("--attribute", action="append", metavar="COLUMN",
+                        help="export this roster column (repeatable; default: [export] attributes in study.toml, "
+                             "else none). Identifying columns and groups of fewer than 5 learners are refused")
     parser.add_argument("--keep-ids", action="store_true",
                         help="export raw learner ids and log ids instead of pseudonyms (explicit opt-in)")
+    parser.add_argument("--force", action="store_true", help="replace FILE (and its manifest) if they exist")
     parser.add_argument("--json", action="store_true", help="print one JSON object")
     parser.set_defaults(run=run)
 
 
 def run(args: argparse.Namespace) -> int:
     output_format = _output_format(args)
-    for option, value in (("--before", args.before), ("--after", args.after), ("--rapid-seconds", args.rapid_seconds),
-                          ("--top-actions", args.top_actions)):
-        if value is not None and value < 0:
-            raise InputError(None, option, "must be zero or more")
-    if not args.out.parent.is_dir():
-        raise InputError(args.out, None, "its folder does not exist")
+    for option, value in (("--before", args.before), ("--after", args.after), ("--rapid-seconds", args.rapid_seconds)):
+        check_option_seconds(option, value, LONGEST_WINDOW_SECONDS)
+    if not 0 <= args.top_actions <= MOST_TOP_ACTIONS:
+        raise InputError(None, "--top-actions", f"must be from 0 to {MOST_TOP_ACTIONS}")
+    study = load_study(args.study)
+    for path in (args.out, manifest_path(args.out)):
+        check_output(path, "--out", study_dir=study.dir, log_paths=[spec.path for spec in study.logs], force=args.force)
     features = FeatureSettings(
         top_actions=args.top_actions, rapid_seconds=args.rapid_seconds, help_actions=_names(args.help_actions),
         error_outcomes=_names(args.error_outcomes), success_outcomes=_names(args.success_outcomes),
     )
     settings = ExportSettings(features=features, policy=args.labels,
-                              keep_could_not_observe=args.keep_could_not_observe, keep_ids=args.keep_ids)
+                              keep_could_not_observe=args.keep_could_not_observe, keep_ids=args.keep_ids,
+                              attributes=tuple(args.attribute) if args.attribute else study.export_attributes)
     window = WindowChoice(anchor=args.anchor, before_s=args.before, after_s=args.after)
     summary = export_study(args.study, args.out, output_format, window, settings, progress=False if args.json else None)
     if args.json:

@@ -6,6 +6,7 @@ import json
 from pathlib import Path
 
 from observer_app.study.importing import import_file
+from observer_app.study.scheme_binding import check_scheme_binding
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 
@@ -26,6 +27,7 @@ def run(args: argparse.Namespace) -> int:
     study = load_study(args.study)
     report = []
     with Store(study.store_path) as store:
+        check_scheme_binding(study, store)
         for path in args.files:
             result = import_file(study, store, path, skip_bad=args.skip_bad)
             report.append({"file": str(path), "added": result.added, "skipped": result.skipped})

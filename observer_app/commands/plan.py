@@ -3,10 +3,14 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 
 from agreement.planning import pairs_needed
 from sync.errors import InputError
+
+
+SMALLEST_SHARE = 0.001
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
@@ -28,8 +32,13 @@ def run(args: argparse.Namespace) -> int:
         shares = [float(part) for part in args.prevalence.split(",")]
     except ValueError:
         raise InputError(None, "--prevalence", "give numbers separated by commas, e.g. 0.6,0.3,0.1") from None
-    if len(shares) < 2 or min(shares) <= 0:
+    if len(shares) < 2 or not all(math.isfinite(share) and share > 0 for share in shares):
         raise InputError(None, "--prevalence", "give at least two positive shares")
+    if min(shares) / sum(shares) < SMALLEST_SHARE:
+        raise InputError(None, "--prevalence", f"a code share below {SMALLEST_SHARE} of the total leaves kappa "
+                         "undefined in most samples; give shares like 0.6,0.3,0.1")
+    if not 0 <= args.seed < 2**32:
+        raise InputError(None, "--seed", f"must be a whole number from 0 to {2**32 - 1}")
     if not 0 < args.kappa < 1:
         raise InputError(None, "--kappa", "must be between 0 and 1")
     if not 0 < args.width < 2:

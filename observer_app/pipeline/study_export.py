@@ -17,7 +17,7 @@ import pandas as pd
 from tqdm import tqdm
 
 from export.labelled_windows import ExportSettings, label_windows
-from export.pseudonyms import read_secret_key
+from export.pseudonyms import pseudonym, read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
@@ -27,6 +27,7 @@ from observer_app.pipeline.coverage import coverage_report
 from observer_app.pipeline.units import require_placed, study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
+from observer_app.study.scheme_binding import check_scheme_binding
 from sync.clock import ClockModel
 from sync.coverage import Coverage, learner_coverage, unmatched_log_ids_problem
 from sync.errors import InputError
@@ -82,6 +83,7 @@ def export_study(
         dimensions = list(study.scheme.dimension_names)
         could_not_observe = {dimension.name: dimension.could_not_observe for dimension in study.scheme.dimensions}
         with Store(study.store_path) as store:
+            check_scheme_binding(study, store)
             observations = store.observations(dimensions)
             adjudications = store.adjudications()
             sampling = replay_sampling(store, observations)
@@ -142,8 +144,8 @@ def export_study(
         }
         manifest = build_manifest(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
-            clock_models=[{**clock_summary(model), "clock": key, "uncertain_accepted": uncertain.get(key, False)}
-                          for key, model in models.items()],
+            clock_models=[{**clock_summary(model, key), "clock": _pseudonymous(clock, key),
+                           "uncertain_accepted": uncertain.get(clock, False)} for clock, model in models.items()],
             inputs=file_digests(*zip(*inputs)), output_format=output_format,
         )
         manifest["coverage"] = coverage.summary()
@@ -169,7 +171,16 @@ def outside_warnings(coverage: Coverage) -> list[str]:
             for row in coverage.outside.itertuples()]
 
 
-def clock_summary(model: ClockModel) -> dict:
+def _pseudonymous(clock: str, key: bytes | None) -> str:
+    """A clock key ("device" or "device/session") as the manifest shows it: pseudonymised with the study's key."""
+    return clock if key is None else pseudonym(clock, key)
+
+
+def clock_summary(model: ClockModel, key: bytes | None = None) -> dict:
     """What the manifest keeps of a clock model: the fit, not its evidence (the sync
-    marks' residuals name learners, so they stay in the study)."""
-    return {key: value for key, value in json.loads(model.to_json()).items() if key in CLOCK_SUMMARY_KEYS}
+    marks' residuals name learners, so they stay in the study).  With the study's key
+    the device name is pseudonymised (device names often carry a coder's name)."""
+    summary = {name: value for name, value in json.loads(model.to_json()).items() if name in CLOCK_SUMMARY_KEYS}
+    if key is not None and "device" in summary:
+        summary["device"] = pseudonym(str(summary["device"]), key)
+    return summary

@@ -22,6 +22,7 @@ from agreement.pairing import pair_observations, pairing_tolerance_s
 from observer_app.pipeline.alignment import require_clock_models, stored_clock_models
 from observer_app.study.folder import Study, load_study
 from observer_app.study.scheme import Scheme
+from observer_app.study.scheme_binding import check_scheme_binding
 from observer_app.study.store import Store
 from sync.clock import ClockModel
 from sync.clock_sessions import model_for
@@ -61,6 +62,7 @@ def study_units(study: Study, observations: pd.DataFrame | None = None,
     names = [dimension.name for dimension in dimensions]
     if observations is None:
         with Store(study.store_path) as store:
+            check_scheme_binding(study, store)
             observations = store.observations(names)
     models = stored_clock_models(study) if clock_models is None else clock_models
     on_log = observations_on_log_clock(observations, models)
@@ -83,6 +85,7 @@ def load_study_units(path: Path) -> StudyUnits:
     """
     study = load_study(path)
     with Store(study.store_path) as store:
+        check_scheme_binding(study, store)
         observations = store.observations(study.scheme.dimension_names)
     models = stored_clock_models(study)
     require_clock_models(study, observations, models)

@@ -151,6 +151,7 @@ def export_windows(study: Study, out: str | Path, *, output_format: str = "parqu
         From :func:`open_study`; every live device needs a clock model (:func:`align`).
     out : str or Path
         The data file to write (``.parquet`` or ``.csv``); the manifest goes beside it.
+        Roster columns go out only when study.toml lists them (``[export] attributes``).
     output_format : {"parquet", "csv"}
 
     Returns
@@ -166,7 +167,10 @@ def export_windows(study: Study, out: str | Path, *, output_format: str = "parqu
     """
     from observer_app.pipeline.study_export import export_study
 
-    export_study(study.dir, Path(out), output_format=output_format, progress=False)
+    from export.labelled_windows import ExportSettings
+
+    settings = ExportSettings(attributes=study.export_attributes)  # the roster columns study.toml allows out
+    export_study(study.dir, Path(out), output_format=output_format, settings=settings, progress=False)
     return Path(out)
 
 

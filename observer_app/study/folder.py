@@ -21,7 +21,8 @@ ROSTER_FILE = "roster.csv"
 STORE_FILE = "observations.sqlite"
 KEY_FILE = "secret.key"
 ORDERS = ("fixed", "shuffled")
-_SECTIONS = {"study", "schedule", "logs"}
+_SECTIONS = {"study", "schedule", "logs", "export"}
+_EXPORT_KEYS = {"attributes"}
 _STUDY_KEYS = {"name", "timezone", "description"}
 _SCHEDULE_KEYS = {"window_seconds", "order", "seed"}
 
@@ -38,6 +39,7 @@ class Study:
     roster: pd.DataFrame
     logs: tuple[LogSpec, ...]
     warnings: tuple[str, ...] = field(default=())
+    export_attributes: tuple[str, ...] = field(default=())  # roster columns allowed into exports
 
     @property
     def store_path(self) -> Path:
@@ -70,12 +72,18 @@ def load_study(directory: str | Path) -> Study:
     if unknown:
         raise InputError(path, unknown[0], f"unknown section; allowed are {', '.join(sorted(_SECTIONS))}")
     header = raw.get("study", {})
+    if not isinstance(header, dict):
+        raise InputError(path, "study", "must be a [study] table with name and timezone")
     unknown = sorted(set(header) - _STUDY_KEYS)
     if unknown:
         raise InputError(path, f"study.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_STUDY_KEYS))}")
     name = header.get("name", directory.name)
+    if not isinstance(name, str):
+        raise InputError(path, "study.name", "must be a text in quotes")
     timezone = check_timezone(header.get("timezone"), path, "study.timezone")
     schedule = raw.get("schedule", {})
+    if not isinstance(schedule, dict):
+        raise InputError(path, "schedule", "must be a [schedule] table with window_seconds, order and seed")
     unknown = sorted(set(schedule) - _SCHEDULE_KEYS)
     if unknown:
         raise InputError(path, f"schedule.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_SCHEDULE_KEYS))}")
@@ -86,15 +94,25 @@ def load_study(directory: str | Path) -> Study:
     if order not in ORDERS:
         raise InputError(path, "schedule.order", f"invalid order {order!r}; use \"fixed\" or \"shuffled\"")
     seed = schedule.get("seed", 0)
-    if isinstance(seed, bool) or not isinstance(seed, int):
-        raise InputError(path, "schedule.seed", "must be a whole number")
+    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**32:
+        raise InputError(path, "schedule.seed", f"must be a whole number from 0 to {2**32 - 1}")
     logs = raw.get("logs", [])
     if not isinstance(logs, list) or not all(isinstance(entry, dict) for entry in logs):
         raise InputError(path, "logs", "each log must be a [[logs]] table")
     specs = tuple(log_spec_from_toml(entry, directory, number) for number, entry in enumerate(logs, start=1))
+    export = raw.get("export", {})
+    if not isinstance(export, dict):
+        raise InputError(path, "export", "must be an [export] table, e.g. attributes = [\"site\"]")
+    unknown = sorted(set(export) - _EXPORT_KEYS)
+    if unknown:
+        raise InputError(path, f"export.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_EXPORT_KEYS))}")
+    attributes = export.get("attributes", [])
+    if not isinstance(attributes, list) or not all(isinstance(name, str) and name for name in attributes):
+        raise InputError(path, "export.attributes", "must be a list of roster column names, e.g. [\"site\", \"cohort\"]")
     scheme = load_scheme(directory / SCHEME_FILE)
     roster, warnings = load_roster(directory / ROSTER_FILE)
     return Study(
         dir=directory, name=str(name), timezone=timezone, window_seconds=float(window), order=order,
         seed=seed, scheme=scheme, roster=roster, logs=specs, warnings=tuple(warnings),
+        export_attributes=tuple(attributes),
     )

@@ -8,7 +8,6 @@ content (coder, device, learner, time), so importing a file twice adds nothing.
 """
 from __future__ import annotations
 
-import sqlite3
 import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -16,15 +15,19 @@ from pathlib import Path
 import pandas as pd
 
 from export.writer import file_sha256
-from observer_app.study.scheme import Scheme
-from observer_app.study.store import SCHEMA_VERSION, Store, now_utc
+from observer_app.study.foreign_store import read_foreign_store
+from observer_app.study.store import RowConflict, Store, now_utc
 from observer_app.study.folder import Study
+from sync.clock import NAT
+from sync.csv_header import check_header
 from sync.errors import InputError
+from sync.plausible_values import LONGEST_WINDOW_SECONDS, RANGE_TEXT, outside_range, utc_ns
 
 NAMESPACE = uuid.UUID("6f1c2a3e-9a7b-4d1e-8c55-2b0d3f4e5a61")
 REQUIRED = ("coder", "learner", "time")
 OPTIONAL = ("device", "note", "end", "clip")
 _OFFSET = r"(?:Z|z|[+-]\d{2}(?::?\d{2})?)$"
+_CONTROL = r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]"
 SHOWN_PROBLEMS = 3
 
 # The schedule order written on sessions that came from a CSV: they have no end row, yet
@@ -53,49 +56,56 @@ def import_file(study: Study, store: Store, path: Path, *, skip_bad: bool = Fals
 
 # -- another device's store ---------------------------------------------------------
 def _import_store(study: Study, store: Store, path: Path) -> ImportResult:
+    # Every code is checked against the scheme (foreign_store), not the scheme's hash: a device whose scheme
+    # differs only in labels, keys or colours codes the same thing (observer_app/study/scheme_binding.py).
+    foreign = read_foreign_store(path, study)
+    decisions = foreign.rows.pop("adjudications", None)
     try:
-        connection = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
-        version = connection.execute("PRAGMA user_version").fetchone()[0]
-        if version == 0:
-            raise InputError(path, None, "not a fieldmark observation store")
-        if version > SCHEMA_VERSION:
-            raise InputError(path, None, f"written by a newer fieldmark (schema {version}); upgrade fieldmark first")
-        hashes = {row[0] for row in connection.execute("SELECT DISTINCT scheme_hash FROM sessions")}
-        learners = {row[0] for row in connection.execute("SELECT DISTINCT learner FROM observations")}
-        codes = connection.execute("SELECT DISTINCT dimension, code FROM codes WHERE code IS NOT NULL").fetchall()
-    except sqlite3.DatabaseError as error:
-        raise InputError(path, None, f"cannot read the store ({error}); copy the file again from the device") from None
-    finally:
-        connection.close()
-    foreign = sorted(hashes - {study.scheme.content_hash})
-    if foreign:
-        raise InputError(path, "sessions", f"coded with a different code scheme (hash {foreign[0]}, the study's is "
-                         f"{study.scheme.content_hash}); import it into a study with that scheme")
-    unknown = sorted(learners - set(study.roster["learner"].dropna()))
-    if unknown:
-        raise InputError(path, "observations", f"learner {unknown[0]!r} is not in roster.csv; add them to the roster first")
-    for dimension, code in codes:
-        problem = _code_problem(study.scheme, dimension, code)
-        if problem:
-            raise InputError(path, "codes", problem)
-    added = store.merge_from(path)
-    return ImportResult(source=path, added={k: v for k, v in added.items() if v})
+        added = store.append_rows(foreign.rows)
+    except RowConflict as conflict:
+        raise InputError(path, f"table {conflict.table}", f"row {conflict.row_id} differs from the study's row with "
+                         "the same id; the file was edited, keep the study's copy") from None
+    result = ImportResult(source=path, added={k: v for k, v in added.items() if v})
+    for table, count in foreign.left_out.items():
+        result.skipped.append(f"{count} {table} rows: never imported (align fits each device's clock in the study)")
+    if decisions is not None and len(decisions):
+        _import_adjudications(study, store, path, decisions, result)
+    return result
 
 
-def _code_problem(scheme: Scheme, dimension: str, code: str) -> str | None:
-    if dimension not in scheme.dimension_names:
-        return f"dimension {dimension!r} is not in scheme.toml"
-    codes = scheme.dimension(dimension).code_names
-    if code not in codes:
-        return f"code {code!r} is not a code of dimension {dimension!r} in scheme.toml (its codes: {', '.join(codes)})"
-    return None
+
+
+def _import_adjudications(study: Study, store: Store, path: Path, decisions: pd.DataFrame,
+                          result: ImportResult) -> None:
+    """Adjudications that settle observations forming one of the study's units (after this import's
+    observations); the rest are reported, never stored."""
+    from observer_app.pipeline.units import placed_adjudications, study_units  # pairing: only when needed
+
+    found = study_units(study)
+    probe = decisions.assign(at=decisions["at_ns"])
+    if "observations" not in probe:
+        probe["observations"] = ""
+    placed, _ = placed_adjudications(found, probe)
+    known = decisions["adjudication_id"].isin(set(placed["adjudication_id"]))
+    if (~known).any():
+        result.skipped.append(f"{int((~known).sum())} adjudications: they settle no unit of the study "
+                              "(first {}); record them in the study with fieldmark adjudicate".format(
+                                  decisions.loc[~known, "unit"].iloc[0]))
+    try:
+        added = store.append_rows({"adjudications": decisions[known]})
+    except RowConflict as conflict:
+        raise InputError(path, f"table {conflict.table}", f"row {conflict.row_id} differs from the study's row with "
+                         "the same id; the file was edited, keep the study's copy") from None
+    if added.get("adjudications"):
+        result.added["adjudications"] = added["adjudications"]
 
 
 # -- CSV --------------------------------------------------------------------------
 def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> ImportResult:
     content_hash = file_sha256(path)
+    check_header(path)
     try:
-        frame = pd.read_csv(path, dtype="string", keep_default_na=False, skipinitialspace=True)
+        frame = pd.read_csv(path, dtype="string", keep_default_na=False, skipinitialspace=True, encoding="utf-8-sig")
     except pd.errors.EmptyDataError:
         raise InputError(path, None, "empty file; expected a header line coder,learner,time,<dimensions>") from None
     except (pd.errors.ParserError, UnicodeDecodeError) as error:
@@ -126,6 +136,7 @@ def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> Im
         shown = "; ".join(skipped[:SHOWN_PROBLEMS])
         more = f" (and {len(skipped) - SHOWN_PROBLEMS} more bad rows)" if len(skipped) > SHOWN_PROBLEMS else ""
         raise InputError(path, None, f"{shown}{more}; fix these rows or rerun with --skip-bad to import the rest")
+    _refuse_conflicts(path, frame[~bad], lines[~bad], present_dimensions)
     good = frame[~bad].copy()
     result = ImportResult(source=path, skipped=skipped)
     if good.empty:
@@ -168,6 +179,8 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
         nonlocal problems
         problems = problems.mask(mask & problems.eq(""), reason)
 
+    for column in frame.columns:
+        flag(frame[column].str.contains(_CONTROL, regex=True), f"{column} holds a control character; retype the cell")
     flag(frame["coder"].eq(""), "empty coder")
     flag(frame["learner"].eq(""), "empty learner")
     flag(~frame["learner"].isin(study.roster["learner"].dropna()) & frame["learner"].ne(""),
@@ -179,7 +192,11 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
         flag(given & parsed.isna(), f"{column} is not an ISO 8601 time")
         flag(given & parsed.notna() & ~text.str.contains(_OFFSET, regex=True),
              f"{column} has no UTC offset; write it like 2026-03-02T09:15:00+01:00")
+        flag(outside_range(parsed), f"{column} is not {RANGE_TEXT}; fix the date")
     flag(frame["time"].eq(""), "empty time")
+    length = _window_length_s(study, frame)
+    flag(length.le(0), "end is not after time; the window must end after it starts")
+    flag(length.gt(LONGEST_WINDOW_SECONDS), f"window longer than {LONGEST_WINDOW_SECONDS:.0f} s; check the end time")
     for dimension in dimensions:
         valid = list(study.scheme.dimension(dimension).code_names)
         values = frame[dimension]
@@ -188,3 +205,41 @@ def _row_problems(study: Study, frame: pd.DataFrame, dimensions: list[str]) -> p
     coded = pd.concat([frame[d].ne("") for d in dimensions], axis=1).any(axis=1)
     flag(~coded, "no code in any dimension")
     return problems
+
+
+def _window_length_s(study: Study, frame: pd.DataFrame) -> pd.Series:
+    """Seconds from time to end per row (NaN where either cannot be read); no end: the study's window."""
+    start = utc_ns(pd.to_datetime(frame["time"].mask(frame["time"].eq("")), format="ISO8601", utc=True, errors="coerce"))
+    end = utc_ns(pd.to_datetime(frame["end"].mask(frame["end"].eq("")), format="ISO8601", utc=True, errors="coerce"))
+    length = pd.Series((end - start) / 1e9, index=frame.index)
+    known = (start != NAT) & (end != NAT)
+    length = length.where(known)
+    return length.mask(frame["end"].eq(""), study.window_seconds)
+
+
+def _refuse_conflicts(path: Path, frame: pd.DataFrame, lines: pd.Series, dimensions: list[str]) -> None:
+    """Two rows for the same window (coder, device, learner, time, clip) must say the same; else name both lines.
+
+    Identical repeated rows are fine (importing them adds one observation)."""
+    if frame.empty:
+        return
+    keys = pd.DataFrame({
+        "coder": frame["coder"], "device": frame["device"].mask(frame["device"].eq(""), frame["coder"]),
+        "learner": frame["learner"], "clip": frame["clip"],
+        "start": utc_ns(pd.to_datetime(frame["time"], format="ISO8601", utc=True, errors="coerce")),
+    })
+    content = frame[dimensions + ["note", "end"]]
+    same_window = keys.duplicated(keep=False)
+    if not same_window.any():
+        return
+    rows = pd.concat([keys, content], axis=1)[same_window]
+    distinct = rows.drop_duplicates()
+    conflicting = distinct[distinct.duplicated(list(keys.columns), keep=False)]
+    if conflicting.empty:
+        return
+    first = conflicting.iloc[0]
+    clash = rows.index[(rows[list(keys.columns)] == first[list(keys.columns)]).all(axis=1)]
+    different = [i for i in clash if not rows.loc[i].equals(rows.loc[clash[0]])]
+    raise InputError(path, f"lines {lines[clash[0]]} and {lines[different[0]]}",
+                     f"two different rows for coder {first['coder']!r}, learner {first['learner']!r} at the same "
+                     "time; keep the right one and delete the other")

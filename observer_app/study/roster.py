@@ -31,6 +31,8 @@ def load_roster(path: str | Path) -> tuple[pd.DataFrame, list[str]]:
         text = path.read_text(encoding="utf-8-sig")
     except UnicodeDecodeError:
         raise InputError(path, None, "not UTF-8 text; save the file as UTF-8") from None
+    except OSError as error:
+        raise InputError(path, None, f"cannot be read ({error.strerror}); it must be a CSV file") from None
     numbered = [(number, line) for number, line in enumerate(text.splitlines(), start=1)
                 if line.strip() and not line.lstrip().startswith("#")]
     if not numbered:

@@ -92,12 +92,19 @@ def read_toml(path: Path) -> dict:
     """TOML file -> dict, with a missing or malformed file as one InputError line."""
     if not path.exists():
         raise InputError(path, None, "file not found; run `fieldmark init DIR` to create a study folder")
+    if not path.is_file():
+        raise InputError(path, None, "is not a file; it must be the study's TOML file")
     try:
-        return tomllib.loads(path.read_text(encoding="utf-8"))
+        # utf-8-sig: a byte order mark (some editors write one) is not part of the first key
+        return tomllib.loads(path.read_text(encoding="utf-8-sig"))
     except tomllib.TOMLDecodeError as error:
         raise InputError(path, None, f"not valid TOML ({error}); fix the syntax at that line") from None
     except UnicodeDecodeError:
         raise InputError(path, None, "not UTF-8 text; save the file as UTF-8") from None
+    except RecursionError:
+        raise InputError(path, None, "nested too deeply to be a fieldmark file; remove the nested arrays") from None
+    except OSError as error:
+        raise InputError(path, None, f"cannot be read ({error.strerror}); check the file's permissions") from None
 
 
 def _unknown(raw: dict, allowed: set[str], path: Path, where: str) -> None:

@@ -9,6 +9,7 @@ contracts of what the read side returns: observer_app/study/tables.py.
 """
 from __future__ import annotations
 
+import os
 import sqlite3
 import uuid
 from collections.abc import Iterable, Mapping
@@ -17,9 +18,11 @@ from pathlib import Path
 
 import pandas as pd
 
+from observer_app.study import row_chain
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
+from sync.errors import InputError
 
-SCHEMA_VERSION = 6
+SCHEMA_VERSION = 7
 
 # 2 -> 3: clock models become a history of kept decisions.  Each row says how it was
 # made (method: "manual", "marks", "borrowed", "auto"), by which command, on what
@@ -73,6 +76,29 @@ REPLAY_PLANS_MIGRATION = """
     CREATE TRIGGER {table}_no_delete BEFORE DELETE ON {table}
         BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;"""
     for table in ("replay_plans", "replay_assignments"))
+
+# The imports table guarded like the rest; the hash chain's table (observer_app/study/row_chain.py);
+# code renames and merges as recorded decisions (fieldmark recode), applied when codes are read.
+MIGRATION_BOUNDARY = """
+    CREATE TRIGGER imports_no_update BEFORE UPDATE ON imports
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER imports_no_delete BEFORE DELETE ON imports
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TABLE row_chain (
+        seq INTEGER PRIMARY KEY, table_name TEXT NOT NULL, row_id INTEGER NOT NULL,
+        columns TEXT NOT NULL, link TEXT NOT NULL);
+    CREATE TRIGGER row_chain_no_update BEFORE UPDATE ON row_chain
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER row_chain_no_delete BEFORE DELETE ON row_chain
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TABLE code_mappings (
+        mapping_id TEXT PRIMARY KEY, dimension TEXT NOT NULL, old_code TEXT NOT NULL, new_code TEXT NOT NULL,
+        at_ns INTEGER NOT NULL, reason TEXT NOT NULL DEFAULT '');
+    CREATE TRIGGER code_mappings_no_update BEFORE UPDATE ON code_mappings
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+    CREATE TRIGGER code_mappings_no_delete BEFORE DELETE ON code_mappings
+        BEGIN SELECT RAISE(ABORT, 'fieldmark stores are append-only'); END;
+"""
 
 # Forward migrations: MIGRATIONS[n] takes a store from version n to n + 1.
 MIGRATIONS: tuple[str, ...] = (
@@ -137,8 +163,11 @@ MIGRATIONS: tuple[str, ...] = (
     MIGRATION_PAIRED_SIGNAL,
     # 5 -> 6: replay plans and their double-coding assignment.
     REPLAY_PLANS_MIGRATION,
+    MIGRATION_BOUNDARY,
 )
 assert len(MIGRATIONS) == SCHEMA_VERSION
+CHAIN_VERSION = MIGRATIONS.index(MIGRATION_BOUNDARY) + 1  # the version from which stores carry the hash chain
+STORE_MODE = 0o600  # owner-only, like secret.key: the store holds who was observed doing what
 
 _SESSION_COLUMNS = ("session_id, coder, device, mode, paired_start_ns, started_ns, monotonic_start, window_seconds, "
                     "schedule_order, seed, scheme_hash, present, pairing_id, typed_clock_difference_s")
@@ -154,6 +183,7 @@ _SIGNAL_JOIN = ("LEFT JOIN (SELECT session_id, min(marked_ns) AS signal_ns FROM 
 APPEND_ONLY_TABLES: tuple[str, ...] = (
     "sessions", "session_ends", "observations", "codes", "notes", "sync_marks", "absences",
     "adjudications", "clock_models", "imports", "window_closures", "replay_plans", "replay_assignments",
+    "row_chain", "code_mappings",
 )
 
 
@@ -194,16 +224,37 @@ class Store:
 
     def __init__(self, path: str | Path) -> None:
         self.path = Path(path)
-        self._connection = sqlite3.connect(self.path, timeout=30.0, isolation_level=None)
-        self._connection.execute("PRAGMA busy_timeout = 30000")
-        self._connection.execute("PRAGMA journal_mode = WAL")
-        self._connection.execute("PRAGMA synchronous = FULL")
-        self._connection.execute("PRAGMA foreign_keys = ON")
-        self._migrate()
+        if not self.path.exists():
+            # SQLite gives the -wal and -shm files the database file's permissions.
+            try:
+                os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, STORE_MODE))
+            except FileExistsError:
+                pass  # another process created it a moment ago
+            except OSError as error:
+                raise InputError(self.path, None, f"cannot create the store ({error.strerror})") from None
+        try:
+            self._connection = sqlite3.connect(self.path, timeout=30.0, isolation_level=None)
+            row_chain.register(self._connection)
+            self._connection.execute("PRAGMA busy_timeout = 30000")
+            self._connection.execute("PRAGMA journal_mode = WAL")
+            self._connection.execute("PRAGMA synchronous = FULL")
+            self._connection.execute("PRAGMA foreign_keys = ON")
+            # REPLACE deletes the conflicting row; with recursive triggers that delete fires the
+            # append-only guard, so INSERT OR REPLACE is refused instead of overwriting a row.
+            self._connection.execute("PRAGMA recursive_triggers = ON")
+            self._migrate()
+        except sqlite3.DatabaseError as error:
+            raise InputError(self.path, None, f"cannot be opened as an observation store ({error}); restore it "
+                             "from a backup or a device's copy") from None
 
     # -- lifecycle --------------------------------------------------------------
     def close(self) -> None:
+        self.checkpoint()
         self._connection.close()
+
+    def checkpoint(self) -> None:
+        """Move the write-ahead log into the store file, so a copy of the file alone holds every code."""
+        self._connection.execute("PRAGMA wal_checkpoint(TRUNCATE)")
 
     def __enter__(self) -> Store:
         return self
@@ -219,12 +270,13 @@ class Store:
         with self._transaction() as cursor:
             version = int(cursor.execute("PRAGMA user_version").fetchone()[0])
             if version > SCHEMA_VERSION:
-                raise RuntimeError(
-                    f"{self.path} was written by a newer fieldmark (schema {version}); upgrade fieldmark")
+                raise InputError(self.path, None, f"was written by a newer fieldmark (schema {version}); "
+                                 "upgrade fieldmark")
             for step in range(version, SCHEMA_VERSION):
                 for statement in _statements(MIGRATIONS[step]):
                     cursor.execute(statement)
                 cursor.execute(f"PRAGMA user_version = {step + 1}")
+            row_chain.ensure_chain(cursor, adopt_existing_rows=version < CHAIN_VERSION)
 
     def _transaction(self):
         return _Transaction(self._connection)
@@ -256,6 +308,7 @@ class Store:
     def end_session(self, session_id: str, ended_at: datetime) -> None:
         with self._transaction() as cursor:
             cursor.execute("INSERT OR IGNORE INTO session_ends VALUES (?,?)", (session_id, to_ns(ended_at)))
+        self.checkpoint()
 
     def record_code(
         self, *, observation_id: str, session_id: str, learner: str, window_start: datetime,
@@ -359,9 +412,8 @@ class Store:
         with self._transaction() as cursor:
             cursor.executemany(f"INSERT OR IGNORE INTO sessions ({_SESSION_COLUMNS}) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
                                session_rows)
-            before = cursor.connection.total_changes
             cursor.executemany("INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)", observation_rows)
-            added = cursor.connection.total_changes - before
+            added = max(cursor.rowcount, 0)  # direct inserts only (total_changes would count the chain's rows too)
             cursor.executemany("INSERT OR IGNORE INTO codes VALUES (?,?,?,?,?,NULL)", code_rows)
             cursor.executemany("INSERT OR IGNORE INTO notes VALUES (?,?,?,?)", note_rows)
         return added
@@ -434,6 +486,28 @@ class Store:
                   int(bool(row.get("uncertain_accepted")))) for model_id, row in zip(ids, rows)])
         return ids
 
+    def record_code_mapping(self, *, dimension: str, old_code: str, new_code: str, at: datetime,
+                            reason: str = "") -> str:
+        """From now on every stored ``old_code`` of ``dimension`` reads as ``new_code`` (a rename or a merge)."""
+        mapping_id = new_id()
+        with self._transaction() as cursor:
+            cursor.execute("INSERT INTO code_mappings VALUES (?,?,?,?,?,?)",
+                           (mapping_id, dimension, old_code, new_code, to_ns(at), reason))
+        return mapping_id
+
+    def code_mappings(self) -> pd.DataFrame:
+        """Every recorded rename or merge, oldest first: dimension, old_code, new_code, at, reason."""
+        frame = self._frame("SELECT dimension, old_code, new_code, at_ns, reason FROM code_mappings ORDER BY rowid")
+        frame["at"] = _times(frame.pop("at_ns"))
+        return frame
+
+    def apply_code_mappings(self, frame: pd.DataFrame) -> pd.DataFrame:
+        """``frame`` (dimension, code columns) with the recorded mappings applied in the order they were made."""
+        for dimension, old, new in self._connection.execute(
+                "SELECT dimension, old_code, new_code FROM code_mappings ORDER BY rowid"):
+            frame.loc[(frame["dimension"] == dimension) & (frame["code"] == old), "code"] = new
+        return frame
+
     def record_import(self, content_hash: str, source: str, at: datetime) -> None:
         with self._transaction() as cursor:
             cursor.execute("INSERT OR IGNORE INTO imports VALUES (?,?,?)", (content_hash, source, to_ns(at)))
@@ -471,29 +545,35 @@ class Store:
         frame["created_at"] = _times(frame.pop("created_ns"))
         return frame
 
-    def merge_from(self, other: Path) -> dict[str, int]:
-        """Copy every row of another store that this one lacks (idempotent: ids are keys).
+    def append_rows(self, rows: Mapping[str, pd.DataFrame]) -> dict[str, int]:
+        """Rows of other stores, table by table in one transaction: new ids added, known ids left alone.
 
-        Codes keep their relative order, so the other device's corrections still win
-        over the codes they corrected.
+        Columns are named (never positional), rows keep their order (so corrections still
+        follow what they correct).  A row whose id the store holds with other content is
+        a conflict: nothing is written and ``RowConflict`` names it.
         """
         counts: dict[str, int] = {}
-        self._connection.execute("ATTACH DATABASE ? AS other", (str(other),))
-        try:
-            present = {row[0] for row in self._connection.execute("SELECT name FROM other.sqlite_master WHERE type = 'table'")}
-            with self._transaction() as cursor:
-                for table in APPEND_ONLY_TABLES:
-                    if table == "imports" or table not in present:  # an older store lacks newer tables
-                        continue
-                    before = cursor.connection.total_changes
-                    theirs = [row[1] for row in cursor.execute(f"PRAGMA other.table_info({table})")]
-                    ours = {row[1] for row in cursor.execute(f"PRAGMA main.table_info({table})")}
-                    shared = ", ".join(f'"{column}"' for column in theirs if column in ours)  # older stores lack newer columns
-                    cursor.execute(f"INSERT OR IGNORE INTO main.{table} ({shared}) SELECT {shared} "
-                                   f"FROM other.{table} ORDER BY rowid")
-                    counts[table] = cursor.connection.total_changes - before
-        finally:
-            self._connection.execute("DETACH DATABASE other")
+        with self._transaction() as cursor:
+            for table, frame in rows.items():
+                if frame.empty:
+                    continue
+                columns = list(frame.columns)
+                primary = sorted((row[5], row[1]) for row in cursor.execute(f'PRAGMA table_info("{table}")') if row[5])
+                keys = [columns.index(name) for _, name in primary] or [0]
+                records = list(frame.astype(object).where(frame.notna(), None).itertuples(index=False, name=None))
+                stored = {}
+                for start in range(0, len(records), 500):
+                    firsts = sorted({record[keys[0]] for record in records[start:start + 500]}, key=str)
+                    marks = ",".join("?" * len(firsts))
+                    stored.update({tuple(row[i] for i in keys): row for row in cursor.execute(
+                        f'SELECT {", ".join(columns)} FROM "{table}" WHERE "{columns[keys[0]]}" IN ({marks})', firsts)})
+                for record in records:
+                    key = tuple(record[i] for i in keys)
+                    if key in stored and tuple(stored[key]) != tuple(record):
+                        raise RowConflict(table, "/".join(map(str, key)))
+                cursor.executemany(f'INSERT OR IGNORE INTO "{table}" ({", ".join(columns)}) '
+                                   f'VALUES ({",".join("?" * len(columns))})', records)
+                counts[table] = max(cursor.rowcount, 0)
         return counts
 
     # -- read side --------------------------------------------------------------
@@ -542,6 +622,7 @@ class Store:
             "SELECT c.observation_id, c.dimension, c.code, c.entered_ns, "
             "(SELECT count(*) FROM codes d WHERE d.observation_id = c.observation_id AND d.dimension = c.dimension) AS versions "
             "FROM codes c WHERE c.rowid IN (SELECT max(rowid) FROM codes GROUP BY observation_id, dimension)")
+        codes = self.apply_code_mappings(codes)
         notes = self._frame(
             "SELECT observation_id, text AS note FROM notes WHERE rowid IN (SELECT max(rowid) FROM notes GROUP BY observation_id)")
         if dimensions is None:
@@ -590,6 +671,7 @@ class Store:
         frame = self._frame(
             "SELECT adjudication_id, unit, observations, dimension, code, adjudicator, at_ns, reason "
             "FROM adjudications ORDER BY at_ns, rowid")
+        frame = self.apply_code_mappings(frame)
         frame["at"] = _times(frame.pop("at_ns"))
         for column in ("adjudication_id", "unit", "observations", "dimension", "code", "adjudicator", "reason"):
             frame[column] = frame[column].astype("string")
@@ -612,10 +694,18 @@ class Store:
         return frame
 
     def codes_log(self) -> pd.DataFrame:
-        """Every code row ever written, oldest first (the audit trail)."""
+        """Every code row ever written, oldest first, as written (the audit trail; renames not applied)."""
         frame = self._frame("SELECT code_id, observation_id, dimension, code, entered_ns, supersedes FROM codes ORDER BY rowid")
         frame["entered_at"] = _times(frame.pop("entered_ns"))
         return frame
+
+
+class RowConflict(Exception):
+    """Another store holds a row with an id this store has, but different content."""
+
+    def __init__(self, table: str, row_id: str) -> None:
+        self.table, self.row_id = table, row_id
+        super().__init__(f"{table} row {row_id} differs from the row with the same id already stored")
 
 
 def _statements(script: str) -> list[str]:

@@ -116,7 +116,7 @@ def test_disagreements_then_adjudication_round_trip(study, tmp_path):
         stored = store.adjudications()
     assert list(stored["unit"]) == [first["unit"]] and stored["code"].iloc[0] == first["code_b"]
 
-    again = call_cli("agree", study, "--disagreements", listing, "--resamples", "50")
+    again = call_cli("agree", study, "--disagreements", listing, "--resamples", "50", "--force")
     assert again.returncode == 0
     table = pd.read_csv(listing, keep_default_na=False).set_index(["unit", "dimension"])
     assert table.loc[(first["unit"], "activity"), "adjudicated_code"] == first["code_b"]

@@ -12,6 +12,7 @@ from sklearn.model_selection import GroupKFold
 
 import export
 from demo_sessions.generate import generate_demo
+from export.pseudonyms import pseudonym
 from export.writer import manifest_path
 from observer_app.cli import main
 from observer_app.study.folder import load_study
@@ -44,7 +45,8 @@ def test_export_writes_windows_and_a_manifest(study, exported) -> None:
     assert manifest["scheme_hash"] == load_study(study).scheme.content_hash
     log = study / "logs" / "centre_north.csv"
     assert manifest["inputs"]["logs/centre_north.csv"] == "sha256:" + hashlib.sha256(log.read_bytes()).hexdigest()
-    assert {model["device"] for model in manifest["clock_models"]} == {"laptop-a", "laptop-b"}
+    key = (study / "secret.key").read_bytes()  # device names leave the study only as pseudonyms
+    assert {model["device"] for model in manifest["clock_models"]} == {pseudonym(d, key) for d in ("laptop-a", "laptop-b")}
     assert manifest["parameters"]["policy"] == "first-coder"
     assert summary["warnings"] == []
 

@@ -10,6 +10,8 @@ import pandas as pd
 import pytest
 
 from agreement.pairing import unit_id
+from observer_app.study import row_chain
+from observer_app.study.foreign_store import read_foreign_store
 from observer_app.study.store import MIGRATION_ADJUDICATED_OBSERVATIONS, MIGRATIONS, SCHEMA_VERSION, Store, _statements
 from tests.conftest import assert_user_error, call_cli
 from tests.export.small_studies import LEARNERS, ROUNDS, solo_laptops_study
@@ -100,6 +102,7 @@ def test_an_old_stores_adjudications_are_traced_to_their_observations(tmp_path: 
     ben = observations[(observations["coder"] == "ben") & (observations["learner"] == "L02")].sort_values("window_start")
     old_unit = unit_id([ann["observation_id"].iloc[0], ben["observation_id"].iloc[0]])
     connection = sqlite3.connect(study / "observations.sqlite")  # what the previous schema wrote
+    row_chain.register(connection)  # the store's insert trigger links the row into its hash chain
     connection.execute("INSERT INTO adjudications (adjudication_id, unit, dimension, code, adjudicator, at_ns, reason) "
                        "VALUES ('a1', ?, 'activity', 'away', 'lead', 1, '')", (old_unit,))
     connection.commit()
@@ -112,7 +115,7 @@ def test_an_old_stores_adjudications_are_traced_to_their_observations(tmp_path: 
 def test_a_previous_schema_store_migrates_and_keeps_its_adjudications(tmp_path: Path) -> None:
     path = tmp_path / "old.sqlite"
     connection = sqlite3.connect(path)
-    before = MIGRATIONS.index(MIGRATION_ADJUDICATED_OBSERVATIONS)  # the store just before adjudications named observations
+    before = MIGRATIONS.index(MIGRATION_ADJUDICATED_OBSERVATIONS)  # a store from just before that migration
     for step in range(before):
         for statement in _statements(MIGRATIONS[step]):
             connection.execute(statement)
@@ -125,7 +128,7 @@ def test_a_previous_schema_store_migrates_and_keeps_its_adjudications(tmp_path: 
         old = store.adjudications()
         assert (old["unit"].tolist(), old["observations"].tolist()) == (["u1"], [""])
     with Store(tmp_path / "new.sqlite") as newer:  # a newer store imports the older one's rows
-        assert newer.merge_from(path)["adjudications"] == 1
+        assert newer.append_rows(read_foreign_store(path, None).rows)["adjudications"] == 1
 
 
 def test_agree_on_a_study_without_observations_says_so(tmp_path: Path) -> None:

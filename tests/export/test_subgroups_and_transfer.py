@@ -122,7 +122,7 @@ def test_transfer_matrix_covers_every_ordered_pair_of_eligible_groups() -> None:
 
 
 def test_check_command_audits_by_site_and_across_sites(tmp_path) -> None:
-    path, _ = export_file(tmp_path)
+    path, _ = export_file(tmp_path, attributes=("site", "cohort"))  # the roster columns allowed out
     result = call_cli("check", path, "--by", "site", "--transfer", "site", "--dimension", "activity",
                       "--resamples", "200", "--json")
     assert result.returncode == 0, result.stderr
@@ -137,7 +137,7 @@ def test_check_command_audits_by_site_and_across_sites(tmp_path) -> None:
 
 
 def test_check_refuses_attributes_the_export_does_not_carry(tmp_path) -> None:
-    path, _ = export_file(tmp_path)
+    path, _ = export_file(tmp_path, attributes=("site", "cohort"))  # the roster columns allowed out
     assert_user_error(call_cli("check", path, "--by", "gender"), "gender", "site, cohort")
     assert_user_error(call_cli("check", path, "--transfer", "log_id"), "log_id", "not an attribute")
     assert_user_error(call_cli("check", path, "--resamples", "10"), "--resamples")
@@ -150,7 +150,7 @@ def test_report_is_self_contained_escaped_and_carries_the_caution(tmp_path) -> N
     from export.audit_report import audit_report
     from tests.conftest import ROOT
 
-    path, _ = export_file(tmp_path)
+    path, _ = export_file(tmp_path, attributes=("site", "cohort"))  # the roster columns allowed out
     report = tmp_path / "audit.html"
     result = call_cli("check", path, "--by", "site", "--transfer", "site", "--dimension", "activity",
                       "--resamples", "200", "--report", report, "--json")

@@ -52,8 +52,8 @@ def test_keep_ids_is_an_explicit_opt_in_that_exports_them(tmp_path, output_forma
     assert b"Bench 1" not in data                                                   # roster labels never, even then
 
 
-def test_roster_attributes_labels_and_sources_are_exported(exported) -> None:
-    path, result = exported
+def test_roster_attributes_labels_and_sources_are_exported(tmp_path) -> None:
+    path, result = export_file(tmp_path, attributes=("site", "cohort"))  # attributes leave only when listed
     table, manifest = reader.read_windows(path)
     assert {"site", "cohort", "activity", "affect", "label_source_activity", "label_source_affect"} <= set(table.columns)
     assert manifest["attribute_columns"] == ["site", "cohort"]
@@ -76,6 +76,8 @@ def test_manifest_records_how_the_file_was_made(exported) -> None:
     assert all(manifest["feature_definitions"][column] for column in result.feature_columns)
     assert set(manifest["column_descriptions"]) == set(result.table.columns)
     embedded = json.loads(pq.read_schema(path).metadata[b"fieldmark"])
+    # The manifest beside the data also records the data file's SHA-256 (a file cannot hold its own hash).
+    assert manifest.pop(writer.DATA_DIGEST_KEY) == writer.file_sha256(path)
     assert embedded == manifest
 
 

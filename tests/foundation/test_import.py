@@ -95,12 +95,17 @@ def test_another_devices_store_imports_once(study: Path, tmp_path: Path) -> None
     assert "nothing new" in call_cli("import", study, device_path).stdout
 
 
-def test_a_store_coded_with_another_scheme_is_refused(study: Path, tmp_path: Path) -> None:
+def test_a_store_coded_with_codes_the_scheme_lacks_is_refused(study: Path, tmp_path: Path) -> None:
+    # Compatibility, not the scheme's hash: another hash is fine, a code the scheme lacks is not.
     t0 = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)
     with Store(tmp_path / "device.sqlite") as device:
-        device.start_session(coder="ben", device="t", mode="live", started_at=t0, monotonic_start=0.0,
-                             window_seconds=20, order="fixed", seed=1, scheme_hash="0123456789abcdef")
-    assert_user_error(call_cli("import", study, tmp_path / "device.sqlite"), "device.sqlite", "different code scheme")
+        session = device.start_session(coder="ben", device="t", mode="live", started_at=t0, monotonic_start=0.0,
+                                       window_seconds=20, order="fixed", seed=1, scheme_hash="0123456789abcdef")
+        device.record_code(observation_id="o1", session_id=session, learner="L01", window_start=t0,
+                           window_end=t0 + timedelta(seconds=20), dimension="activity", code="dancing",
+                           entered_at=t0 + timedelta(seconds=3), scheme_hash="0123456789abcdef")
+    assert_user_error(call_cli("import", study, tmp_path / "device.sqlite"), "device.sqlite", "'dancing'",
+                      "not a code of dimension 'activity'")
 
 
 def test_a_device_store_with_an_unknown_code_names_it_and_lists_the_dimensions_codes(study: Path, tmp_path: Path) -> None:

@@ -8,8 +8,10 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+from observer_app.study.foreign_store import read_foreign_store
 from observer_app.study.store import SCHEMA_VERSION, Store
 from observer_app.study.tables import OBSERVATION_COLUMNS, OBSERVATION_TAIL_COLUMNS
+from sync.errors import InputError
 
 T0 = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)
 
@@ -93,7 +95,7 @@ def test_a_store_from_a_newer_version_is_refused(tmp_path: Path) -> None:
     connection = sqlite3.connect(path)
     connection.execute(f"PRAGMA user_version = {SCHEMA_VERSION + 1}")
     connection.close()
-    with pytest.raises(RuntimeError, match="newer fieldmark"):
+    with pytest.raises(InputError, match="newer fieldmark"):
         Store(path)
 
 
@@ -113,8 +115,8 @@ def test_merging_another_device_is_idempotent_and_keeps_correction_order(tmp_pat
         code(device, sid, "o1", "activity", "away", 4, supersedes=first)
         device.record_sync_mark(session_id=sid, learner="L01", marked_at=T0 + timedelta(seconds=9))
     with Store(tmp_path / "study.sqlite") as study:
-        added = study.merge_from(tmp_path / "device.sqlite")
-        again = study.merge_from(tmp_path / "device.sqlite")
+        added = study.append_rows(read_foreign_store(tmp_path / "device.sqlite", None).rows)
+        again = study.append_rows(read_foreign_store(tmp_path / "device.sqlite", None).rows)
         view = study.observations(["activity"])
         marks = study.sync_marks()
     assert added["codes"] == 2 and added["sync_marks"] == 1
@@ -142,7 +144,7 @@ def test_a_version_1_store_migrates_forward_and_keeps_its_rows(tmp_path: Path) -
         store.record_window_end("o1", datetime(1970, 1, 1, 0, 0, 7, tzinfo=timezone.utc))
         assert store.observations(["activity"]).loc[0, "window_end"] == pd.Timestamp("1970-01-01T00:00:07Z")
     with Store(tmp_path / "study.sqlite") as study:  # a newer store imports an older one's rows
-        assert study.merge_from(path)["codes"] == 1
+        assert study.append_rows(read_foreign_store(path, None).rows)["codes"] == 1
         assert study.sessions()["pairing_id"].isna().all()  # columns an older store lacks take their defaults
 
 
@@ -160,9 +162,9 @@ def test_an_older_device_store_without_pairing_columns_merges_by_column_name(tmp
     connection.commit()
     connection.close()
     with Store(tmp_path / "study.sqlite") as study:
-        first = study.merge_from(path)
+        first = study.append_rows(read_foreign_store(path, None).rows)
         assert first["sessions"] == 1 and first["sync_marks"] == 1
-        assert sum(study.merge_from(path).values()) == 0  # idempotent
+        assert sum(study.append_rows(read_foreign_store(path, None).rows).values()) == 0  # idempotent
         marks, sessions = study.sync_marks(), study.sessions()
     assert list(marks["kind"]) == [""] and marks["pairing_id"].isna().all()
     assert sessions.loc[0, "paired_start"] == pd.Timestamp(5, tz="UTC") and pd.isna(sessions.loc[0, "pairing_id"])
