@@ -43,7 +43,6 @@ DIR/report.html: one section per step, tables and base64 PNG figures, self-conta
 from __future__ import annotations
 
 import json
-import os
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -71,6 +70,7 @@ from observer_app.pipeline.units import study_units
 from observer_app.study.store import Store
 from observer_app.pipeline.study_export import export_study
 from observer_app.study.folder import Study, load_study
+from observer_app.study.output_paths import publish_text
 from sync.clock import ClockModel
 from sync.residual_plot import residual_figure
 from sync.windows import observations_on_log_clock
@@ -326,12 +326,6 @@ STEPS: tuple[tuple[str, Callable[[DemoRun], None]], ...] = (
 )
 
 
-def _write_atomically(path: Path, text: str) -> None:
-    temporary = path.with_name(f".{path.name}.partial")
-    temporary.write_text(text, encoding="utf-8")
-    os.replace(temporary, path)
-
-
 def run_demo(out: str | Path, seed: int, size: str = "full", progress: bool = True) -> dict:
     """Run every step into ``out``; write summary.json and report.html; return the summary."""
     check_seed(seed)
@@ -347,6 +341,6 @@ def run_demo(out: str | Path, seed: int, size: str = "full", progress: bool = Tr
             step(run)
             run.summary["steps"].append({"name": name, "seconds": round(time.perf_counter() - began, 2)})
     run.summary["seconds"] = round(time.perf_counter() - started, 2)
-    _write_atomically(run.out / SUMMARY_FILE, json.dumps(run.summary, indent=2) + "\n")
-    _write_atomically(run.out / REPORT_FILE, report.page(f"fieldmark demo (seed {seed})", run.sections))
+    publish_text(run.out / SUMMARY_FILE, json.dumps(run.summary, indent=2) + "\n")
+    publish_text(run.out / REPORT_FILE, report.page(f"fieldmark demo (seed {seed})", run.sections))
     return run.summary

@@ -26,7 +26,7 @@ from export.calibration import calibration
 from export.cluster_bootstrap import DEFAULT_RESAMPLES
 from export.detector_models import DEFAULT_MODEL, GRIDS
 from export.label_confidence import confidence_column
-from export.nested_search import INNER_FOLDS, most_chosen, tuned_out_of_fold
+from export.nested_search import most_chosen, tuned_out_of_fold
 from export.out_of_fold import DEFAULT_FOLDS, Score, auc_definition, grouped_folds, score
 from export.reader import read_windows, windows_xy
 from export.subgroups import MIN_LEARNERS, group_figures

@@ -85,7 +85,6 @@ def _read_arrow(spec: LogSpec, path: Path, header: list[str], delimiter: str,
     A parse error is retried once allowing line breaks inside quoted values (slower, so
     not the default); then it names the row.
     """
-    name = str(path)
     wanted = sorted(set(spec.columns.values()))
     text_roles = [spec.columns[role] for role in TEXT_ROLES if role in spec.columns]
     types = {column: pa.dictionary(pa.int32(), pa.string()) if column in text_roles else pa.string()

@@ -9,9 +9,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
-import os
 import sys
-import tempfile
 from pathlib import Path
 
 import pandas as pd
@@ -29,7 +27,7 @@ from agreement.breakdowns import (
 )
 from observer_app.pipeline.units import StudyUnits, load_study_units, no_observations_error, placed_adjudications
 from observer_app.study.store import Store
-from observer_app.study.output_paths import check_output
+from observer_app.study.output_paths import check_output, publish_text
 from sync.errors import InputError
 
 
@@ -91,21 +89,6 @@ def select_coders(units: pd.DataFrame, coders_option: str | None) -> pd.DataFram
     if len(wanted) < 2:
         raise InputError(None, "--coders", "name at least two coders, e.g. --coders ann,ben")
     return units_of_coders(units, wanted)
-
-
-def write_atomically(path: Path, text: str) -> None:
-    """Write to a temporary name beside ``path``, then rename: never a half-written file."""
-    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
-            stream.write(text)
-        mask = os.umask(0)
-        os.umask(mask)
-        os.chmod(temporary, 0o666 & ~mask)  # mkstemp makes the file private; give it the usual mode
-        os.replace(temporary, path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
 
 
 def _clean(value: object) -> object:
@@ -217,13 +200,13 @@ def run(args: argparse.Namespace) -> int:
 
     if args.disagreements:
         table = list_disagreements(units, dimensions, placed)
-        write_atomically(args.disagreements, table.to_csv(index=False))
+        publish_text(args.disagreements, table.to_csv(index=False))
     if args.report:
         # matplotlib and Jinja2: only loaded when a report is asked for
         from observer_app.reports.agreement_report import render_agreement_report
 
         rolling = {d.name: rolling_kappa(units, d, args.rolling_window, include) for d in dimensions}
-        write_atomically(args.report, render_agreement_report(f"Reliability report: {Path(args.source).name}",
+        publish_text(args.report, render_agreement_report(f"Reliability report: {Path(args.source).name}",
                                                               agreement, rolling, args.rolling_window, pairing, views))
 
     if args.json:

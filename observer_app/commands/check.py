@@ -3,12 +3,12 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import sys
 from pathlib import Path
 
 from export.reader import read_manifest
 from observer_app.pipeline.coverage import coverage_lines
+from observer_app.study.output_paths import publish_text
 from sync.errors import InputError
 
 MODELS = ("logistic", "forest", "boosting")  # export/detector_models.py; named here so --help starts fast
@@ -70,12 +70,7 @@ def run(args: argparse.Namespace) -> int:
     if args.report is not None:
         from export.audit_report import audit_report
 
-        temporary = args.report.with_name(f".{args.report.name}.{os.getpid()}.partial")
-        try:
-            temporary.write_text(audit_report(payload), encoding="utf-8")
-            os.replace(temporary, args.report)
-        finally:
-            temporary.unlink(missing_ok=True)
+        publish_text(args.report, audit_report(payload))
     if args.json:
         sys.stdout.write(json.dumps(payload) + "\n")
         return 0

@@ -1,4 +1,5 @@
-"""Where a verb may write: never onto a study's own files, never over a file without --force.
+"""Where a verb may write, and how: never onto a study's own files, never over a file
+without --force, and always whole (``publish_text``).
 
 Why: an export or report written over observations.sqlite, secret.key, a TOML file or a
 log would destroy what the study is made of, and a typo in --out is enough to do it.
@@ -7,6 +8,7 @@ The study's files are named here once; every verb that writes checks its paths h
 from __future__ import annotations
 
 import os
+import tempfile
 from collections.abc import Iterable
 from pathlib import Path
 
@@ -48,3 +50,21 @@ def check_output(path: Path, option: str, *, study_dir: Path | None = None, log_
         raise InputError(path, option, "exists already; pass --force to replace it, or choose another name")
     if path.exists() and not os.access(path, os.W_OK):
         raise InputError(path, option, "exists and cannot be replaced (read-only); choose another name")
+
+
+def publish_text(path: Path, text: str) -> None:
+    """Write ``text`` to a temporary name beside ``path``, then rename: a reader sees the old
+    file or the whole new one, never half (the one home for text outputs: reports, CSVs,
+    the demo's summary; the windows file and its manifest: export/writer.py)."""
+    path = Path(path)
+    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".partial")
+    try:
+        with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
+            stream.write(text)
+        mask = os.umask(0)
+        os.umask(mask)
+        os.chmod(temporary, 0o666 & ~mask)  # mkstemp makes the file private; give it the usual mode
+        os.replace(temporary, path)
+    except BaseException:
+        Path(temporary).unlink(missing_ok=True)
+        raise
