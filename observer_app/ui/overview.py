@@ -12,7 +12,7 @@ import pandas as pd
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QFrame, QHBoxLayout, QHeaderView, QLabel,
-                               QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
+                               QScrollArea, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from observer_app.coding.live import InterruptedSession, find_interrupted_session
 from observer_app.study.store import Store
@@ -186,12 +186,27 @@ class StudyOverview(QWidget):
         cautions = QLabel("<b>Before you observe</b>" + cautions_html())
         cautions.setWordWrap(True)
         cautions.setStyleSheet("font-size: 10pt;")
+        # the sessions table beside it may ask for any width (its rows come from every device);
+        # the cautions keep room to be read whole, and the tables scroll instead
+        cautions.setMinimumWidth(cautions.fontMetrics().averageCharWidth() * 56)
         panel = QFrame()
         panel.setProperty("role", "panel")
         QVBoxLayout(panel).addWidget(cautions)
         left.addWidget(panel)
         left.addStretch(1)
-        columns.addLayout(left, 2)
+        # On a short screen (150 % scaling, a resume banner above) the scheme and cautions
+        # scroll as one column rather than squeeze the text out of their boxes.
+        holder = QWidget()
+        holder.setLayout(left)
+        left.setContentsMargins(0, 0, 0, 0)
+        column = QScrollArea()
+        column.setWidget(holder)
+        column.setWidgetResizable(True)
+        column.setFrameShape(QFrame.Shape.NoFrame)
+        column.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        column.setFocusPolicy(Qt.FocusPolicy.NoFocus)  # the keys stay with the overview's tables
+        column.setMinimumWidth(cautions.minimumWidth() + 24)
+        columns.addWidget(column, 2)
 
         right = QVBoxLayout()
         sessions = session_table(self.store).iloc[::-1]  # newest first: the one you look for is on top

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import csv
 import json
+import time
 import os
 import shutil
 import sys
@@ -100,8 +101,17 @@ def problems(window: MainWindow, width: int, height: int) -> list[str]:
 
 
 def settle(app: QApplication) -> None:
-    for _ in range(3):
+    """Process events until no visible widget moves any more (at most ~2 s): on a loaded
+    machine a few rounds of events are not always enough for nested layouts to finish, and
+    a half-laid-out screen is not what a coder sees."""
+    previous = None
+    for _ in range(200):
         app.processEvents()
+        shape = tuple(widget.geometry().getRect() for widget in app.allWidgets() if widget.isVisible())
+        if shape == previous:
+            return
+        previous = shape
+        time.sleep(0.01)
 
 
 def walk(study: Path, sizes: list[tuple[int, int]], scale: float) -> dict[str, dict[str, list[str]]]:
