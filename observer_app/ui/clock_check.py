@@ -97,7 +97,8 @@ class ClockCheck(QWidget):
     def refresh(self) -> None:
         now = self.clock.now_utc()
         self.utc.setText(f"{now:%H:%M:%S}")
-        self.local.setText(f"{now:%Y-%m-%d}  ·  {now.astimezone(self._zone):%H:%M:%S} in {self.study.timezone}")
+        local = now.astimezone(self._zone)
+        self.local.setText(f"{local:%Y-%m-%d}  ·  {local:%H:%M:%S %Z} in {self.study.timezone}")
 
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
         if self.session is None:
@@ -105,8 +106,9 @@ class ClockCheck(QWidget):
         elif event.key() in (Qt.Key.Key_M, Qt.Key.Key_F5):
             marked = self.session.sync_mark(note="clock check")
             if marked is not None:
-                self._times.append(f"{marked:%H:%M:%S}.{marked.microsecond // 1000:03d}")
-                self.marks.setText("Sync marks stored at " + ", ".join(self._times) + " UTC")
+                local = marked.astimezone(self._zone)  # the study's zone, like every other time on screen
+                self._times.append(f"{local:%H:%M:%S}.{local.microsecond // 1000:03d} {local:%Z}")
+                self.marks.setText("Sync marks stored at " + ", ".join(self._times))
         elif event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
             self.timer.stop()
             self.done.emit()

@@ -68,6 +68,10 @@ def test_a_whole_session_coded_with_the_keyboard_alone(qtbot, window):
     assert isinstance(window.page, ClockCheck)
     clock.advance(1.5)
     press(qtbot, window, Qt.Key.Key_M)
+    # the study is in Europe/Berlin: the mark is shown on its clock, with the zone's abbreviation
+    mark = window.page.session.store.sync_marks()["marked_at"].iloc[-1].tz_convert("Europe/Berlin")
+    assert window.page.marks.text() == f"Sync marks stored at {mark:%H:%M:%S}.{mark.microsecond // 1000:03d} {mark:%Z}"
+    assert mark.strftime("%Z") in ("CET", "CEST") and "UTC" not in window.page.marks.text()
     press(qtbot, window, Qt.Key.Key_Return)
     screen = window.page
     assert isinstance(screen, ObservingScreen)
