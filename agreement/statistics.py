@@ -16,6 +16,7 @@ from agreement.bootstrap import CONFIDENCE, cluster_weights, percentile_interval
 from agreement.count_tables import CountTables, count_tables
 from agreement.dimensions import Dimension
 from agreement.tables import FIGURE_KEYS
+from sync.json_numbers import finite_or_none
 
 
 @dataclass(frozen=True)
@@ -141,10 +142,6 @@ def headline_kappa(figures: dict[str, Estimate]) -> Estimate:
     return cohen if cohen.value is not None else figures["fleiss_kappa"]
 
 
-def _optional(value: float) -> float | None:
-    return float(value) if np.isfinite(value) else None
-
-
 def assess_dimension(units: pd.DataFrame, dimension: Dimension, cluster_index: np.ndarray, clusters: int,
                      weights: np.ndarray, include_could_not_observe: bool = False) -> DimensionAgreement:
     """Figures of one dimension with intervals from the given (resamples, clusters) weights."""
@@ -157,7 +154,7 @@ def assess_dimension(units: pd.DataFrame, dimension: Dimension, cluster_index: n
     point_vector = np.array([points[key] for key in FIGURE_KEYS] + list(per_code), dtype=float)
     resample_matrix = np.column_stack([resampled[key] for key in FIGURE_KEYS] + [per_code_resampled])
     low, high = percentile_intervals(point_vector, resample_matrix)
-    estimates = [Estimate(_optional(v), _optional(lo), _optional(hi)) for v, lo, hi in zip(point_vector, low, high)]
+    estimates = [Estimate(finite_or_none(v), finite_or_none(lo), finite_or_none(hi)) for v, lo, hi in zip(point_vector, low, high)]
     figures = dict(zip(FIGURE_KEYS, estimates[: len(FIGURE_KEYS)]))
     per_code_estimates = dict(zip(counted.codes, estimates[len(FIGURE_KEYS):]))
     rows, columns = (counted.coders[0], counted.coders[1]) if two_coders else ("first coder", "second coder")

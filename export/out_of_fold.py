@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 from sklearn.metrics import cohen_kappa_score, roc_auc_score
 from sklearn.model_selection import StratifiedGroupKFold
+from sync.json_numbers import finite_or_none
 
 DEFAULT_FOLDS = 5
 
@@ -56,4 +57,4 @@ def score(labels: pd.Series | np.ndarray, codes: np.ndarray, predicted: np.ndarr
     else:  # scikit-learn's one-vs-rest macro average, over the codes present (an absent code has no AUC)
         auc = np.mean([roc_auc_score(truth == code, probability[:, index])
                        for index, code in enumerate(codes) if present[index]])
-    return Score(kappa=float(kappa) if np.isfinite(kappa) else None, auc=float(auc))
+    return Score(kappa=finite_or_none(kappa), auc=float(auc))

@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from export.cluster_bootstrap import DEFAULT_RESAMPLES, LearnerTables, cluster_weights, learner_tables, percentile_interval
+from sync.json_numbers import finite_or_none
 
 MIN_LEARNERS = 5
 MISSING_GROUP = "(missing)"
@@ -93,13 +94,9 @@ def group_figures(
                 for key in ("kappa", "auc")}
         for name, baseline in baseline_tables.items():
             figures = _point(baseline, members)
-            entry[f"{name}_baseline"] = {key: _finite(figures[key][0]) for key in ("kappa", "auc")}
+            entry[f"{name}_baseline"] = {key: finite_or_none(figures[key][0]) for key in ("kappa", "auc")}
         known = tables.multi_coded[members].sum()
         entry["coder_agreement"] = (
             {**estimate(point["agreement"][0], own["agreement"], size), "windows": int(known)} if known > 0 else None)
         entries.append(entry)
     return entries
-
-
-def _finite(value: float) -> float | None:
-    return float(value) if np.isfinite(value) else None

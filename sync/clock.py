@@ -14,6 +14,7 @@ import math
 from dataclasses import asdict, dataclass, replace
 
 import numpy as np
+from sync.json_numbers import json_safe
 
 METHODS: tuple[str, ...] = ("manual", "marks", "borrowed", "auto", "identity")
 NAT = np.iinfo(np.int64).min
@@ -101,7 +102,7 @@ class ClockModel:
     def to_json(self) -> str:
         """JSON text for the store; NaN becomes null."""
         data = asdict(self)
-        data = {key: (None if isinstance(value, float) and math.isnan(value) else value) for key, value in data.items()}
+        data = json_safe(data)
         return json.dumps(data, sort_keys=True)
 
     @classmethod

@@ -29,6 +29,7 @@ from observer_app.pipeline.units import StudyUnits, load_study_units, no_observa
 from observer_app.study.store import Store
 from observer_app.study.output_paths import check_output, publish_text
 from sync.errors import InputError
+from sync.json_numbers import json_safe
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
@@ -89,17 +90,6 @@ def select_coders(units: pd.DataFrame, coders_option: str | None) -> pd.DataFram
     if len(wanted) < 2:
         raise InputError(None, "--coders", "name at least two coders, e.g. --coders ann,ben")
     return units_of_coders(units, wanted)
-
-
-def _clean(value: object) -> object:
-    """JSON-safe: NaN/inf become null."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {key: _clean(item) for key, item in value.items()}
-    if isinstance(value, list):
-        return [_clean(item) for item in value]
-    return value
 
 
 def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: dict[str, Agreement],
@@ -222,7 +212,7 @@ def run(args: argparse.Namespace) -> int:
                                                                     "passes": c.passes} for c in checks}}
                                for coder, checks in certification.items()} if certification is not None else None),
         }
-        sys.stdout.write(json.dumps(_clean(document)) + "\n")
+        sys.stdout.write(json.dumps(json_safe(document)) + "\n")
     else:
         print_table(agreement, pairing, views, certification, str(args.source))
     return 0

@@ -49,6 +49,7 @@ from sync.errors import InputError
 from sync.event_table import empty_events
 from sync.logs import ReadReport, read_logs
 from sync.time_column import datetime_column_ns
+from sync.json_numbers import finite_or_none
 
 METHODS: tuple[str, ...] = ("best", "marks", "auto")
 PRECEDENCE: tuple[str, ...] = ("manual", "marks", "borrowed", "auto")  # first wins
@@ -494,14 +495,13 @@ def reference_text(reference_ns: int) -> str:
 
 def model_summary(model: ClockModel) -> dict:
     """The figures align reports per device, JSON-ready (NaN -> null)."""
-    def number(value: float, digits: int) -> float | None:
-        return None if value is None or not math.isfinite(value) else round(float(value), digits)
-
     return {
-        "method": model.method, "offset_s": number(model.offset_s, 3), "drift_ppm": number(model.drift_ppm, 2),
+        "method": model.method, "offset_s": finite_or_none(model.offset_s, 3),
+        "drift_ppm": finite_or_none(model.drift_ppm, 2),
         "reference_ns": model.reference_ns, "marks_used": model.marks_used,
-        "median_abs_residual_s": number(model.median_abs_residual_s, 3), "confidence": number(model.confidence, 3),
-        "offset_standard_error_s": number(model.offset_standard_error_s, 3),
-        "span_standard_error_s": number(model.span_standard_error_s, 3),
+        "median_abs_residual_s": finite_or_none(model.median_abs_residual_s, 3),
+        "confidence": finite_or_none(model.confidence, 3),
+        "offset_standard_error_s": finite_or_none(model.offset_standard_error_s, 3),
+        "span_standard_error_s": finite_or_none(model.span_standard_error_s, 3),
         "outlying_marks": model.outlying_marks, "warnings": list(model.warnings),
     }

@@ -4,7 +4,6 @@ from __future__ import annotations
 import shutil
 
 import numpy as np
-import pandas as pd
 import pytest
 from PySide6.QtCore import Qt
 

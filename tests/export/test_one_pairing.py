@@ -7,7 +7,6 @@ import sqlite3
 from pathlib import Path
 
 import pandas as pd
-import pytest
 
 from agreement.pairing import unit_id
 from observer_app.study import row_chain

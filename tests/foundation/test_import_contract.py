@@ -17,7 +17,7 @@ PACKAGES = ("observer_app", "sync", "agreement", "export", "demo_sessions")
 # package -> the project packages (or dotted modules) it may import besides itself.
 ALLOWED: dict[str, tuple[str, ...]] = {
     "sync": (),
-    "agreement": ("sync.errors", "sync.csv_header", "sync.plausible_values"),  # the error and the shared boundary checks
+    "agreement": ("sync.errors", "sync.csv_header", "sync.plausible_values", "sync.json_numbers"),  # the error and the shared boundary checks
     "export": ("sync",),
     "observer_app": ("sync", "agreement", "export"),
     "demo_sessions": ("observer_app", "sync", "agreement", "export"),

@@ -3,7 +3,6 @@ that name the value, the row and a pattern that fits (sync/time_column.py), driv
 through `fieldmark export` on a small study of our own."""
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import pandas as pd

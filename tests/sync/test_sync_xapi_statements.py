@@ -10,7 +10,7 @@ from __future__ import annotations
 import copy
 import gzip
 import json
-from datetime import datetime, timezone
+from datetime import datetime
 
 import numpy as np
 import pytest
