@@ -458,8 +458,12 @@ def decisions_in_effect(history: pd.DataFrame) -> pd.DataFrame:
 def stored_clock_models(study: Study) -> dict[str, ClockModel]:
     """The model in effect per clock key (``device`` or ``device/session_id``): what
     everything downstream uses.  Precedence in the module note."""
-    current = stored_clock_decisions(study)
-    return {str(key): ClockModel.from_json(text) for key, text in zip(current["model_key"], current["model_json"])}
+    return models_in_effect(stored_clock_decisions(study))
+
+
+def models_in_effect(decisions: pd.DataFrame) -> dict[str, ClockModel]:
+    """The clock models of decisions already read (``stored_clock_decisions``), by clock key."""
+    return {str(key): ClockModel.from_json(text) for key, text in zip(decisions["model_key"], decisions["model_json"])}
 
 
 def require_clock_models(study: Study, observations: pd.DataFrame, models: dict[str, ClockModel]) -> None:

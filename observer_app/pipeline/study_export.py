@@ -21,8 +21,8 @@ from export.pseudonyms import pseudonym, read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.pipeline.alignment import (read_study_logs, require_clock_models, stored_clock_decisions,
-                                            stored_clock_models)
+from observer_app.pipeline.alignment import (models_in_effect, read_study_logs, require_clock_models,
+                                            stored_clock_decisions)
 from observer_app.pipeline.coverage import coverage_report
 from observer_app.pipeline.units import require_placed, study_units
 from observer_app.study.store import Store
@@ -89,9 +89,9 @@ def export_study(
             sampling = replay_sampling(store, observations)
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
-        models = stored_clock_models(study)
+        decisions = stored_clock_decisions(study)  # the clock history is read once
+        models = models_in_effect(decisions)
         require_clock_models(study, observations, models)
-        decisions = stored_clock_decisions(study)
         uncertain = dict(zip(decisions["model_key"].astype(str), decisions["uncertain_accepted"].astype(bool))) \
             if len(decisions) else {}
         found = study_units(study, observations, models)
