@@ -91,7 +91,8 @@ def middle_states(event_ns: np.ndarray, blocks: dict[str, tuple[int, int]], lear
         code = labels[:, dimension]
         result = np.full((len(middle_ns), bins), np.nan)
         coded = np.flatnonzero(code >= 0)
-        rate = np.maximum(rates[dimension], RATE_FLOOR_SHARE * max(float(np.mean(rates[dimension])), 1e-9))
+        mean_rate = float(np.mean(rates[dimension])) if len(rates[dimension]) else 0.0
+        rate = np.maximum(rates[dimension], RATE_FLOOR_SHARE * max(mean_rate, 1e-9))
         for begin in range(0, len(coded), ROWS_PER_BLOCK):
             rows = coded[begin:begin + ROWS_PER_BLOCK]
             posterior = _forward_backward(counts[rows], rate * BIN_S, BIN_S / STATE_SECONDS)

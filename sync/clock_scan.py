@@ -28,6 +28,9 @@ standard error and the largest standard error over the observed span, drift incl
 """
 from __future__ import annotations
 
+import math
+from dataclasses import replace
+
 import numpy as np
 import pandas as pd
 from scipy.special import xlogy
@@ -142,6 +145,9 @@ def likelihood_ratio_curve(totals: list[np.ndarray], exposures: list[np.ndarray]
     return score
 
 
+NO_PEAK = "no offset explains the log activity better than the others"
+
+
 def locate_peak(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) -> tuple[float, float, list[str]]:
     """(estimate, confidence, warnings) from a score curve.
 
@@ -161,7 +167,7 @@ def locate_peak(offsets_s: np.ndarray, scores: np.ndarray, separation_s: float) 
     base = float(np.median(level))
     height = top - base
     if not np.isfinite(height) or height <= 1e-12:
-        return float(offsets_s[best]), 0.0, ["no offset explains the log activity better than the others"]
+        return float(offsets_s[best]), 0.0, [NO_PEAK]
     inside = scores >= top - PEAK_REGION * height
     left = right = best
     while left > 0 and inside[left - 1]:
@@ -271,6 +277,10 @@ def scan_offset(observations: pd.DataFrame, events: pd.DataFrame, dimensions: li
 
     near = _fine_grid(estimate)
     line = fit_clock_line(states.window_scores(near, middle), near, start, reference)
+    if NO_PEAK in warnings:
+        # a flat curve is no evidence: the fine stage's spread around an arbitrary offset is
+        # not an error bar, so the errors are unknown and no uncertainty gate lets it through
+        line = replace(line, offset_error_s=math.inf, span_error_s=math.inf)
     if line.drift_error_ppm > UNCERTAIN_DRIFT_PPM:
         warnings.append(f"drift uncertain: standard error about {line.drift_error_ppm:.0f} ppm; sync marks pin it down")
     if line.span_error_s > UNCERTAIN_OFFSET_S:
