@@ -50,6 +50,7 @@ class PairingReport:
     unmatched_by_coder: dict[str, int] = field(default_factory=dict)
     units_by_method: dict[str, int] = field(default_factory=dict)
     paired_run_not_overlapping: int = 0  # observations of paired runs left unpaired: no overlap on the log's clock
+    clock_shift_hints: tuple[dict[str, object], ...] = ()  # see ``clock_shift_hints``
 
     def as_dict(self) -> dict[str, object]:
         return {
@@ -57,6 +58,7 @@ class PairingReport:
             "paired_observations": self.paired_observations, "unmatched": self.unmatched,
             "unmatched_by_coder": self.unmatched_by_coder, "units_by_method": self.units_by_method,
             "paired_run_not_overlapping": self.paired_run_not_overlapping,
+            "clock_shift_hints": list(self.clock_shift_hints),
         }
 
 
@@ -197,8 +199,74 @@ def pair_observations(observations: pd.DataFrame, dimensions: list[str],
         units_by_method={str(k): int(v) for k, v in
                          units.drop_duplicates("unit")["matched_by"].value_counts().sort_index().items()},
         paired_run_not_overlapping=len(apart),
+        clock_shift_hints=clock_shift_hints(unmatched[unmatched["mode"] == "live"], tolerance_ns),
     )
     return units, report
+
+
+SHIFT_STEP_MINUTES = 30
+"""Clock mistakes come in whole time-zone steps: an hour (summer time), half an hour for some zones."""
+SHIFT_RANGE_HOURS = 14
+"""UTC offsets lie within +-14 h (ISO 8601 allows more; no zone in use does)."""
+SHIFT_MIN_SHARE = 0.8
+"""A hint needs most of the smaller side's unmatched observations to pair at the shift: coders who
+watch the same learners together (a paired run, planned double coding) pair nearly always, while
+two independent shuffled schedules pair by chance at about one in as many learners as they rotate."""
+SHIFT_PEAK_RATIO = 2.0
+"""... and twice as many as at any other shift: two sessions of the same learners an hour apart
+pair by chance at many shifts alike (a flat count), a clock an hour off at one (a peak)."""
+
+
+def clock_shift_hints(unmatched: pd.DataFrame, tolerance_ns: int) -> tuple[dict[str, object], ...]:
+    """Device pairs whose unmatched live observations would pair if one clock were whole
+    time-zone steps off: the sign of a wrong UTC offset or a summer-time slip.
+
+    A hint, never a decision: pairing itself stays on the stored clock models.  For each
+    two devices that observed the same learners, every shift of ``SHIFT_STEP_MINUTES`` up to
+    +-``SHIFT_RANGE_HOURS`` h is tried on the second device's window starts; the best shift
+    is reported when at least ``SHIFT_MIN_SHARE`` of the smaller side would pair there and
+    ``SHIFT_PEAK_RATIO`` times as many as at the runner-up shift.
+    """
+    if unmatched.empty or "device" not in unmatched:
+        return ()
+    rows = unmatched.assign(device=unmatched["device"].astype(str), learner=unmatched["learner"].astype(str))
+    devices = sorted(rows["device"].unique())
+    shifts_ns = np.arange(-SHIFT_RANGE_HOURS * 60, SHIFT_RANGE_HOURS * 60 + 1, SHIFT_STEP_MINUTES,
+                          dtype=np.int64) * 60_000_000_000
+    shifts_ns = shifts_ns[shifts_ns != 0]
+    hints = []
+    for position, first in enumerate(devices):
+        a = rows[rows["device"] == first]
+        for second in devices[position + 1:]:
+            b = rows[rows["device"] == second]
+            if set(a["coder"].astype(str)) & set(b["coder"].astype(str)):
+                continue  # one coder on two devices never pairs with themself
+            counts = _pairable_counts(a, b, shifts_ns, tolerance_ns)
+            smaller = min(len(a), len(b))
+            best = int(np.argmax(counts)) if len(counts) else 0
+            runner_up = int(np.partition(counts, -2)[-2]) if len(counts) > 1 else 0
+            if counts[best] >= max(2, SHIFT_MIN_SHARE * smaller) and counts[best] >= SHIFT_PEAK_RATIO * runner_up:
+                hints.append({"device": second, "other_device": first,
+                              "shift_hours": float(shifts_ns[best] / 3.6e12),
+                              "would_pair": int(counts[best]), "of": int(smaller)})
+    return tuple(hints)
+
+
+def _pairable_counts(a: pd.DataFrame, b: pd.DataFrame, shifts_ns: np.ndarray, tolerance_ns: int) -> np.ndarray:
+    """Per shift: how many of b's observations (shifted) start within the tolerance of one of a's, same learner."""
+    counts = np.zeros(len(shifts_ns), dtype=np.int64)
+    b_by_learner = b.groupby("learner")["log_start_ns"]
+    for learner, a_starts in a.groupby("learner")["log_start_ns"]:
+        if learner not in b_by_learner.groups:
+            continue
+        own = np.sort(a_starts.to_numpy(dtype=np.int64))
+        other = b_by_learner.get_group(learner).to_numpy(dtype=np.int64)
+        moved = other[None, :] + shifts_ns[:, None]  # shifts x observations, vectorised
+        right = np.clip(np.searchsorted(own, moved), 0, len(own) - 1)
+        left = np.clip(right - 1, 0, len(own) - 1)
+        gap = np.minimum(np.abs(own[right] - moved), np.abs(moved - own[left]))
+        counts += (gap <= tolerance_ns).sum(axis=1)
+    return counts
 
 
 def _units_table(parts: list[pd.DataFrame], dimensions: list[str]) -> pd.DataFrame:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
 from observer_app import __version__
@@ -106,3 +107,8 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         sys.stderr.write("fieldmark: interrupted\n")
         return 130
+    except BrokenPipeError:
+        # The reader went away (`fieldmark agree STUDY | head`): stop quietly, as Unix tools do.
+        # Point stdout at devnull so the interpreter's final flush does not raise again.
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 141

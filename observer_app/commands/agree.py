@@ -25,7 +25,9 @@ from agreement.breakdowns import (
     CERTIFICATION_KAPPA, CERTIFICATION_PAIRS, ROLLING_WINDOW, by_pair, by_session, certify, rolling_kappa,
     units_of_coders,
 )
-from observer_app.pipeline.units import StudyUnits, load_study_units, no_observations_error, placed_adjudications
+from observer_app.pipeline.units import (
+    StudyUnits, load_study_units, no_observations_error, placed_adjudications, shift_warning,
+)
 from observer_app.study.store import Store
 from observer_app.study.output_paths import check_output, publish_text
 from sync.errors import InputError
@@ -105,6 +107,8 @@ def print_table(agreement: Agreement, pairing: dict[str, object] | None, views: 
         if pairing.get("unplaced_adjudications"):
             out.write(f"  warning: {pairing['unplaced_adjudications']} adjudications settle observations that are no "
                       "longer one unit (export stops on them); adjudicate the units --disagreements lists again\n")
+        for hint in pairing.get("clock_shift_hints", []):
+            out.write(f"  warning: {shift_warning(hint)}\n")
         if pairing.get("paired_run_not_overlapping"):
             out.write(f"  {pairing['paired_run_not_overlapping']} observations of paired runs left unpaired: "
                       "their windows do not overlap on the log's clock\n")

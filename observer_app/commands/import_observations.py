@@ -19,6 +19,9 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("study", type=Path, help="study folder")
     parser.add_argument("files", type=Path, nargs="+", metavar="FILE", help="observations.sqlite or .csv")
     parser.add_argument("--skip-bad", action="store_true", help="import the good rows of a CSV and report the bad ones")
+    parser.add_argument("--offsets-as-written", action="store_true",
+                        help="take CSV times at UTC offsets the study's time zone did not have then (a coder whose "
+                             "clock really kept another zone); refused by default as the sign of an hour-off mistake")
     parser.add_argument("--json", action="store_true", help="print one JSON object")
     parser.set_defaults(run=run)
 
@@ -29,7 +32,8 @@ def run(args: argparse.Namespace) -> int:
     with Store(study.store_path) as store:
         check_scheme_binding(study, store)
         for path in args.files:
-            result = import_file(study, store, path, skip_bad=args.skip_bad)
+            result = import_file(study, store, path, skip_bad=args.skip_bad,
+                                 offsets_as_written=args.offsets_as_written)
             report.append({"file": str(path), "added": result.added, "skipped": result.skipped})
     if args.json:
         print(json.dumps({"imports": report}))

@@ -24,7 +24,7 @@ from observer_app import __version__
 from observer_app.pipeline.alignment import (models_in_effect, read_study_logs, require_clock_models,
                                             stored_clock_decisions)
 from observer_app.pipeline.coverage import coverage_report
-from observer_app.pipeline.units import require_placed, study_units
+from observer_app.pipeline.units import require_placed, shift_warning, study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
 from observer_app.study.scheme_binding import check_scheme_binding
@@ -149,6 +149,10 @@ def export_study(
             inputs=file_digests(*zip(*inputs)), output_format=output_format,
         )
         manifest["coverage"] = coverage.summary()
+        shift_hints = found.report.get("clock_shift_hints", [])
+        manifest["clock_shift_hints"] = [{**hint, "device": _pseudonymous(hint["device"], key),
+                                          "other_device": _pseudonymous(hint["other_device"], key)}
+                                         for hint in shift_hints]
         beside = write_windows(result, out, manifest)
         bar.update()
     accepted = sorted(key for key, flag in uncertain.items() if flag and key in models)
@@ -160,8 +164,9 @@ def export_study(
         "observations": int(len(observations)), "units": found.report["units"],
         "coverage": coverage_report(coverage),
         "warnings": list(read_report.warnings) + list(windows.attrs.get("warnings", [])) + outside_warnings(coverage)
-                    + clock_warnings,
+                    + clock_warnings + [shift_warning(hint) for hint in shift_hints],
     }
+
 
 
 def outside_warnings(coverage: Coverage) -> list[str]:

@@ -130,3 +130,11 @@ def require_placed(found: StudyUnits, adjudications: pd.DataFrame) -> pd.DataFra
 def no_observations_error(found: StudyUnits) -> InputError:
     return InputError(found.store_path, None, "no observations yet; code a session in the app or "
                                               "`fieldmark import STUDY FILE` first")
+
+
+def shift_warning(hint: dict) -> str:
+    """The words for one of agreement.pairing's clock shift hints."""
+    return (f"{hint['would_pair']} of {hint['of']} unmatched observations of devices {hint['device']} and "
+            f"{hint['other_device']} would pair if {hint['device']}'s times were moved {hint['shift_hours']:+g} h: "
+            "a wrong UTC offset or a summer-time slip? its windows may be that far off the log; check that device's "
+            "clock (`fieldmark align STUDY`, the times in its CSV)")

@@ -27,6 +27,7 @@ NAMESPACE = uuid.UUID("6f1c2a3e-9a7b-4d1e-8c55-2b0d3f4e5a61")
 REQUIRED = ("coder", "learner", "time")
 OPTIONAL = ("device", "note", "end", "clip")
 _OFFSET = r"(?:Z|z|[+-]\d{2}(?::?\d{2})?)$"
+_OFFSET_PARTS = r"(?:[Zz]|(?P<sign>[+-])(?P<hours>\d{2})(?::?(?P<minutes>\d{2}))?)$"
 _CONTROL = r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]"
 SHOWN_PROBLEMS = 3
 
@@ -43,7 +44,8 @@ class ImportResult:
     already_imported: bool = False
 
 
-def import_file(study: Study, store: Store, path: Path, *, skip_bad: bool = False) -> ImportResult:
+def import_file(study: Study, store: Store, path: Path, *, skip_bad: bool = False,
+                offsets_as_written: bool = False) -> ImportResult:
     """Import one file into the study's store; InputError for anything the user must fix."""
     if not path.is_file():
         raise InputError(path, None, "file not found")
@@ -51,7 +53,7 @@ def import_file(study: Study, store: Store, path: Path, *, skip_bad: bool = Fals
         magic = handle.read(16)
     if magic.startswith(b"SQLite format 3"):
         return _import_store(study, store, path)
-    return _import_csv(study, store, path, skip_bad=skip_bad)
+    return _import_csv(study, store, path, skip_bad=skip_bad, offsets_as_written=offsets_as_written)
 
 
 # -- another device's store ---------------------------------------------------------
@@ -101,7 +103,7 @@ def _import_adjudications(study: Study, store: Store, path: Path, decisions: pd.
 
 
 # -- CSV --------------------------------------------------------------------------
-def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> ImportResult:
+def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool, offsets_as_written: bool) -> ImportResult:
     content_hash = file_sha256(path)
     check_header(path)
     try:
@@ -136,6 +138,8 @@ def _import_csv(study: Study, store: Store, path: Path, *, skip_bad: bool) -> Im
         shown = "; ".join(skipped[:SHOWN_PROBLEMS])
         more = f" (and {len(skipped) - SHOWN_PROBLEMS} more bad rows)" if len(skipped) > SHOWN_PROBLEMS else ""
         raise InputError(path, None, f"{shown}{more}; fix these rows or rerun with --skip-bad to import the rest")
+    if not offsets_as_written:
+        _refuse_foreign_offsets(study, path, frame[~bad], lines[~bad])
     _refuse_conflicts(path, frame[~bad], lines[~bad], present_dimensions)
     good = frame[~bad].copy()
     result = ImportResult(source=path, skipped=skipped)
@@ -215,6 +219,42 @@ def _window_length_s(study: Study, frame: pd.DataFrame) -> pd.Series:
     known = (start != NAT) & (end != NAT)
     length = length.where(known)
     return length.mask(frame["end"].eq(""), study.window_seconds)
+
+
+def _refuse_foreign_offsets(study: Study, path: Path, frame: pd.DataFrame, lines: pd.Series) -> None:
+    """Refuse times written at a UTC offset the study's zone did not have at that instant.
+
+    A time written at +01:00 where the study's zone was at +02:00 (summer time forgotten, a
+    laptop left on another zone) is an exact but wrong instant: its observation lands an
+    hour off the log and pairs with nobody.  UTC (Z, +00:00) is always taken as written."""
+    if frame.empty:
+        return
+    written = frame["time"].str.extract(_OFFSET_PARTS)
+    sign = written["sign"].map({"+": 1, "-": -1})
+    minutes = sign * (written["hours"].astype("float64") * 60 + written["minutes"].fillna("0").astype("float64"))
+    minutes = minutes.where(written["sign"].notna(), 0.0)  # Z / z: UTC
+    instant = pd.to_datetime(frame["time"], format="ISO8601", utc=True)
+    zone_minutes = (instant.dt.tz_convert(study.timezone).dt.tz_localize(None)
+                    - instant.dt.tz_localize(None)).dt.total_seconds() / 60
+    foreign = minutes.ne(0) & minutes.ne(zone_minutes)
+    if not foreign.any():
+        return
+    first = foreign.idxmax()
+    coders = sorted(frame.loc[foreign, "coder"].unique())
+    shown = ", ".join(coders[:SHOWN_PROBLEMS]) + (f" and {len(coders) - SHOWN_PROBLEMS} more" if len(coders) > SHOWN_PROBLEMS else "")
+    raise InputError(
+        path, f"line {lines[first]}",
+        f"time {frame.loc[first, 'time']} is written at UTC{_utc_offset_text(minutes[first])} but {study.timezone} "
+        f"(study.toml's timezone) was at UTC{_utc_offset_text(zone_minutes[first])} then, which puts the observation "
+        f"{abs(minutes[first] - zone_minutes[first]) / 60:g} h off the log ({int(foreign.sum())} rows like this, "
+        f"coder {shown}); correct the offsets (or write UTC with Z), or rerun with --offsets-as-written if the "
+        "coder's clock really kept another zone")
+
+
+def _utc_offset_text(minutes: float) -> str:
+    sign = "-" if minutes < 0 else "+"
+    hours, rest = divmod(int(abs(minutes)), 60)
+    return f"{sign}{hours:02d}:{rest:02d}"
 
 
 def _refuse_conflicts(path: Path, frame: pd.DataFrame, lines: pd.Series, dimensions: list[str]) -> None:
