@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import os
+import sys
 import shutil
 import subprocess
 
@@ -35,3 +36,18 @@ def test_installed_console_script_when_present() -> None:
         assert not os.environ.get("CI"), "CI installs fieldmark, so its console script must be on PATH"
         return
     assert subprocess.run([script, "--version"], capture_output=True, text=True).stdout.strip().endswith(__version__)
+
+
+
+def test_a_reader_that_stops_early_ends_the_command_quietly(tmp_path):
+    """`fieldmark agree STUDY | head -1`: the reader closes the pipe; no traceback (Unix tools end quietly)."""
+    from tests.conftest import ROOT
+    from tests.export.small_studies import solo_laptops_study
+    study = solo_laptops_study(tmp_path)  # aligned, so agree has something to print
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    process = subprocess.Popen([sys.executable, "-m", "observer_app", "agree", str(study), "--resamples", "20"],
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env, text=True)
+    process.stdout.close()  # the reader is gone before the first line is written
+    errors = process.stderr.read()
+    assert process.wait(timeout=120) == 141  # 128 + SIGPIPE, as a shell reports a tool ended by a closed pipe
+    assert errors == ""
