@@ -1,5 +1,5 @@
 """Issue 11, 3(b): a clock off by hours, found by the automatic scan's gross stage and
-named, through the real entry points: ``fieldmark import`` of a CSV, then ``fieldmark
+named, through the real entry points: ``fieldmark import`` of a CSV (``--offsets-as-written``: import refuses it otherwise), then ``fieldmark
 align --json``.
 
 The study is built here from tests/sync/sync_planted_clock.py (two 4-hour days of
@@ -22,7 +22,7 @@ import pandas as pd
 import pytest
 
 import sync_planted_clock as planted_clock
-from tests.conftest import call_cli
+from tests.conftest import assert_user_error, call_cli
 from demo_sessions.generate import generate_demo
 from observer_app.pipeline.alignment import stored_clock_models
 from observer_app.study.folder import load_study
@@ -71,7 +71,10 @@ def study(tmp_path_factory) -> Path:
             **{name: value.strftime("%Y-%m-%dT%H:%M:%S.%f").str[:-3] + written for name, value in local.items()},
             "activity": windows["activity"][mine].to_numpy(), "affect": windows["affect"][mine].to_numpy()}))
     pd.concat(rows).to_csv(root / "tablets.csv", index=False)
-    result = call_cli("import", folder, root / "tablets.csv")
+    # The first defence: +03:00 is no offset Europe/Berlin had in March (IANA tzdata), so import
+    # refuses the file.  The scan is the second, for a lab that insists (or wrote +00:00).
+    assert_user_error(call_cli("import", folder, root / "tablets.csv"), "UTC+03:00", "coder coder_d")
+    result = call_cli("import", folder, root / "tablets.csv", "--offsets-as-written")
     assert result.returncode == 0, result.stderr
     return folder
 
