@@ -117,6 +117,12 @@ def run(args: argparse.Namespace) -> int:
             print(f"  {key}: {warning}")
     for device, decision in alignment.decisions.items():
         print(f"  {device}: {decision.decision}: {decision.reason}")
+        if decision.second_opinion:
+            opinion = decision.second_opinion
+            print(f"  warning: {device}: the automatic scan puts this clock at {opinion['scan_offset_s']:+.1f} s "
+                  f"(standard error {opinion['standard_error_s']:.1f} s), {opinion['difference_s']:+.1f} s from the "
+                  f"hand-set offset{'; ' + opinion['looks_like'] if opinion['looks_like'] else ''}; the hand-set "
+                  f"offset stays: check it, then --set-offset {device}=SECONDS to change it")
     for device, borrowing in alignment.borrowed.items():
         print(f"  {device}: borrowed {borrowing.partner}'s model, {borrowing.relative_offset_s:+.3f} s relative, "
               f"from {borrowing.marks_used} paired signal marks")

@@ -32,7 +32,7 @@ from collections.abc import Iterable
 
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -42,6 +42,7 @@ from observer_app.study.store import Store, now_utc
 from observer_app.study.folder import Study
 from sync.clock import ClockModel, manual_model
 from sync.clock_pairs import partner_time_ns, relative_offsets
+from sync.clock_gross import gross_mistake
 from sync.clock_marks import fit_from_marks
 from sync.clock_scan import scan_offset
 from sync.clock_sessions import clock_key, model_for, session_model, sessions_apart
@@ -67,9 +68,11 @@ class ClockDecision:
     decision: str
     reason: str
     uncertain_accepted: bool = False
+    second_opinion: dict | None = None  # hand-set only: the automatic scan, when sure and far off (see below)
 
     def as_dict(self) -> dict:
-        return {"decision": self.decision, "reason": self.reason, "uncertain_accepted": self.uncertain_accepted}
+        return {"decision": self.decision, "reason": self.reason, "uncertain_accepted": self.uncertain_accepted,
+                "second_opinion": self.second_opinion}
 
 
 @dataclass
@@ -175,7 +178,48 @@ def align_study(study: Study, method: str = "best", manual_offsets: dict[str, fl
                 "ranks higher and stays in effect", decision.uncertain_accepted)
     kept_models = {key: model for key, model in stored_clock_models(study).items() if model.device in kept}
     alignment.models = dict(sorted({**alignment.models, **kept_models}.items()))
+    events = logs[0] if logs is not None else alignment.events
+    if events is not None:
+        hand_models = {model.device: model for model in alignment.models.values() if model.method == "manual"}
+        for device, opinion in second_opinions(study, hand_models, events, max_standard_error_s).items():
+            alignment.decisions[device] = replace(alignment.decisions[device], second_opinion=opinion)
     return alignment
+
+
+SECOND_OPINION_MIN_S = 5.0
+SECOND_OPINION_STANDARD_ERRORS = 5.0
+
+
+def second_opinions(study: Study, hand_models: dict[str, ClockModel], events: pd.DataFrame,
+                    max_standard_error_s: float) -> dict[str, dict]:
+    """Per hand-set device: the automatic scan's offset, when the scan is sure and disagrees.
+
+    A hand-set offset is a person's decision and is never replaced; but a typed offset can be
+    wrong (a sign, an hour, the other laptop).  So the scan looks at the same device: when its
+    standard error passes the uncertainty gate and its offset lies more than
+    SECOND_OPINION_STANDARD_ERRORS standard errors and SECOND_OPINION_MIN_S seconds from the
+    hand-set one (compared at the middle of the device's observed span), align says so.
+    """
+    if not hand_models or events.empty:
+        return {}
+    with Store(study.store_path) as store:
+        observations = _with_log_ids(store.observations(study.scheme.dimension_names), study)
+    opinions = {}
+    for device, hand in hand_models.items():
+        live = observations[(observations["device"] == device) & (observations["mode"] == "live")]
+        span = _observed_span(live)
+        if span is None:
+            continue
+        scan = scan_offset(_observable(live, study), events, list(study.scheme.dimension_names))
+        error = gate_error(scan)
+        if not error < max_standard_error_s:
+            continue
+        middle = np.array([(span[0] + span[1]) // 2], dtype=np.int64)
+        difference_s = float(hand.to_log_ns(middle)[0] - scan.to_log_ns(middle)[0]) / 1e9  # scan minus hand offset
+        if abs(difference_s) >= max(SECOND_OPINION_MIN_S, SECOND_OPINION_STANDARD_ERRORS * error):
+            opinions[device] = {"scan_offset_s": hand.offset_s + difference_s, "standard_error_s": error,
+                                "difference_s": difference_s, "looks_like": gross_mistake(difference_s)}
+    return opinions
 
 
 def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[str, float] | None = None,
@@ -200,9 +244,7 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
         events, report = empty_events(), ReadReport()
     else:
         events, report = logs if logs is not None else read_study_logs(study)
-    log_ids = dict(zip(study.roster["learner"].astype(str), study.roster["log_id"].astype(str)))
-    observations = observations.assign(log_id=observations["learner"].astype(str).map(log_ids).fillna(""))
-    marks = marks.assign(log_id=marks["learner"].astype(str).map(log_ids).fillna(""))
+    observations, marks = _with_log_ids(observations, study), _with_log_ids(marks, study)
     known = set(events["learner"].cat.categories.astype(str))
     models = {device: manual_model(device, offset) for device, offset in manual_offsets.items()}
     skipped: dict[str, str] = {}
@@ -397,6 +439,12 @@ def _evidence(model: ClockModel) -> str:
     if model.method == "borrowed":
         return f"{model.warnings[0] if model.warnings else 'borrowed from a paired partner'}, {errors}"
     return "set by hand" if model.method == "manual" else model.method
+
+
+def _with_log_ids(frame: pd.DataFrame, study: Study) -> pd.DataFrame:
+    """``frame`` with a log_id column: its learner's roster log_id ("" when none)."""
+    log_ids = dict(zip(study.roster["learner"].astype(str), study.roster["log_id"].astype(str)))
+    return frame.assign(log_id=frame["learner"].astype(str).map(log_ids).fillna(""))
 
 
 def _observable(observations: pd.DataFrame, study: Study) -> pd.DataFrame:

@@ -119,7 +119,7 @@ def test_an_uncertain_automatic_fit_is_refused_then_stored_only_when_accepted(tm
     assert shown["stored"] is False and shown["decisions"][DEVICE]["decision"] == "refused"
     accepted = align_json(study, "--accept-uncertain")
     assert accepted["decisions"][DEVICE] | {"reason": ""} == {"decision": "stored", "reason": "",
-                                                               "uncertain_accepted": True}
+                                                               "uncertain_accepted": True, "second_opinion": None}
     assert "--accept-uncertain" in accepted["decisions"][DEVICE]["reason"]
     rows = history(study)
     assert list(rows["uncertain_accepted"]) == [True] and list(rows["method"]) == ["auto"]

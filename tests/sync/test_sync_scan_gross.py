@@ -108,3 +108,24 @@ def test_a_clock_near_the_log_is_not_called_a_mistake():
     assert "30 minutes" in gross_mistake(1800.0 + 3.0)
     assert "15 or 45 minutes" in gross_mistake(-(5 * QUARTER_HOUR_S) - 2.0)
     assert "far more than a clock drifts" in gross_mistake(1250.0)
+
+
+def test_a_hand_set_offset_an_hour_off_is_kept_and_questioned(study, tmp_path):
+    """The lab types tablet-c's seconds (4 s) but forgets its hour: the hand-set offset is a
+    person's decision and stays in effect; align adds the scan's second opinion (planted truth:
+    +3604 s, so the scan differs by about +3600 s and names the hour)."""
+    folder = tmp_path / "study"
+    shutil.copytree(study, folder)
+    result = call_cli("align", folder, "--json", "--set-offset", "tablet-c=4", "--set-offset", "tablet-d=-7209")
+    assert result.returncode == 0, result.stderr
+    decisions = json.loads(result.stdout)["decisions"]
+    opinion = decisions["tablet-c"]["second_opinion"]
+    assert opinion is not None and abs(opinion["difference_s"] - 3600.0) <= max(3 * opinion["standard_error_s"], 1.0)
+    assert "1 hour ahead" in opinion["looks_like"]
+    assert decisions["tablet-d"]["second_opinion"] is None  # typed right: the scan agrees, nothing to say
+    models = stored_clock_models(load_study(folder))
+    assert models["tablet-c"].method == "manual" and models["tablet-c"].offset_s == 4.0  # never replaced
+    shown = call_cli("align", folder)
+    assert shown.returncode == 0, shown.stderr
+    assert "warning: tablet-c: the automatic scan puts this clock at +360" in shown.stdout
+    assert "the hand-set offset stays" in shown.stdout and "tablet-d: the automatic scan" not in shown.stdout
