@@ -140,7 +140,7 @@ def export_study(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
             clock_models=[{**clock_summary(model, key), "clock": _pseudonymous(clock, key),
                            "uncertain_accepted": uncertain.get(clock, False)} for clock, model in models.items()],
-            inputs=file_digests(*zip(*inputs)), output_format=output_format,
+            inputs=file_digests(*zip(*inputs), known=read_report.digests), output_format=output_format,
         )
         manifest["coverage"] = coverage.summary()
         shift_hints = found.report.get("clock_shift_hints", [])
