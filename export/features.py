@@ -7,6 +7,13 @@ windows are then laid out one window after another (``WindowEvents.member``), so
 window-local figure is a segment reduction (``ufunc.reduceat``) or a ``bincount`` over
 those rows, and every history figure is a difference of prefix sums over the whole log.
 
+How its memory stays bounded: after the one sort, the work runs on blocks of whole
+learners (about ``block_rows`` events with their windows at a time; every figure is
+per learner, so a block needs nothing of another) and the blocks' columns are joined.
+The one choice that spans learners -- which action_ and outcome_ columns exist -- is made
+from every window's rows first (``window_totals``), so blocked output is bit-identical
+to one block.
+
 A lab adds its own feature as one function::
 
     @feature
@@ -22,8 +29,9 @@ from __future__ import annotations
 
 import hashlib
 import re
+import threading
 
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Iterator, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from functools import cached_property
@@ -36,6 +44,7 @@ import pyarrow.compute as pc
 
 NS_PER_SECOND = 1_000_000_000
 FEATURE_OF_COLUMN = "feature_of_column"
+BLOCK_ROWS = 1_000_000  # events per block of learners: bounds the working memory, not the speed
 
 
 @dataclass(frozen=True)
@@ -67,9 +76,9 @@ class CodedColumn:
         table = np.append(self.names != "", False)  # code -1 reads the trailing False
         return table[codes]
 
-    def counts(self, rows: np.ndarray) -> np.ndarray:
-        """How many of ``rows`` have each code (missing and blank left out)."""
-        return np.bincount(self.codes[rows] + 1, minlength=len(self.names) + 1)[1:] * (self.names != "")
+    def counts(self, rows: np.ndarray | None = None) -> np.ndarray:
+        """How many of ``rows`` (or all rows) have each code (missing and blank left out)."""
+        return np.bincount((self.codes if rows is None else self.codes[rows]) + 1, minlength=len(self.names) + 1)[1:] * (self.names != "")
 
     def mask(self, wanted: tuple[str, ...], rows: np.ndarray | None = None) -> np.ndarray:
         """Boolean per row (all rows, or just ``rows``): the value is one of ``wanted``."""
@@ -112,53 +121,120 @@ def code_column(values: pd.Series | pa.ChunkedArray) -> CodedColumn:
     return CodedColumn(codes, names)
 
 
+def take_rows(column: pd.Series | pa.ChunkedArray, rows: slice | np.ndarray | None) -> pd.Series | pa.ChunkedArray:
+    """``column``'s values at ``rows`` (a slice of positions, positions, or None for all), in that order."""
+    if rows is None:
+        return column
+    if not isinstance(column, pa.ChunkedArray):
+        return column.iloc[rows]
+    if isinstance(rows, slice):
+        return column.slice(rows.start, rows.stop - rows.start)
+    # Arrow's take on a chunked column joins all its chunks first (the whole log per
+    # block); take from each chunk the rows it holds, then put them in order.
+    bounds = np.cumsum([0] + [len(chunk) for chunk in column.chunks])
+    chunk = np.searchsorted(bounds, rows, "right") - 1
+    order = np.argsort(chunk, kind="stable")
+    ordered, held = rows[order], np.bincount(chunk, minlength=column.num_chunks)
+    ends = np.cumsum(held)
+    pieces = [column.chunk(number).take(pa.array(ordered[end - count:end] - bounds[number]))
+              for number, (count, end) in enumerate(zip(held, ends)) if count]
+    joined = pa.concat_arrays(pieces) if len(pieces) > 1 else (pieces[0] if pieces else column.chunk(0).slice(0, 0))
+    return pa.chunked_array([joined.take(pa.array(np.argsort(order)))], type=column.type)
+
+
+class _Coded:
+    """A string column of the log as a view attribute, coded on first use: features that
+    do not need it never read it (and a caller may leave it out of the table)."""
+
+    def __set_name__(self, owner: type, name: str) -> None:
+        self.name = name
+
+    def __get__(self, view: WindowEvents | None, owner: type) -> CodedColumn:
+        return view.coded(self.name)
+
+
 @dataclass
 class WindowEvents:
-    """The sorted log and, per window, where its learner's rows and the window's rows lie.
+    """Part of the log in learner-then-time order and, per window, where its rows lie.
 
-    Windows are held in log order (``window_order`` maps back to the caller's order:
-    position i here is the caller's window ``window_order[i]``).
+    The log part is ``events`` at ``rows`` (a slice or positions of ``events``' rows, None
+    for all of them already in order); its row i is position i below.  Windows are held in
+    log order (``window_order`` maps back to the caller's order: position i here is the
+    caller's window ``window_order[i]``).
     Per window (arrays of length W): ``learner_start`` (first row of the learner, or 0
-    when the learner has no events), ``first`` (first row at or after window start),
+    when the learner has no events), ``learner_stop`` (row after the learner's last),
+    ``first`` (first row at or after window start),
     ``stop`` (first row at or after window end: the window's rows are ``first:stop``),
     ``start_ns``, ``end_ns``.  ``member`` lists the window rows window after
     window; window w's rows are ``member[offsets[w] : offsets[w] + counts[w]]``.
+    ``totals`` answers ``window_totals`` for every block of one export alike.
     """
 
     settings: FeatureSettings
     events: pd.DataFrame | pa.Table
-    row_order: np.ndarray | None
+    rows: slice | np.ndarray | None
     time_ns: np.ndarray
     learner_codes: np.ndarray
     window_order: np.ndarray
     learner_start: np.ndarray
+    learner_stop: np.ndarray
     first: np.ndarray
     stop: np.ndarray
     start_ns: np.ndarray
     end_ns: np.ndarray
+    totals: WindowTotals | None = None
 
-    def _coded(self, name: str) -> CodedColumn:
-        """An EVENTS string column as codes, in the sorted log's row order."""
-        column = code_column(self.events[name])
-        return column if self.row_order is None else CodedColumn(column.codes[self.row_order], column.names)
+    def __post_init__(self) -> None:
+        self._coded_columns: dict[str, CodedColumn] = {}
+        self._coding = threading.Lock()
 
-    # The log's other columns are coded on first use, so features that do not need one
-    # never read it (and a caller may leave it out of the table).
-    @cached_property
-    def action(self) -> CodedColumn:
-        return self._coded("action")
+    def coded(self, name: str) -> CodedColumn:
+        """An EVENTS string column as codes, in this view's row order (coded once; thread-safe)."""
+        with self._coding:
+            if name not in self._coded_columns:
+                self._coded_columns[name] = code_column(take_rows(self.events[name], self.rows))
+            return self._coded_columns[name]
 
-    @cached_property
-    def outcome(self) -> CodedColumn:
-        return self._coded("outcome")
+    action = _Coded()
+    outcome = _Coded()
+    item = _Coded()
+    skill = _Coded()
 
-    @cached_property
-    def item(self) -> CodedColumn:
-        return self._coded("item")
+    def window_totals(self, name: str) -> pd.Series:
+        """How many rows of all windows (every block's) have each value of column ``name``:
+        value -> count, blank and missing values left out, only counts above zero."""
+        if self.totals is not None:
+            return self.totals.of(name)
+        return _value_counts(self.coded(name), self.member)
 
-    @cached_property
-    def skill(self) -> CodedColumn:
-        return self._coded("skill")
+    def rows_between(self, low: int, high: int) -> slice | np.ndarray:
+        """``events``' rows of this (whole log's) view's rows ``low:high``."""
+        return slice(low, high) if self.rows is None else self.rows[low:high]
+
+    def blocks(self, block_rows: int) -> Iterator[WindowEvents]:
+        """This view cut into views of whole learners, about ``block_rows`` rows each, in
+        log order; only blocks with windows (the first block holds learners without events)."""
+        starts = _run_starts(self.learner_codes)
+        block_of_run = starts // max(int(block_rows), 1)
+        lows = starts[np.append(True, block_of_run[1:] != block_of_run[:-1])] if len(starts) else np.zeros(1, np.int64)
+        highs = np.append(lows[1:], len(self.time_ns))
+        window_lows = np.searchsorted(self.learner_start, lows, "left")
+        window_lows[0] = 0
+        window_highs = np.append(window_lows[1:], len(self.first))
+        shared = self.totals or WindowTotals(self, zip(lows, highs, window_lows, window_highs))
+        chosen = [block for block in zip(lows, highs, window_lows, window_highs) if block[3] > block[2]]
+        for low, high, window_low, window_high in chosen or [(0, 0, 0, 0)]:
+            yield self.block(int(low), int(high), int(window_low), int(window_high), shared)
+
+    def block(self, low: int, high: int, window_low: int, window_high: int, totals: WindowTotals) -> WindowEvents:
+        """The view of rows ``low:high`` and the windows at ``window_low:window_high`` (their learners' own)."""
+        windows = slice(window_low, window_high)
+        return WindowEvents(
+            settings=self.settings, events=self.events, rows=self.rows_between(low, high), time_ns=self.time_ns[low:high],
+            learner_codes=self.learner_codes[low:high], window_order=self.window_order[windows],
+            learner_start=self.learner_start[windows] - low, learner_stop=self.learner_stop[windows] - low,
+            first=self.first[windows] - low, stop=self.stop[windows] - low, start_ns=self.start_ns[windows],
+            end_ns=self.end_ns[windows], totals=totals)
 
     @cached_property
     def counts(self) -> np.ndarray:
@@ -170,8 +246,7 @@ class WindowEvents:
 
     @cached_property
     def member(self) -> np.ndarray:
-        total = int(self.counts.sum())
-        return np.repeat(self.first - self.offsets, self.counts) + np.arange(total, dtype=np.int64)
+        return _member_rows(self.first, self.counts, self.offsets)
 
     @cached_property
     def member_window(self) -> np.ndarray:
@@ -240,6 +315,49 @@ class WindowEvents:
         return (np.searchsorted(rows, self.stop) - np.searchsorted(rows, self.learner_start)).astype(np.float64)
 
 
+class WindowTotals:
+    """Per string column, how many rows of all windows have each value, summed block by
+    block over the windows' rows only (never the whole column): what chooses the
+    action_ and outcome_ columns, the same for every block."""
+
+    def __init__(self, whole: WindowEvents, blocks: Iterator[tuple[int, int, int, int]]) -> None:
+        self._whole = whole
+        self._blocks = [tuple(map(int, block)) for block in blocks]
+        self._found: dict[str, pd.Series] = {}
+        self._lock = threading.Lock()
+
+    def of(self, name: str) -> pd.Series:
+        with self._lock:
+            if name not in self._found:
+                self._found[name] = self._count(name)
+            return self._found[name]
+
+    def _count(self, name: str) -> pd.Series:
+        whole, total = self._whole, pd.Series(dtype=np.int64)
+        for low, high, window_low, window_high in self._blocks:
+            first, counts = whole.first[window_low:window_high], whole.counts[window_low:window_high]
+            if not counts.sum():
+                continue
+            rows = whole.rows_between(low, high)
+            positions = _member_rows(first - low, counts, np.cumsum(counts) - counts)
+            values = take_rows(whole.events[name], positions + low if isinstance(rows, slice) else rows[positions])
+            block = _value_counts(code_column(values), None)
+            total = total.add(block, fill_value=0).astype(np.int64) if len(total) else block
+        return total
+
+
+def _value_counts(column: CodedColumn, rows: np.ndarray | None) -> pd.Series:
+    """value -> how many of ``rows`` (or all rows) have it (blank and missing left out; only counts above zero)."""
+    counts = column.counts(rows)
+    present = np.flatnonzero(counts)
+    return pd.Series(counts[present].astype(np.int64), index=pd.Index(column.names[present], dtype=object))
+
+
+def _member_rows(first: np.ndarray, counts: np.ndarray, offsets: np.ndarray) -> np.ndarray:
+    """Rows ``first[w]:first[w] + counts[w]`` of every window, one window after another."""
+    return np.repeat(first - offsets, counts) + np.arange(int(counts.sum()), dtype=np.int64)
+
+
 FeatureFunction = Callable[[WindowEvents], Mapping[str, np.ndarray]]
 FEATURES: dict[str, FeatureFunction] = {}
 """The registry: feature name -> function returning {column: per-window values}."""
@@ -256,11 +374,14 @@ def _ratio(numerator: np.ndarray, denominator: np.ndarray) -> np.ndarray:
         return np.where(denominator > 0, numerator / np.where(denominator > 0, denominator, 1), np.nan)
 
 
-def _counts_by_code(view: WindowEvents, column: CodedColumn, wanted: np.ndarray) -> np.ndarray:
-    """(windows x len(wanted)) counts of window rows whose code is each wanted code."""
+def _counts_by_value(view: WindowEvents, column: CodedColumn, wanted: list) -> np.ndarray:
+    """(windows x len(wanted)) counts of window rows whose value is each wanted value
+    (a value this part of the log never has counts 0)."""
     windows, width = len(view.counts), len(wanted)
     slot = np.full(len(column.names) + 1, -1, dtype=np.int64)  # code -1 reads the last slot
-    slot[wanted] = np.arange(width)
+    codes = pd.Index(column.names, dtype=object).get_indexer(pd.Index(wanted, dtype=object)) if width else []
+    found = np.flatnonzero(np.asarray(codes) >= 0)
+    slot[np.asarray(codes, dtype=np.int64)[found]] = found
     position = slot[column.codes[view.member]]
     keep = position >= 0
     flat = view.member_window[keep] * width + position[keep]
@@ -278,23 +399,20 @@ def activity(view: WindowEvents) -> dict[str, np.ndarray]:
 @feature
 def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
     """action_<name>: events of each of the top-K actions (by events in all windows) in the window."""
-    action = view.action
-    totals = action.counts(view.member)  # only window events choose the columns: nothing else shapes the table
-    ranked = sorted(range(len(action.names)), key=lambda code: (-totals[code], str(action.names[code])))
-    top = np.asarray([code for code in ranked if totals[code] > 0][: view.settings.top_actions], dtype=np.int64)
-    table = _counts_by_code(view, action, top)
-    names = column_names("action", [str(action.names[code]) for code in top])
+    totals = view.window_totals("action")  # only window events choose the columns: nothing else shapes the table
+    ranked = sorted(zip(totals.index, totals.to_numpy()), key=lambda pair: (-pair[1], str(pair[0])))
+    top = [value for value, _ in ranked[: view.settings.top_actions]]
+    table = _counts_by_value(view, view.action, top)
+    names = column_names("action", [str(value) for value in top])
     return {name: table[:, column] for column, name in enumerate(names)}
 
 
 @feature
 def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
     """outcome_<name>: events with each (non-empty) outcome seen in any window, in the window."""
-    outcome = view.outcome
-    present = np.flatnonzero(outcome.counts(view.member))
-    present = present[np.argsort(outcome.names[present].astype(str), kind="stable")]
-    table = _counts_by_code(view, outcome, present)
-    names = column_names("outcome", [str(outcome.names[code]) for code in present])
+    present = sorted(view.window_totals("outcome").index, key=str)
+    table = _counts_by_value(view, view.outcome, present)
+    names = column_names("outcome", [str(value) for value in present])
     return {name: table[:, column] for column, name in enumerate(names)}
 
 
@@ -495,9 +613,9 @@ def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settin
     first = _search_runs(time_ns, learner_start, learner_stop, window_start)
     stop = _search_runs(time_ns, first, learner_stop, window_end)
     return WindowEvents(
-        settings=settings, events=events, row_order=row_order, time_ns=time_ns, learner_codes=learner.codes,
-        window_order=window_order, learner_start=learner_start, first=first, stop=stop, start_ns=window_start,
-        end_ns=window_end,
+        settings=settings, events=events, rows=row_order, time_ns=time_ns, learner_codes=learner.codes,
+        window_order=window_order, learner_start=learner_start, learner_stop=learner_stop, first=first, stop=stop,
+        start_ns=window_start, end_ns=window_end,
     )
 
 
@@ -523,28 +641,39 @@ def compute_features(
     settings: FeatureSettings = FeatureSettings(),
     features: Mapping[str, FeatureFunction] = FEATURES,
     threads: int = 2,
+    block_rows: int = BLOCK_ROWS,
 ) -> pd.DataFrame:
     """One row per window (``windows``' index): start_ns, end_ns, then every feature column.
 
     ``frame.attrs[FEATURE_OF_COLUMN]`` maps each feature column to the name of the
     function that computed it (how the manifest finds a lab feature's definition).
 
-    Feature functions run on ``threads`` threads (numpy releases the GIL in its loops).
-    The arrays they share are cached properties of the view: built once under
-    cached_property's lock (Python 3.11); on later Pythons two threads may at worst both
-    build the same array.
+    The features run on blocks of whole learners of about ``block_rows`` events (the
+    result does not depend on it), each block's feature functions on ``threads`` threads
+    (numpy releases the GIL in its loops).  The arrays they share are cached properties
+    of the block's view: built once under cached_property's lock (Python 3.11); on later
+    Pythons two threads may at worst both build the same array.
     """
-    view = index_windows(events, windows, settings)
-    columns: dict[str, np.ndarray] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
+    whole = index_windows(events, windows, settings)
+    parts: dict[str, list[np.ndarray]] = {}
     source: dict[str, str] = {}
     with ThreadPoolExecutor(max_workers=threads) as pool:
-        for name, result in zip(features, pool.map(lambda function: function(view), features.values())):
-            columns.update(result)
-            source.update(dict.fromkeys(result, name))
+        for number, view in enumerate(whole.blocks(block_rows)):
+            columns: dict[str, np.ndarray] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
+            for name, result in zip(features, pool.map(lambda function: function(view), features.values())):
+                columns.update(result)
+                source.update(dict.fromkeys(result, name))
+            if number and list(columns) != list(parts):
+                raise ValueError(f"feature columns differ between blocks of learners ({sorted(set(columns) ^ set(parts))}); "
+                                 "a feature must choose its columns from view.window_totals, not from its block")
+            for name, values in columns.items():
+                parts.setdefault(name, []).append(values)
+            del view, columns
     restored = {}
-    for name, values in columns.items():
-        restored[name] = np.empty_like(values)
-        restored[name][view.window_order] = values
+    for name, values in parts.items():
+        joined = np.concatenate(values) if len(values) > 1 else values[0]
+        restored[name] = np.empty_like(joined)
+        restored[name][whole.window_order] = joined
     frame = pd.DataFrame(restored, index=windows.index)
     frame.attrs[FEATURE_OF_COLUMN] = source  # output column -> the feature function that made it
     return frame

@@ -16,7 +16,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from pathlib import Path
 
 import pyarrow as pa
@@ -47,9 +47,12 @@ def file_sha256(path: Path) -> str:
     return digest.hexdigest()
 
 
-def file_digests(paths: Iterable[Path], names: Iterable[str]) -> dict[str, str]:
-    """name -> "sha256:<hex>" of each file's bytes."""
-    return {name: "sha256:" + file_sha256(path) for path, name in zip(paths, names, strict=True)}
+def file_digests(paths: Iterable[Path], names: Iterable[str], known: Mapping[str, str] | None = None) -> dict[str, str]:
+    """name -> "sha256:<hex>" of each file's bytes; ``known`` (str(path) -> hex, e.g. from
+    reading the logs) saves hashing a large file twice."""
+    known = known or {}
+    return {name: "sha256:" + (known.get(str(path)) or file_sha256(path))
+            for path, name in zip(paths, names, strict=True)}
 
 
 def build_manifest(

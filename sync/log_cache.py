@@ -34,14 +34,15 @@ class LogCache:
     def __init__(self, folder: Path) -> None:
         self.folder = Path(folder)
 
-    def key(self, spec: LogSpec, path: Path, only: frozenset[str] | None) -> tuple[str, str]:
-        """(the file's entry prefix, the full entry name)."""
+    def key(self, spec: LogSpec, path: Path, only: frozenset[str] | None) -> tuple[str, str, str]:
+        """(the file's entry prefix, the full entry name, the file's SHA-256 in hex: the one
+        time it is hashed, so an export's manifest takes it from the read report)."""
         with open(path, "rb") as handle:
             content = hashlib.file_digest(handle, "sha256").hexdigest()
         settings = json.dumps([CACHE_VERSION, spec.format, spec.timezone, spec.encoding, spec.delimiter,
                                spec.time_format, sorted(spec.columns.items()), sorted(only) if only else None])
         prefix = hashlib.sha256(str(Path(path).resolve()).encode()).hexdigest()[:16]
-        return prefix, f"{prefix}-{content[:32]}-{hashlib.sha256(settings.encode()).hexdigest()[:16]}"
+        return prefix, f"{prefix}-{content[:32]}-{hashlib.sha256(settings.encode()).hexdigest()[:16]}", content
 
     def load(self, entry: str) -> tuple[pa.Table, dict] | None:
         table_path, meta_path = self.folder / f"{entry}.parquet", self.folder / f"{entry}.json"

@@ -24,7 +24,8 @@ FILE_THREADS = 2
 @dataclass
 class ReadReport:
     """What reading the logs found: rows kept per file (and rows read, before the filter to
-    the observed learners), DST decisions, learners not in the roster."""
+    the observed learners), DST decisions, learners not in the roster, and each file's
+    SHA-256 (hex) when the cache hashed it."""
 
     rows_per_file: dict[str, int] = field(default_factory=dict)
     rows_read_per_file: dict[str, int] = field(default_factory=dict)
@@ -32,6 +33,7 @@ class ReadReport:
     nonexistent_local_times: int = 0
     unknown_learners: dict[str, int] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
+    digests: dict[str, str] = field(default_factory=dict)
 
     @property
     def rows(self) -> int:
@@ -68,7 +70,8 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
         if spec.format == "xapi":
             for path in files:
                 part = _through_cache(cache, spec, path, only, lambda: read_xapi_log(spec, path, only),
-                                      part_to_entry, lambda table, meta: part_from_entry(str(path), table, meta))
+                                      part_to_entry, lambda table, meta: part_from_entry(str(path), table, meta),
+                                      report.digests)
                 statement_parts.append(part)
                 counts = counts + part.counts
                 report.rows_read_per_file[str(path)] = part.rows_read
@@ -77,7 +80,7 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
 
         def read_one(path: Path, spec: LogSpec = spec):
             return _through_cache(cache, spec, path, only, lambda: READERS[spec.format](spec, path, only),
-                                  lambda result: events_to_entry(*result), events_from_entry)
+                                  lambda result: events_to_entry(*result), events_from_entry, report.digests)
 
         # Files of a folder (a partitioned dataset) two at a time: Arrow reads without
         # Python's lock, so one file's parsing overlaps the other's reading.
@@ -117,11 +120,12 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
 
 
 def _through_cache(cache: LogCache | None, spec: LogSpec, path: Path, only: frozenset[str] | None,
-                   read, to_entry, from_entry):
-    """``read()``'s result for one file, from the cache when its digest and settings match."""
+                   read, to_entry, from_entry, digests: dict[str, str]):
+    """``read()``'s result for one file, from the cache when its digest and settings match;
+    the file's digest goes into ``digests``."""
     if cache is None:
         return read()
-    prefix, entry = cache.key(spec, path, only)
+    prefix, entry, digests[str(path)] = cache.key(spec, path, only)
     found = cache.load(entry)
     if found is not None:
         return from_entry(*found)

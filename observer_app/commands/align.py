@@ -8,7 +8,8 @@ import sys
 from pathlib import Path
 
 from observer_app.pipeline.alignment import (DEFAULT_MAX_STANDARD_ERROR_S, METHODS, Alignment, align_study,
-                                            clock_reference_ns, model_summary, read_study_logs, reference_text)
+                                            clock_log_ids, clock_reference_ns, model_summary, read_study_logs,
+                                            reference_text)
 from observer_app.pipeline.coverage import coverage_lines, coverage_report, study_coverage
 from observer_app.study.folder import load_study
 from sync.errors import InputError
@@ -76,10 +77,11 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(None, "--max-standard-error", f"{args.max_standard_error!r} is not a positive number of seconds")
     study = load_study(args.study)
     reference = clock_reference_ns(study)
-    # read once, for the fits and the coverage; hand-set offsets need no logs, so logs not
-    # yet on disk stop align only when a fit needs them (align_study reads them then)
+    # read once, for the fits and the coverage, and only the learners they use; hand-set
+    # offsets need no logs, so logs not yet on disk stop align only when a fit needs them
+    # (align_study reads them then)
     present = bool(study.logs) and all(Path(spec.path).exists() for spec in study.logs)
-    logs = read_study_logs(study) if present else None
+    logs = read_study_logs(study, only_log_ids=clock_log_ids(study)) if present else None
     try:
         alignment = align_study(study, args.method, offsets, progress=not args.json, logs=logs,
                                 refit=tuple(args.refit), max_standard_error_s=args.max_standard_error,
@@ -98,7 +100,8 @@ def run(args: argparse.Namespace) -> int:
         return 0
     report = alignment.read_report
     if report.rows_per_file:
-        print(f"read {report.rows} log events from {len(report.rows_per_file)} files")
+        print(f"read {report.rows_read} log rows from {len(report.rows_per_file)} files; kept {report.rows} events "
+              "of the observed learners")
     for warning in report.warnings:
         print(f"  note: {warning}")
     print(f"offsets at {reference_text(reference)} (the hour the study's first live session began); "
@@ -152,7 +155,8 @@ def _payload(study, alignment: Alignment, reference: int, stored: bool) -> dict:
         "skipped": alignment.skipped,
         "borrowed": {device: borrowing.as_dict() for device, borrowing in alignment.borrowed.items()},
         "typed_clock_differences": alignment.typed_differences,
-        "logs": {"rows_per_file": report.rows_per_file, "ambiguous_local_times": report.ambiguous_local_times,
+        "logs": {"rows_read": report.rows_read, "rows": report.rows, "rows_per_file": report.rows_per_file,
+                 "rows_read_per_file": report.rows_read_per_file, "ambiguous_local_times": report.ambiguous_local_times,
                  "nonexistent_local_times": report.nonexistent_local_times,
                  "unknown_learners": report.unknown_learners, "warnings": report.warnings},
     }

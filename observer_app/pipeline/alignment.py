@@ -243,7 +243,7 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
     if not to_fit:
         events, report = empty_events(), ReadReport()
     else:
-        events, report = logs if logs is not None else read_study_logs(study)
+        events, report = logs if logs is not None else read_study_logs(study, only_log_ids=clock_log_ids(study))
     observations, marks = _with_log_ids(observations, study), _with_log_ids(marks, study)
     known = set(events["learner"].cat.categories.astype(str))
     models = {device: manual_model(device, offset) for device, offset in manual_offsets.items()}
@@ -466,12 +466,39 @@ def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
     """The study's [[logs]] as one EVENTS table (sync/tables.py), learners checked against the roster.
 
     ``if_missing`` is what to tell the user when study.toml declares no logs;
-    ``only_log_ids`` keeps just those learners' (whole) logs, filtered while reading.
+    ``only_log_ids`` keeps just those learners' (whole) logs, filtered while reading.  When
+    one of them has no events the logs are read whole after all: the coverage check can
+    then show the ids the logs do use, and every row is checked as without the filter.
     """
     if not study.logs:
         raise InputError(study.dir / "study.toml", "[[logs]]", if_missing)
-    return read_logs(study.logs, known_log_ids=study.roster["log_id"].dropna().astype(str),
-                     only_log_ids=only_log_ids, cache_dir=study.dir / PARSED_LOGS_DIR)
+
+    def read(only: Iterable[str] | None) -> tuple[pd.DataFrame, ReadReport]:
+        return read_logs(study.logs, known_log_ids=study.roster["log_id"].dropna().astype(str),
+                         only_log_ids=only, cache_dir=study.dir / PARSED_LOGS_DIR)
+
+    if only_log_ids is None:
+        return read(None)
+    wanted = set(map(str, only_log_ids))
+    events, report = read(wanted)
+    if not wanted <= set(events["learner"].astype(str).unique()):
+        return read(None)
+    return events, report
+
+
+def observed_log_ids(study: Study, learners: Iterable[str]) -> list[str]:
+    """The roster's log ids of ``learners`` (roster learner ids), sorted: whose logs a verb reads."""
+    roster = study.roster.dropna(subset=["log_id"])
+    return sorted(set(roster.loc[roster["learner"].astype(str).isin(set(map(str, learners))), "log_id"].astype(str)))
+
+
+def clock_log_ids(study: Study) -> list[str]:
+    """The log ids the clock fits can use: learners observed or named by a sync mark
+    (the fits and the scan search only those learners' events)."""
+    with Store(study.store_path) as store:
+        learners = set(store.observations(study.scheme.dimension_names)["learner"].astype(str))
+        learners |= set(store.sync_marks()["learner"].dropna().astype(str))
+    return observed_log_ids(study, learners)
 
 
 def stored_clock_decisions(study: Study) -> pd.DataFrame:

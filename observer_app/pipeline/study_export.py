@@ -21,8 +21,8 @@ from export.pseudonyms import pseudonym, read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.pipeline.alignment import (models_in_effect, read_study_logs, require_clock_models,
-                                            stored_clock_decisions)
+from observer_app.pipeline.alignment import (models_in_effect, observed_log_ids, read_study_logs,
+                                            require_clock_models, stored_clock_decisions)
 from observer_app.pipeline.coverage import coverage_report
 from observer_app.pipeline.units import require_placed, shift_warning, study_units
 from observer_app.study.store import Store
@@ -100,15 +100,9 @@ def export_study(
 
         bar.set_postfix_str(STEPS[1])
         # Only the observed learners' logs are read (each whole: history features need it).
-        observed = set(observations["learner"].astype(str))
-        roster = study.roster.dropna(subset=["log_id"])
-        observed_log_ids = roster.loc[roster["learner"].astype(str).isin(observed), "log_id"].astype(str)
+        observed = observed_log_ids(study, observations["learner"])
         events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs",
-                                              only_log_ids=observed_log_ids)
-        if not set(observed_log_ids) <= set(events["learner"].astype(str).unique()):
-            # Some observed id is not in the logs: read them whole, so that the coverage
-            # check can show the ids the logs do use (it refuses the export either way).
-            events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs")
+                                              only_log_ids=observed)
         bar.update()
 
         bar.set_postfix_str(STEPS[2])
@@ -146,7 +140,7 @@ def export_study(
             result, version=__version__, scheme_hash=study.scheme.content_hash, parameters=parameters,
             clock_models=[{**clock_summary(model, key), "clock": _pseudonymous(clock, key),
                            "uncertain_accepted": uncertain.get(clock, False)} for clock, model in models.items()],
-            inputs=file_digests(*zip(*inputs)), output_format=output_format,
+            inputs=file_digests(*zip(*inputs), known=read_report.digests), output_format=output_format,
         )
         manifest["coverage"] = coverage.summary()
         shift_hints = found.report.get("clock_shift_hints", [])

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+from pathlib import Path
 
 import duckdb
 import numpy as np
@@ -152,3 +153,27 @@ def test_demo_runs_the_export_and_check_steps(tmp_path) -> None:
     activity = summary["detector"]["activity"]
     assert activity["learners"] == table["group"].nunique()
     assert activity["majority_baseline"]["auc"] == pytest.approx(0.5)
+
+
+def test_export_hashes_each_log_once(study, tmp_path, monkeypatch, capsys) -> None:
+    """The log cache's digest is the manifest's: a large log is read for hashing once, not twice."""
+    opened: list[str] = []
+    real = hashlib.file_digest
+
+    def counting(handle, digest):
+        opened.append(handle.name)
+        return real(handle, digest)
+
+    def whole_file(path) -> str:
+        with open(path, "rb") as handle:
+            return counting(handle, "sha256").hexdigest()
+
+    monkeypatch.setattr(hashlib, "file_digest", counting)
+    monkeypatch.setattr(export.writer, "file_sha256", whole_file)
+    out = tmp_path / "windows.parquet"
+    assert main(["export", str(study), "--out", str(out), "--json"]) == 0
+    log = study / "logs" / "centre_north.csv"
+    assert [Path(name).resolve() for name in opened].count(log.resolve()) == 1
+    manifest = json.loads(manifest_path(out).read_text())
+    # Outside reference: hashlib over the file's bytes.
+    assert manifest["inputs"]["logs/centre_north.csv"] == "sha256:" + hashlib.sha256(log.read_bytes()).hexdigest()

@@ -3,6 +3,8 @@ Parquet dataset is read as one log, and the window features are bit-identical wi
 without the filter (history features read the learner's whole log, which is kept)."""
 from __future__ import annotations
 
+import json
+
 import duckdb
 import numpy as np
 import pandas as pd
@@ -96,3 +98,35 @@ def test_features_are_bit_identical_with_and_without_the_filter(tmp_path, log_fo
     for column in full.columns:  # bit for bit, NaN where NaN
         assert np.array_equal(full[column].to_numpy(), filtered[column].to_numpy(), equal_nan=True), column
     assert full["history_attempts"].sum() > 0  # the history features were exercised
+
+
+@pytest.mark.parametrize("method", ["marks", "auto"])
+def test_align_reads_only_the_observed_learners_and_stores_the_same_models(tmp_path, method):
+    from observer_app.pipeline.alignment import fit_clock_models, read_study_logs, stored_clock_models
+    from observer_app.study.folder import load_study
+    from tests.conftest import call_cli
+    from tests.sync.sync_clock_study import build_study
+
+    folder = build_study(tmp_path / "study", learners=4, hours_per_day=0.5)
+    # Others on the platform: learners outside the roster and a roster learner never observed.
+    log_path = folder / "logs" / "centre_north.csv"
+    log = pd.read_csv(log_path)
+    others = pd.concat([log.assign(trainee=f"n-09{number:02d}") for number in range(3)], ignore_index=True)
+    pd.concat([log, others], ignore_index=True).to_csv(log_path, index=False)
+    roster = pd.read_csv(folder / "roster.csv")
+    pd.concat([roster, pd.DataFrame({"learner": ["L99"], "label": ["Bench 99"], "log_id": ["n-0900"]})]
+              ).to_csv(folder / "roster.csv", index=False)
+    study = load_study(folder)
+    everyone = fit_clock_models(study, method, logs=read_study_logs(study))  # no filter: every learner read
+
+    result = call_cli("align", folder, "--method", method, "--accept-uncertain", "--json")
+    assert result.returncode == 0, result.stderr
+    payload = json.loads(result.stdout)
+    assert payload["logs"]["rows_read"] == len(log) + len(others)
+    assert payload["logs"]["rows"] == len(log)  # the observed learners' rows only
+    stored = stored_clock_models(study)
+    assert set(stored) == set(everyone.models) and stored
+    for key, model in everyone.models.items():  # identical models, bit for bit in their JSON
+        assert stored[key].to_json() == model.to_json(), key
+    text = call_cli("align", folder, "--method", method, "--accept-uncertain")
+    assert f"read {len(log) + len(others)} log rows" in text.stdout and f"kept {len(log)} events" in text.stdout
