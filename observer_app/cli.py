@@ -12,9 +12,10 @@ import argparse
 import importlib
 import os
 import sys
+import warnings
 
 from observer_app import __version__
-from sync.errors import InputError
+from sync.errors import InputError, InputWarning
 
 # Verb modules (dotted paths) in the order --help lists them.  Only verbs that work are listed.
 COMMANDS: tuple[str, ...] = (
@@ -90,6 +91,29 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     return parser
 
 
+def _run_with_notes(args: argparse.Namespace) -> int:
+    """Run the verb; then print each InputWarning it met once, as a note on stderr.
+
+    Notes come after a successful run only: a refused run prints its one error line alone."""
+    notes: list[str] = []
+    original = warnings.showwarning
+
+    def show(message, category, filename, lineno, file=None, line=None):  # noqa: ANN001 -- warnings' signature
+        if issubclass(category, InputWarning):
+            if str(message) not in notes:
+                notes.append(str(message))
+        else:
+            original(message, category, filename, lineno, file, line)
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("always", InputWarning)
+        warnings.showwarning = show
+        code = int(args.run(args) or 0)
+    for note in notes:
+        sys.stderr.write(f"fieldmark {args.command}: note: {note}\n")
+    return code
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else list(argv)
     chosen = next((a for a in argv if not a.startswith("-")), None)
@@ -100,7 +124,7 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 2
     try:
-        return int(args.run(args) or 0)
+        return _run_with_notes(args)
     except InputError as error:
         sys.stderr.write(f"fieldmark {args.command}: {error.line()}\n")
         return 2

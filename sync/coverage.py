@@ -97,6 +97,13 @@ def unmatched_log_ids_problem(coverage: Coverage) -> str | None:
     unmatched = coverage.unmatched
     if unmatched.empty:
         return None
+    without = unmatched[unmatched["log_id"].fillna("").astype(str).str.strip() == ""]
+    if len(without):
+        learners = without["learner"].astype(str).tolist()
+        shown = ", ".join(learners[:SHOWN_IDS]) + (f" and {len(learners) - SHOWN_IDS} more"
+                                                  if len(learners) > SHOWN_IDS else "")
+        return (f"{len(learners)} observed learner(s) have no log_id, or are no longer in roster.csv: {shown}; "
+                "add each with their log id (a learner coded once stays in the roster)")
     missing = unmatched["log_id"].tolist()
     present = list(coverage.log_ids_in_logs)
     shown = ", ".join(repr(value) for value in missing[:SHOWN_IDS])

@@ -1,4 +1,5 @@
-"""The one error type for a user's mistake in an input file or option.
+"""The one error type for a user's mistake in an input file or option, and its
+warning twin for what a person should see but need not stop the work.
 
 Raised at the boundary (loaders, command line); the CLI turns it into a single
 stderr line and exit code 2.  It lives in sync/ because sync is the bottom of the
@@ -26,3 +27,9 @@ class InputError(Exception):
         """One line: ``file: where: message`` with the empty parts left out."""
         parts = [p for p in (self.file, self.where) if p]
         return ": ".join(parts + [self.message])
+
+
+class InputWarning(UserWarning):
+    """Something in an input a person should see but that need not stop the work (a roster
+    line without a log_id, two learners on one log id); the CLI prints each once, as a note
+    after a successful run."""

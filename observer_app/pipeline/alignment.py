@@ -40,6 +40,7 @@ from tqdm import tqdm
 
 from observer_app.study.store import Store, now_utc
 from observer_app.study.folder import Study
+from observer_app.study.roster import shared_log_id_problem
 from sync.clock import ClockModel, manual_model
 from sync.clock_pairs import partner_time_ns, relative_offsets
 from sync.clock_gross import gross_mistake
@@ -243,6 +244,9 @@ def fit_clock_models(study: Study, method: str = "best", manual_offsets: dict[st
     if not to_fit:
         events, report = empty_events(), ReadReport()
     else:
+        shared = shared_log_id_problem(study.roster, observations["learner"])
+        if shared:  # a fit would read two learners' codes against one learner's events
+            raise InputError(study.dir / "roster.csv", "column log_id", shared)
         events, report = logs if logs is not None else read_study_logs(study, only_log_ids=clock_log_ids(study))
     observations, marks = _with_log_ids(observations, study), _with_log_ids(marks, study)
     known = set(events["learner"].cat.categories.astype(str))

@@ -24,6 +24,7 @@ from observer_app import __version__
 from observer_app.pipeline.alignment import (models_in_effect, observed_log_ids, read_study_logs,
                                             require_clock_models, stored_clock_decisions)
 from observer_app.pipeline.coverage import coverage_report
+from observer_app.study.roster import shared_log_id_problem
 from observer_app.pipeline.units import require_placed, shift_warning, study_units
 from observer_app.study.store import Store
 from observer_app.study.folder import ROSTER_FILE, SCHEME_FILE, load_study
@@ -89,6 +90,9 @@ def export_study(
             sampling = replay_sampling(store, observations)
         if observations.empty:
             raise InputError(study.store_path, None, "no observations to export; code or import some first")
+        shared = shared_log_id_problem(study.roster, observations["learner"])
+        if shared:
+            raise InputError(study.dir / ROSTER_FILE, "column log_id", shared)
         decisions = stored_clock_decisions(study)  # the clock history is read once
         models = models_in_effect(decisions)
         require_clock_models(study, observations, models)

@@ -6,13 +6,14 @@ from __future__ import annotations
 
 import zoneinfo
 from dataclasses import dataclass, field
+from warnings import warn
 from pathlib import Path
 
 import pandas as pd
 
 from observer_app.study.roster import load_roster
 from observer_app.study.scheme import Scheme, load_scheme, read_toml
-from sync.errors import InputError
+from sync.errors import InputError, InputWarning
 from sync.log_spec import LogSpec, log_spec_from_toml
 
 STUDY_FILE = "study.toml"
@@ -111,6 +112,8 @@ def load_study(directory: str | Path) -> Study:
         raise InputError(path, "export.attributes", "must be a list of roster column names, e.g. [\"site\", \"cohort\"]")
     scheme = load_scheme(directory / SCHEME_FILE)
     roster, warnings = load_roster(directory / ROSTER_FILE)
+    for text in warnings:
+        warn(text, InputWarning, stacklevel=2)
     return Study(
         dir=directory, name=str(name), timezone=timezone, window_seconds=float(window), order=order,
         seed=seed, scheme=scheme, roster=roster, logs=specs, warnings=tuple(warnings),

@@ -6,6 +6,8 @@ an alias, never a full name unless the study deliberately puts one there.
 """
 from __future__ import annotations
 
+from collections.abc import Iterable
+
 import csv
 import io
 from pathlib import Path
@@ -46,6 +48,7 @@ def load_roster(path: str | Path) -> tuple[pd.DataFrame, list[str]]:
         raise InputError(path, f"line {numbered[0][0]}", "a column name appears twice; rename it")
     records = []
     seen: dict[str, int] = {}
+    log_id_lines: dict[str, tuple[str, int]] = {}
     warnings: list[str] = []
     for (number, _), row in zip(numbered[1:], rows[1:]):
         if len(row) != len(header):
@@ -61,7 +64,29 @@ def load_roster(path: str | Path) -> tuple[pd.DataFrame, list[str]]:
             record["label"] = learner
         if not record["log_id"]:
             warnings.append(f"{path}: line {number}: learner {learner!r} has no log_id; their observations cannot be aligned to the logs")
+        elif record["log_id"] in log_id_lines:
+            other, line = log_id_lines[record["log_id"]]
+            warnings.append(f"{path}: line {number}: learner {learner!r} has log_id {record['log_id']!r}, as learner "
+                            f"{other!r} on line {line}; export refuses two observed learners on one log, and so does align when it fits a clock")
+        else:
+            log_id_lines[record["log_id"]] = (learner, number)
         records.append(record)
     if not records:
         raise InputError(path, None, "no learners; add one line per learner below the header")
     return pd.DataFrame.from_records(records, columns=header).astype("string"), warnings
+
+
+def shared_log_id_problem(roster: pd.DataFrame, observed: Iterable[str]) -> str | None:
+    """One sentence when observed learners share a roster log_id (None when none do).
+
+    Two learners on one log id put both learners' labels on one learner's events: almost
+    always a copied line.  Coding may go on with such a roster; aligning and exporting may not."""
+    rows = roster[roster["learner"].astype(str).isin(set(map(str, observed)))].dropna(subset=["log_id"])
+    rows = rows[rows["log_id"].astype(str) != ""]
+    shared = rows[rows["log_id"].duplicated(keep=False)]
+    if shared.empty:
+        return None
+    log_id = shared["log_id"].iloc[0]
+    learners = shared.loc[shared["log_id"] == log_id, "learner"].astype(str).tolist()
+    return (f"observed learners {', '.join(learners)} share log_id {log_id!r}: each learner's labels would land on "
+            "the same log events; give each learner their own log id in roster.csv")

@@ -12,6 +12,7 @@ from pathlib import Path
 import pytest
 
 from observer_app.study.folder import load_study
+from sync.errors import InputWarning
 from tests.conftest import assert_user_error, call_cli, run_cli
 
 
@@ -117,9 +118,16 @@ def test_roster_missing_column(study: Path) -> None:
 
 def test_learner_without_log_id_is_a_warning_not_an_error(study: Path) -> None:
     replace(study / "roster.csv", "L03,Bench 3,n-0003", "L03,Bench 3,")
-    loaded = load_study(study)
+    with pytest.warns(InputWarning, match="learner 'L03' has no log_id"):
+        loaded = load_study(study)
     assert len(loaded.roster) == 4
     assert any("L03" in warning and "log_id" in warning for warning in loaded.warnings)
+    codes = study / "codes.csv"
+    codes.write_text("coder,learner,time,activity\nann,L01,2026-03-02T09:00:00+01:00,on_task\n")
+    shown = call_cli("import", study, codes)  # a verb that loads the study says it once, as a note
+    assert shown.returncode == 0, shown.stderr
+    assert shown.stderr.count("note:") == 1 and "fieldmark import: note: " in shown.stderr
+    assert "'L03' has no log_id" in shown.stderr
 
 
 def test_scheme_hash_ignores_comments_but_not_content(study: Path) -> None:
