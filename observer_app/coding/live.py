@@ -67,6 +67,7 @@ from observer_app.study.importing import IMPORTED_ORDER
 # a reboot (monotonic restarts) or a suspend (monotonic pauses) exceeds it.
 COMPARABLE_TOLERANCE_SECONDS = 5.0
 
+
 @dataclass
 class _Window(CodedUnit):
     """The current turn as the session sees it: its row in the store and the codes in effect."""

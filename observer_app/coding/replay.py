@@ -309,7 +309,8 @@ class ReplaySession(CodingSession):
         if entry.code_id is None:
             self._skipped.discard(position)
             return f"Skip undone: back to clip {position + 1} ({self._clip_learner(position)})"
-        return f"Undone {entry.dimension}: {self._code_label(entry)}" + (f" (back to clip {position + 1})" if back else "")
+        back_to = f" (back to clip {position + 1})" if back else ""
+        return f"Undone {entry.dimension}: {self._code_label(entry)}{back_to}"
 
     def skip(self) -> bool:
         """Leave the current clip: a no-code row when nothing was coded in it, then the next clip."""
