@@ -38,6 +38,8 @@ def command_keys(unit: str, undo: str, own: CommandKeys) -> CommandKeys:
             *own,
             (Qt.Key.Key_F10, "F10", "end the session (press twice)", "end"),
             (Qt.Key.Key_F1, "F1", "show / hide all keys", "all keys"))
+
+
 # Keys that only modify another key: pressing them alone is not a mistake worth a hint.
 MODIFIER_KEYS = frozenset({Qt.Key.Key_Shift, Qt.Key.Key_Control, Qt.Key.Key_Alt, Qt.Key.Key_Meta, Qt.Key.Key_AltGr,
                            Qt.Key.Key_CapsLock, Qt.Key.Key_NumLock, Qt.Key.Key_Super_L, Qt.Key.Key_Super_R})
@@ -52,19 +54,17 @@ def unknown_key_hint(event: QKeyEvent) -> str:
     return f"{name} is not a key of this screen  ·  F1 lists the keys"
 
 
-
-def key_list_html(scheme, command_keys, closing: str) -> str:
+def key_list_html(scheme, keys: CommandKeys, closing: str) -> str:
     """The F1 key list: every code's key by dimension, then the screen's command keys."""
     codes = []
     for dimension in scheme.dimensions:
         codes.append(f"<tr><td colspan='2'><br><b>{dimension_title(dimension.name).upper()}</b></td></tr>")
         codes += [f"<tr><td><b>{c.key.upper()}</b></td><td>{c.label}</td></tr>" for c in dimension.codes]
-    commands = [f"<tr><td><b>{key}</b></td><td>{what}</td></tr>" for _, key, what, _ in command_keys]
+    commands = [f"<tr><td><b>{key}</b></td><td>{what}</td></tr>" for _, key, what, _ in keys]
     return ("<h2>Keys</h2><table width='100%'><tr>"
             f"<td valign='top' width='45%'><table cellspacing='5'>{''.join(codes)}</table></td>"
             f"<td valign='top'><table cellspacing='5'><tr><td colspan='2'><br><b>COMMANDS</b></td></tr>"
             f"{''.join(commands)}</table></td></tr></table><p>{closing}</p>")
-
 
 
 class FitLabel(QLabel):
@@ -118,7 +118,6 @@ class FitLabel(QLabel):
             self._fit()
 
 
-
 class NoteEdit(QLineEdit):
     """The note line: Enter saves, Escape gives up; neither reaches the screen behind it."""
 
@@ -133,8 +132,6 @@ class NoteEdit(QLineEdit):
             self._on_save()
         else:
             super().keyPressEvent(event)
-
-
 
 
 class CodingScreen(QWidget):
