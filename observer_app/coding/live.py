@@ -1,13 +1,11 @@
 """The live coding session: every decision the observing screen shows, with no Qt in sight.
 
-A ``LiveSession`` owns the round-robin schedule, the observation store and a clock
-(observer_app/coding/clock.py).  It decides whose turn it is, how much time is
-left, what a key press means, when a window ends and what gets written; the Qt view
-only listens (``add_listener``), renders ``state()`` and forwards keys.
-
-Durability rule: a code counts as saved only after ``Store.record_code`` returned,
-i.e. after SQLite committed it with synchronous=FULL.  If the write fails the code is
-not shown and the state carries the error.
+A ``LiveSession`` is the live kind of coding session (observer_app/coding/
+coding_session.py decides what a key, an undo or a note does to a window, and that a
+code counts as saved only once it is durable).  It owns the round-robin schedule and a
+clock (observer_app/coding/clock.py) and decides whose turn it is, how much time is
+left and when a window ends; the Qt view only listens (``add_listener``, typed
+SessionEvents), renders ``state()`` and forwards keys.
 
 Time: the session measures time in *elapsed seconds on the schedule's grid*, read from
 the monotonic clock (it never jumps).  The grid's zero is the session start (solo),
@@ -33,9 +31,6 @@ Rules this module decides (one home each):
 - Marking the current learner absent ends their turn at once in solo mode; in paired
   mode the turn runs to the boundary so both devices stay aligned, and the learner's
   later slots are skipped (nothing coded, nothing written), never removed.
-- Undo retracts the newest code still in effect with a retraction row (code NULL)
-  that supersedes it; nothing is deleted.  Re-coding a dimension in the same window
-  writes a correction that supersedes the earlier code.
 - Resume: an interrupted session (no end row) continues on the same grid.  Elapsed
   time comes from the monotonic clock when it is still comparable with the wall clock
   (same boot, no suspend), else from wall-clock time since the session started.
@@ -48,9 +43,8 @@ Rules this module decides (one home each):
 from __future__ import annotations
 
 import math
-import sqlite3
-from collections.abc import Callable, Iterable
-from dataclasses import dataclass, field
+from collections.abc import Iterable
+from dataclasses import dataclass
 from datetime import datetime, timedelta
 from zoneinfo import ZoneInfo
 
@@ -58,6 +52,8 @@ import pandas as pd
 
 from observer_app.coding.schedule import RoundRobin, Turn
 from observer_app.coding.clock import Clock
+from observer_app.coding.coding_session import CodedUnit, CodingSession, UndoEntry
+from observer_app.coding.session_events import EventKind
 from observer_app.coding.shared_start import (
     TYPED_START_BOUND_S, Countdown, read_clock_difference, schedule_check_code,
 )
@@ -67,31 +63,16 @@ from observer_app.study.folder import Study
 from observer_app.study.counts import code_counts, window_counts
 from observer_app.study.importing import IMPORTED_ORDER
 
-CHANGED = "changed"  # anything a listener should redraw
-TICK = "tick"  # only the time moved
 # Monotonic and wall-clock elapsed time may differ by this much and still be "comparable";
 # a reboot (monotonic restarts) or a suspend (monotonic pauses) exceeds it.
 COMPARABLE_TOLERANCE_SECONDS = 5.0
 
-Listener = Callable[[str], None]
-
 
 @dataclass
-class _Window:
+class _Window(CodedUnit):
     """The current turn as the session sees it: its row in the store and the codes in effect."""
 
     turn: Turn
-    observation_id: str
-    has_row: bool = False
-    coded: dict[str, tuple[str, str]] = field(default_factory=dict)  # dimension -> (code, code_id)
-
-
-@dataclass(frozen=True)
-class _UndoEntry:
-    code_id: str
-    window: _Window
-    dimension: str
-    code: str
 
 
 @dataclass(frozen=True)
@@ -205,39 +186,26 @@ def find_interrupted_session(study: Study, store: Store, device: str) -> Interru
     )
 
 
-class LiveSession:
-    """One coder's live session.  Create with ``start`` or ``resume``."""
+class LiveSession(CodingSession):
+    """One coder's live session (a kind of CodingSession: the schedule and the clock).  Create with
+    ``start`` or ``reopen``."""
 
     def __init__(self, study: Study, store: Store, clock: Clock, *, session_id: str, coder: str, device: str,
                  schedule: RoundRobin, origin_wall: datetime, origin_monotonic: float, start_elapsed: float,
                  pairing_id: str | None = None, awaiting_signal: bool = False) -> None:
-        self.study = study
-        self.store = store
-        self.clock = clock
-        self.session_id = session_id
+        super().__init__(study, store, clock, session_id=session_id)
         self.coder = coder
         self.device = device
         self.schedule = schedule
         self._origin_wall = origin_wall
         self._origin_monotonic = origin_monotonic
         self._start_elapsed = start_elapsed
-        self._labels = dict(zip(study.roster["learner"].astype(str), study.roster["label"].astype(str)))
-        self._key_map = study.scheme.key_map()
-        self._dimensions = study.scheme.dimension_names
-        self._window = _Window(schedule.current, new_id())
-        self._undo: list[_UndoEntry] = []
-        self._listeners: list[Listener] = []
+        self._window = _Window(schedule.current)
         self._recorded_slots: set[int] = set()
         self._paused = False
         self._paused_time_left = 0.0
-        self._ended = False
-        self._saved_count = 0
         self._coded_windows: set[str] = set()  # observation ids with a code in effect
         self._missed_windows = 0
-        self._last_saved_at: datetime | None = None
-        self._last_code_id: str | None = None
-        self._message = ""
-        self._error: str | None = None
         self.pairing_id = pairing_id
         self._awaiting_signal = awaiting_signal
         self.countdown = Countdown(clock.monotonic)  # "3, 2, 1, now" for the coder who reads it aloud
@@ -371,21 +339,13 @@ class LiveSession:
             apply_until(float("inf"))
             self.schedule.restart_at(now_elapsed)
         current = self.schedule.current
-        self._window = _Window(current, rows.get(current.slot, new_id()))
+        self._window = _Window(current, observation_id=rows.get(current.slot, new_id()))
         if current.slot in rows:
             self._window.has_row = True
             self._window.coded = {d: code_ids[(rows[current.slot], d)] for d in self._dimensions
                                   if (rows[current.slot], d) in code_ids}
         for turn in ended:
             self._close(turn, None)
-
-    # -- listening -----------------------------------------------------------------------
-    def add_listener(self, listener: Listener) -> None:
-        self._listeners.append(listener)
-
-    def _emit(self, kind: str) -> None:
-        for listener in list(self._listeners):
-            listener(kind)
 
     # -- time ----------------------------------------------------------------------------
     @property
@@ -398,13 +358,17 @@ class LiveSession:
     def _wall(self, elapsed: float) -> datetime:
         return self._origin_wall + timedelta(seconds=elapsed)
 
+    def _turn_row(self, turn: Turn) -> dict[str, object]:
+        """A turn's observation row: its learner and bounds on this device's wall clock."""
+        return {"learner": turn.learner, "window_start": self._wall(turn.start), "window_end": self._wall(turn.end),
+                "slot": turn.slot}
+
     def tick(self) -> None:
-        """Called often by the view's timer: close windows whose time is up."""
+        """Called often by the view's timer: close windows whose time is up (MOVED when one closed)."""
         if self._ended:
             return
-        slot = self.schedule.current.slot
         self._catch_up()
-        self._emit(CHANGED if self.schedule.current.slot != slot else TICK)
+        self._emit(EventKind.TICK)
 
     def _catch_up(self) -> None:
         if self._ended or (self._paused and not self.schedule.paired):
@@ -415,7 +379,7 @@ class LiveSession:
         window = self._window
         for turn in ended:
             self._close(turn, window if turn.slot == window.turn.slot else None)
-        self._window = _Window(self.schedule.current, new_id())
+        self._window = _Window(self.schedule.current)
 
     def _close(self, turn: Turn, window: _Window | None) -> None:
         """A turn ended: write a no-code row unless it has a row or was before this coder joined."""
@@ -423,18 +387,13 @@ class LiveSession:
             return
         if window is not None and window.has_row:
             if turn.end < window.turn.end:  # solo: finished early, so the window really ended now
-                try:
-                    self.store.record_window_end(window.observation_id, self._wall(turn.end))
-                except sqlite3.Error as error:
-                    self._error = f"NOT SAVED: window end of {self._labels.get(turn.learner, turn.learner)} ({error})"
+                self._durable(f"window end of {self.label(turn.learner)}", lambda: self.store.record_window_end(
+                    window.observation_id, self._wall(turn.end)), notify=False)
             return
-        try:
-            self.store.record_no_code(session_id=self.session_id, learner=turn.learner,
-                                      window_start=self._wall(turn.start), window_end=self._wall(turn.end),
-                                      scheme_hash=self.study.scheme.content_hash, slot=turn.slot,
-                                      observation_id=None if window is None else window.observation_id)
-        except sqlite3.Error as error:
-            self._error = f"NOT SAVED: empty window of {self._labels.get(turn.learner, turn.learner)} ({error})"
+        written = self._durable(f"empty window of {self.label(turn.learner)}", lambda: self.store.record_no_code(
+            session_id=self.session_id, scheme_hash=self.study.scheme.content_hash,
+            observation_id=None if window is None else window.observation_id, **self._turn_row(turn)), notify=False)
+        if written is None:
             return
         self._missed_windows += 1
         self._message = f"Time ran out: {self.label(turn.learner)} not coded (counted as missed)"
@@ -444,12 +403,22 @@ class LiveSession:
         window = self._window
         ended = self.schedule.finish_early(self.elapsed)
         self._close(ended, window)
-        self._window = _Window(self.schedule.current, new_id())
+        self._window = _Window(self.schedule.current)
 
-    # -- coding --------------------------------------------------------------------------
+    # -- coding: the kind's part of CodingSession --------------------------------------------
+    def _current(self) -> _Window:
+        return self._window
+
+    def _row_fields(self, unit: CodedUnit) -> dict[str, object]:
+        return self._turn_row(unit.turn)
+
+    def _unit_name(self, unit: CodedUnit) -> str:
+        return self.label(unit.turn.learner)
+
     def _blocked(self) -> str | None:
-        if self._ended:
-            return "The session has ended"
+        reason = super()._blocked()
+        if reason:
+            return reason
         if self._paused:
             return "Paused: press Space to go on"
         if self._awaiting_signal:
@@ -462,119 +431,19 @@ class LiveSession:
             return f"{self.label(self._window.turn.learner)} is absent: this slot is skipped"
         return None
 
-    def press(self, key: str) -> bool:
-        """A scheme shortcut key -> code it; returns whether the key meant a code."""
-        target = self._key_map.get(key.lower())
-        if target is None:
-            return False
-        self.code(*target)
-        return True
+    def _note_blocked(self) -> str | None:
+        return "No window to attach the note to" if self._ended or self._window.turn.learner is None else None
 
-    def code(self, dimension: str, code: str) -> bool:
-        """Code one dimension of the current window; True once it is durable."""
-        self._catch_up()
-        reason = self._blocked()
-        if reason:
-            self._message = reason
-            self._emit(CHANGED)
-            return False
-        window = self._window
-        previous = window.coded.get(dimension)
-        if previous is not None and previous[0] == code:
-            return True
-        code_id = self._write(window, dimension, code, supersedes=None if previous is None else previous[1])
-        if code_id is None:
-            return False
-        if previous is not None:
-            self._undo = [entry for entry in self._undo if entry.code_id != previous[1]]
-        window.coded[dimension] = (code, code_id)
-        self._coded_windows.add(window.observation_id)
-        self._undo.append(_UndoEntry(code_id, window, dimension, code))
-        label = self.study.scheme.dimension(dimension).code(code).label
-        self._message = (f"Saved for {self.label(window.turn.learner)}: {dimension} {label}"
-                         + (" (corrected)" if previous else ""))
+    def _coded(self, unit: CodedUnit) -> None:
+        """Solo: the turn ends as soon as every dimension is coded."""
+        self._coded_windows.add(unit.observation_id)
         if not self.schedule.paired and not self.missing:
             self._finish_turn()
-        self._emit(CHANGED)
-        return True
 
-    def code_remaining_not_observed(self) -> bool:
-        """Every dimension still missing in this window gets its could-not-observe code."""
-        window = self._window
-        done = True
-        for dimension in self.missing:
-            if self._window is not window:
-                break
-            done = self.code(dimension, self.study.scheme.dimension(dimension).could_not_observe) and done
-        return done
-
-    def _write(self, window: _Window, dimension: str, code: str | None, supersedes: str | None) -> str | None:
-        turn = window.turn
-        entered_at = self.clock.now_utc()
-        try:
-            code_id = self.store.record_code(
-                observation_id=window.observation_id, session_id=self.session_id, learner=turn.learner,
-                window_start=self._wall(turn.start), window_end=self._wall(turn.end), dimension=dimension,
-                code=code, entered_at=entered_at, scheme_hash=self.study.scheme.content_hash, slot=turn.slot,
-                supersedes=supersedes,
-            )
-        except sqlite3.Error as error:
-            self._error = f"NOT SAVED: {dimension} ({error})"
-            self._emit(CHANGED)
-            return None
-        window.has_row = True
-        self._error = None
-        self._saved_count += 1
-        self._last_saved_at = entered_at
-        self._last_code_id = code_id
-        return code_id
-
-    def undo(self) -> bool:
-        """Retract the newest code still in effect (a retraction row; nothing is deleted)."""
-        if self._ended or not self._undo:
-            self._message = "Nothing to undo"
-            self._emit(CHANGED)
-            return False
-        entry = self._undo[-1]
-        if self._write(entry.window, entry.dimension, None, supersedes=entry.code_id) is None:
-            return False
-        self._undo.pop()
-        entry.window.coded.pop(entry.dimension, None)
-        if not entry.window.coded:
-            self._coded_windows.discard(entry.window.observation_id)
-        label = self.study.scheme.dimension(entry.dimension).code(entry.code).label
-        self._message = f"Undone for {self.label(entry.window.turn.learner)}: {entry.dimension} {label}"
-        self._emit(CHANGED)
-        return True
-
-    def note(self, text: str) -> bool:
-        """Attach a free-text note to the current window (creating its row if it has none)."""
-        text = text.strip()
-        reason = None if text else "Empty note not saved"
-        if reason is None and (self._ended or self._window.turn.learner is None):
-            reason = "No window to attach the note to"
-        if reason:
-            self._message = reason
-            self._emit(CHANGED)
-            return False
-        window = self._window
-        turn = window.turn
-        try:
-            if not window.has_row:
-                self.store.record_no_code(session_id=self.session_id, learner=turn.learner,
-                                          window_start=self._wall(turn.start), window_end=self._wall(turn.end),
-                                          scheme_hash=self.study.scheme.content_hash, slot=turn.slot,
-                                          observation_id=window.observation_id)
-                window.has_row = True
-            self.store.record_note(window.observation_id, text, self.clock.now_utc())
-        except sqlite3.Error as error:
-            self._error = f"NOT SAVED: note ({error})"
-            self._emit(CHANGED)
-            return False
-        self._error = None
-        self._message = "Note saved"
-        self._emit(CHANGED)
-        return True
+    def _undone(self, entry: UndoEntry) -> str:
+        if not entry.unit.coded:
+            self._coded_windows.discard(entry.unit.observation_id)
+        return f"Undone for {self.label(entry.unit.turn.learner)}: {entry.dimension} {self._code_label(entry)}"
 
     # -- presence, pause, sync -------------------------------------------------------------
     def mark_absent(self, learner: str | None = None) -> bool:
@@ -589,8 +458,8 @@ class LiveSession:
         if learner == self._window.turn.learner and not self.schedule.paired and not self._paused \
                 and self.elapsed >= 0:
             self._finish_turn()
-        self._message = f"{self._labels.get(learner, learner)} marked absent"
-        self._emit(CHANGED)
+        self._message = f"{self.label(learner)} marked absent"
+        self._emit()
         return True
 
     def mark_returned(self, learner: str) -> bool:
@@ -600,19 +469,13 @@ class LiveSession:
         if not self._record_presence(learner, "returned"):
             return False
         self.schedule.mark_returned(learner)
-        self._message = f"{self._labels.get(learner, learner)} is back"
-        self._emit(CHANGED)
+        self._message = f"{self.label(learner)} is back"
+        self._emit()
         return True
 
     def _record_presence(self, learner: str, state: str) -> bool:
-        try:
-            self.store.record_absence(session_id=self.session_id, learner=learner, state=state,
-                                      at=self.clock.now_utc())
-        except sqlite3.Error as error:
-            self._error = f"NOT SAVED: {state} ({error})"
-            self._emit(CHANGED)
-            return False
-        return True
+        return self._durable(state, lambda: self.store.record_absence(
+            session_id=self.session_id, learner=learner, state=state, at=self.clock.now_utc())) is not None
 
     def pause(self) -> None:
         self._catch_up()
@@ -621,7 +484,7 @@ class LiveSession:
         self._paused = True
         self._paused_time_left = max(0.0, self.schedule.current.end - self.elapsed)
         self._message = "Paused" + (" (the shared grid runs on)" if self.schedule.paired else "")
-        self._emit(CHANGED)
+        self._emit()
 
     def resume(self) -> None:
         if not self._paused or self._ended:
@@ -631,7 +494,7 @@ class LiveSession:
             self._window.turn = self.schedule.restart_at(self.elapsed)
         self._catch_up()
         self._message = "Going on"
-        self._emit(CHANGED)
+        self._emit()
 
     def toggle_pause(self) -> None:
         (self.resume if self._paused else self.pause)()
@@ -639,16 +502,13 @@ class LiveSession:
     def sync_mark(self, note: str = "") -> datetime | None:
         """Store this device's clock reading now (with the current learner); returns it."""
         marked_at = self.clock.now_utc()
-        try:
-            self.store.record_sync_mark(session_id=self.session_id, marked_at=marked_at,
-                                        learner=self._window.turn.learner or "", note=note)
-        except sqlite3.Error as error:
-            self._error = f"NOT SAVED: sync mark ({error})"
-            self._emit(CHANGED)
+        if self._durable("sync mark", lambda: self.store.record_sync_mark(
+                session_id=self.session_id, marked_at=marked_at, learner=self._window.turn.learner or "",
+                note=note)) is None:
             return None
         local = marked_at.astimezone(ZoneInfo(self.study.timezone))
         self._message = f"Sync mark at {local:%H:%M:%S %Z}"
-        self._emit(CHANGED)
+        self._emit()
         return marked_at
 
     def signal_start(self) -> bool:
@@ -662,52 +522,33 @@ class LiveSession:
         self._awaiting_signal = False
         self._origin_monotonic, self._origin_wall, self._start_elapsed = monotonic, wall, 0.0
         self.schedule.advance_to(0.0)
-        self._window = _Window(self.schedule.current, new_id())
+        self._window = _Window(self.schedule.current)
         self._message = f"Started on the signal at {wall:%H:%M:%S} on this clock"
-        self._emit(CHANGED)
+        self._emit()
         return True
 
     def signal_end(self) -> bool:
         """This coder pressed the key on the closing countdown's "now": a second paired mark,
         so align can read the two clocks' drift as well as their offset."""
         if self._awaiting_signal or self._ended or not self.pairing_id:
-            self._message = "The closing signal is for a paired run that has started"
-            self._emit(CHANGED)
-            return False
+            return self._refuse("The closing signal is for a paired run that has started")
         wall = self.clock.now_utc()
         if self._paired_mark(SIGNAL_END, wall) is None:
             return False
         self._message = f"Closing signal stored at {wall:%H:%M:%S}; end the session with F10 twice"
-        self._emit(CHANGED)
+        self._emit()
         return True
 
     def _paired_mark(self, kind: str, wall: datetime) -> str | None:
-        try:
-            return self.store.record_sync_mark(session_id=self.session_id, marked_at=wall, note="countdown",
-                                               pairing_id=self.pairing_id, kind=kind)
-        except sqlite3.Error as error:
-            self._error = f"NOT SAVED: {kind} ({error})"
-            self._emit(CHANGED)
-            return None
+        return self._durable(kind, lambda: self.store.record_sync_mark(
+            session_id=self.session_id, marked_at=wall, note="countdown", pairing_id=self.pairing_id, kind=kind))
 
     def end(self) -> SessionSummary:
         """Write the session's end row; the summary is read back from the store."""
-        if not self._ended:
-            self._catch_up()
-            self.store.end_session(self.session_id, self.clock.now_utc())
-            self._ended = True
-            self._message = "Session ended"
-            self._emit(CHANGED)
+        self._write_end()
         return self.summary()
 
     # -- reading -------------------------------------------------------------------------
-    @property
-    def missing(self) -> tuple[str, ...]:
-        return tuple(d for d in self._dimensions if d not in self._window.coded)
-
-    def label(self, learner: str | None) -> str:
-        return "" if learner is None else self._labels.get(learner, learner)
-
     def state(self) -> SessionState:
         turn = self.schedule.current
         elapsed = self.elapsed

@@ -1,8 +1,9 @@
 """Replay coding: a coder codes short clips cut from a learner's log, with no Qt in sight.
 
-A ``ReplaySession`` reads the study's logs once, cuts the chosen learners' events into
-clips, and lets the coder code each clip with the scheme's keys exactly as in a live
-session (same key map, could-not-observe, undo by retraction, a note).  The Qt view
+A ``ReplaySession`` is the replay kind of coding session: it reads the study's logs
+once, cuts the chosen learners' events into clips, and lets the coder code each clip
+exactly as a live window (observer_app/coding/coding_session.py: the key map,
+could-not-observe, undo by retraction, a note, durable before shown).  The Qt view
 (observer_app/ui/replay.py) only listens, renders ``state()`` and forwards keys.
 
 Rules this module decides (one home each):
@@ -32,8 +33,7 @@ Rules this module decides (one home each):
 """
 from __future__ import annotations
 
-import sqlite3
-from collections.abc import Callable, Iterable
+from collections.abc import Iterable
 import json
 from dataclasses import asdict, dataclass
 from datetime import datetime
@@ -44,18 +44,16 @@ import pandas as pd
 from observer_app.coding.replay_plan import ReplayRule, assign_clips, clips_digest, plan_id
 from observer_app.pipeline.alignment import read_study_logs
 from observer_app.coding.clock import Clock
+from observer_app.coding.coding_session import CodedUnit, CodingSession, UndoEntry
 from observer_app.study.scheme_binding import scheme_fits_store
-from observer_app.study.store import Store, new_id
+from observer_app.study.store import Store
 from observer_app.study.folder import Study
 from observer_app.study.importing import IMPORTED_ORDER
 from sync.errors import InputError
 
-CHANGED = "changed"
 ALL_CLIPS = "time"
 SAMPLE_PREFIX = "sample:"
 PLAN_PREFIX = "plan:"
-
-Listener = Callable[[str], None]
 
 # CLIPS table (``cut_clips``): one row per clip offered, in the order they are offered.
 CLIP_COLUMNS: tuple[str, ...] = ("clip", "learner", "log_id", "start_ns", "end_ns", "events")
@@ -118,12 +116,11 @@ def find_open_replay(study: Study, store: Store, coder: str, device: str) -> str
     return None if open_sessions.empty else str(open_sessions["session_id"].iloc[-1])
 
 
-@dataclass(frozen=True)
-class _UndoEntry:
-    code_id: str | None  # None: the entry is a skip
+@dataclass
+class _Clip(CodedUnit):
+    """A clip as the session sees it: where it is in the list, its row and the codes in effect."""
+
     position: int
-    dimension: str = ""
-    code: str = ""
 
 
 def planned_clips(study: Study, store: Store, events: pd.DataFrame, rule: ReplayRule, coder: str,
@@ -179,33 +176,21 @@ class ReplayState:
     error: str | None
 
 
-class ReplaySession:
-    """One coder's replay session.  Create with ``start`` or ``reopen``."""
+class ReplaySession(CodingSession):
+    """One coder's replay session (a kind of CodingSession: the clip list).  Create with ``start`` or
+    ``reopen``."""
 
     def __init__(self, study: Study, store: Store, clock: Clock, *, session_id: str, events: pd.DataFrame,
                  clips: pd.DataFrame) -> None:
-        self.study = study
-        self.store = store
-        self.clock = clock
-        self.session_id = session_id
+        super().__init__(study, store, clock, session_id=session_id)
         self.events = events
         self.clips = clips
         learners = events["learner"].astype(str)
         self._events_by_log = {log_id: events[learners == log_id] for log_id in set(clips["log_id"])}
-        self._labels = dict(zip(study.roster["learner"].astype(str), study.roster["label"].astype(str)))
-        self._key_map = study.scheme.key_map()
-        self._dimensions = study.scheme.dimension_names
         self._position = 0
         self._furthest = 0  # the furthest clip reached: where coding goes on after going back
-        self._observation_ids: dict[int, str] = {}
-        self._coded: dict[int, dict[str, tuple[str, str]]] = {}
-        self._undo: list[_UndoEntry] = []
+        self._units: dict[int, _Clip] = {}  # position -> the clip as coded so far
         self._skipped: set[int] = set()  # positions skipped with nothing coded
-        self._listeners: list[Listener] = []
-        self._saved_count = 0
-        self._ended = False
-        self._message = ""
-        self._error: str | None = None
 
     # -- creation ----------------------------------------------------------------------
     @classmethod
@@ -269,115 +254,76 @@ class ReplaySession:
             position = positions.get(clip)
             if position is None:
                 continue
-            self._observation_ids[position] = observation_id
-            self._coded[position] = {
+            self._units[position] = _Clip(position, observation_id=observation_id, has_row=True, coded={
                 dimension: (str(latest.loc[(observation_id, dimension), "code"]),
                             str(latest.loc[(observation_id, dimension), "code_id"]))
                 for dimension in self._dimensions
                 if (observation_id, dimension) in latest.index and pd.notna(latest.loc[(observation_id, dimension), "code"])
-            }
+            })
         self._skipped = {positions[clip] for clip, empty in zip(mine["clip"].astype(str), mine["no_code"])
                          if empty and clip in positions}
-        if self._observation_ids:
-            last = max(self._observation_ids)
-            partly = 0 < len(self._coded[last]) < len(self._dimensions)
+        if self._units:
+            last = max(self._units)
+            partly = 0 < len(self._units[last].coded) < len(self._dimensions)
             self._position = self._furthest = last if partly else last + 1
         self._message = f"Resumed at clip {min(self._position + 1, len(self.clips))} of {len(self.clips)}"
 
-    # -- listening -----------------------------------------------------------------------
-    def add_listener(self, listener: Listener) -> None:
-        self._listeners.append(listener)
-
-    def _emit(self) -> None:
-        for listener in list(self._listeners):
-            listener(CHANGED)
-
-    # -- coding --------------------------------------------------------------------------
+    # -- coding: the kind's part of CodingSession --------------------------------------------
     @property
     def finished(self) -> bool:
         return self._position >= len(self.clips)
 
-    @property
-    def missing(self) -> tuple[str, ...]:
-        coded = self._coded.get(self._position, {})
-        return tuple(d for d in self._dimensions if d not in coded)
+    def _current(self) -> _Clip:
+        unit = self._units.get(self._position)
+        if unit is None:
+            unit = self._units[self._position] = _Clip(self._position)
+        return unit
+
+    def _row_fields(self, unit: CodedUnit) -> dict[str, object]:
+        clip = self.clips.iloc[unit.position]
+        return {"learner": str(clip["learner"]), "window_start": _utc(clip["start_ns"]),
+                "window_end": _utc(clip["end_ns"]), "slot": None, "clip": str(clip["clip"])}
+
+    def _clip_learner(self, position: int) -> str:
+        return self.label(str(self.clips.iloc[position]["learner"]))
+
+    def _unit_name(self, unit: CodedUnit) -> str:
+        return f"{self._clip_learner(unit.position)}, clip {unit.position + 1}"
 
     def _blocked(self) -> str | None:
-        if self._ended:
-            return "The session has ended"
-        if self.finished:
+        reason = super()._blocked()
+        if reason is None and self.finished:
             return "Every clip is done: press F10 twice to end"
-        return None
+        return reason
 
-    def press(self, key: str) -> bool:
-        """A scheme shortcut key -> code it; returns whether the key meant a code."""
-        target = self._key_map.get(key.lower())
-        if target is None:
-            return False
-        self.code(*target)
-        return True
-
-    def code(self, dimension: str, code: str) -> bool:
-        """Code one dimension of the current clip; True once it is durable."""
-        reason = self._blocked()
-        if reason:
-            self._message = reason
-            self._emit()
-            return False
-        position = self._position
-        coded = self._coded.setdefault(position, {})
-        previous = coded.get(dimension)
-        if previous is not None and previous[0] == code:
-            return True
-        code_id = self._write(position, dimension, code, supersedes=None if previous is None else previous[1])
-        if code_id is None:
-            return False
-        if previous is not None:
-            self._undo = [entry for entry in self._undo if entry.code_id != previous[1]]
-        coded[dimension] = (code, code_id)
-        self._undo.append(_UndoEntry(code_id, position, dimension, code))
-        label = self.study.scheme.dimension(dimension).code(code).label
-        learner = self.label(str(self.clips.iloc[position]["learner"]))
-        self._message = f"Saved for {learner}, clip {position + 1}: {dimension} {label}" + (
-            " (corrected)" if previous else "")
+    def _coded(self, unit: CodedUnit) -> None:
+        """A clip ends as soon as every dimension is coded."""
         if not self.missing:
             self._move_on()
-        self._emit()
-        return True
 
-    def code_remaining_not_observed(self) -> bool:
-        """Every dimension still missing in this clip gets its could-not-observe code."""
-        position = self._position
-        done = True
-        for dimension in self.missing:
-            if self._position != position:
-                break
-            done = self.code(dimension, self.study.scheme.dimension(dimension).could_not_observe) and done
-        return done
+    def _undone(self, entry: UndoEntry) -> str:
+        """Back to the clip of the undone code or skip."""
+        position = entry.unit.position
+        back = position != self._position
+        self._position = position
+        if entry.code_id is None:
+            self._skipped.discard(position)
+            return f"Skip undone: back to clip {position + 1} ({self._clip_learner(position)})"
+        back_to = f" (back to clip {position + 1})" if back else ""
+        return f"Undone {entry.dimension}: {self._code_label(entry)}{back_to}"
 
     def skip(self) -> bool:
         """Leave the current clip: a no-code row when nothing was coded in it, then the next clip."""
         reason = self._blocked()
         if reason:
-            self._message = reason
-            self._emit()
+            return self._refuse(reason)
+        unit = self._current()
+        if self._durable("skipped clip", lambda: self._write_row(unit)) is None:
             return False
-        position = self._position
-        if position not in self._observation_ids:
-            clip = self.clips.iloc[position]
-            try:
-                self._observation_ids[position] = self.store.record_no_code(
-                    session_id=self.session_id, learner=str(clip["learner"]), window_start=_utc(clip["start_ns"]),
-                    window_end=_utc(clip["end_ns"]), scheme_hash=self.study.scheme.content_hash, slot=None,
-                    clip=str(clip["clip"]))
-            except sqlite3.Error as error:
-                self._error = f"NOT SAVED: skipped clip ({error})"
-                self._emit()
-                return False
-        self._undo.append(_UndoEntry(None, position))
-        self._skipped.add(position)
+        self._undo.append(UndoEntry(None, unit))
+        self._skipped.add(unit.position)
         self._move_on()
-        self._message = f"Skipped clip {position + 1} ({self.label(str(self.clips.iloc[position]['learner']))})"
+        self._message = f"Skipped clip {unit.position + 1} ({self._clip_learner(unit.position)})"
         self._emit()
         return True
 
@@ -386,90 +332,11 @@ class ReplaySession:
         self._position = max(self._position + 1, self._furthest)
         self._furthest = self._position
 
-    def _write(self, position: int, dimension: str, code: str | None, supersedes: str | None) -> str | None:
-        clip = self.clips.iloc[position]
-        observation_id = self._observation_ids.get(position) or new_id()
-        entered_at = self.clock.now_utc()
-        try:
-            code_id = self.store.record_code(
-                observation_id=observation_id, session_id=self.session_id, learner=str(clip["learner"]),
-                window_start=_utc(clip["start_ns"]), window_end=_utc(clip["end_ns"]), dimension=dimension,
-                code=code, entered_at=entered_at, scheme_hash=self.study.scheme.content_hash, slot=None,
-                clip=str(clip["clip"]), supersedes=supersedes,
-            )
-        except sqlite3.Error as error:
-            self._error = f"NOT SAVED: {dimension} ({error})"
-            self._emit()
-            return None
-        self._observation_ids[position] = observation_id
-        self._error = None
-        self._saved_count += 1
-        return code_id
-
-    def undo(self) -> bool:
-        """Retract the newest code still in effect; an earlier clip's code brings that clip back."""
-        if self._ended or not self._undo:
-            self._message = "Nothing to undo"
-            self._emit()
-            return False
-        entry = self._undo[-1]
-        if entry.code_id is None:  # undo a skip: back to the skipped clip, nothing to retract
-            self._undo.pop()
-            self._skipped.discard(entry.position)
-            self._position = entry.position
-            learner = self.label(str(self.clips.iloc[entry.position]["learner"]))
-            self._message = f"Skip undone: back to clip {entry.position + 1} ({learner})"
-            self._emit()
-            return True
-        if self._write(entry.position, entry.dimension, None, supersedes=entry.code_id) is None:
-            return False
-        self._undo.pop()
-        self._coded[entry.position].pop(entry.dimension, None)
-        back = entry.position != self._position
-        self._position = entry.position
-        label = self.study.scheme.dimension(entry.dimension).code(entry.code).label
-        self._message = f"Undone {entry.dimension}: {label}" + (f" (back to clip {entry.position + 1})" if back else "")
-        self._emit()
-        return True
-
-    def note(self, text: str) -> bool:
-        """Attach a free-text note to the current clip (creating its row if it has none)."""
-        text = text.strip()
-        reason = self._blocked() or (None if text else "Empty note not saved")
-        if reason:
-            self._message = reason
-            self._emit()
-            return False
-        position = self._position
-        clip = self.clips.iloc[position]
-        try:
-            if position not in self._observation_ids:
-                self._observation_ids[position] = self.store.record_no_code(
-                    session_id=self.session_id, learner=str(clip["learner"]), window_start=_utc(clip["start_ns"]),
-                    window_end=_utc(clip["end_ns"]), scheme_hash=self.study.scheme.content_hash, slot=None,
-                    clip=str(clip["clip"]))
-            self.store.record_note(self._observation_ids[position], text, self.clock.now_utc())
-        except sqlite3.Error as error:
-            self._error = f"NOT SAVED: note ({error})"
-            self._emit()
-            return False
-        self._error = None
-        self._message = "Note saved"
-        self._emit()
-        return True
-
     def end(self) -> None:
         """Write the session's end row."""
-        if not self._ended:
-            self.store.end_session(self.session_id, self.clock.now_utc())
-            self._ended = True
-            self._message = "Session ended"
-            self._emit()
+        self._write_end()
 
     # -- reading -------------------------------------------------------------------------
-    def label(self, learner: str) -> str:
-        return self._labels.get(learner, learner)
-
     def state(self) -> ReplayState:
         done = self.finished
         clip = None if done else self.clips.iloc[self._position]
@@ -480,9 +347,10 @@ class ReplaySession:
             clip="" if clip is None else str(clip["clip"]), learner="" if clip is None else str(clip["learner"]),
             label="" if clip is None else self.label(str(clip["learner"])),
             start=None if clip is None else _utc(clip["start_ns"]), end=None if clip is None else _utc(clip["end_ns"]),
-            events=events, coded={d: c for d, (c, _) in self._coded.get(self._position, {}).items()},
+            events=events, coded={d: c for d, (c, _) in self._current().coded.items()},
             missing=self.missing, saved_count=self._saved_count,
-            coded_clips=sum(1 for codes in self._coded.values() if codes),
-            skipped_clips=len(self._skipped - {p for p, codes in self._coded.items() if codes}), finished=done, ended=self._ended,
+            coded_clips=sum(1 for unit in self._units.values() if unit.coded),
+            skipped_clips=len(self._skipped - {p for p, unit in self._units.items() if unit.coded}), finished=done,
+            ended=self._ended,
             message=self._message, error=self._error,
         )

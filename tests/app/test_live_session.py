@@ -16,6 +16,7 @@ import pytest
 
 from observer_app.coding.live import LiveSession, elapsed_since_start, find_interrupted_session
 from observer_app.coding.clock import FakeClock
+from observer_app.coding.session_events import EventKind, SessionEvent
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from tests.app.conftest import make_study
@@ -234,7 +235,22 @@ def test_listeners_hear_every_change(study, store, clock):
     session.add_listener(heard.append)
     session.press("1")
     session.tick()
-    assert heard == ["changed", "tick"]
+    assert heard == [SessionEvent(EventKind.CHANGED), SessionEvent(EventKind.TICK)]
+
+
+def test_listeners_hear_moved_when_another_learner_is_up(study, store, clock):
+    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1")
+    heard = []
+    session.add_listener(heard.append)
+    session.press("1")
+    session.press("q")  # solo: every dimension coded, the next learner is up at once
+    assert session.state().learner == ROSTER_ORDER[1]
+    clock.advance(5)
+    session.tick()  # the same window: only the time moved
+    clock.advance(20)
+    session.tick()  # the window ran out: another learner
+    assert session.state().learner == ROSTER_ORDER[2]
+    assert [event.kind for event in heard] == [EventKind.CHANGED, EventKind.MOVED, EventKind.TICK, EventKind.MOVED]
 
 
 def test_end_of_session_counts_match_the_keys_pressed(study, store, clock):

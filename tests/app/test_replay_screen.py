@@ -77,6 +77,22 @@ def test_a_whole_replay_coded_with_the_keyboard(qtbot, screen):
     assert log.loc[log["code_id"] == retracted["supersedes"].iloc[0], "code"].iloc[0] == "task_discussion"
 
 
+def test_the_events_table_follows_the_clip_and_stays_while_it_is_coded(qtbot, screen):
+    clips = screen.session.clips
+    table = screen.events_table
+    first = [table.item(row, 1).text() for row in range(table.rowCount())]
+    assert len(first) == clips["events"][0]
+    qtbot.keyClick(screen, "1")  # the same clip: the table keeps its rows
+    assert [table.item(row, 1).text() for row in range(table.rowCount())] == first
+    qtbot.keyClick(screen, "q")  # clip 1 done: clip 2's events
+    state = screen.session.state()
+    assert state.position == 1 and table.rowCount() == clips["events"][1] == len(state.events)
+    assert [table.item(row, 0).text() for row in range(table.rowCount())] == [
+        f"{offset:.1f} s" for offset in state.events["offset_s"]]
+    qtbot.keyClick(screen, Qt.Key.Key_Backspace)  # back to clip 1: its events again
+    assert [table.item(row, 1).text() for row in range(table.rowCount())] == first
+
+
 def test_the_replay_screen_screenshot(qtbot, screen):
     """Saved to tests/artifacts/ so anyone can look at it (not committed)."""
     qtbot.keyClick(screen, "1")
