@@ -486,15 +486,25 @@ class LiveSession(CodingSession):
         self._message = "Paused" + (" (the shared grid runs on)" if self.schedule.paired else "")
         self._emit()
 
-    def resume(self) -> None:
+    def resume(self, message: str = "Going on") -> None:
         if not self._paused or self._ended:
             return
         self._paused = False
         if not self.schedule.paired:
             self._window.turn = self.schedule.restart_at(self.elapsed)
         self._catch_up()
-        self._message = "Going on"
+        self._message = message
         self._emit()
+
+    def hold_until_observing(self) -> None:
+        """Solo: hold the first window while the coder is on the clock check; ``begin_observing``
+        starts it whole when the observing screen appears (a paired grid runs on its own time)."""
+        if not self.schedule.paired:
+            self.pause()
+
+    def begin_observing(self) -> None:
+        """End the hold: the current learner gets a whole window from now."""
+        self.resume("Session started")
 
     def toggle_pause(self) -> None:
         (self.resume if self._paused else self.pause)()

@@ -207,8 +207,9 @@ class MainWindow(QMainWindow):
             self.session = LiveSession.start(self.study, self.store, self.clock, coder=choice.coder,
                                              device=choice.device, present=choice.present,
                                              pairing_id=choice.pairing_id, signal=choice.signal)
+            self.session.hold_until_observing()  # a solo first window waits for the observing screen
             check = ClockCheck(self.session)
-            check.done.connect(self.show_observing)
+            check.done.connect(self._begin_observing)
         check.set_theme(self.theme)
         self._show(check)
 
@@ -240,6 +241,10 @@ class MainWindow(QMainWindow):
 
     def resume_session(self, session_id: str) -> None:
         self.session = LiveSession.reopen(self.study, self.store, self.clock, session_id)
+        self.show_observing()
+
+    def _begin_observing(self) -> None:
+        self.session.begin_observing()
         self.show_observing()
 
     def show_observing(self) -> None:
