@@ -57,7 +57,6 @@ class EndScreen(QWidget):
         self.busy = QProgressBar()
         self.busy.setRange(0, 0)  # no known end: Qt shows it as moving
         self.busy.setTextVisible(False)
-        self.busy.setMaximumHeight(6)
         self.busy.setVisible(agreement is not None)
         layout.addWidget(self.busy)
         self.table = count_table(study, summary.counts, summary.per_learner, only_counted=True)

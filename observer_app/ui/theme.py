@@ -76,4 +76,6 @@ def stylesheet(theme: Theme) -> str:
     QLabel[role="warning"] {{ color: {theme.warning}; }}
     QFrame[role="panel"] {{ background: {theme.surface}; border-radius: 8px; }}
     QFrame[role="panel"] QLabel {{ background: transparent; }}
+    QProgressBar {{ background: {theme.surface}; border: none; border-radius: 2px; max-height: 4px; }}
+    QProgressBar::chunk {{ background: {theme.accent}; border-radius: 2px; }}
     """
