@@ -11,7 +11,7 @@ from collections.abc import Callable
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
-from PySide6.QtWidgets import QLabel, QProgressBar, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QLabel, QProgressBar, QWidget
 
 from agreement.statistics import estimate_text
 from observer_app.coding.live import SessionSummary
@@ -19,6 +19,7 @@ from observer_app.coding.end_agreement import PartnerAgreement
 from observer_app.study.folder import Study
 from observer_app.ui.background import BackgroundJob
 from observer_app.ui.overview import TABLE_KEYS_HINT, count_table, scroll_table
+from observer_app.ui.theme import titled_column
 
 COMPUTING = "Computing agreement with your partner…"
 NOT_IMPORTED = ("Paired run: once your partner's observations are imported (fieldmark import), "
@@ -37,11 +38,7 @@ class EndScreen(QWidget):
         or "clips" (replay)."""
         super().__init__()
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(48, 24, 48, 16)
-        title = QLabel("Session ended")
-        title.setProperty("role", "title")
-        layout.addWidget(title)
+        layout = titled_column(self, "Session ended", (48, 24, 48, 16))
         self.figures = QLabel(
             f"{summary.windows} {unit}  ·  {summary.coded_windows} coded  ·  {summary.missed_windows} "
             + ("skipped (no code)" if unit == "clips" else

@@ -45,11 +45,7 @@ class WelcomePage(QWidget):
         super().__init__()
         self.window_ = window
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(64, 48, 64, 48)
-        title = QLabel("fieldmark")
-        title.setProperty("role", "title")
-        layout.addWidget(title)
+        layout = looks.titled_column(self, "fieldmark", (64, 48, 64, 48))
         self.keys_label = QLabel("<p style='font-size:16pt'><b>O</b> open a study folder<br>"
                                  "<b>C</b> create a new study in an empty folder<br><b>Ctrl+Q</b> quit</p>")
         layout.addWidget(self.keys_label)

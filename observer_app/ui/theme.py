@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from PySide6.QtGui import QColor
+from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
 
 
 @dataclass(frozen=True)
@@ -56,6 +57,16 @@ def readable_text(background: QColor, theme: Theme) -> str:
     if theme is DISCREET:
         return "#0E0F10" if luminance > 150 else theme.text
     return "#14171A" if luminance > 140 else "#FFFFFF"
+
+
+def titled_column(page: QWidget, title: str, margins: tuple[int, int, int, int]) -> QVBoxLayout:
+    """``page``'s layout, a column that starts with ``title`` in the title style (role "title")."""
+    layout = QVBoxLayout(page)
+    layout.setContentsMargins(*margins)
+    heading = QLabel(title)
+    heading.setProperty("role", "title")
+    layout.addWidget(heading)
+    return layout
 
 
 def stylesheet(theme: Theme) -> str:
