@@ -13,6 +13,7 @@ the result is a (learners x seconds) grid of state indices per dimension.
 """
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -86,29 +87,30 @@ def _fill_grid(states: list[np.ndarray], durations: list[np.ndarray], seconds: i
     return np.repeat(state_matrix.ravel(), clipped.ravel()).reshape(len(state_matrix), seconds).astype(np.int8)
 
 
+def _run_chain(rng: np.random.Generator, start: np.ndarray, dwell: np.ndarray, learners: int, seconds: int,
+               next_weights: Callable[[np.ndarray, np.ndarray], np.ndarray]) -> np.ndarray:
+    """One semi-Markov chain per learner as a (learners x seconds) grid: each state lasts
+    ``_dwell(dwell[state])``; ``next_weights(state, clock)`` weighs where each learner goes
+    when its state ends at ``clock`` seconds."""
+    state = draw_categorical(rng, np.tile(start, (learners, 1)))
+    states, durations, clock = [], [], np.zeros(learners, dtype=np.int64)
+    while (clock < seconds).any():
+        duration = _dwell(rng, dwell[state])
+        states.append(state)
+        durations.append(duration)
+        clock = clock + duration
+        state = draw_categorical(rng, next_weights(state, clock))
+    return _fill_grid(states, durations, seconds)
+
+
 def simulate_latent_states(rng: np.random.Generator, learners: int, seconds: int) -> LatentStates:
     """Affect first, then activity leaning on affect; both as (learners x seconds) grids."""
-    state = draw_categorical(rng, np.tile(AFFECT_START, (learners, 1)))
-    states, durations, clock = [], [], np.zeros(learners, dtype=np.int64)
-    while (clock < seconds).any():
-        duration = _dwell(rng, AFFECT_DWELL[state])
-        states.append(state)
-        durations.append(duration)
-        clock = clock + duration
-        state = draw_categorical(rng, AFFECT_NEXT[state])
-    affect = _fill_grid(states, durations, seconds)
-
+    affect = _run_chain(rng, AFFECT_START, AFFECT_DWELL, learners, seconds,
+                        lambda state, clock: AFFECT_NEXT[state])
     rows = np.arange(learners)
-    state = draw_categorical(rng, np.tile(ACTIVITY_START, (learners, 1)))
-    states, durations, clock = [], [], np.zeros(learners, dtype=np.int64)
-    while (clock < seconds).any():
-        duration = _dwell(rng, ACTIVITY_DWELL[state])
-        states.append(state)
-        durations.append(duration)
-        clock = clock + duration
-        current_affect = affect[rows, np.minimum(clock, seconds - 1)]
-        state = draw_categorical(rng, ACTIVITY_NEXT[state] * ACTIVITY_PULL[current_affect])
-    activity = _fill_grid(states, durations, seconds)
+    activity = _run_chain(
+        rng, ACTIVITY_START, ACTIVITY_DWELL, learners, seconds,
+        lambda state, clock: ACTIVITY_NEXT[state] * ACTIVITY_PULL[affect[rows, np.minimum(clock, seconds - 1)]])
     return LatentStates(activity=activity, affect=affect)
 
 

@@ -3,7 +3,9 @@
 The partner's session arrives in this study's store through ``fieldmark import``.
 The study's units come from observer_app.pipeline.units (the same pairing as
 ``fieldmark agree``); every figure is agreement/'s (Cohen's kappa, Landis & Koch
-band).  This module only keeps the units this session coded.
+band).  This module only keeps the units this session coded.  It opens its own store
+connections, so the end screen runs it off the UI thread (a sqlite3 connection
+belongs to the thread that made it).
 """
 from __future__ import annotations
 
@@ -29,10 +31,11 @@ class PartnerAgreement:
     band: dict[str, str]  # dimension -> Landis & Koch label
 
 
-def partner_agreement(study: Study, store: Store, session_id: str,
+def partner_agreement(study: Study, session_id: str,
                       resamples: int = END_SCREEN_RESAMPLES) -> PartnerAgreement | None:
     """None when the session is solo, its partner is not imported, or no window was coded by both."""
-    sessions = store.sessions()
+    with Store(study.store_path) as store:
+        sessions = store.sessions()
     own = sessions[sessions["session_id"] == session_id]
     if own.empty or pd.isna(own["paired_start"].iloc[0]):
         return None

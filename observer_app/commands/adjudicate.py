@@ -16,6 +16,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from observer_app.commands.arguments import json_option, study_argument
 from agreement.disagreements import read_adjudications
 from observer_app.pipeline.units import load_study_units
 from observer_app.study.store import Store
@@ -26,9 +27,9 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "adjudicate", help="record adjudicated codes for disagreeing units",
         description="Append adjudications (unit, dimension, code, adjudicator, reason) to the study.")
-    parser.add_argument("study", type=Path, help="the study folder")
+    study_argument(parser)
     parser.add_argument("file", type=Path, help="CSV with columns unit, dimension, code, adjudicator, reason")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    json_option(parser)
     parser.set_defaults(run=run)
 
 

@@ -15,6 +15,7 @@ from pathlib import Path
 import pandas as pd
 from tqdm import tqdm
 
+from observer_app.commands.arguments import json_option
 from agreement.bootstrap import DEFAULT_RESAMPLES
 from agreement.dimensions import LEVELS, Dimension
 from agreement.disagreements import list_disagreements
@@ -40,7 +41,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         description="Kappa, alpha and friends with 95 % cluster-bootstrap intervals (resampling learners).")
     parser.add_argument("source", metavar="STUDY|CSV", help="a study folder, or a long-format CSV "
                         "(unit, coder, one column per dimension, optional learner)")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    json_option(parser)
     parser.add_argument("--level", choices=LEVELS, help="CSV only: level of measurement (default nominal)")
     parser.add_argument("--order", help="CSV only: ordered codes, lowest first, comma-separated")
     parser.add_argument("--coders", help="only these coders, comma-separated (e.g. ann,ben)")

@@ -7,6 +7,7 @@ import math
 import sys
 from pathlib import Path
 
+from observer_app.commands.arguments import json_option, study_argument
 from observer_app.pipeline.alignment import (DEFAULT_MAX_STANDARD_ERROR_S, METHODS, Alignment, align_study,
                                             clock_log_ids, clock_reference_ns, model_summary, read_study_logs,
                                             reference_text)
@@ -25,7 +26,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
                     "never replaces a hand-set offset.  A fit whose standard error over the device's observed "
                     "span is not below the bound is refused (exit 2) unless --accept-uncertain is given.",
     )
-    parser.add_argument("study", metavar="STUDY", help="the study folder")
+    study_argument(parser)
     parser.add_argument("--method", choices=METHODS, default="best",
                         help="marks, auto, or best: marks when a device has 3 or more usable (default)")
     parser.add_argument("--set-offset", action="append", default=[], metavar="DEVICE=SECONDS",
@@ -38,7 +39,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
                              f"below this (default {DEFAULT_MAX_STANDARD_ERROR_S:g} s)")
     parser.add_argument("--accept-uncertain", action="store_true",
                         help="store fits above the bound anyway (marked so in the history and in --json)")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    json_option(parser)
     parser.set_defaults(run=run)
 
 

@@ -6,6 +6,7 @@ import json
 import sys
 from pathlib import Path
 
+from observer_app.commands.arguments import json_option
 from export.reader import read_manifest
 from observer_app.pipeline.coverage import coverage_lines
 from observer_app.study.output_paths import publish_text
@@ -39,7 +40,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--weight", choices=("none", "confidence"), default="none",
                         help="weight training windows by the label-confidence posterior of their label")
     parser.add_argument("--report", type=Path, metavar="FILE", help="write a self-contained HTML report")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    json_option(parser)
     parser.set_defaults(run=run)
 
 

@@ -9,6 +9,7 @@ import json
 import sys
 from pathlib import Path
 
+from observer_app.commands.arguments import json_option, study_argument
 from export.features import FeatureSettings
 from export.labelled_windows import ExportSettings
 from export.tables import LABEL_POLICIES
@@ -31,7 +32,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         description="One row per coded window (coders of the same window merged): learner pseudonym, "
                     "roster attributes, labels with their source, and log features of the window.",
     )
-    parser.add_argument("study", type=Path, metavar="STUDY", help="the study folder")
+    study_argument(parser)
     parser.add_argument("--out", type=Path, required=True, metavar="FILE", help="windows file to write")
     parser.add_argument("--format", choices=FORMATS, help="default: from FILE's suffix (.csv -> csv, else parquet)")
     parser.add_argument("--anchor", choices=ANCHORS, default="start",
@@ -60,7 +61,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--keep-ids", action="store_true",
                         help="export raw learner ids and log ids instead of pseudonyms (explicit opt-in)")
     parser.add_argument("--force", action="store_true", help="replace FILE (and its manifest) if they exist")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    json_option(parser)
     parser.set_defaults(run=run)
 
 

@@ -5,6 +5,7 @@ import argparse
 import json
 from pathlib import Path
 
+from observer_app.commands.arguments import json_option, study_argument
 from observer_app.study.importing import import_file
 from observer_app.study.scheme_binding import check_scheme_binding
 from observer_app.study.store import Store
@@ -16,13 +17,13 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         "import", help="add observations from another device's store or a CSV",
         description="Import observations. A CSV needs columns coder, learner, time (ISO 8601 with offset) and one "
                     "column per dimension; optional device, note, end, clip. Importing the same rows twice adds nothing.")
-    parser.add_argument("study", type=Path, help="study folder")
+    study_argument(parser)
     parser.add_argument("files", type=Path, nargs="+", metavar="FILE", help="observations.sqlite or .csv")
     parser.add_argument("--skip-bad", action="store_true", help="import the good rows of a CSV and report the bad ones")
     parser.add_argument("--offsets-as-written", action="store_true",
                         help="take CSV times at UTC offsets the study's time zone did not have then (a coder whose "
                              "clock really kept another zone); refused by default as the sign of an hour-off mistake")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    json_option(parser)
     parser.set_defaults(run=run)
 
 

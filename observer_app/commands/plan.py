@@ -6,6 +6,7 @@ import json
 import math
 import sys
 
+from observer_app.commands.arguments import json_option
 from agreement.planning import pairs_needed
 from sync.errors import InputError
 
@@ -23,7 +24,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--prevalence", required=True,
                         help="expected share of each code, comma-separated, e.g. 0.6,0.3,0.1")
     parser.add_argument("--seed", type=int, default=1, help="simulation seed (default 1)")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    json_option(parser)
     parser.set_defaults(run=run)
 
 

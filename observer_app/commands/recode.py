@@ -10,8 +10,8 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from pathlib import Path
 
+from observer_app.commands.arguments import json_option, study_argument
 from observer_app.study.folder import SCHEME_FILE, load_study
 from observer_app.study.store import Store, now_utc
 from sync.errors import InputError
@@ -22,12 +22,12 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         "recode", help="record that a coded code was renamed or merged into another",
         description="Every stored OLD code of DIMENSION reads as NEW from now on. NEW must be in scheme.toml "
                     "and OLD no longer (edit scheme.toml first). Recorded in the store with --reason; never undone.")
-    parser.add_argument("study", type=Path, help="the study folder")
+    study_argument(parser)
     parser.add_argument("dimension", help="the dimension, as in scheme.toml")
     parser.add_argument("old", help="the code as it was coded")
     parser.add_argument("new", help="the code it now is (a code of scheme.toml)")
     parser.add_argument("--reason", default="", help="why (kept with the decision)")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    json_option(parser)
     parser.set_defaults(run=run)
 
 

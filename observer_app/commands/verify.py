@@ -9,8 +9,8 @@ import argparse
 import json
 import sqlite3
 import sys
-from pathlib import Path
 
+from observer_app.commands.arguments import json_option, study_argument
 from observer_app.study.folder import STORE_FILE
 from observer_app.study.foreign_store import reference_triggers
 from observer_app.study.row_chain import verify_chain
@@ -23,8 +23,8 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         "verify", help="check the observation store against its hash chain",
         description="Recompute the hash chain over every stored row; exit 0 when the store is as fieldmark wrote "
                     "it, else exit 2 naming the first row that was changed, removed or slipped in.")
-    parser.add_argument("study", type=Path, help="the study folder (or a device's observations.sqlite)")
-    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    study_argument(parser, "the study folder (or a device's observations.sqlite)")
+    json_option(parser)
     parser.set_defaults(run=run)
 
 

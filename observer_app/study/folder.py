@@ -62,6 +62,18 @@ def check_timezone(name: object, path: Path, where: str) -> str:
     return name
 
 
+def _section(raw: dict, name: str, allowed: set[str], path: Path, not_a_table: str) -> dict:
+    """study.toml's [name] table ({} when absent); InputError when it is not a table or has a key
+    outside ``allowed`` (``not_a_table`` says what the table should hold)."""
+    table = raw.get(name, {})
+    if not isinstance(table, dict):
+        raise InputError(path, name, not_a_table)
+    unknown = sorted(set(table) - allowed)
+    if unknown:
+        raise InputError(path, f"{name}.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(allowed))}")
+    return table
+
+
 def load_study(directory: str | Path) -> Study:
     """Validate and load a study folder; raise InputError on the first problem."""
     directory = Path(directory)
@@ -72,22 +84,13 @@ def load_study(directory: str | Path) -> Study:
     unknown = sorted(set(raw) - _SECTIONS)
     if unknown:
         raise InputError(path, unknown[0], f"unknown section; allowed are {', '.join(sorted(_SECTIONS))}")
-    header = raw.get("study", {})
-    if not isinstance(header, dict):
-        raise InputError(path, "study", "must be a [study] table with name and timezone")
-    unknown = sorted(set(header) - _STUDY_KEYS)
-    if unknown:
-        raise InputError(path, f"study.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_STUDY_KEYS))}")
+    header = _section(raw, "study", _STUDY_KEYS, path, "must be a [study] table with name and timezone")
     name = header.get("name", directory.name)
     if not isinstance(name, str):
         raise InputError(path, "study.name", "must be a text in quotes")
     timezone = check_timezone(header.get("timezone"), path, "study.timezone")
-    schedule = raw.get("schedule", {})
-    if not isinstance(schedule, dict):
-        raise InputError(path, "schedule", "must be a [schedule] table with window_seconds, order and seed")
-    unknown = sorted(set(schedule) - _SCHEDULE_KEYS)
-    if unknown:
-        raise InputError(path, f"schedule.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_SCHEDULE_KEYS))}")
+    schedule = _section(raw, "schedule", _SCHEDULE_KEYS, path,
+                        "must be a [schedule] table with window_seconds, order and seed")
     window = schedule.get("window_seconds", 20)
     if isinstance(window, bool) or not isinstance(window, (int, float)) or not 1 <= window <= 3600:
         raise InputError(path, "schedule.window_seconds", "must be a number of seconds between 1 and 3600")
@@ -101,12 +104,7 @@ def load_study(directory: str | Path) -> Study:
     if not isinstance(logs, list) or not all(isinstance(entry, dict) for entry in logs):
         raise InputError(path, "logs", "each log must be a [[logs]] table")
     specs = tuple(log_spec_from_toml(entry, directory, number) for number, entry in enumerate(logs, start=1))
-    export = raw.get("export", {})
-    if not isinstance(export, dict):
-        raise InputError(path, "export", "must be an [export] table, e.g. attributes = [\"site\"]")
-    unknown = sorted(set(export) - _EXPORT_KEYS)
-    if unknown:
-        raise InputError(path, f"export.{unknown[0]}", f"unknown key; allowed keys are {', '.join(sorted(_EXPORT_KEYS))}")
+    export = _section(raw, "export", _EXPORT_KEYS, path, "must be an [export] table, e.g. attributes = [\"site\"]")
     attributes = export.get("attributes", [])
     if not isinstance(attributes, list) or not all(isinstance(name, str) and name for name in attributes):
         raise InputError(path, "export.attributes", "must be a list of roster column names, e.g. [\"site\", \"cohort\"]")

@@ -11,6 +11,7 @@ import re
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TypeVar
 
 from agreement.dimensions import LEVELS
 from observer_app.study.tables import RESERVED_COLUMNS
@@ -54,10 +55,7 @@ class SchemeDimension:
         return tuple(c.name for c in self.codes if c.name != self.could_not_observe)
 
     def code(self, name: str) -> Code:
-        for code in self.codes:
-            if code.name == name:
-                return code
-        raise KeyError(name)
+        return _named(self.codes, name)
 
 
 @dataclass(frozen=True)
@@ -71,14 +69,22 @@ class Scheme:
         return tuple(d.name for d in self.dimensions)
 
     def dimension(self, name: str) -> SchemeDimension:
-        for dimension in self.dimensions:
-            if dimension.name == name:
-                return dimension
-        raise KeyError(name)
+        return _named(self.dimensions, name)
 
     def key_map(self) -> dict[str, tuple[str, str]]:
         """Shortcut key -> (dimension, code)."""
         return {c.key: (d.name, c.name) for d in self.dimensions for c in d.codes}
+
+
+_Named = TypeVar("_Named", Code, SchemeDimension)
+
+
+def _named(items: tuple[_Named, ...], name: str) -> _Named:
+    """The item called ``name`` (a code or a dimension); KeyError when there is none."""
+    for item in items:
+        if item.name == name:
+            return item
+    raise KeyError(name)
 
 
 def load_scheme(path: str | Path) -> Scheme:

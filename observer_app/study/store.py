@@ -171,6 +171,9 @@ STORE_MODE = 0o600  # owner-only, like secret.key: the store holds who was obser
 
 _SESSION_COLUMNS = ("session_id, coder, device, mode, paired_start_ns, started_ns, monotonic_start, window_seconds, "
                     "schedule_order, seed, scheme_hash, present, pairing_id, typed_clock_difference_s")
+# observation_id, session_id, learner, slot, clip, window_start_ns, window_end_ns, created_ns, no_code, scheme_hash;
+# a repeated id is left alone (the first row of a window wins; a repeated import adds nothing)
+_INSERT_OBSERVATION = "INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)"
 SIGNAL_START, SIGNAL_END = "signal start", "signal end"
 MARK_KINDS: tuple[str, ...] = ("", SIGNAL_START, SIGNAL_END)
 # Where slot 0 of a paired run began on the device's clock: the typed shared start, or
@@ -321,11 +324,8 @@ class Store:
         """
         code_id = code_id or new_id()
         with self._transaction() as cursor:
-            cursor.execute(
-                "INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,0,?)",
-                (observation_id, session_id, learner, slot, clip, to_ns(window_start), to_ns(window_end),
-                 to_ns(entered_at), scheme_hash),
-            )
+            cursor.execute(_INSERT_OBSERVATION, (observation_id, session_id, learner, slot, clip, to_ns(window_start),
+                                                 to_ns(window_end), to_ns(entered_at), 0, scheme_hash))
             cursor.execute("INSERT INTO codes VALUES (?,?,?,?,?,?)",
                            (code_id, observation_id, dimension, code, to_ns(entered_at), supersedes))
         return code_id
@@ -337,11 +337,8 @@ class Store:
         """A window that ended with nothing coded: an explicit row, so gaps stay visible."""
         observation_id = observation_id or new_id()
         with self._transaction() as cursor:
-            cursor.execute(
-                "INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,1,?)",
-                (observation_id, session_id, learner, slot, clip, to_ns(window_start), to_ns(window_end),
-                 to_ns(window_end), scheme_hash),
-            )
+            cursor.execute(_INSERT_OBSERVATION, (observation_id, session_id, learner, slot, clip, to_ns(window_start),
+                                                 to_ns(window_end), to_ns(window_end), 1, scheme_hash))
         return observation_id
 
     def record_observation(
@@ -360,11 +357,8 @@ class Store:
                             coded_at, codes, scheme_hash, slot, clip, note) -> None:
         coded_ns = to_ns(coded_at)
         given = {d: c for d, c in codes.items() if c is not None and c == c and c != ""}
-        cursor.execute(
-            "INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)",
-            (observation_id, session_id, learner, slot, clip, to_ns(window_start), to_ns(window_end),
-             coded_ns, 0 if given else 1, scheme_hash),
-        )
+        cursor.execute(_INSERT_OBSERVATION, (observation_id, session_id, learner, slot, clip, to_ns(window_start),
+                                             to_ns(window_end), coded_ns, 0 if given else 1, scheme_hash))
         if cursor.rowcount == 0:
             return
         for dimension, code in given.items():
@@ -412,7 +406,7 @@ class Store:
         with self._transaction() as cursor:
             cursor.executemany(f"INSERT OR IGNORE INTO sessions ({_SESSION_COLUMNS}) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
                                session_rows)
-            cursor.executemany("INSERT OR IGNORE INTO observations VALUES (?,?,?,?,?,?,?,?,?,?)", observation_rows)
+            cursor.executemany(_INSERT_OBSERVATION, observation_rows)
             added = max(cursor.rowcount, 0)  # direct inserts only (total_changes would count the chain's rows too)
             cursor.executemany("INSERT OR IGNORE INTO codes VALUES (?,?,?,?,?,NULL)", code_rows)
             cursor.executemany("INSERT OR IGNORE INTO notes VALUES (?,?,?,?)", note_rows)

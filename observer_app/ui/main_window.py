@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import socket
 from dataclasses import replace
+from functools import partial
 from pathlib import Path
 from types import TracebackType
 
@@ -25,6 +26,7 @@ from observer_app.study.store import Store
 from observer_app.study.folder import Study, load_study
 from observer_app.study.creation import create_study
 from observer_app.ui import theme as looks
+from observer_app.ui.background import wait_for_background_work
 from observer_app.ui.cautions import cautions_html
 from observer_app.ui.clock_check import ClockCheck
 from observer_app.ui.end_screen import EndScreen
@@ -43,11 +45,7 @@ class WelcomePage(QWidget):
         super().__init__()
         self.window_ = window
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(64, 48, 64, 48)
-        title = QLabel("fieldmark")
-        title.setProperty("role", "title")
-        layout.addWidget(title)
+        layout = looks.titled_column(self, "fieldmark", (64, 48, 64, 48))
         self.keys_label = QLabel("<p style='font-size:16pt'><b>O</b> open a study folder<br>"
                                  "<b>C</b> create a new study in an empty folder<br><b>Ctrl+Q</b> quit</p>")
         layout.addWidget(self.keys_label)
@@ -255,9 +253,10 @@ class MainWindow(QMainWindow):
     def show_end(self, summary: SessionSummary) -> None:
         paired = self.session.schedule.paired
         self.session = None
-        end = EndScreen(self.study, summary, paired=paired,
-                        agreement=partner_agreement(self.study, self.store, summary.session_id) if paired else None)
+        end = EndScreen(self.study, summary,
+                        agreement=partial(partner_agreement, self.study, summary.session_id) if paired else None)
         end.done.connect(self.show_overview)
+        end.failed.connect(self.show_error)
         self._show(end)
 
     def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
@@ -276,4 +275,5 @@ class MainWindow(QMainWindow):
         if self.store is not None:
             self.store.close()
             self.store = None
+        wait_for_background_work()
         super().closeEvent(event)

@@ -17,7 +17,7 @@ from datetime import datetime
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import (QComboBox, QFormLayout, QGridLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
-                               QSpinBox, QVBoxLayout, QWidget)
+                               QSpinBox, QWidget)
 
 from observer_app.coding.clock import Clock
 from observer_app.coding.replay_plan import ReplayRule, parse_sample
@@ -25,6 +25,7 @@ from observer_app.coding.shared_start import (
     TYPED_START_BOUND_S, new_pairing_code, parse_shared_start, read_pairing_code, suggested_start_times,
 )
 from observer_app.study.folder import Study
+from observer_app.ui.theme import titled_column
 from sync.errors import InputError
 
 SOLO, PAIRED = "Solo - I code alone", "Paired - start together on a spoken countdown"
@@ -52,11 +53,7 @@ class StartForm(QWidget):
         super().__init__()
         self.study = study
         self.clock = clock
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(48, 32, 48, 32)
-        title = QLabel("Start a session")
-        title.setProperty("role", "title")
-        layout.addWidget(title)
+        layout = titled_column(self, "Start a session", (48, 32, 48, 32))
         form = QFormLayout()
         form.setVerticalSpacing(14)
         self.coder = QLineEdit()

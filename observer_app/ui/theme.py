@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from PySide6.QtGui import QColor
+from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
 
 
 @dataclass(frozen=True)
@@ -58,6 +59,16 @@ def readable_text(background: QColor, theme: Theme) -> str:
     return "#14171A" if luminance > 140 else "#FFFFFF"
 
 
+def titled_column(page: QWidget, title: str, margins: tuple[int, int, int, int]) -> QVBoxLayout:
+    """``page``'s layout, a column that starts with ``title`` in the title style (role "title")."""
+    layout = QVBoxLayout(page)
+    layout.setContentsMargins(*margins)
+    heading = QLabel(title)
+    heading.setProperty("role", "title")
+    layout.addWidget(heading)
+    return layout
+
+
 def stylesheet(theme: Theme) -> str:
     """The application-wide style for forms, tables and lists."""
     return f"""
@@ -76,4 +87,6 @@ def stylesheet(theme: Theme) -> str:
     QLabel[role="warning"] {{ color: {theme.warning}; }}
     QFrame[role="panel"] {{ background: {theme.surface}; border-radius: 8px; }}
     QFrame[role="panel"] QLabel {{ background: transparent; }}
+    QProgressBar {{ background: {theme.surface}; border: none; border-radius: 2px; max-height: 4px; }}
+    QProgressBar::chunk {{ background: {theme.accent}; border-radius: 2px; }}
     """
