@@ -172,6 +172,7 @@ class CodingScreen(QWidget):
         header = QHBoxLayout()
         who = QVBoxLayout()
         caption = QLabel()
+        caption.setWordWrap(True)  # a paired run's long instructions wrap, never widen the window
         self.learner_label = FitLabel(floor=floor)
         who.addWidget(caption)
         who.addWidget(self.learner_label)

@@ -39,6 +39,8 @@ def local_time(moment, zone: zoneinfo.ZoneInfo, pattern: str = "%H:%M:%S") -> st
     """A time as every screen writes it: in the study's zone, with the zone's abbreviation."""
     return f"{moment.astimezone(zone).strftime(pattern)} {moment.astimezone(zone):%Z}"
 
+ABSENT_SHOWN = 3  # the status line names this many absent learners, then counts the rest
+
 
 class TimeBar(QWidget):
     """The part of the window still left, as a bar that empties from the right."""
@@ -167,8 +169,8 @@ class ObservingScreen(CodingScreen):
         elif state.paused:
             self.turn_caption.setText("PAUSED  -  press Space to go on")
         elif state.awaiting_signal:
-            self.turn_caption.setText(f"PAIRING CODE {state.pairing_id}  -  ONE OF YOU COUNTS \"3, 2, 1, NOW\" "
-                                      "(F7 SHOWS IT)  -  BOTH PRESS ENTER ON \"NOW\"  -  FIRST UP")
+            self.turn_caption.setText(f"PAIRING CODE {state.pairing_id}  -  COUNT \"3, 2, 1, NOW\" (F7)  -  "
+                                      "BOTH PRESS ENTER ON \"NOW\"  -  FIRST UP")
         elif state.waiting:
             self.turn_caption.setText("WAITING FOR THE SHARED START  -  FIRST UP")
         else:
@@ -182,7 +184,10 @@ class ObservingScreen(CodingScreen):
         self._render_pause(state)
         last = "-" if state.last_saved_at is None else local_time(state.last_saved_at, self._zone)
         missing = ", ".join(dimension_title(d) for d in state.missing) or "nothing"
-        absent = f" · absent: {', '.join(self.session.label(a) for a in state.absent)}" if state.absent else ""
+        shown = [self.session.label(learner) for learner in state.absent[:ABSENT_SHOWN]]
+        more = len(state.absent) - len(shown)
+        absent = (f" · absent: {', '.join(shown)}" + (f" and {more} more (F3 lists them)" if more else "")
+                  if state.absent else "")
         missed = (f"<span style='color:{theme.warning}'><b>{state.missed_windows}</b> ran out uncoded</span>"
                   if state.missed_windows else "0 ran out uncoded")
         self.status_label.setText(f"Windows coded: <b>{state.coded_windows}</b> · {missed} · last save {last} · "

@@ -178,6 +178,13 @@ def walk(study: Path, sizes: list[tuple[int, int]], scale: float) -> dict[str, d
                                         present=("L01", "L02", "L03"), replay=True))
         settle(app)
         look("replay")
+        window.show_overview()
+        window.start_session(StartChoice(coder="ana", device="walk-laptop", paired_start=None,
+                                         present=("L01", "L02", "L03"), pairing_id="KM7QX", signal=True))
+        settle(app)
+        look("clock check, paired")
+        key(Qt.Key.Key_Return)
+        look("observing, waiting for the signal")
         window.close()
         window.deleteLater()
         settle(app)

@@ -23,7 +23,8 @@ from tests.app.layout_walk import make_crowded_study, problems
 from tests.conftest import ROOT
 
 SCREENS = {"welcome", "overview", "start form", "start form, replay plan", "clock check", "observing", "observing, unknown key",
-           "observing, paused", "observing, key list", "end of session", "replay"}
+           "observing, paused", "observing, key list", "end of session", "replay", "clock check, paired",
+           "observing, waiting for the signal"}
 RUNS = {"1": ["1280x800", "1366x768", "1920x1080"], "1.25": ["1920x1080"], "1.5": ["1920x1080"]}
 
 
