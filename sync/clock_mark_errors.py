@@ -11,9 +11,9 @@ learner's events within the outlier limit of the line, which one unknown (equal 
 plus normal reaction noise.  This finite-mixture likelihood is maximised over (offset,
 drift, reaction SD) by EM (Dempster, Laird & Rubin 1977: the E step weighs every
 candidate event, the M step is a weighted least-squares line), and the covariance is the
-inverse of the observed information by the missing-information principle (Louis 1982:
-the complete-data information expected over the candidates minus the variance of the
-complete-data score), scaled by n / (n - p) as least squares is.
+inverse of the observed information of (offset, drift) by the missing-information
+principle (Louis 1982: the complete-data information expected over the candidates minus
+the variance of the complete-data score), scaled by n / (n - p) as least squares is.
 
 Over the observed span the line's error is stated as a simultaneous band: the pointwise
 standard error at the span's ends times sqrt(p F(0.95; p, n - p)) / 2 (Working & Hotelling
@@ -81,7 +81,7 @@ def fit_mark_line(gap_s: np.ndarray, since_s: np.ndarray, candidate: np.ndarray,
     covariance = _louis_covariance(gap - offset_s - slope * since, since, weight, sigma, with_drift)
     if covariance is None:
         return MarkLine(float(offset_s), float(slope), sigma, nan, nan)
-    covariance = covariance[:parameters, :parameters] * marks / (marks - parameters)
+    covariance = covariance * marks / (marks - parameters)
     ends = np.column_stack([np.ones(len(span_since_s)), span_since_s])[:, :parameters]
     pointwise = np.sqrt(np.einsum("ij,jk,ik->i", ends, covariance, ends)).max()
     band = np.sqrt(parameters * f_distribution.ppf(BAND_LEVEL, parameters, marks - parameters)) / 2
@@ -109,20 +109,13 @@ def _weighted_line(gap: np.ndarray, since: np.ndarray, weight: np.ndarray, with_
 
 def _louis_covariance(residual: np.ndarray, since: np.ndarray, weight: np.ndarray, sigma: float,
                       with_drift: bool) -> np.ndarray | None:
-    """Inverse observed information of (offset, [slope,] sigma) by Louis's formula; None
-    when it is not positive definite."""
-    columns = [np.ones_like(since), since] if with_drift else [np.ones_like(since)]
+    """Inverse observed information of (offset[, slope]) by Louis's formula, the reaction SD
+    held at its estimate (for a normal line it is orthogonal to them); None when it is not
+    positive definite."""
+    columns = np.stack([np.ones_like(since), since] if with_drift else [np.ones_like(since)], -1)
     residual = np.where(weight > 0, residual, 0.0)
-    # complete-data score of each (mark, candidate)
-    score = np.stack([residual * c / sigma ** 2 for c in columns] + [(residual ** 2 - sigma ** 2) / sigma ** 3], -1)
-    size = len(columns) + 1
-    hessian = np.empty(residual.shape + (size, size))  # complete-data information
-    for i, ci in enumerate(columns):
-        for j, cj in enumerate(columns):
-            hessian[..., i, j] = ci * cj / sigma ** 2
-        hessian[..., i, -1] = hessian[..., -1, i] = 2 * residual * ci / sigma ** 3
-    hessian[..., -1, -1] = (3 * residual ** 2 - sigma ** 2) / sigma ** 4
-    expected = np.einsum("nk,nkij->ij", weight, hessian)
+    score = residual[..., None] * columns / sigma ** 2             # complete-data score per (mark, candidate)
+    expected = np.einsum("nk,nki,nkj->ij", weight, columns, columns) / sigma ** 2  # complete-data information
     mean_score = np.einsum("nk,nki->ni", weight, score)
     missing = np.einsum("nk,nki,nkj->ij", weight, score, score) - mean_score.T @ mean_score
     information = expected - missing

@@ -12,13 +12,14 @@ learner did something the log records.
    Matching and fitting are repeated with the fitted model.
 3. Marks further than max(1 s, 5 robust SD) from the line are outliers: named, and left
    out of the final fit.
-4. The final line, and its standard errors, come from a model of the matching itself:
-   each kept mark was made at one of its learner's events within that limit, which one
-   unknown, plus normal reaction noise (sync/clock_mark_errors.py: EM fit, Louis's
-   observed information, a Working-Hotelling band over the device's observed span).
-   Nearest-event residuals alone understate the error about twofold where events come
-   closer together than the coder's reaction spread.  Drift makes the error grow away
-   from the marks, which is why the gate of ``fieldmark align`` uses the span's.
+4. The standard errors come from a model of the matching itself: each kept mark was made
+   at one of its learner's events within that limit, which one unknown, plus normal
+   reaction noise (sync/clock_mark_errors.py: EM fit, Louis's observed information, a
+   Working-Hotelling band over the device's observed span), widened for the Theil-Sen
+   line's lower efficiency (THEIL_SEN_VARIANCE_RATIO).  Nearest-event residuals alone
+   understate the error about twofold where events come closer together than the
+   coder's reaction spread.  Drift makes the error grow away from the marks, which is
+   why the gate of ``fieldmark align`` uses the span's.
 """
 from __future__ import annotations
 
@@ -41,6 +42,11 @@ OUTLIER_ROBUST_SD = 5.0
 MIN_DRIFT_SPAN_S = 600.0
 MIN_DRIFT_MARKS = 3
 ROUNDS = 3
+# The Theil-Sen line's offset is a median (of residuals about its slope): for normal errors
+# its variance is pi/2 times the mean's (asymptotic relative efficiency 2/pi, from memory);
+# the slope loses less (about 0.91).  So the matching model's errors, which are those of its
+# maximum-likelihood line, are widened by sqrt(pi/2) for the line reported.
+THEIL_SEN_VARIANCE_RATIO = np.pi / 2
 
 
 def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame,
@@ -100,11 +106,9 @@ def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame,
     limit = _outlier_limit(residual[keep])
     span = np.array(span_ns if span_ns is not None else (device_ns.min(), device_ns.max()), dtype=np.int64)
     if keep.any():
-        model, errors = _mark_line(model, device_ns[keep], matched[keep], learners[keep], blocks, event_ns, limit,
-                                       _drift_estimable((matched[keep] - model.reference_ns) / 1e9),
-                                       robust_sd(residual[keep]), span)
-        matched = nearest(model.to_log_ns(device_ns))
-        residual = _residual(model, device_ns, matched)
+        errors = _mark_errors(model, device_ns[keep], matched[keep], learners[keep], blocks, event_ns, limit,
+                              _drift_estimable((matched[keep] - model.reference_ns) / 1e9),
+                              robust_sd(residual[keep]), span)
     else:
         errors = (float("nan"), float("nan"))
     residuals = tuple(
@@ -191,7 +195,7 @@ def _fit(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, keep: np
                         f"{MIN_DRIFT_SPAN_S / 60:.0f} minutes); assumed 0 ppm")
     fitted = ClockModel(device=model.device, method="marks", offset_s=float(intercept),
                         drift_ppm=float(slope * 1e6), reference_ns=model.reference_ns)
-    return fitted, _residual(fitted, device_ns, matched)
+    return fitted, gap - (intercept + slope * since)
 
 
 def _drift_estimable(since_s: np.ndarray) -> bool:
@@ -199,17 +203,11 @@ def _drift_estimable(since_s: np.ndarray) -> bool:
     return len(since_s) >= MIN_DRIFT_MARKS and float(np.ptp(since_s)) >= MIN_DRIFT_SPAN_S
 
 
-def _residual(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray) -> np.ndarray:
-    """Each mark's (device - matched event) minus the line's offset there, in seconds."""
-    since = (matched - model.reference_ns) / 1e9
-    return (device_ns - matched) / 1e9 - (model.offset_s + model.drift_ppm * 1e-6 * since)
-
-
-def _mark_line(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, learners: np.ndarray,
-               blocks: dict[str, tuple[int, int]], event_ns: np.ndarray, limit_s: float, with_drift: bool, sigma_s: float,
-               span_device_ns: np.ndarray) -> tuple[ClockModel, tuple[float, float]]:
-    """Step 4 of the module note for the kept marks: the refitted model and its
-    (offset, span) standard errors.  Each mark's candidates are its learner's events
+def _mark_errors(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, learners: np.ndarray,
+                 blocks: dict[str, tuple[int, int]], event_ns: np.ndarray, limit_s: float, with_drift: bool,
+                 sigma_s: float, span_device_ns: np.ndarray) -> tuple[float, float]:
+    """Step 4 of the module note for the kept marks: the (offset, span) standard errors of
+    the Theil-Sen line ``model``.  Each mark's candidates are its learner's events
     within ``limit_s`` of where the current model puts it, and the event it was matched to."""
     guess = model.to_log_ns(device_ns)
     reach = int(limit_s * 1e9)
@@ -229,9 +227,8 @@ def _mark_line(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, le
     line = fit_mark_line((device_ns[:, None] - times) / 1e9, (times - model.reference_ns) / 1e9, candidate,
                          model.offset_s, model.drift_ppm * 1e-6 if with_drift else None, sigma_s,
                          (model.to_log_ns(span_device_ns) - model.reference_ns) / 1e9)
-    fitted = ClockModel(device=model.device, method="marks", offset_s=line.offset_s, drift_ppm=line.slope * 1e6,
-                        reference_ns=model.reference_ns)
-    return fitted, (line.offset_error_s, line.span_error_s)
+    widen = np.sqrt(THEIL_SEN_VARIANCE_RATIO)
+    return line.offset_error_s * widen, line.span_error_s * widen
 
 
 def _outlier_limit(residual: np.ndarray) -> float:
