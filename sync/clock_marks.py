@@ -130,20 +130,12 @@ def _coarse_model(device_ns: np.ndarray, learners: np.ndarray, blocks: dict[str,
                   event_ns: np.ndarray) -> tuple[float, float, int]:
     """(offset_s, drift_ppm, reference_ns) with the most votes from candidate pairings."""
     reference = int(np.median(device_ns))
-    gaps, since, voters = [], [], []
-    reach = int(SEARCH_RANGE_S * 1e9)
-    for learner in np.unique(learners):
-        rows = np.flatnonzero(learners == learner)
-        begin, stop = blocks[learner]
-        times = event_ns[begin:stop]
-        first = np.searchsorted(times, device_ns[rows] - reach)
-        last = np.searchsorted(times, device_ns[rows] + reach, side="right")
-        size = last - first
-        index = np.repeat(first, size) + (np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size))
-        gaps.append((np.repeat(device_ns[rows], size) - times[index]) / 1e9)
-        since.append((times[index] - reference) / 1e9)
-        voters.append(np.repeat(rows, size))
-    gaps, since, voters = np.concatenate(gaps), np.concatenate(since), np.concatenate(voters)
+    first, last = _event_ranges(learners, blocks, event_ns, device_ns, int(SEARCH_RANGE_S * 1e9))
+    size = last - first
+    index = np.repeat(first, size) + (np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size))
+    gaps = (np.repeat(device_ns, size) - event_ns[index]) / 1e9
+    since = (event_ns[index] - reference) / 1e9
+    voters = np.repeat(np.arange(len(device_ns)), size)
     if gaps.size == 0:
         return 0.0, 0.0, reference
     drifts = np.arange(-VOTE_DRIFT_RANGE_PPM, VOTE_DRIFT_RANGE_PPM + VOTE_DRIFT_STEP_PPM / 2, VOTE_DRIFT_STEP_PPM)
@@ -209,18 +201,9 @@ def _mark_errors(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, 
     """Step 4 of the module note for the kept marks: the (offset, span) standard errors of
     the Theil-Sen line ``model``.  Each mark's candidates are its learner's events
     within ``limit_s`` of where the current model puts it, and the event it was matched to."""
-    guess = model.to_log_ns(device_ns)
-    reach = int(limit_s * 1e9)
-    first, count = np.empty(len(device_ns), np.int64), np.empty(len(device_ns), np.int64)
-    for learner in np.unique(learners):
-        rows = np.flatnonzero(learners == learner)
-        begin, stop = blocks[learner]
-        times = event_ns[begin:stop]
-        low = np.searchsorted(times, guess[rows] - reach)
-        high = np.searchsorted(times, guess[rows] + reach, side="right")
-        at = np.searchsorted(times, matched[rows])  # the matched event is always a candidate
-        low, high = np.minimum(low, at), np.maximum(high, at + 1)
-        first[rows], count[rows] = begin + low, high - low
+    first, last = _event_ranges(learners, blocks, event_ns, model.to_log_ns(device_ns), int(limit_s * 1e9))
+    at, _ = _event_ranges(learners, blocks, event_ns, matched, 0)  # the matched event is always a candidate
+    first, count = np.minimum(first, at), np.maximum(last, at + 1) - np.minimum(first, at)
     index = first[:, None] + np.arange(count.max())[None, :]
     candidate = np.arange(count.max())[None, :] < count[:, None]
     times = event_ns[np.where(candidate, index, first[:, None])]
@@ -229,6 +212,20 @@ def _mark_errors(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, 
                          (model.to_log_ns(span_device_ns) - model.reference_ns) / 1e9)
     widen = np.sqrt(THEIL_SEN_VARIANCE_RATIO)
     return line.offset_error_s * widen, line.span_error_s * widen
+
+
+def _event_ranges(learners: np.ndarray, blocks: dict[str, tuple[int, int]], event_ns: np.ndarray,
+                  centre_ns: np.ndarray, reach_ns: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per mark, [first, last) indices into ``event_ns`` of its learner's events within
+    ``reach_ns`` of its ``centre_ns``, by np.searchsorted on that learner's sorted slice."""
+    first, last = np.empty(len(centre_ns), np.int64), np.empty(len(centre_ns), np.int64)
+    for learner in np.unique(learners):
+        rows = np.flatnonzero(learners == learner)
+        begin, stop = blocks[learner]
+        times = event_ns[begin:stop]
+        first[rows] = begin + np.searchsorted(times, centre_ns[rows] - reach_ns)
+        last[rows] = begin + np.searchsorted(times, centre_ns[rows] + reach_ns, side="right")
+    return first, last
 
 
 def _outlier_limit(residual: np.ndarray) -> float:
