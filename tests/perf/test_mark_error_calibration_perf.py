@@ -4,8 +4,9 @@ study's first day (tests/sync/sync_mark_calibration.py; the in-suite check runs 
 Required: the planted clock lies within 2 ``span_standard_error_s`` over the whole
 observed span for 90-99 % of seeds (95 % simultaneous band, Working & Hotelling 1929,
 from memory; fewer would be understated, more inflated), and the median error / span SE
-stays between 0.7 and 1.5 (about 1.0 for an honest band with the max over the span of a
-normal line fit's error, by simulation).  Printed with the offset at the reference.
+stays between 0.7 and 1.5 (about 0.8 for an exact band: by our simulation of a normal
+straight-line fit, the largest error over the span is a median 1.02 pointwise standard
+errors, and the band's factor here is 1.31).  Printed with the offset at the reference.
 
 Run: FIELDMARK_PERF=1 pytest tests/perf/test_mark_error_calibration_perf.py -s
 """
