@@ -36,12 +36,13 @@ class MarkResidual:
 class ClockModel:
     """Offset and drift of one device's clock relative to the log, with the evidence.
 
-    offset_standard_error_s: the offset's standard error at the reference (marks: robust SD
-    of the kept residuals / sqrt(kept marks); auto: bootstrap over windows, see
-    sync/clock_refine.py); NaN when not known.
+    offset_standard_error_s: the offset's standard error at the reference (marks: from the
+    observed information of the mark-matching model, sync/clock_mark_errors.py; auto:
+    bootstrap over windows, see sync/clock_refine.py); NaN when not known.
     span_standard_error_s: the standard error of device -> log time over the device's
     whole observed span, drift included (the largest over the span; it grows away from the
-    reference); NaN when not known.  The uncertainty gate of ``fieldmark align`` uses it.
+    reference; for marks half a 95 % simultaneous band, so 2 of it covers the whole span);
+    NaN when not known.  The uncertainty gate of ``fieldmark align`` uses it.
     confidence is in [0, 1]: for "marks" the share of marks that agree with the fit
     (within max(1 s, 5 robust SD)); for "auto" how clearly the best offset beats the
     next-best separate candidate (1 = unrivalled, 0 = a tie); NaN for "manual" and

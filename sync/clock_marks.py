@@ -12,11 +12,14 @@ learner did something the log records.
    Matching and fitting are repeated with the fitted model.
 3. Marks further than max(1 s, 5 robust SD) from the line are outliers: named, and left
    out of the final fit.
-4. The standard error over the device's observed span: the straight-line covariance
-   sigma^2 (X'X)^-1 of (offset, drift) with sigma the robust SD of the kept residuals
-   (an approximation for Theil-Sen, which is about as efficient as least squares for
-   normal errors), evaluated at both ends of the span, the larger kept.  Drift makes the
-   error grow away from the marks, which is why the gate of ``fieldmark align`` uses it.
+4. The standard errors come from a model of the matching itself: each kept mark was made
+   at one of its learner's events within that limit, which one unknown, plus normal
+   reaction noise (sync/clock_mark_errors.py: EM fit, Louis's observed information, a
+   Working-Hotelling band over the device's observed span), widened for the Theil-Sen
+   line's lower efficiency (THEIL_SEN_VARIANCE_RATIO).  Nearest-event residuals alone
+   understate the error about twofold where events come closer together than the
+   coder's reaction spread.  Drift makes the error grow away from the marks, which is
+   why the gate of ``fieldmark align`` uses the span's.
 """
 from __future__ import annotations
 
@@ -25,6 +28,7 @@ import pandas as pd
 from scipy.stats import theilslopes
 
 from sync.clock import ClockModel, MarkResidual
+from sync.clock_mark_errors import fit_mark_line
 from sync.event_table import learner_blocks
 from sync.time_column import datetime_column_ns
 from sync.robust_spread import robust_sd
@@ -38,6 +42,11 @@ OUTLIER_ROBUST_SD = 5.0
 MIN_DRIFT_SPAN_S = 600.0
 MIN_DRIFT_MARKS = 3
 ROUNDS = 3
+# The Theil-Sen line's offset is a median (of residuals about its slope): for normal errors
+# its variance is pi/2 times the mean's (asymptotic relative efficiency 2/pi, from memory);
+# the slope loses less (about 0.91).  So the matching model's errors, which are those of its
+# maximum-likelihood line, are widened by sqrt(pi/2) for the line reported.
+THEIL_SEN_VARIANCE_RATIO = np.pi / 2
 
 
 def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame,
@@ -94,12 +103,18 @@ def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame,
         model, residual = _fit(model, device_ns, matched, keep, warnings)
         keep = np.abs(residual) <= _outlier_limit(residual[keep])
         model, residual = _fit(model, device_ns, matched, keep, warnings)
+    limit = _outlier_limit(residual[keep])
+    span = np.array(span_ns if span_ns is not None else (device_ns.min(), device_ns.max()), dtype=np.int64)
+    if keep.any():
+        errors = _mark_errors(model, device_ns[keep], matched[keep], learners[keep], blocks, event_ns, limit,
+                              _drift_estimable((matched[keep] - model.reference_ns) / 1e9),
+                              robust_sd(residual[keep]), span)
+    else:
+        errors = (float("nan"), float("nan"))
     residuals = tuple(
         MarkResidual(mark_id=mark_ids[i], learner=learners[i], device_ns=int(device_ns[i]), event_ns=int(matched[i]),
                      residual_s=round(float(residual[i]), 6), outlier=not bool(keep[i]))
         for i in range(len(device_ns)))
-    span = np.array(span_ns if span_ns is not None else (device_ns.min(), device_ns.max()), dtype=np.int64)
-    span_error = _span_standard_error(model, matched[keep], residual[keep], span)
     outliers = [r.mark_id for r in residuals if r.outlier]
     if outliers:
         warnings.append(f"{len(outliers)} outlying marks left out of the fit: {', '.join(outliers[:10])}")
@@ -107,8 +122,7 @@ def fit_from_marks(marks: pd.DataFrame, events: pd.DataFrame,
         device=model.device, method="marks", offset_s=model.offset_s, drift_ppm=model.drift_ppm,
         reference_ns=model.reference_ns, marks_used=int(keep.sum()),
         median_abs_residual_s=float(np.median(np.abs(residual))), confidence=float(keep.mean()),
-        offset_standard_error_s=robust_sd(residual[keep]) / np.sqrt(keep.sum()) if keep.sum() > 1 else float("nan"),
-        span_standard_error_s=span_error,
+        offset_standard_error_s=errors[0], span_standard_error_s=errors[1],
         warnings=tuple(dict.fromkeys(warnings)), residuals=residuals)
 
 
@@ -116,20 +130,12 @@ def _coarse_model(device_ns: np.ndarray, learners: np.ndarray, blocks: dict[str,
                   event_ns: np.ndarray) -> tuple[float, float, int]:
     """(offset_s, drift_ppm, reference_ns) with the most votes from candidate pairings."""
     reference = int(np.median(device_ns))
-    gaps, since, voters = [], [], []
-    reach = int(SEARCH_RANGE_S * 1e9)
-    for learner in np.unique(learners):
-        rows = np.flatnonzero(learners == learner)
-        begin, stop = blocks[learner]
-        times = event_ns[begin:stop]
-        first = np.searchsorted(times, device_ns[rows] - reach)
-        last = np.searchsorted(times, device_ns[rows] + reach, side="right")
-        size = last - first
-        index = np.repeat(first, size) + (np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size))
-        gaps.append((np.repeat(device_ns[rows], size) - times[index]) / 1e9)
-        since.append((times[index] - reference) / 1e9)
-        voters.append(np.repeat(rows, size))
-    gaps, since, voters = np.concatenate(gaps), np.concatenate(since), np.concatenate(voters)
+    first, last = _event_ranges(learners, blocks, event_ns, device_ns, int(SEARCH_RANGE_S * 1e9))
+    size = last - first
+    index = np.repeat(first, size) + (np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size))
+    gaps = (np.repeat(device_ns, size) - event_ns[index]) / 1e9
+    since = (event_ns[index] - reference) / 1e9
+    voters = np.repeat(np.arange(len(device_ns)), size)
     if gaps.size == 0:
         return 0.0, 0.0, reference
     drifts = np.arange(-VOTE_DRIFT_RANGE_PPM, VOTE_DRIFT_RANGE_PPM + VOTE_DRIFT_STEP_PPM / 2, VOTE_DRIFT_STEP_PPM)
@@ -170,8 +176,7 @@ def _fit(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, keep: np
     """Theil-Sen offset and drift through the kept marks; residuals for all marks (s)."""
     since = (matched - model.reference_ns) / 1e9
     gap = (device_ns - matched) / 1e9
-    span = since[keep].max() - since[keep].min() if keep.any() else 0.0
-    if keep.sum() >= MIN_DRIFT_MARKS and span >= MIN_DRIFT_SPAN_S:
+    if _drift_estimable(since[keep]):
         slope = theilslopes(gap[keep], since[keep])[0]
         # The offset is the median residual about the Theil-Sen slope (scipy's own
         # intercept pairs median(y) with median(x), which need not be the same mark).
@@ -185,24 +190,42 @@ def _fit(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, keep: np
     return fitted, gap - (intercept + slope * since)
 
 
-def _span_standard_error(model: ClockModel, matched: np.ndarray, residual: np.ndarray, span_device_ns: np.ndarray) -> float:
-    """Largest standard error of the fitted line over the span (step 4 of the module note).
+def _drift_estimable(since_s: np.ndarray) -> bool:
+    """Enough kept marks spread over enough time (s since the reference) to fit a drift."""
+    return len(since_s) >= MIN_DRIFT_MARKS and float(np.ptp(since_s)) >= MIN_DRIFT_SPAN_S
 
-    Without an estimated drift the line is a constant offset: its error is the offset's.
-    NaN with fewer than two kept marks.
-    """
-    if len(residual) < 2:
-        return float("nan")
-    sigma = robust_sd(residual)
-    since = (matched - model.reference_ns) / 1e9
-    ends = (model.to_log_ns(span_device_ns) - model.reference_ns) / 1e9
-    if model.drift_ppm == 0.0 or np.ptp(since) == 0.0:
-        return sigma / float(np.sqrt(len(residual)))
-    design = np.column_stack((np.ones_like(since), since))
-    covariance = sigma ** 2 * np.linalg.inv(design.T @ design)
-    points = np.column_stack((np.ones_like(ends), ends))
-    variance = np.einsum("ij,jk,ik->i", points, covariance, points)
-    return float(np.sqrt(variance.max()))
+
+def _mark_errors(model: ClockModel, device_ns: np.ndarray, matched: np.ndarray, learners: np.ndarray,
+                 blocks: dict[str, tuple[int, int]], event_ns: np.ndarray, limit_s: float, with_drift: bool,
+                 sigma_s: float, span_device_ns: np.ndarray) -> tuple[float, float]:
+    """Step 4 of the module note for the kept marks: the (offset, span) standard errors of
+    the Theil-Sen line ``model``.  Each mark's candidates are its learner's events
+    within ``limit_s`` of where the current model puts it, and the event it was matched to."""
+    first, last = _event_ranges(learners, blocks, event_ns, model.to_log_ns(device_ns), int(limit_s * 1e9))
+    at, _ = _event_ranges(learners, blocks, event_ns, matched, 0)  # the matched event is always a candidate
+    first, count = np.minimum(first, at), np.maximum(last, at + 1) - np.minimum(first, at)
+    index = first[:, None] + np.arange(count.max())[None, :]
+    candidate = np.arange(count.max())[None, :] < count[:, None]
+    times = event_ns[np.where(candidate, index, first[:, None])]
+    line = fit_mark_line((device_ns[:, None] - times) / 1e9, (times - model.reference_ns) / 1e9, candidate,
+                         model.offset_s, model.drift_ppm * 1e-6 if with_drift else None, sigma_s,
+                         (model.to_log_ns(span_device_ns) - model.reference_ns) / 1e9)
+    widen = np.sqrt(THEIL_SEN_VARIANCE_RATIO)
+    return line.offset_error_s * widen, line.span_error_s * widen
+
+
+def _event_ranges(learners: np.ndarray, blocks: dict[str, tuple[int, int]], event_ns: np.ndarray,
+                  centre_ns: np.ndarray, reach_ns: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per mark, [first, last) indices into ``event_ns`` of its learner's events within
+    ``reach_ns`` of its ``centre_ns``, by np.searchsorted on that learner's sorted slice."""
+    first, last = np.empty(len(centre_ns), np.int64), np.empty(len(centre_ns), np.int64)
+    for learner in np.unique(learners):
+        rows = np.flatnonzero(learners == learner)
+        begin, stop = blocks[learner]
+        times = event_ns[begin:stop]
+        first[rows] = begin + np.searchsorted(times, centre_ns[rows] - reach_ns)
+        last[rows] = begin + np.searchsorted(times, centre_ns[rows] + reach_ns, side="right")
+    return first, last
 
 
 def _outlier_limit(residual: np.ndarray) -> float:

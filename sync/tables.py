@@ -20,7 +20,8 @@ CLOCK MODEL -- ``sync.clock.ClockModel`` (a dataclass), one per clock:
   so a device whose clock runs ahead has a positive offset_s.  method is "manual",
   "marks", "borrowed", "auto" or "identity" (no model: device time used as log time).
   Stored as the JSON text of ``ClockModel.to_json()``.  span_standard_error_s is the
-  standard error of device -> log time over the device's observed span (NaN unknown).
+  standard error of device -> log time over the device's observed span, stated so that
+  two of it cover the whole span with about 95 % confidence (NaN unknown).
   CLOCK MODELS (the ``dict[str, ClockModel]`` every mapping onto the log's clock takes)
   are keyed by ``sync.clock_sessions.clock_key``: the device ("laptop-a"), or
   "device/session_id" ("laptop-a/5f0c...") for a session whose clock got its own model

@@ -15,6 +15,8 @@ reads times.  Vectorised throughout.
 """
 from __future__ import annotations
 
+from datetime import datetime
+
 import numpy as np
 import pandas as pd
 
@@ -175,11 +177,45 @@ def _raise_bad_rows(values: pd.Series, missing: np.ndarray, rows: np.ndarray, fi
     if blank:
         raise InputError(file, f"column {column}, {row_word} {shown}{more}",
                          "the time is empty; every event needs its time")
-    expected = (f"does not match time_format \"{time_format}\" (or is not {RANGE_TEXT})" if is_pattern(time_format)
-                else f"is not a time {RANGE_TEXT}; write ISO 8601 (2026-03-29T14:05:00+02:00) or epoch "
-                     "seconds/milliseconds, or set time_format to a strftime pattern")
+    if _reads_as_time(first, time_format):
+        expected = (f"is not a time {RANGE_TEXT}; fix the date, or the time_format in this log's [[logs]] "
+                    "entry of study.toml if it reads the value wrongly (epoch milliseconds as seconds)")
+    elif is_pattern(time_format):
+        expected = (f"could not be read as a time with time_format \"{time_format}\" (this log's [[logs]] entry "
+                    "of study.toml); fix the value or the pattern")
+    elif time_format == "iso":  # xAPI statements, or a log set to ISO 8601 only
+        expected = "could not be read as an ISO 8601 time (2026-03-29T14:05:00+02:00); fix the value"
+    else:
+        expected = ("could not be read as a time; write ISO 8601 (2026-03-29T14:05:00+02:00) or epoch "
+                    "seconds/milliseconds, or set time_format = \"<strftime pattern>\" in this log's [[logs]] "
+                    "entry of study.toml")
     raise InputError(file, f"column {column}, {row_word} {shown}{more}",
                      f"{str(first)[:40]!r} {expected}{_suggestion(values, time_format)}")
+
+
+def _reads_as_time(value: object, time_format: str) -> bool:
+    """Whether one refused value is a time at all (so it was refused for its range), read
+    as the column was: native and number columns always are; text by its pattern, as an
+    epoch number, or as ISO 8601.  Python's own parsers, as pandas' refuse years outside
+    1677-2262 rather than read them.  Only on the error path, for one value."""
+    if not isinstance(value, str):
+        return True
+    text = value.strip()
+    if is_pattern(time_format):
+        try:
+            datetime.strptime(text, time_format)
+        except ValueError:
+            return False
+        return True
+    try:
+        return bool(np.isfinite(float(text)))
+    except ValueError:
+        pass
+    try:
+        datetime.fromisoformat(text.replace("z", "Z"))
+    except ValueError:
+        return False
+    return True
 
 
 def datetime_column_ns(values: pd.Series) -> np.ndarray:

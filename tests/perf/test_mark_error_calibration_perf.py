@@ -1,45 +1,29 @@
-"""How honest the sync-mark fit's span standard error is (the uncertainty gate reads it).
+"""How honest the sync-mark fit's standard errors are over 100 seeds of the planted
+study's first day (tests/sync/sync_mark_calibration.py; the in-suite check runs 40).
 
-One day of the planted study (tests/sync/sync_planted_clock.py: 24 marks over 4 hours,
-reaction noise 0.2 s, PLANTED clock 37.4 s ahead, 45 ppm) per seed: the largest error of
-the fitted line against the planted clock over the day's observed span, in units of
-``span_standard_error_s``, and for comparison in units of ``offset_standard_error_s``
-(the error at the reference only, the obvious alternative the gate does not use).
-Honest errors would put about 95 % of devices within 2 standard errors.
+Required: the planted clock lies within 2 ``span_standard_error_s`` over the whole
+observed span for 90-99 % of seeds (95 % simultaneous band, Working & Hotelling 1929,
+from memory; fewer would be understated, more inflated), and the median error / span SE
+stays between 0.7 and 1.5 (about 0.8 for an exact band: by our simulation of a normal
+straight-line fit, the largest error over the span is a median 1.02 pointwise standard
+errors, and the band's factor here is 1.31).  Printed with the offset at the reference.
 
 Run: FIELDMARK_PERF=1 pytest tests/perf/test_mark_error_calibration_perf.py -s
 """
 from __future__ import annotations
 
-import warnings
+import time
 
 import numpy as np
-import pandas as pd
 
-from sync.clock_marks import fit_from_marks
-from tests.sync import sync_planted_clock as planted
+from tests.sync.sync_mark_calibration import error_ratios, summary
 
-SEEDS = range(1, 21)
+SEEDS = range(1, 101)
 
 
 def test_span_standard_error_coverage_of_the_planted_clock():
-    span_ratio, offset_ratio = [], []
-    for seed in SEEDS:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            built = planted.build(seed=seed)
-        day_end = planted.REFERENCE + pd.Timedelta(days=1)
-        marks = built.marks[pd.to_datetime(built.marks["marked_at"]) < day_end]
-        observed = built.observations[pd.to_datetime(built.observations["window_start"]) < day_end]
-        span = np.array([observed["window_start"].min().value, observed["window_end"].max().value], dtype=np.int64)
-        model = fit_from_marks(marks, built.events, (int(span[0]), int(span[1])))
-        error = np.abs(model.to_log_ns(span) - planted.TRUTH.to_log_ns(span)).max() / 1e9
-        span_ratio.append(error / model.span_standard_error_s)
-        offset_ratio.append(error / model.offset_standard_error_s)
-    span_ratio, offset_ratio = np.array(span_ratio), np.array(offset_ratio)
-    within_span, within_offset = float((span_ratio <= 2).mean()), float((offset_ratio <= 2).mean())
-    print(f"\nplanted error within 2 span standard errors: {within_span:.0%} of {len(SEEDS)} seeds; "
-          f"within 2 offset standard errors: {within_offset:.0%}; median error / span SE "
-          f"{np.median(span_ratio):.2f}, / offset SE {np.median(offset_ratio):.2f}")
-    assert within_span >= within_offset  # the span's error includes the drift's, never smaller
-    assert float((span_ratio <= 5).mean()) >= 0.8  # understated, but not by an order of magnitude
+    began = time.perf_counter()
+    span_ratio, offset_ratio = error_ratios(SEEDS)
+    print(f"\n{summary(span_ratio, offset_ratio)} ({time.perf_counter() - began:.0f} s)")
+    assert 0.90 <= float((span_ratio <= 2).mean()) <= 0.99
+    assert 0.7 <= float(np.median(span_ratio)) <= 1.5

@@ -44,11 +44,12 @@ class PlantedStudy:
     roster: pd.DataFrame         # learner, log_id
 
 
-def build(seed: int = 11, marks_every_s: float = 600.0, outlying_marks: int = 2) -> PlantedStudy:
+def build(seed: int = 11, marks_every_s: float = 600.0, outlying_marks: int = 2, days: int = DAYS) -> PlantedStudy:
+    """The planted study over its first ``days`` days (fewer days: the same first days, faster)."""
     rng = np.random.default_rng(seed)
     log_ids = [f"n-{i:04d}" for i in range(1, LEARNERS + 1)]
     roster = pd.DataFrame({"learner": [f"L{i:02d}" for i in range(1, LEARNERS + 1)], "log_id": log_ids})
-    day_starts = [REFERENCE + pd.Timedelta(days=d) for d in range(DAYS)]
+    day_starts = [REFERENCE + pd.Timedelta(days=d) for d in range(days)]
     day_s = HOURS_PER_DAY * 3600
     event_parts, observations, marks = [], [], []
     states = {}

@@ -256,27 +256,16 @@ def test_one_day_of_marks_alone_recovers_the_planted_clock(planted_marks):
     assert abs(model.offset_s - truth.offset_s) < 0.5, (model.offset_s, truth.offset_s)
 
 
-def test_span_standard_error_is_the_line_s_prediction_error_at_the_span_s_ends(planted_marks):
-    """Reference: statsmodels OLS, standard error of the fitted mean at a new x
-    (get_prediction().se_mean), which is sigma * sqrt(x0' (X'X)^-1 x0); with the robust SD
-    of the kept residuals in place of the OLS sigma it must equal span_standard_error_s."""
-    import statsmodels.api as sm
-
+def test_span_standard_error_grows_away_from_the_marks(planted_marks):
+    """The span's error includes the drift's, so it exceeds the offset's at the reference.
+    (Its formula, the matching included, is checked against statsmodels OLS and the planted
+    clock in tests/sync/test_sync_mark_calibration.py; the robust-SD-times-OLS formula this
+    test used to pin was the one that stated half the real error.)"""
     from sync.clock_marks import fit_from_marks
-    from sync.robust_spread import robust_sd
     built = planted_marks
     span = (int(built.observations["window_start"].min().value), int(built.observations["window_end"].max().value))
     model = fit_from_marks(built.marks, built.events, span)
-    kept = [r for r in model.residuals if not r.outlier]
-    since = np.array([(r.event_ns - model.reference_ns) / 1e9 for r in kept])
-    residual = np.array([r.residual_s for r in kept])
-    gap = np.array([(r.device_ns - r.event_ns) / 1e9 for r in kept])
-    ols = sm.OLS(gap, sm.add_constant(since)).fit()
-    ends = (model.to_log_ns(np.array(span)) - model.reference_ns) / 1e9
-    se_mean = ols.get_prediction(sm.add_constant(ends, has_constant="add")).se_mean
-    expected = float(np.max(se_mean / np.sqrt(ols.scale) * robust_sd(residual)))
-    assert model.span_standard_error_s == pytest.approx(expected, rel=1e-4)  # residuals are kept to 1 microsecond
-    assert model.span_standard_error_s > model.offset_standard_error_s  # drift grows it away from the marks
+    assert model.span_standard_error_s > model.offset_standard_error_s > 0
 
 
 def test_a_newer_automatic_fit_does_not_displace_sync_marks(study):

@@ -52,7 +52,7 @@ def test_rows_are_numbered_in_errors_and_quoted_line_breaks_are_read(tmp_path):
     assert list(events["source_row"]) == [1, 2]
     (tmp_path / "late.csv").write_text("trainee,at,event\n" + "n-1,2026-03-02 09:00:00,wire\n" * 3
                                        + "n-1,soon,wire\n")
-    with pytest.raises(InputError, match=r"late.csv: column at, row 4: 'soon' is not a time"):
+    with pytest.raises(InputError, match=r"late.csv: column at, row 4: 'soon' could not be read as a time"):
         read(tmp_path, "late.csv", timezone="Europe/Berlin")
 
 

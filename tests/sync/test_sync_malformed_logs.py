@@ -20,7 +20,7 @@ CASES = [
     ("empty.csv", "csv", ["empty.csv", "is empty"]),
     ("header_only.csv", "csv", ["header_only.csv", "no rows"]),
     ("missing_column.csv", "csv", ["missing_column.csv", "header", "time = 'timestamp'"]),
-    ("bad_time.csv", "csv", ["bad_time.csv", "column timestamp, row 3", "'yesterday' is not a time"]),
+    ("bad_time.csv", "csv", ["bad_time.csv", "column timestamp, row 3", "'yesterday' could not be read as a time", "time_format", "study.toml"]),
     ("naive_without_timezone.csv", "csv", ["naive_without_timezone.csv", "timezone"]),
     ("bad_duration.csv", "csv", ["bad_duration.csv", "column seconds, row 2", "'about five'"]),
     ("not_utf8.csv", "csv", ["not_utf8.csv", "encoding"]),
@@ -30,7 +30,7 @@ CASES = [
     ("malformed_array_line7.json", "xapi", ["malformed_array_line7.json", "line 7", "malformed JSON"]),
     ("no_verb.jsonl", "xapi", ["no_verb.jsonl", "line 2", "verb.id"]),
     ("duration_in_months.jsonl", "xapi", ["duration_in_months.jsonl", "line 1", "months"]),
-    ("bad_timestamp.jsonl", "xapi", ["bad_timestamp.jsonl", "line 2", "not a time"]),
+    ("bad_timestamp.jsonl", "xapi", ["bad_timestamp.jsonl", "line 2", "'March 2nd, 9am' could not be read as an ISO 8601 time"]),
     ("not_statements.json", "xapi", ["not_statements.json", "line 1", "not a statement"]),
     ("not_parquet.parquet", "parquet", ["not_parquet.parquet", "not a readable Parquet file"]),
 ]

@@ -55,7 +55,7 @@ def test_unreadable_times_name_value_row_and_the_pattern_that_fits(tmp_path: Pat
     study = solo_laptops_study(tmp_path)
     write_log(study, LOG_IDS, stamp=lambda moment: local(moment, "%d.%m.%Y %H:%M"))
     assert_user_error(call_cli("export", study, "--out", tmp_path / "w.parquet"),
-                      "centre_north.csv", "column timestamp, row 1", "'03.03.2026 09:00' is not a time",
+                      "centre_north.csv", "column timestamp, row 1", "'03.03.2026 09:00' could not be read as a time",
                       'time_format = "%d.%m.%Y %H:%M" reads every value')
 
 
@@ -63,7 +63,7 @@ def test_day_first_and_month_first_both_fitting_are_both_named_and_neither_picke
     study = solo_laptops_study(tmp_path)  # 3 March: 03/03 reads the same either way ...
     write_log(study, LOG_IDS, stamp=lambda moment: local(moment, "%d/%m/%Y %H:%M:%S"))
     result = call_cli("export", study, "--out", tmp_path / "w.parquet")
-    assert_user_error(result, "'03/03/2026 09:00:00' is not a time", '"%d/%m/%Y %H:%M:%S" (day first)',
+    assert_user_error(result, "'03/03/2026 09:00:00' could not be read as a time", '"%d/%m/%Y %H:%M:%S" (day first)',
                       '"%m/%d/%Y %H:%M:%S" (month first)', "set the one your system writes")
     assert not (tmp_path / "w.parquet").exists()
 
@@ -77,7 +77,7 @@ def test_a_row_that_does_not_match_the_pattern_is_named(tmp_path: Path) -> None:
     log.write_text("\n".join(lines) + "\n")
     set_time_format(study, "%m/%d/%Y %H:%M:%S")
     assert_user_error(call_cli("export", study, "--out", tmp_path / "w.parquet"), "column timestamp, row 5",
-                      "'2026-03-03 09:00:08' does not match time_format \"%m/%d/%Y %H:%M:%S\"")
+                      "'2026-03-03 09:00:08' could not be read as a time with time_format \"%m/%d/%Y %H:%M:%S\"")
 
 
 @pytest.mark.parametrize("bad", ["%H:%M", "day.month.year", "%d.%m.%Y %Q"])
@@ -95,3 +95,40 @@ def test_the_study_template_shows_time_format_and_its_example_pattern_works(tmp_
     write_log(study, LOG_IDS, stamp=lambda moment: local(moment, "%m/%d/%Y %H:%M:%S"))
     (study / "study.toml").write_text(text.replace('time_format = "auto"', 'time_format = "%m/%d/%Y %H:%M:%S"'))
     assert export_table(study, tmp_path / "w.parquet")["event_count"].sum() > 0
+
+
+def _log_with_row_5(study: Path, text: str, pattern: str | None = None) -> None:
+    """The study's log with row 5's time replaced by ``text``."""
+    if pattern:
+        write_log(study, LOG_IDS, stamp=lambda moment: local(moment, pattern))
+        set_time_format(study, pattern)
+    log = study / "logs" / "centre_north.csv"
+    lines = log.read_text().splitlines()
+    cells = lines[5].split(",")
+    column = lines[0].split(",").index("timestamp")
+    cells[column] = text
+    lines[5] = ",".join(cells)
+    log.write_text("\n".join(lines) + "\n")
+
+
+@pytest.mark.parametrize("text", ["half past nine", "2026-13-45T09:00:00Z"])
+def test_text_that_is_no_time_is_said_to_be_unreadable_not_out_of_range(tmp_path: Path, text: str) -> None:
+    study = solo_laptops_study(tmp_path)
+    _log_with_row_5(study, text)
+    result = call_cli("export", study, "--out", tmp_path / "w.parquet")
+    assert_user_error(result, "centre_north.csv", "column timestamp, row 5", f"'{text}' could not be read as a time",
+                      "ISO 8601", "epoch", 'time_format = "<strftime pattern>"', "study.toml")
+    assert "1990" not in result.stderr
+    assert not (tmp_path / "w.parquet").exists()
+
+
+@pytest.mark.parametrize(("text", "pattern"), [("1500-03-03T09:00:08+01:00", None),
+                                               ("2187-03-03T09:00:08Z", None),
+                                               ("03/03/1889 09:00:08", "%m/%d/%Y %H:%M:%S")])
+def test_a_time_that_reads_but_lies_outside_1990_to_2100_keeps_the_range_message(
+        tmp_path: Path, text: str, pattern: str | None) -> None:
+    study = solo_laptops_study(tmp_path)
+    _log_with_row_5(study, text, pattern)
+    result = call_cli("export", study, "--out", tmp_path / "w.parquet")
+    assert_user_error(result, "centre_north.csv", "column timestamp, row 5", f"'{text}' is not a time between 1990 and 2100")
+    assert "could not be read" not in result.stderr
