@@ -21,7 +21,8 @@ import io
 import json
 import os
 import re
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
+from itertools import chain
 from pathlib import Path
 
 import msgspec
@@ -66,14 +67,27 @@ def plain_json_lines(path: Path, encoding: str) -> bool:
     return True
 
 
-def count_lines(path: Path) -> int:
-    """Lines in a file (a last line without a line break counts)."""
-    lines, last = 0, b"\n"
+def whole_lines(read: Callable[[], bytes], buffer: bytes = b"") -> Iterator[bytes]:
+    """Blocks of whole lines (each ends with a line break, except perhaps the file's last):
+    ``buffer`` first, then what ``read()`` gives until it gives nothing.  Each block is
+    copied once (the partial line carried over, then the read up to its last break)."""
+    rest = b""
+    for more in chain((buffer,), iter(read, b"")):
+        cut = more.rfind(b"\n") + 1
+        if cut == 0:
+            rest += more
+            continue
+        yield b"".join((rest, memoryview(more)[:cut]))
+        rest = more[cut:]
+    if rest:
+        yield rest
+
+
+def plain_line_blocks(path: Path, block_bytes: int = BLOCK_BYTES) -> Iterator[bytes]:
+    """Blocks of whole lines of a plain UTF-8 file (see ``plain_json_lines``), byte order mark dropped."""
     with open(path, "rb") as handle:
-        while block := handle.read(BLOCK_BYTES):
-            lines += block.count(b"\n")
-            last = block[-1:]
-    return lines + (last != b"\n")
+        head = handle.read(block_bytes)
+        yield from whole_lines(lambda: handle.read(block_bytes), head[len(_BOM):] if head.startswith(_BOM) else head)
 
 
 def parallel_stretches(path: Path, encoding: str, parts: int | None = None) -> list[tuple[int, int]]:
@@ -195,23 +209,9 @@ class StatementBlocks:
             stream.close()
 
     def _lines(self, stream, buffer: bytes, lines_before: int = 0) -> Iterator[tuple[list, np.ndarray]]:
-        at_end = False
-        while True:
-            if not at_end:
-                more = self._read(stream, self.block_bytes)
-                at_end = not more
-                buffer += more
-            cut = len(buffer) if at_end else buffer.rfind(b"\n") + 1
-            if cut == 0:
-                if at_end:
-                    return
-                continue
-            chunk, buffer = buffer[:cut], buffer[cut:]
-            if chunk:
-                yield self._decode_lines(chunk, lines_before)
-                lines_before += chunk.count(b"\n")
-            if at_end and not buffer:
-                return
+        for chunk in whole_lines(lambda: self._read(stream, self.block_bytes), buffer):
+            yield self._decode_lines(chunk, lines_before)
+            lines_before += chunk.count(b"\n")
 
     def _decode_lines(self, chunk: bytes, lines_before: int) -> tuple[list, np.ndarray]:
         try:
