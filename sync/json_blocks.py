@@ -83,8 +83,9 @@ def whole_lines(read: Callable[[], bytes], buffer: bytes = b"") -> Iterator[byte
         yield rest
 
 
-def plain_line_blocks(path: Path, block_bytes: int = BLOCK_BYTES) -> Iterator[bytes]:
+def plain_line_blocks(path: Path, block_bytes: int | None = None) -> Iterator[bytes]:
     """Blocks of whole lines of a plain UTF-8 file (see ``plain_json_lines``), byte order mark dropped."""
+    block_bytes = block_bytes or BLOCK_BYTES
     with open(path, "rb") as handle:
         head = handle.read(block_bytes)
         yield from whole_lines(lambda: handle.read(block_bytes), head[len(_BOM):] if head.startswith(_BOM) else head)

@@ -27,11 +27,11 @@ from sync.plausible_values import RANGE_TEXT, ns_outside_range, utc_ns
 
 EPOCH_MS_THRESHOLD = 1e11
 # [ \t] rather than \s: RE2 can run these, so pandas matches them in Arrow, not row by row.
-_OFFSET_PATTERN = r"\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?[ \t]*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)$"
+# A time (hours alone only right after the date) followed by "Z" or an offset.
+_OFFSET_PATTERN = r"(?:\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?|[Tt ]\d{2})[ \t]*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)$"
 _NUMBER_PATTERN = r"^[ \t]*[+-]?\d+(?:\.\d*)?[ \t]*$"
 SHOWN_ROWS = 5
 SAMPLE_ROWS = 64
-_HOUR_END = len("2026-03-02T07")
 COMMON_PATTERNS: tuple[str, ...] = (
     "%d/%m/%Y %H:%M:%S", "%m/%d/%Y %H:%M:%S", "%d/%m/%Y %H:%M", "%m/%d/%Y %H:%M",
     "%d.%m.%Y %H:%M:%S", "%d.%m.%Y %H:%M", "%d-%m-%Y %H:%M:%S", "%m-%d-%Y %H:%M:%S",
@@ -143,23 +143,18 @@ def _epoch_ns(numbers: np.ndarray, time_format: str) -> np.ndarray:
 
 
 def _offset_stamps(text: pd.Series) -> np.ndarray | None:
-    """UTC ns when every stamp is ISO 8601 with hours:minutes and a UTC offset, read in one
-    pass by Arrow's parser; None (the general path reads them) when any is not.
+    """UTC ns when every stamp is ISO 8601 with a UTC offset, read in one pass by Arrow's
+    parser; None (the general path reads them) when any is not.
 
-    Arrow reads a subset of what pandas' ISO 8601 parser reads, to the same instant; the
-    only shape it reads that the offset rule below does not call an offset stamp is an
-    hour without minutes ("2026-03-02T07+01:00"), so ``:`` must follow the hour.  A
-    sample is tried first so that a column of local times costs nothing here.
+    Arrow reads a subset of what pandas' ISO 8601 parser reads, each to the same instant
+    (and only stamps with an offset, as the type asks).  A sample is tried first so that
+    a column of local times costs nothing here.
     """
     utc = pa.timestamp("ns", "UTC")
     try:
         pc.cast(pa.array(text.iloc[:SAMPLE_ROWS], pa.string()), utc)
-        stamps = pa.array(text, pa.string())
-        parsed = pc.cast(stamps, utc)
+        parsed = pc.cast(pa.array(text, pa.string()), utc)
     except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError):
-        return None
-    minutes = pc.equal(pc.utf8_slice_codeunits(stamps, _HOUR_END, _HOUR_END + 1), ":")
-    if not pc.all(minutes).as_py():
         return None
     return pc.fill_null(parsed.cast(pa.int64()), NAT).to_numpy(zero_copy_only=False, writable=True)
 

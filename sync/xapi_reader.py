@@ -452,48 +452,53 @@ def _read_stretch(spec: LogSpec, path: Path, only: frozenset[str] | None,
     return part
 
 
-_HEX_VALUE = np.full(256, 16, np.uint8)
-for _digits, _first in ((b"0123456789", 0), (b"abcdef", 10), (b"ABCDEF", 10)):
-    _HEX_VALUE[np.frombuffer(_digits, np.uint8)] = np.arange(_first, _first + len(_digits))
+_HEX_DIGIT = np.zeros(256, dtype=bool)
+_HEX_DIGIT[np.frombuffer(b"0123456789abcdefABCDEF", np.uint8)] = True
 _UUID_LENGTH = 36
 _UUID_DASHES = [8, 13, 18, 23]
-_UUID_DIGITS = np.setdiff1d(np.arange(_UUID_LENGTH), _UUID_DASHES)
-_MIX = np.uint64(0x9E3779B97F4A7C15)  # an odd 64-bit constant (the golden ratio's bits) to mix a key's halves
+_MIX = np.uint64(0x9E3779B97F4A7C15)  # an odd 64-bit constant (the golden ratio's bits) to mix a key's words
 
 
 def _uuid_keys(ids: pa.StringArray) -> np.ndarray | None:
-    """Ids in the form xAPI gives them (2.4.1: a UUID, 8-4-4-4-12 hex digits) as (n, 2)
-    uint64 keys, equal exactly when the ids are equal ignoring case; None when any id
-    has another form (then the caller compares the text)."""
+    """Ids in the form xAPI gives them (2.4.1: a UUID, 8-4-4-4-12 hex digits) as rows of
+    nine 32-bit words, equal exactly when the ids are equal ignoring case (setting bit
+    0x20 lower-cases A-F and leaves digits and "-" alone); None when any id has another
+    form (then the caller compares the text)."""
     lengths = pc.min_max(pc.binary_length(ids))
     if len(ids) == 0 or lengths["min"].as_py() != _UUID_LENGTH or lengths["max"].as_py() != _UUID_LENGTH:
         return None
     start = np.frombuffer(ids.buffers()[1], np.int32)[ids.offset]
     text = np.frombuffer(ids.buffers()[2], np.uint8)[start:start + _UUID_LENGTH * len(ids)].reshape(-1, _UUID_LENGTH)
-    nibbles = _HEX_VALUE[text[:, _UUID_DIGITS]]
-    if not (text[:, _UUID_DASHES] == ord("-")).all() or (nibbles > 15).any():
+    dashes_in_place = (text[:, _UUID_DASHES] == ord("-")).all()
+    if not dashes_in_place or np.count_nonzero(_HEX_DIGIT[text]) != (_UUID_LENGTH - len(_UUID_DASHES)) * len(ids):
         return None
-    return np.ascontiguousarray((nibbles[:, 0::2] << 4) | nibbles[:, 1::2]).view(np.uint64)
+    return (text | np.uint8(0x20)).view(np.uint32)
 
 
 def _first_of_keys(keys: np.ndarray) -> np.ndarray | None:
-    """True at the first row of each key; None if two different keys mix to one number."""
-    mixed = keys[:, 0] * _MIX ^ keys[:, 1]
+    """True at the first row of each key (a row of words); None if two different keys
+    mix to one number (then the caller compares the text)."""
+    mixed = np.zeros(len(keys), dtype=np.uint64)
+    for column in keys.T:
+        mixed = mixed * _MIX ^ column
+    first = np.ones(len(keys), dtype=bool)
+    ordered = np.sort(mixed)
+    if not (ordered[1:] == ordered[:-1]).any():  # the usual case: no id twice
+        return first
     order = np.argsort(mixed, kind="stable")  # stable: equal keys stay in row order
     same = np.flatnonzero(mixed[order[1:]] == mixed[order[:-1]])
-    first = np.ones(len(keys), dtype=bool)
-    if same.size:
-        earlier, later = order[same], order[same + 1]
-        if (keys[earlier] != keys[later]).any():
-            return None
-        first[later] = False
+    earlier, later = order[same], order[same + 1]
+    if (keys[earlier] != keys[later]).any():
+        return None
+    first[later] = False
     return first
 
 
 def _repeats(ids: pa.ChunkedArray) -> np.ndarray:
     """True at each row whose statement id (ignoring case) an earlier row has; a row
-    without an id repeats nothing.  UUIDs are compared as 128-bit numbers (sorting them
-    costs a fraction of hashing their text), any other id as lower-cased text."""
+    without an id repeats nothing.  UUIDs are compared as rows of numbers (sorting one
+    number mixed from each costs a fraction of hashing the text), any other id as
+    lower-cased text."""
     present = ids.is_valid().to_numpy(zero_copy_only=False)
     given = ids.filter(pa.array(present)).combine_chunks()
     keys = _uuid_keys(given)
