@@ -299,11 +299,11 @@ def _in_order(pool: ThreadPoolExecutor, function, items, ahead: int):
         yield pending.popleft().result()
 
 
-def _arrow_chunk(chunk: bytes, spec: LogSpec, name: str,
+def _arrow_chunk(chunk: memoryview, spec: LogSpec, name: str,
                  only: frozenset[str] | None) -> tuple[StatementPart | None, int]:
     """One block of whole lines -> (its StatementPart with lines counted from the block's
     start, its line count); the part is None when the file needs the exact path."""
-    lines = int(np.count_nonzero(np.frombuffer(chunk, np.uint8) == 10)) + (not chunk.endswith(b"\n"))
+    lines = int(np.count_nonzero(np.frombuffer(chunk, np.uint8) == 10)) + (chunk[-1] != ord("\n"))
     try:
         table = pajson.read_json(pa.BufferReader(chunk),
                                  read_options=pajson.ReadOptions(use_threads=False, block_size=len(chunk) + 1),
