@@ -258,7 +258,10 @@ def _field(column: pa.Array, *path: str) -> pa.Array:
     value = column
     for name in path:
         value = pc.struct_field(value, name)
-    return pc.if_else(pc.equal(value, ""), pa.scalar(None, value.type), value) if value.type == _TEXT else value
+    if value.type != _TEXT or value.null_count == len(value):
+        return value
+    empty = pc.equal(pc.binary_length(value), 0)
+    return pc.if_else(empty, pa.scalar(None, _TEXT), value) if pc.any(empty).as_py() else value
 
 
 def _read_with_arrow(spec: LogSpec, path: Path, only: frozenset[str] | None) -> list[StatementPart] | None:
@@ -324,13 +327,17 @@ def _arrow_block(batch: pa.RecordBatch, lines: np.ndarray, spec: LogSpec, name: 
     """One Arrow block -> the same table as ``_block_table``; False sends the file to the exact path."""
     actor, verb, target, result = (batch.column(key) for key in ("actor", "verb", "object", "result"))
     names = _field(actor, "account", "name")
-    named = names.is_valid()
-    learner = pc.if_else(named, names, pc.coalesce(_field(actor, "mbox"), _field(actor, "mbox_sha1sum"),
-                                                    _field(actor, "openid")))
+    home = pc.coalesce(_field(actor, "account", "homePage"), "")
+    if names.null_count:  # not every actor an account: the other identifiers, no homePage
+        named = names.is_valid()
+        learner = pc.if_else(named, names, pc.coalesce(_field(actor, "mbox"), _field(actor, "mbox_sha1sum"),
+                                                        _field(actor, "openid")))
+        home = pc.if_else(named, home, pa.scalar(None, _TEXT))
+    else:
+        learner = names
     verb_ids = _field(verb, "id")
     if learner.null_count or verb_ids.null_count:
         return False
-    home = pc.if_else(named, pc.coalesce(_field(actor, "account", "homePage"), ""), pa.scalar(None, _TEXT))
     voiding = pc.equal(verb_ids, VOIDED).to_numpy(zero_copy_only=False)
     if voiding.any():
         refs = batch.filter(pa.array(voiding)).column("object")
