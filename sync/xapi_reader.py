@@ -2,8 +2,12 @@
 
 A file holds JSON lines, a JSON array, or pages of results as a learning record store
 hands them over (``{"statements": [...], "more": ...}``), optionally gzipped; a folder
-entry reads every file.  Files are read in blocks (sync/json_blocks.py), decoded by
-msgspec into the few fields below, so memory grows with the events kept, not the file.
+entry reads every file.  Files are read in blocks (sync/json_blocks.py), so memory grows
+with the events kept, not the file: a plain JSON-lines file is parsed by Arrow's JSON
+reader, two blocks at a time in threads, and turned into events column by column;
+anything else, or a file Arrow's path refuses, is decoded by msgspec (the exact path,
+which names the line of every error).  Both read the few fields below (Arrow's schema
+is derived from the msgspec Structs).
 Mapping (section numbers are xAPI 1.0.3 Part Two):
   learner    actor's Inverse Functional Identifier (2.4.2.3): account.name, else mbox
              (the "mailto:" IRI as written), else mbox_sha1sum, else openid.  Identified
