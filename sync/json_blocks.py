@@ -43,10 +43,9 @@ _BYTE_POSITION = re.compile(r"\(byte (\d+)\)")
 
 def _open(path: Path, encoding: str) -> io.RawIOBase:
     """A binary stream of the file's text as UTF-8 (gunzipped, transcoded when needed)."""
-    raw = open(path, "rb")
-    magic = raw.read(2)
-    raw.seek(0)
-    stream = gzip.GzipFile(fileobj=raw) if magic == b"\x1f\x8b" else raw
+    with open(path, "rb") as handle:
+        gzipped = handle.read(2) == b"\x1f\x8b"
+    stream = gzip.GzipFile(path) if gzipped else open(path, "rb")  # GzipFile closes only a file it opened
     if codecs.lookup(encoding).name == "utf-8":
         return stream
     return _Transcoded(io.TextIOWrapper(stream, encoding=encoding, newline=""))

@@ -156,7 +156,7 @@ def _offset_stamps(text: pd.Series) -> np.ndarray | None:
         parsed = pc.cast(pa.array(text, pa.string()), utc)
     except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError):
         return None
-    return pc.fill_null(parsed.cast(pa.int64()), NAT).to_numpy(zero_copy_only=False, writable=True)
+    return np.array(pc.fill_null(parsed.cast(pa.int64()), NAT), dtype=np.int64)  # a writable copy
 
 
 def _parse_text(text: pd.Series, time_format: str, timezone: str | None, file: str,

@@ -35,6 +35,7 @@ import multiprocessing
 import re
 from collections import deque
 from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor
+from contextlib import closing
 from dataclasses import dataclass, field
 from functools import partial
 from itertools import repeat
@@ -275,18 +276,31 @@ def _read_with_arrow(spec: LogSpec, path: Path, only: frozenset[str] | None) -> 
 
     Returns None -- and the exact path (msgspec, line by line) reads the file -- when
     anything is unusual: another layout, a blank line, a field of another type, an
-    actor without identifier, a statement without verb, any error to report.
+    actor without identifier, a statement without verb, any error to report, a file
+    that cannot be mapped.
     """
     if not plain_json_lines(path, spec.encoding):
         return None
-    pieces, lines_before = [], 0
     read_block = partial(_arrow_chunk, spec=spec, name=str(path), only=only)
     with ThreadPoolExecutor(ARROW_THREADS) as pool:
-        for piece, lines in _in_order(pool, read_block, plain_line_blocks(path), ahead=ARROW_THREADS):
+        try:
+            pieces = _arrow_pieces(pool, read_block, path)
+        except OSError:  # the file cannot be mapped
+            pieces = None
+        if pieces is None:
+            pool.shutdown(cancel_futures=True)
+    return pieces
+
+
+def _arrow_pieces(pool: ThreadPoolExecutor, read_block, path: Path) -> list[StatementPart] | None:
+    """Every block's part, line numbers counted from the file's start; None at the first
+    block that needs the exact path."""
+    pieces, lines_before = [], 0
+    with closing(plain_line_blocks(path)) as blocks:  # closes the file when a block stops early
+        for piece, lines in _in_order(pool, read_block, blocks, ahead=ARROW_THREADS):
             if piece is None:
-                pool.shutdown(cancel_futures=True)
                 return None
-            if piece.table is not None:  # the block's line numbers -> the file's
+            if piece.table is not None:
                 rows = pc.add(piece.table["row"], lines_before)
                 piece.table = piece.table.set_column(piece.table.schema.get_field_index("row"), "row", rows)
             pieces.append(piece)
