@@ -19,9 +19,11 @@ import codecs
 import gzip
 import io
 import json
+import mmap
 import os
 import re
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
+from itertools import chain
 from pathlib import Path
 
 import msgspec
@@ -41,10 +43,9 @@ _BYTE_POSITION = re.compile(r"\(byte (\d+)\)")
 
 def _open(path: Path, encoding: str) -> io.RawIOBase:
     """A binary stream of the file's text as UTF-8 (gunzipped, transcoded when needed)."""
-    raw = open(path, "rb")
-    magic = raw.read(2)
-    raw.seek(0)
-    stream = gzip.GzipFile(fileobj=raw) if magic == b"\x1f\x8b" else raw
+    with open(path, "rb") as handle:
+        gzipped = handle.read(2) == b"\x1f\x8b"
+    stream = gzip.GzipFile(path) if gzipped else open(path, "rb")  # GzipFile closes only a file it opened
     if codecs.lookup(encoding).name == "utf-8":
         return stream
     return _Transcoded(io.TextIOWrapper(stream, encoding=encoding, newline=""))
@@ -66,14 +67,41 @@ def plain_json_lines(path: Path, encoding: str) -> bool:
     return True
 
 
-def count_lines(path: Path) -> int:
-    """Lines in a file (a last line without a line break counts)."""
-    lines, last = 0, b"\n"
+def whole_lines(read: Callable[[], bytes], buffer: bytes = b"") -> Iterator[bytes]:
+    """Blocks of whole lines (each ends with a line break, except perhaps the file's last):
+    ``buffer`` first, then what ``read()`` gives until it gives nothing.  Each block is
+    copied once (the partial line carried over, then the read up to its last break)."""
+    rest = b""
+    for more in chain((buffer,), iter(read, b"")):
+        cut = more.rfind(b"\n") + 1
+        if cut == 0:
+            rest += more
+            continue
+        yield b"".join((rest, memoryview(more)[:cut]))
+        rest = more[cut:]
+    if rest:
+        yield rest
+
+
+def plain_line_blocks(path: Path, block_bytes: int | None = None) -> Iterator[memoryview]:
+    """Blocks of whole lines of a plain UTF-8 file (see ``plain_json_lines``), byte order
+    mark dropped.  The file is mapped, not read: no copy is made, and a block's memory
+    goes back to the system as soon as its last user lets it go."""
+    block_bytes = block_bytes or BLOCK_BYTES
+    size = path.stat().st_size
     with open(path, "rb") as handle:
-        while block := handle.read(BLOCK_BYTES):
-            lines += block.count(b"\n")
-            last = block[-1:]
-    return lines + (last != b"\n")
+        start = len(_BOM) if handle.read(len(_BOM)) == _BOM else 0
+        length = block_bytes
+        while start < size:
+            base = start - start % mmap.ALLOCATIONGRANULARITY
+            end = min(start + length, size)
+            mapped = mmap.mmap(handle.fileno(), end - base, access=mmap.ACCESS_READ, offset=base)
+            cut = end if end == size else base + mapped.rfind(b"\n", start - base) + 1
+            if cut <= start:  # no line break yet: a line longer than a block
+                length *= 2
+                continue
+            yield memoryview(mapped)[start - base:cut - base]
+            start, length = cut, block_bytes
 
 
 def parallel_stretches(path: Path, encoding: str, parts: int | None = None) -> list[tuple[int, int]]:
@@ -195,23 +223,9 @@ class StatementBlocks:
             stream.close()
 
     def _lines(self, stream, buffer: bytes, lines_before: int = 0) -> Iterator[tuple[list, np.ndarray]]:
-        at_end = False
-        while True:
-            if not at_end:
-                more = self._read(stream, self.block_bytes)
-                at_end = not more
-                buffer += more
-            cut = len(buffer) if at_end else buffer.rfind(b"\n") + 1
-            if cut == 0:
-                if at_end:
-                    return
-                continue
-            chunk, buffer = buffer[:cut], buffer[cut:]
-            if chunk:
-                yield self._decode_lines(chunk, lines_before)
-                lines_before += chunk.count(b"\n")
-            if at_end and not buffer:
-                return
+        for chunk in whole_lines(lambda: self._read(stream, self.block_bytes), buffer):
+            yield self._decode_lines(chunk, lines_before)
+            lines_before += chunk.count(b"\n")
 
     def _decode_lines(self, chunk: bytes, lines_before: int) -> tuple[list, np.ndarray]:
         try:

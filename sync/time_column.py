@@ -19,6 +19,8 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from sync.clock import NAT
 from sync.errors import InputError
@@ -27,9 +29,11 @@ from sync.plausible_values import RANGE_TEXT, ns_outside_range, utc_ns
 
 EPOCH_MS_THRESHOLD = 1e11
 # [ \t] rather than \s: RE2 can run these, so pandas matches them in Arrow, not row by row.
-_OFFSET_PATTERN = r"\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?[ \t]*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)$"
+# A time (hours alone only right after the date) followed by "Z" or an offset.
+_OFFSET_PATTERN = r"(?:\d{2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?|[Tt ]\d{2})[ \t]*(?:[Zz]|[+-]\d{2}(?::?\d{2})?)$"
 _NUMBER_PATTERN = r"^[ \t]*[+-]?\d+(?:\.\d*)?[ \t]*$"
 SHOWN_ROWS = 5
+SAMPLE_ROWS = 64
 COMMON_PATTERNS: tuple[str, ...] = (
     "%d/%m/%Y %H:%M:%S", "%m/%d/%Y %H:%M:%S", "%d/%m/%Y %H:%M", "%m/%d/%Y %H:%M",
     "%d.%m.%Y %H:%M:%S", "%d.%m.%Y %H:%M", "%d-%m-%Y %H:%M:%S", "%m-%d-%Y %H:%M:%S",
@@ -140,8 +144,27 @@ def _epoch_ns(numbers: np.ndarray, time_format: str) -> np.ndarray:
     return result
 
 
+def _offset_stamps(text: pd.Series) -> np.ndarray | None:
+    """UTC ns when every stamp is ISO 8601 with a UTC offset, read in one pass by Arrow's
+    parser; None (the general path reads them) when any is not.
+
+    Arrow reads a subset of what pandas' ISO 8601 parser reads, each to the same instant
+    (and only stamps with an offset, as the type asks).  A sample is tried first so that
+    a column of local times costs nothing here.
+    """
+    utc = pa.timestamp("ns", "UTC")
+    try:
+        pc.cast(pa.array(text.iloc[:SAMPLE_ROWS], pa.string()), utc)
+        parsed = pc.cast(pa.array(text, pa.string()), utc)
+    except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError):
+        return None
+    return np.array(pc.fill_null(parsed.cast(pa.int64()), NAT), dtype=np.int64)  # a writable copy
+
+
 def _parse_text(text: pd.Series, time_format: str, timezone: str | None, file: str,
                 column: str) -> tuple[np.ndarray, LocalTimeCounts]:
+    if time_format in ("iso", "auto") and (exact := _offset_stamps(text)) is not None:
+        return exact, LocalTimeCounts()
     text = text.str.strip()
     present = text.notna() & (text != "")
     if time_format in ("epoch_s", "epoch_ms") or (

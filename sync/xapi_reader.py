@@ -2,8 +2,12 @@
 
 A file holds JSON lines, a JSON array, or pages of results as a learning record store
 hands them over (``{"statements": [...], "more": ...}``), optionally gzipped; a folder
-entry reads every file.  Files are read in blocks (sync/json_blocks.py), decoded by
-msgspec into the few fields below, so memory grows with the events kept, not the file.
+entry reads every file.  Files are read in blocks (sync/json_blocks.py), so memory grows
+with the events kept, not the file: a plain JSON-lines file is parsed by Arrow's JSON
+reader, two blocks at a time in threads, and turned into events column by column;
+anything else, or a file Arrow's path refuses, is decoded by msgspec (the exact path,
+which names the line of every error).  Both read the few fields below (Arrow's schema
+is derived from the msgspec Structs).
 Mapping (section numbers are xAPI 1.0.3 Part Two):
   learner    actor's Inverse Functional Identifier (2.4.2.3): account.name, else mbox
              (the "mailto:" IRI as written), else mbox_sha1sum, else openid.  Identified
@@ -29,8 +33,11 @@ from __future__ import annotations
 import gc
 import multiprocessing
 import re
-from concurrent.futures import ProcessPoolExecutor
+from collections import deque
+from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor
+from contextlib import closing
 from dataclasses import dataclass, field
+from functools import partial
 from itertools import repeat
 from pathlib import Path
 
@@ -44,7 +51,7 @@ import pyarrow.json as pajson
 from sync.errors import InputError
 from sync.plausible_values import check_durations
 from sync.event_table import build_events
-from sync.json_blocks import BLOCK_BYTES, StatementBlocks, count_lines, parallel_stretches, plain_json_lines
+from sync.json_blocks import StatementBlocks, parallel_stretches, plain_json_lines, plain_line_blocks
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
 from sync.time_column import parse_time_column
@@ -83,7 +90,6 @@ class Account(msgspec.Struct, gc=False):
 
 
 class Actor(msgspec.Struct, gc=False):
-    objectType: str | None = None
     mbox: str | None = None
     mbox_sha1sum: str | None = None
     openid: str | None = None
@@ -235,17 +241,21 @@ def _block_table(statements: list[Statement], lines: np.ndarray, spec: LogSpec, 
     })
 
 
+def _arrow_type(info: msgspec.inspect.Type) -> pa.DataType:
+    """The Arrow type of a Struct field (optional text, flag or nested Struct)."""
+    if isinstance(info, msgspec.inspect.UnionType):
+        (info,) = [member for member in info.types if not isinstance(member, msgspec.inspect.NoneType)]
+    if isinstance(info, msgspec.inspect.StructType):
+        return pa.struct([(f.encode_name, _arrow_type(f.type)) for f in info.fields])
+    return {msgspec.inspect.StrType: pa.string(), msgspec.inspect.BoolType: pa.bool_()}[type(info)]
+
+
 _TEXT = pa.string()
-ARROW_SCHEMA = pa.schema([
-    ("id", _TEXT),
-    ("actor", pa.struct([("mbox", _TEXT), ("mbox_sha1sum", _TEXT), ("openid", _TEXT),
-                         ("account", pa.struct([("homePage", _TEXT), ("name", _TEXT)]))])),
-    ("verb", pa.struct([("id", _TEXT)])),
-    ("object", pa.struct([("objectType", _TEXT), ("id", _TEXT)])),
-    ("result", pa.struct([("success", pa.bool_()), ("completion", pa.bool_()), ("duration", _TEXT)])),
-    ("timestamp", _TEXT),
-    ("stored", _TEXT),
-])
+# The fields the exact path decodes, for Arrow's reader too (a page's ``statements`` aside:
+# pages never take the fast path), so both paths read and type-check the same fields.
+ARROW_SCHEMA = pa.schema([(f.encode_name, _arrow_type(f.type)) for f in msgspec.inspect.type_info(Statement).fields
+                          if f.name != "statements"])
+ARROW_THREADS = 2  # blocks parsed and turned into events at once: Arrow's reader and compute release the lock
 
 
 def _field(column: pa.Array, *path: str) -> pa.Array:
@@ -253,41 +263,81 @@ def _field(column: pa.Array, *path: str) -> pa.Array:
     value = column
     for name in path:
         value = pc.struct_field(value, name)
-    return pc.if_else(pc.equal(value, ""), pa.scalar(None, value.type), value) if value.type == _TEXT else value
+    if value.type != _TEXT or value.null_count == len(value):
+        return value
+    empty = pc.equal(pc.binary_length(value), 0)
+    return pc.if_else(empty, pa.scalar(None, _TEXT), value) if pc.any(empty).as_py() else value
 
 
-def _read_with_arrow(spec: LogSpec, path: Path, only: frozenset[str] | None) -> StatementPart | None:
+def _read_with_arrow(spec: LogSpec, path: Path, only: frozenset[str] | None) -> list[StatementPart] | None:
     """The fast path: a plain JSON-lines file whose every line is one statement of the
-    usual shape, read by Arrow's JSON reader (C++, every core, in blocks).
+    usual shape, each block parsed by Arrow's JSON reader (C++) and turned into events
+    column-wise, two blocks at a time in threads.
 
     Returns None -- and the exact path (msgspec, line by line) reads the file -- when
     anything is unusual: another layout, a blank line, a field of another type, an
-    actor without identifier, a statement without verb, any error to report.
+    actor without identifier, a statement without verb, any error to report, a file
+    that cannot be mapped.
     """
-    name = str(path)
     if not plain_json_lines(path, spec.encoding):
         return None
-    part = StatementPart(source=name, table=None)
-    tables, rows = [], 0
-    try:
-        reader = pajson.open_json(path, read_options=pajson.ReadOptions(block_size=BLOCK_BYTES),
-                                  parse_options=pajson.ParseOptions(explicit_schema=ARROW_SCHEMA,
-                                                                    unexpected_field_behavior="ignore"))
-        for batch in reader:
-            lines = np.arange(rows + 1, rows + batch.num_rows + 1, dtype=np.int64)
-            rows += batch.num_rows
-            table = _arrow_block(batch, lines, spec, name, only, part)
-            if table is False:
+    read_block = partial(_arrow_chunk, spec=spec, name=str(path), only=only)
+    with ThreadPoolExecutor(ARROW_THREADS) as pool:
+        try:
+            pieces = _arrow_pieces(pool, read_block, path)
+        except OSError:  # the file cannot be mapped
+            pieces = None
+        if pieces is None:
+            pool.shutdown(cancel_futures=True)
+    return pieces
+
+
+def _arrow_pieces(pool: ThreadPoolExecutor, read_block, path: Path) -> list[StatementPart] | None:
+    """Every block's part, line numbers counted from the file's start; None at the first
+    block that needs the exact path."""
+    pieces, lines_before = [], 0
+    with closing(plain_line_blocks(path)) as blocks:  # closes the file when a block stops early
+        for piece, lines in _in_order(pool, read_block, blocks, ahead=ARROW_THREADS):
+            if piece is None:
                 return None
-            if table is not None:
-                tables.append(table)
+            if piece.table is not None:
+                rows = pc.add(piece.table["row"], lines_before)
+                piece.table = piece.table.set_column(piece.table.schema.get_field_index("row"), "row", rows)
+            pieces.append(piece)
+            lines_before += lines
+    return pieces or None
+
+
+def _in_order(pool: ThreadPoolExecutor, function, items, ahead: int):
+    """``function(item)`` for each item, in order, with at most ``ahead`` items waiting
+    beyond the one being handed out, so memory stays bounded by a few blocks."""
+    pending: deque = deque()
+    for item in items:
+        pending.append(pool.submit(function, item))
+        if len(pending) > ahead:
+            yield pending.popleft().result()
+    while pending:
+        yield pending.popleft().result()
+
+
+def _arrow_chunk(chunk: memoryview, spec: LogSpec, name: str,
+                 only: frozenset[str] | None) -> tuple[StatementPart | None, int]:
+    """One block of whole lines -> (its StatementPart with lines counted from the block's
+    start, its line count); the part is None when the file needs the exact path."""
+    lines = int(np.count_nonzero(np.frombuffer(chunk, np.uint8) == 10)) + (chunk[-1] != ord("\n"))
+    try:
+        table = pajson.read_json(pa.BufferReader(chunk),
+                                 read_options=pajson.ReadOptions(use_threads=False, block_size=len(chunk) + 1),
+                                 parse_options=pajson.ParseOptions(explicit_schema=ARROW_SCHEMA,
+                                                                   unexpected_field_behavior="ignore"))
+        if table.num_rows != lines:  # a blank line: Arrow skips it, so line numbers would shift
+            return None, lines
+        part = StatementPart(source=name, table=None, statements_seen=lines)
+        batch = table.combine_chunks().to_batches()[0]
+        part.table = _arrow_block(batch, np.arange(1, lines + 1), spec, name, only, part)
     except (pa.ArrowInvalid, InputError):
-        return None
-    if rows == 0 or rows != count_lines(path):
-        return None
-    part.statements_seen = rows
-    part.table = pa.concat_tables(tables) if tables else None
-    return part
+        return None, lines
+    return (None if part.table is False else part), lines
 
 
 def _arrow_block(batch: pa.RecordBatch, lines: np.ndarray, spec: LogSpec, name: str,
@@ -295,13 +345,17 @@ def _arrow_block(batch: pa.RecordBatch, lines: np.ndarray, spec: LogSpec, name: 
     """One Arrow block -> the same table as ``_block_table``; False sends the file to the exact path."""
     actor, verb, target, result = (batch.column(key) for key in ("actor", "verb", "object", "result"))
     names = _field(actor, "account", "name")
-    named = names.is_valid()
-    learner = pc.if_else(named, names, pc.coalesce(_field(actor, "mbox"), _field(actor, "mbox_sha1sum"),
-                                                    _field(actor, "openid")))
+    home = pc.coalesce(_field(actor, "account", "homePage"), "")
+    if names.null_count:  # not every actor an account: the other identifiers, no homePage
+        named = names.is_valid()
+        learner = pc.if_else(named, names, pc.coalesce(_field(actor, "mbox"), _field(actor, "mbox_sha1sum"),
+                                                        _field(actor, "openid")))
+        home = pc.if_else(named, home, pa.scalar(None, _TEXT))
+    else:
+        learner = names
     verb_ids = _field(verb, "id")
     if learner.null_count or verb_ids.null_count:
         return False
-    home = pc.if_else(named, pc.coalesce(_field(actor, "account", "homePage"), ""), pa.scalar(None, _TEXT))
     voiding = pc.equal(verb_ids, VOIDED).to_numpy(zero_copy_only=False)
     if voiding.any():
         refs = batch.filter(pa.array(voiding)).column("object")
@@ -349,19 +403,33 @@ def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None)
     """One file of xAPI statements -> a StatementPart; ``only`` keeps just those learners.
 
     ``only`` matches a learner's identifier and its ``homePage|name`` form, so it can be
-    given before it is known whether the logs need qualified account names.  A large
-    plain JSON-lines file is split at line breaks into one stretch per core, read in
-    parallel processes (decoding holds Python's lock, so threads would not help).
+    given before it is known whether the logs need qualified account names.  A plain
+    JSON-lines file takes Arrow's path (blocks in threads); on the exact path a large
+    one is split at line breaks into one stretch per core, read in parallel processes
+    (msgspec's decoding holds Python's lock, so threads would not help there).
     """
     name = str(path)
     try:
-        part = _read_with_arrow(spec, path, only)
-        pieces = [part] if part is not None else _read_exactly(spec, path, only)
+        pieces = _read_with_arrow(spec, path, only) or _read_exactly(spec, path, only)
     except (msgspec.DecodeError, msgspec.ValidationError, ValueError, RecursionError) as error:
         # whatever the block reader could not place (trailing data, NaN, deep nesting, huge numbers): one line
         reason = "nested too deeply" if isinstance(error, RecursionError) else str(error).split(";")[0][:120]
         raise InputError(name, None, f"unreadable JSON ({reason}); a file holds one JSON array of statements or one "
                          "statement per line -- export the statements again") from None
+    part = _merged(name, pieces)
+    if part.statements_seen == 0:
+        raise InputError(name, None, "holds no statements; export them again or remove its [[logs]] entry")
+    if part.rows_read == 0:
+        raise InputError(name, None, "holds no statement with an identified actor")
+    if part.anonymous:
+        part.warnings.append(f"{name}: {part.anonymous} statements left out: actor has no identifier (anonymous group)")
+    if part.used_stored:
+        part.warnings.append(f"{name}: {part.used_stored} statements have no timestamp; their stored time was used")
+    return part
+
+
+def _merged(name: str, pieces: list[StatementPart]) -> StatementPart:
+    """One file's StatementPart from its blocks' or stretches' parts, in file order."""
     part = StatementPart(source=name, table=None)
     for piece in pieces:
         part.voided |= piece.voided
@@ -371,14 +439,6 @@ def read_xapi_log(spec: LogSpec, path: Path, only: frozenset[str] | None = None)
             setattr(part, counter, getattr(part, counter) + getattr(piece, counter))
     tables = [piece.table for piece in pieces if piece.table is not None]
     part.table = pa.concat_tables(tables) if tables else None
-    if part.statements_seen == 0:
-        raise InputError(name, None, "holds no statements; export them again or remove its [[logs]] entry")
-    if part.rows_read == 0:
-        raise InputError(name, None, "holds no statement with an identified actor")
-    if part.anonymous:
-        part.warnings.append(f"{name}: {part.anonymous} statements left out: actor has no identifier (anonymous group)")
-    if part.used_stored:
-        part.warnings.append(f"{name}: {part.used_stored} statements have no timestamp; their stored time was used")
     return part
 
 
@@ -417,6 +477,66 @@ def _read_stretch(spec: LogSpec, path: Path, only: frozenset[str] | None,
     return part
 
 
+_HEX_DIGIT = np.zeros(256, dtype=bool)
+_HEX_DIGIT[np.frombuffer(b"0123456789abcdefABCDEF", np.uint8)] = True
+_UUID_LENGTH = 36
+_UUID_DASHES = [8, 13, 18, 23]
+_MIX = np.uint64(0x9E3779B97F4A7C15)  # an odd 64-bit constant (the golden ratio's bits) to mix a key's words
+
+
+def _uuid_keys(ids: pa.StringArray) -> np.ndarray | None:
+    """Ids in the form xAPI gives them (2.4.1: a UUID, 8-4-4-4-12 hex digits) as rows of
+    nine 32-bit words, equal exactly when the ids are equal ignoring case (setting bit
+    0x20 lower-cases A-F and leaves digits and "-" alone); None when any id has another
+    form (then the caller compares the text)."""
+    lengths = pc.min_max(pc.binary_length(ids))
+    if len(ids) == 0 or lengths["min"].as_py() != _UUID_LENGTH or lengths["max"].as_py() != _UUID_LENGTH:
+        return None
+    start = np.frombuffer(ids.buffers()[1], np.int32)[ids.offset]
+    text = np.frombuffer(ids.buffers()[2], np.uint8)[start:start + _UUID_LENGTH * len(ids)].reshape(-1, _UUID_LENGTH)
+    dashes_in_place = (text[:, _UUID_DASHES] == ord("-")).all()
+    if not dashes_in_place or np.count_nonzero(_HEX_DIGIT[text]) != (_UUID_LENGTH - len(_UUID_DASHES)) * len(ids):
+        return None
+    return (text | np.uint8(0x20)).view(np.uint32)
+
+
+def _first_of_keys(keys: np.ndarray) -> np.ndarray | None:
+    """True at the first row of each key (a row of words); None if two different keys
+    mix to one number (then the caller compares the text)."""
+    mixed = np.zeros(len(keys), dtype=np.uint64)
+    for column in keys.T:
+        mixed = mixed * _MIX ^ column
+    first = np.ones(len(keys), dtype=bool)
+    ordered = np.sort(mixed)
+    if not (ordered[1:] == ordered[:-1]).any():  # the usual case: no id twice
+        return first
+    order = np.argsort(mixed, kind="stable")  # stable: equal keys stay in row order
+    same = np.flatnonzero(mixed[order[1:]] == mixed[order[:-1]])
+    earlier, later = order[same], order[same + 1]
+    if (keys[earlier] != keys[later]).any():
+        return None
+    first[later] = False
+    return first
+
+
+def _repeats(ids: pa.ChunkedArray) -> np.ndarray:
+    """True at each row whose statement id (ignoring case) an earlier row has; a row
+    without an id repeats nothing.  UUIDs are compared as rows of numbers (sorting one
+    number mixed from each costs a fraction of hashing the text), any other id as
+    lower-cased text."""
+    present = ids.is_valid().to_numpy(zero_copy_only=False)
+    given = ids.filter(pa.array(present)).combine_chunks()
+    keys = _uuid_keys(given)
+    first = _first_of_keys(keys) if keys is not None else None
+    if first is None:
+        codes = pc.utf8_lower(given).dictionary_encode().indices.to_numpy(zero_copy_only=False)
+        first = np.zeros(len(codes), dtype=bool)
+        first[np.unique(codes, return_index=True)[1]] = True
+    repeated = np.zeros(len(present), dtype=bool)
+    repeated[np.flatnonzero(present)[~first]] = True
+    return repeated
+
+
 def resolve_statements(parts: list[StatementPart]) -> tuple[pd.DataFrame | None, list[str]]:
     """Apply the cross-file rules to every file's statements -> (EVENTS rows, warnings).
 
@@ -438,19 +558,12 @@ def resolve_statements(parts: list[StatementPart]) -> tuple[pd.DataFrame | None,
         shown = ", ".join(sorted(home_pages)[:3])
         warnings.append(f"xAPI accounts come from {len(home_pages)} homePages ({shown}): account learners are "
                         f"written homePage{QUALIFIER}name; use that form in roster.csv's log_id")
-    ids = pc.utf8_lower(table["id"]).combine_chunks().dictionary_encode()
-    codes = pc.fill_null(ids.indices, -1).to_numpy(zero_copy_only=False)
-    keep = np.ones(len(codes), dtype=bool)
-    if len(ids.dictionary) < int((codes >= 0).sum()):  # some id seen twice: keep its first row
-        _, first = np.unique(codes, return_index=True)
-        keep[:] = False
-        keep[first] = True
-        keep |= codes < 0
+    keep = ~_repeats(table["id"])
     duplicates = int((~keep).sum())
     voided = set().union(*(part.voided for part in parts))
     if voided:
-        hit = pc.is_in(ids.dictionary, pa.array(sorted(voided), pa.string())).to_numpy(zero_copy_only=False)
-        is_voided = np.append(hit, False)[codes]
+        is_voided = pc.is_in(pc.utf8_lower(table["id"]), pa.array(sorted(voided), pa.string()))
+        is_voided = pc.fill_null(is_voided, False).to_numpy(zero_copy_only=False)
         warnings.append(f"{int((is_voided & keep).sum())} voided statements dropped (xAPI 2.3.2)")
         keep &= ~is_voided
     if duplicates:

@@ -4,7 +4,7 @@
 
 Each contender runs in a fresh process (so its peak resident memory is its own) on the
 same generated file:
-  xapi_ours    sync.logs.read_logs on 1M statements, JSON lines (~400 MB): the EVENTS
+  xapi_ours    sync.logs.read_logs on 1M statements, JSON lines (~650 MB): the EVENTS
                table, sorted by (learner, time)
   xapi_duckdb  read_json of the same file, the same fields (actor account name, verb id,
                object id, success, completion, duration text, timestamp) sorted by
