@@ -39,7 +39,7 @@ COMMANDS: tuple[str, ...] = (
 # call, which matters on a coder's laptop).  verb module -> (verb, one-line help).
 SUMMARIES: dict[str, tuple[str, str]] = {
     "observer_app.commands.init": ("init", "create a new study folder with commented templates"),
-    "observer_app.commands.app": ("app", "the desktop app: live round-robin coding with the keyboard"),
+    "observer_app.commands.app": ("app", "the desktop app: live round-robin coding, or coding replayed log clips, with the keyboard"),
     "observer_app.commands.import_observations": ("import", "add observations from another device's store or a CSV"),
     "observer_app.commands.align": ("align", "fit each device's clock model against the logs"),
     "observer_app.commands.agree": ("agree", "inter-rater reliability per dimension, coder pair and session"),
@@ -47,7 +47,7 @@ SUMMARIES: dict[str, tuple[str, str]] = {
     "observer_app.commands.recode": ("recode", "record that a coded code was renamed or merged into another"),
     "observer_app.commands.plan": ("plan", "paired observations needed for a kappa interval of a given width"),
     "observer_app.commands.export": ("export", "labelled, de-identified windows (Parquet or CSV) and a manifest"),
-    "observer_app.commands.check": ("check", "grouped cross-validated detector check of exported windows"),
+    "observer_app.commands.check": ("check", "grouped cross-validated detector check of exported windows, by group and across groups"),
     "observer_app.commands.verify": ("verify", "check the observation store against its hash chain"),
     "demo_sessions.command": ("demo", "build the demo study and run every step on it"),
 }

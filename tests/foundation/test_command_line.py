@@ -19,6 +19,17 @@ def test_help_lists_only_working_commands() -> None:
         assert verb in result.stdout.split()
 
 
+def test_the_help_summaries_say_what_each_verb_says_of_itself() -> None:
+    """SUMMARIES spares --help the verbs' imports; it must not drift from their own help text."""
+    import importlib
+
+    from observer_app.cli import SUMMARIES, _Parser
+    for module, (verb, text) in SUMMARIES.items():
+        probe = _Parser(prog="fieldmark").add_subparsers(parser_class=_Parser)
+        importlib.import_module(module).add_parser(probe)
+        assert (verb, text) == (next(iter(probe.choices)), probe._choices_actions[0].help), module
+
+
 def test_version() -> None:
     result = call_cli("--version")
     assert result.returncode == 0 and __version__ in result.stdout
