@@ -25,32 +25,35 @@ LEARNER = "learner"
 @dataclass(frozen=True)
 class LearnerBlocks:
     """Sorted Parquet files no two of which hold the same learner, read as blocks of whole
-    learners; ``rows`` events in all (also ``len()``)."""
+    learners; ``rows`` events in all (also ``len()``) of ``learners``."""
 
     paths: tuple[Path, ...]
     rows: int
+    learners: frozenset[str]
 
     def __len__(self) -> int:
         return self.rows
 
-    def blocks(self, columns: Sequence[str]) -> Iterator[pa.Table]:
-        """``columns`` (learner among them) of every file, block by block."""
+    def blocks(self, columns: Sequence[str] | None = None) -> Iterator[pa.Table]:
+        """``columns`` (learner among them; None: all) of every file, block by block."""
         for path in self.paths:
             yield from parquet_learner_blocks(path, columns)
 
 
-def parquet_learner_blocks(path: Path, columns: Sequence[str]) -> Iterator[pa.Table]:
-    """Tables of whole learners (text columns as dictionaries) from a Parquet file sorted by
-    learner then time; no empty tables.  Raises ValueError when the learners are out of order."""
+def parquet_learner_blocks(path: Path, columns: Sequence[str] | None = None) -> Iterator[pa.Table]:
+    """Tables of whole learners (``columns``, None for all; text columns as dictionaries) from a
+    Parquet file sorted by learner then time; no empty tables.  Raises ValueError when the
+    learners are out of order."""
+    schema = pq.read_schema(path)
+    columns = list(schema.names if columns is None else columns)
     if LEARNER not in columns:
         raise ValueError(f"the columns must include {LEARNER!r}")
-    schema = pq.read_schema(path)
     text = [name for name in columns if pa.types.is_string(schema.field(name).type)
             or pa.types.is_large_string(schema.field(name).type)]
     parquet = pq.ParquetFile(path, read_dictionary=text)
     carried, previous = None, None
     for group in range(parquet.num_row_groups):
-        table = parquet.read_row_group(group, columns=list(columns))
+        table = parquet.read_row_group(group, columns=columns)
         if carried is not None:
             table = pa.concat_tables([carried, table])
         starts, learners = learner_runs(table.column(LEARNER))
