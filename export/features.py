@@ -545,15 +545,16 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
         high = np.where(active & ~before, middle, high)
 
 
-def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings) -> WindowEvents:
+def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings,
+                  learner: CodedColumn | None = None) -> WindowEvents:
     """Sort the log once (if it is not already) and locate every window's rows.
 
     ``events``: EVENTS columns learner and time_ns, and those of action, outcome, item,
     skill that the features use (pandas or Arrow; Arrow dictionary columns are the
-    cheapest input).
+    cheapest input); ``learner``: its learner column as codes, when the caller has them.
     ``windows``: log_id, start_ns (inclusive), end_ns (exclusive), as sync/ made them.
     """
-    learner = code_column(events["learner"])
+    learner = code_column(events["learner"]) if learner is None else learner
     time_ns = np.asarray(events["time_ns"], dtype=np.int64)
     starts = _run_starts(learner.codes)
     row_order = None
@@ -639,7 +640,19 @@ def compute_features_from_blocks(
     Windows whose learner no block holds are computed at the end on an empty block, as
     one pass computes them.  Raises ValueError when a window's learner is in two blocks.
     """
-    return _run_features(_block_views(blocks, windows, settings), windows.index, features, threads)
+    return _run_features(_block_views(_read_ahead(blocks), windows, settings), windows.index, features, threads)
+
+
+def _read_ahead(blocks: Iterable[pa.Table | pa.RecordBatch]) -> Iterator[pa.Table | pa.RecordBatch]:
+    """The blocks in order, the next one read on a thread while the features of this one run
+    (Arrow reads without Python's lock): one block more in memory, the reading hidden."""
+    iterator = iter(blocks)
+    with ThreadPoolExecutor(max_workers=1) as reader:
+        pending = reader.submit(next, iterator, None)
+        while (block := pending.result()) is not None:
+            pending = reader.submit(next, iterator, None)
+            yield block
+            del block
 
 
 NO_EVENTS = pa.table({"learner": pa.array([], pa.string()), "time_ns": pa.array([], pa.int64()),
@@ -650,8 +663,9 @@ def _block_views(blocks: Iterable[pa.Table | pa.RecordBatch], windows: pd.DataFr
                  settings: FeatureSettings) -> Iterator[WindowEvents]:
     """One view per block that holds a window's learner (window_order: positions in ``windows``),
     then one for the windows of learners no block held (or for none, when no view came)."""
-    windows = windows[["log_id", "start_ns", "end_ns"]].reset_index(drop=True)
-    learner_of_window, learners = pd.factorize(windows["log_id"].astype(object))
+    windows = pd.DataFrame({"log_id": windows["log_id"].astype(object).to_numpy(),  # text converted once, not per block
+                            "start_ns": windows["start_ns"].to_numpy(), "end_ns": windows["end_ns"].to_numpy()})
+    learner_of_window, learners = pd.factorize(windows["log_id"], use_na_sentinel=False)
     by_learner = np.argsort(learner_of_window, kind="stable")  # windows grouped by learner
     bounds = np.searchsorted(learner_of_window[by_learner], np.arange(len(learners) + 1))
     done, empty, viewed = np.zeros(len(learners), dtype=bool), NO_EVENTS, False
@@ -661,8 +675,8 @@ def _block_views(blocks: Iterable[pa.Table | pa.RecordBatch], windows: pd.DataFr
         if table.num_rows == 0:
             continue
         learner = code_column(table["learner"])
-        present = learner.names[np.flatnonzero(np.bincount(learner.codes[learner.codes >= 0],
-                                                           minlength=len(learner.names)))]
+        codes = np.unique(learner.codes[_run_starts(learner.codes)])
+        present = learner.names[codes[codes >= 0]]  # (-1: a missing learner, never a window's)
         hits = learners.get_indexer(pd.Index(present, dtype=object))
         hits = hits[hits >= 0]
         if done[hits].any():
@@ -673,8 +687,9 @@ def _block_views(blocks: Iterable[pa.Table | pa.RecordBatch], windows: pd.DataFr
             counts = bounds[hits + 1] - bounds[hits]
             positions = by_learner[_member_rows(bounds[hits], counts, np.cumsum(counts) - counts)]
             viewed = True
-            yield _positioned(index_windows(table, windows.iloc[positions], settings), positions)
-    rest = np.flatnonzero(~done[learner_of_window]) if len(learners) else np.zeros(0, dtype=np.int64)
+            yield _positioned(index_windows(table, windows.iloc[positions], settings, learner), positions)
+        del block, table, learner, codes  # before the next block arrives
+    rest = np.flatnonzero(~done[learner_of_window])  # (a window without log_id too: no block holds it)
     if len(rest) or not viewed:
         yield _positioned(index_windows(empty, windows.iloc[rest], settings), rest)
 

@@ -78,7 +78,7 @@ def learner_runs(column: pa.ChunkedArray) -> tuple[np.ndarray, np.ndarray]:
     for chunk in column.chunks:
         if not pa.types.is_dictionary(chunk.type):
             chunk = pc.dictionary_encode(chunk)
-        codes = pc.fill_null(chunk.indices, -1).to_numpy(zero_copy_only=False)
+        codes = (pc.fill_null(chunk.indices, -1) if chunk.null_count else chunk.indices).to_numpy(zero_copy_only=False)
         names = np.append(chunk.dictionary.to_numpy(zero_copy_only=False).astype(object), "")
         if len(codes):
             local = np.append(0, np.flatnonzero(codes[1:] != codes[:-1]) + 1)

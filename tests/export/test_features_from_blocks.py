@@ -53,6 +53,7 @@ def test_features_streamed_from_a_sorted_parquet_match_one_pass(tmp_path, row_gr
 def test_empty_blocks_and_record_batches_in_the_stream_change_nothing(tmp_path) -> None:
     path = tmp_path / "log.parquet"
     events, windows = sorted_log(6, path, 250)
+    windows.loc[::11, "log_id"] = None  # windows without a log id among the others
     whole = compute_features(events, windows, block_rows=ONE_BLOCK)
     blocks = list(parquet_learner_blocks(path, COLUMNS))
     empty = blocks[0].slice(0, 0)
@@ -64,6 +65,7 @@ def test_windows_no_block_holds_and_no_windows_at_all_match_one_pass(tmp_path) -
     path = tmp_path / "log.parquet"
     events, windows = sorted_log(7, path, 300)
     unknown = windows.assign(log_id="n-999")  # a learner without events: computed on an empty block
+    unknown.loc[::3, "log_id"] = None  # and windows without a log id
     assert_bit_identical(compute_features_from_blocks(parquet_learner_blocks(path, COLUMNS), unknown),
                          compute_features(events, unknown, block_rows=ONE_BLOCK))
     assert_bit_identical(compute_features_from_blocks([], unknown), compute_features(events, unknown))
