@@ -24,7 +24,9 @@ A lab adds its own feature as one function::
         \"\"\"Pauses of a minute or more inside the window.\"\"\"
         return {"long_pauses": view.count_members(view.internal_gap_ns >= 60e9)}
 
-The first docstring line is the definition of its columns in the manifest
+A feature with one column per value of a text column returns
+``view.counts_by_value(column, prefix, choose)`` instead, so that every block gets the
+same columns.  The first docstring line is the definition of its columns in the manifest
 (export/column_descriptions.py).  Column contracts
 and every built-in definition: export/tables.py.
 """
@@ -568,7 +570,9 @@ def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settin
     if len(time_ns):
         run_start[learner.codes[starts]] = starts
         run_stop[learner.codes[starts]] = np.append(starts[1:], len(time_ns))
-    window_learner = pd.Index(learner.names).get_indexer(windows["log_id"].astype(object).to_numpy())
+    # Object indexes on both sides: pandas would otherwise turn each into Arrow text first.
+    window_learner = pd.Index(learner.names, dtype=object).get_indexer(
+        pd.Index(windows["log_id"].to_numpy(dtype=object), dtype=object))
     learner_start = run_start[window_learner]  # -1 (unknown learner) reads the empty last run
     learner_stop = run_stop[window_learner]
     window_start = windows["start_ns"].to_numpy(dtype=np.int64)
@@ -663,7 +667,7 @@ def _block_views(blocks: Iterable[pa.Table | pa.RecordBatch], windows: pd.DataFr
                  settings: FeatureSettings) -> Iterator[WindowEvents]:
     """One view per block that holds a window's learner (window_order: positions in ``windows``),
     then one for the windows of learners no block held (or for none, when no view came)."""
-    windows = pd.DataFrame({"log_id": windows["log_id"].astype(object).to_numpy(),  # text converted once, not per block
+    windows = pd.DataFrame({"log_id": pd.Series(windows["log_id"].to_numpy(dtype=object), dtype=object),  # once, not per block
                             "start_ns": windows["start_ns"].to_numpy(), "end_ns": windows["end_ns"].to_numpy()})
     learner_of_window, learners = pd.factorize(windows["log_id"], use_na_sentinel=False)
     by_learner = np.argsort(learner_of_window, kind="stable")  # windows grouped by learner
