@@ -7,12 +7,15 @@ windows are then laid out one window after another (``WindowEvents.member``), so
 window-local figure is a segment reduction (``ufunc.reduceat``) or a ``bincount`` over
 those rows, and every history figure is a difference of prefix sums over the whole log.
 
-How its memory stays bounded: after the one sort, the work runs on blocks of whole
-learners (about ``block_rows`` events with their windows at a time; every figure is
-per learner, so a block needs nothing of another) and the blocks' columns are joined.
-The one choice that spans learners -- which action_ and outcome_ columns exist -- is made
-from every window's rows first (``window_totals``), so blocked output is bit-identical
-to one block.
+How its memory stays bounded: the work runs on blocks of whole learners (every figure
+is per learner, so a block needs nothing of another) and the blocks' columns are joined.
+The blocks are cut from a table in memory after the one sort (``compute_features``,
+about ``block_rows`` events at a time), or arrive one by one from a file sorted by
+learner and time (``compute_features_from_blocks``: one block of events in memory at a
+time).  The one choice that spans learners -- which action_ and outcome_ columns exist --
+is made when every block is in: such a feature returns per-window counts of every value
+(``ColumnsByValue``) and the columns are chosen from their sums over all windows, so
+blocked output is bit-identical to one block.
 
 A lab adds its own feature as one function::
 
@@ -21,7 +24,9 @@ A lab adds its own feature as one function::
         \"\"\"Pauses of a minute or more inside the window.\"\"\"
         return {"long_pauses": view.count_members(view.internal_gap_ns >= 60e9)}
 
-The first docstring line is the definition of its columns in the manifest
+A feature with one column per value of a text column returns
+``view.counts_by_value(column, prefix, choose)`` instead, so that every block gets the
+same columns.  The first docstring line is the definition of its columns in the manifest
 (export/column_descriptions.py).  Column contracts
 and every built-in definition: export/tables.py.
 """
@@ -31,7 +36,7 @@ import hashlib
 import re
 import threading
 
-from collections.abc import Callable, Iterator, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from functools import cached_property
@@ -167,7 +172,6 @@ class WindowEvents:
     ``stop`` (first row at or after window end: the window's rows are ``first:stop``),
     ``start_ns``, ``end_ns``.  ``member`` lists the window rows window after
     window; window w's rows are ``member[offsets[w] : offsets[w] + counts[w]]``.
-    ``totals`` answers ``window_totals`` for every block of one export alike.
     """
 
     settings: FeatureSettings
@@ -182,7 +186,6 @@ class WindowEvents:
     stop: np.ndarray
     start_ns: np.ndarray
     end_ns: np.ndarray
-    totals: WindowTotals | None = None
 
     def __post_init__(self) -> None:
         self._coded_columns: dict[str, CodedColumn] = {}
@@ -200,12 +203,16 @@ class WindowEvents:
     item = _Coded()
     skill = _Coded()
 
-    def window_totals(self, name: str) -> pd.Series:
-        """How many rows of all windows (every block's) have each value of column ``name``:
-        value -> count, blank and missing values left out, only counts above zero."""
-        if self.totals is not None:
-            return self.totals.of(name)
-        return _value_counts(self.coded(name), self.member)
+    def counts_by_value(self, name: str, prefix: str, choose: Callable[[pd.Series], list]) -> ColumnsByValue:
+        """Per window, how many of its rows have each (non-blank) value of column ``name``;
+        ``choose`` picks the columns from the sums over every block's windows."""
+        column = self.coded(name)
+        codes = column.codes[self.member]
+        keep = column.present(codes)
+        width = len(column.names) + 1
+        pairs, counts = np.unique(self.member_window[keep] * width + codes[keep], return_counts=True)
+        return ColumnsByValue(prefix=prefix, window=pairs // width, value=column.names[pairs % width],
+                              count=counts, choose=choose)
 
     def rows_between(self, low: int, high: int) -> slice | np.ndarray:
         """``events``' rows of this (whole log's) view's rows ``low:high``."""
@@ -221,12 +228,11 @@ class WindowEvents:
         window_lows = np.searchsorted(self.learner_start, lows, "left")
         window_lows[0] = 0
         window_highs = np.append(window_lows[1:], len(self.first))
-        shared = self.totals or WindowTotals(self, zip(lows, highs, window_lows, window_highs))
         chosen = [block for block in zip(lows, highs, window_lows, window_highs) if block[3] > block[2]]
         for low, high, window_low, window_high in chosen or [(0, 0, 0, 0)]:
-            yield self.block(int(low), int(high), int(window_low), int(window_high), shared)
+            yield self.block(int(low), int(high), int(window_low), int(window_high))
 
-    def block(self, low: int, high: int, window_low: int, window_high: int, totals: WindowTotals) -> WindowEvents:
+    def block(self, low: int, high: int, window_low: int, window_high: int) -> WindowEvents:
         """The view of rows ``low:high`` and the windows at ``window_low:window_high`` (their learners' own)."""
         windows = slice(window_low, window_high)
         return WindowEvents(
@@ -234,7 +240,7 @@ class WindowEvents:
             learner_codes=self.learner_codes[low:high], window_order=self.window_order[windows],
             learner_start=self.learner_start[windows] - low, learner_stop=self.learner_stop[windows] - low,
             first=self.first[windows] - low, stop=self.stop[windows] - low, start_ns=self.start_ns[windows],
-            end_ns=self.end_ns[windows], totals=totals)
+            end_ns=self.end_ns[windows])
 
     @cached_property
     def counts(self) -> np.ndarray:
@@ -315,42 +321,19 @@ class WindowEvents:
         return (np.searchsorted(rows, self.stop) - np.searchsorted(rows, self.learner_start)).astype(np.float64)
 
 
-class WindowTotals:
-    """Per string column, how many rows of all windows have each value, summed block by
-    block over the windows' rows only (never the whole column): what chooses the
-    action_ and outcome_ columns, the same for every block."""
+@dataclass(frozen=True)
+class ColumnsByValue:
+    """A feature's per-window counts of every value of a string column, in one block: the
+    columns are chosen only when every block is in (``choose`` gets value -> count over
+    all windows, blank and missing left out, and returns the values that get a column,
+    in column order), named ``prefix_<value>`` (``column_names``).  Entries: window
+    (position in the block's view), value (its text) and count, only counts above zero."""
 
-    def __init__(self, whole: WindowEvents, blocks: Iterator[tuple[int, int, int, int]]) -> None:
-        self._whole = whole
-        self._blocks = [tuple(map(int, block)) for block in blocks]
-        self._found: dict[str, pd.Series] = {}
-        self._lock = threading.Lock()
-
-    def of(self, name: str) -> pd.Series:
-        with self._lock:
-            if name not in self._found:
-                self._found[name] = self._count(name)
-            return self._found[name]
-
-    def _count(self, name: str) -> pd.Series:
-        whole, total = self._whole, pd.Series(dtype=np.int64)
-        for low, high, window_low, window_high in self._blocks:
-            first, counts = whole.first[window_low:window_high], whole.counts[window_low:window_high]
-            if not counts.sum():
-                continue
-            rows = whole.rows_between(low, high)
-            positions = _member_rows(first - low, counts, np.cumsum(counts) - counts)
-            values = take_rows(whole.events[name], positions + low if isinstance(rows, slice) else rows[positions])
-            block = _value_counts(code_column(values), None)
-            total = total.add(block, fill_value=0).astype(np.int64) if len(total) else block
-        return total
-
-
-def _value_counts(column: CodedColumn, rows: np.ndarray | None) -> pd.Series:
-    """value -> how many of ``rows`` (or all rows) have it (blank and missing left out; only counts above zero)."""
-    counts = column.counts(rows)
-    present = np.flatnonzero(counts)
-    return pd.Series(counts[present].astype(np.int64), index=pd.Index(column.names[present], dtype=object))
+    prefix: str
+    window: np.ndarray
+    value: np.ndarray
+    count: np.ndarray
+    choose: Callable[[pd.Series], list]
 
 
 def _member_rows(first: np.ndarray, counts: np.ndarray, offsets: np.ndarray) -> np.ndarray:
@@ -358,9 +341,10 @@ def _member_rows(first: np.ndarray, counts: np.ndarray, offsets: np.ndarray) -> 
     return np.repeat(first - offsets, counts) + np.arange(int(counts.sum()), dtype=np.int64)
 
 
-FeatureFunction = Callable[[WindowEvents], Mapping[str, np.ndarray]]
+FeatureFunction = Callable[[WindowEvents], Mapping[str, np.ndarray] | ColumnsByValue]
 FEATURES: dict[str, FeatureFunction] = {}
-"""The registry: feature name -> function returning {column: per-window values}."""
+"""The registry: feature name -> function returning {column: per-window values}, or a
+ColumnsByValue when the data choose its columns."""
 
 
 def feature(function: FeatureFunction) -> FeatureFunction:
@@ -374,20 +358,6 @@ def _ratio(numerator: np.ndarray, denominator: np.ndarray) -> np.ndarray:
         return np.where(denominator > 0, numerator / np.where(denominator > 0, denominator, 1), np.nan)
 
 
-def _counts_by_value(view: WindowEvents, column: CodedColumn, wanted: list) -> np.ndarray:
-    """(windows x len(wanted)) counts of window rows whose value is each wanted value
-    (a value this part of the log never has counts 0)."""
-    windows, width = len(view.counts), len(wanted)
-    slot = np.full(len(column.names) + 1, -1, dtype=np.int64)  # code -1 reads the last slot
-    codes = pd.Index(column.names, dtype=object).get_indexer(pd.Index(wanted, dtype=object)) if width else []
-    found = np.flatnonzero(np.asarray(codes) >= 0)
-    slot[np.asarray(codes, dtype=np.int64)[found]] = found
-    position = slot[column.codes[view.member]]
-    keep = position >= 0
-    flat = view.member_window[keep] * width + position[keep]
-    return np.bincount(flat, minlength=windows * width).reshape(windows, width).astype(np.float64)
-
-
 @feature
 def activity(view: WindowEvents) -> dict[str, np.ndarray]:
     """event_count and events_per_minute in the window."""
@@ -397,23 +367,21 @@ def activity(view: WindowEvents) -> dict[str, np.ndarray]:
 
 
 @feature
-def action_counts(view: WindowEvents) -> dict[str, np.ndarray]:
+def action_counts(view: WindowEvents) -> ColumnsByValue:
     """action_<name>: events of each of the top-K actions (by events in all windows) in the window."""
-    totals = view.window_totals("action")  # only window events choose the columns: nothing else shapes the table
-    ranked = sorted(zip(totals.index, totals.to_numpy()), key=lambda pair: (-pair[1], str(pair[0])))
-    top = [value for value, _ in ranked[: view.settings.top_actions]]
-    table = _counts_by_value(view, view.action, top)
-    names = column_names("action", [str(value) for value in top])
-    return {name: table[:, column] for column, name in enumerate(names)}
+    top = view.settings.top_actions
+
+    def most_frequent(totals: pd.Series) -> list:  # only window events choose the columns: nothing else shapes the table
+        ranked = sorted(zip(totals.index, totals.to_numpy()), key=lambda pair: (-pair[1], str(pair[0])))
+        return [value for value, _ in ranked[:top]]
+
+    return view.counts_by_value("action", "action", most_frequent)
 
 
 @feature
-def outcome_counts(view: WindowEvents) -> dict[str, np.ndarray]:
+def outcome_counts(view: WindowEvents) -> ColumnsByValue:
     """outcome_<name>: events with each (non-empty) outcome seen in any window, in the window."""
-    present = sorted(view.window_totals("outcome").index, key=str)
-    table = _counts_by_value(view, view.outcome, present)
-    names = column_names("outcome", [str(value) for value in present])
-    return {name: table[:, column] for column, name in enumerate(names)}
+    return view.counts_by_value("outcome", "outcome", lambda totals: sorted(totals.index, key=str))
 
 
 def column_names(prefix: str, values: list[str]) -> list[str]:
@@ -579,15 +547,16 @@ def _search_runs(values: np.ndarray, low: np.ndarray, high: np.ndarray, target: 
         high = np.where(active & ~before, middle, high)
 
 
-def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings) -> WindowEvents:
+def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settings: FeatureSettings,
+                  learner: CodedColumn | None = None) -> WindowEvents:
     """Sort the log once (if it is not already) and locate every window's rows.
 
     ``events``: EVENTS columns learner and time_ns, and those of action, outcome, item,
     skill that the features use (pandas or Arrow; Arrow dictionary columns are the
-    cheapest input).
+    cheapest input); ``learner``: its learner column as codes, when the caller has them.
     ``windows``: log_id, start_ns (inclusive), end_ns (exclusive), as sync/ made them.
     """
-    learner = code_column(events["learner"])
+    learner = code_column(events["learner"]) if learner is None else learner
     time_ns = np.asarray(events["time_ns"], dtype=np.int64)
     starts = _run_starts(learner.codes)
     row_order = None
@@ -601,7 +570,9 @@ def index_windows(events: pd.DataFrame | pa.Table, windows: pd.DataFrame, settin
     if len(time_ns):
         run_start[learner.codes[starts]] = starts
         run_stop[learner.codes[starts]] = np.append(starts[1:], len(time_ns))
-    window_learner = pd.Index(learner.names).get_indexer(windows["log_id"].astype(object).to_numpy())
+    # Object indexes on both sides: pandas would otherwise turn each into Arrow text first.
+    window_learner = pd.Index(learner.names, dtype=object).get_indexer(
+        pd.Index(windows["log_id"].to_numpy(dtype=object), dtype=object))
     learner_start = run_start[window_learner]  # -1 (unknown learner) reads the empty last run
     learner_stop = run_stop[window_learner]
     window_start = windows["start_ns"].to_numpy(dtype=np.int64)
@@ -655,25 +626,136 @@ def compute_features(
     Pythons two threads may at worst both build the same array.
     """
     whole = index_windows(events, windows, settings)
-    parts: dict[str, list[np.ndarray]] = {}
+    return _run_features(whole.blocks(block_rows), windows.index, features, threads)
+
+
+def compute_features_from_blocks(
+    blocks: Iterable[pa.Table | pa.RecordBatch],
+    windows: pd.DataFrame,
+    settings: FeatureSettings = FeatureSettings(),
+    features: Mapping[str, FeatureFunction] = FEATURES,
+    threads: int = 2,
+) -> pd.DataFrame:
+    """What ``compute_features`` returns for all ``blocks`` together, bit for bit, holding
+    one block of events at a time (and the per-window results).
+
+    Each block holds whole learners (every event of a learner is in one block), with the
+    columns ``index_windows`` reads; blocks in learner-then-time order cost no sort.
+    Windows whose learner no block holds are computed at the end on an empty block, as
+    one pass computes them.  Raises ValueError when a window's learner is in two blocks.
+    """
+    return _run_features(_block_views(_read_ahead(blocks), windows, settings), windows.index, features, threads)
+
+
+def _read_ahead(blocks: Iterable[pa.Table | pa.RecordBatch]) -> Iterator[pa.Table | pa.RecordBatch]:
+    """The blocks in order, the next one read on a thread while the features of this one run
+    (Arrow reads without Python's lock): one block more in memory, the reading hidden."""
+    iterator = iter(blocks)
+    with ThreadPoolExecutor(max_workers=1) as reader:
+        pending = reader.submit(next, iterator, None)
+        while (block := pending.result()) is not None:
+            pending = reader.submit(next, iterator, None)
+            yield block
+            del block
+
+
+NO_EVENTS = pa.table({"learner": pa.array([], pa.string()), "time_ns": pa.array([], pa.int64()),
+                      **{name: pa.array([], pa.string()) for name in ("action", "outcome", "item", "skill")}})
+
+
+def _block_views(blocks: Iterable[pa.Table | pa.RecordBatch], windows: pd.DataFrame,
+                 settings: FeatureSettings) -> Iterator[WindowEvents]:
+    """One view per block that holds a window's learner (window_order: positions in ``windows``),
+    then one for the windows of learners no block held (or for none, when no view came)."""
+    windows = pd.DataFrame({"log_id": pd.Series(windows["log_id"].to_numpy(dtype=object), dtype=object),  # once, not per block
+                            "start_ns": windows["start_ns"].to_numpy(), "end_ns": windows["end_ns"].to_numpy()})
+    learner_of_window, learners = pd.factorize(windows["log_id"], use_na_sentinel=False)
+    by_learner = np.argsort(learner_of_window, kind="stable")  # windows grouped by learner
+    bounds = np.searchsorted(learner_of_window[by_learner], np.arange(len(learners) + 1))
+    done, empty, viewed = np.zeros(len(learners), dtype=bool), NO_EVENTS, False
+    for block in blocks:
+        table = block if isinstance(block, pa.Table) else pa.Table.from_batches([block])
+        empty = table.slice(0, 0)
+        if table.num_rows == 0:
+            continue
+        learner = code_column(table["learner"])
+        codes = np.unique(learner.codes[_run_starts(learner.codes)])
+        present = learner.names[codes[codes >= 0]]  # (-1: a missing learner, never a window's)
+        hits = learners.get_indexer(pd.Index(present, dtype=object))
+        hits = hits[hits >= 0]
+        if done[hits].any():
+            raise ValueError(f"learner {learners[hits[done[hits]][0]]!r} has events in two blocks; "
+                             "each block must hold whole learners")
+        done[hits] = True
+        if len(hits):
+            counts = bounds[hits + 1] - bounds[hits]
+            positions = by_learner[_member_rows(bounds[hits], counts, np.cumsum(counts) - counts)]
+            viewed = True
+            yield _positioned(index_windows(table, windows.iloc[positions], settings, learner), positions)
+        del block, table, learner, codes  # before the next block arrives
+    rest = np.flatnonzero(~done[learner_of_window])  # (a window without log_id too: no block holds it)
+    if len(rest) or not viewed:
+        yield _positioned(index_windows(empty, windows.iloc[rest], settings), rest)
+
+
+def _positioned(view: WindowEvents, positions: np.ndarray) -> WindowEvents:
+    """``view`` with its window order mapped through ``positions`` (its windows' places in the caller's)."""
+    view.window_order = positions[view.window_order]
+    return view
+
+
+def _run_features(views: Iterable[WindowEvents], index: pd.Index, features: Mapping[str, FeatureFunction],
+                  threads: int) -> pd.DataFrame:
+    """Every feature on every view, the views' columns joined in the caller's window order
+    (``index``); ColumnsByValue results get their columns when every view is in."""
+    layout: list | None = None
+    parts: dict[object, list] = {}
+    places: list[np.ndarray] = []
     source: dict[str, str] = {}
     with ThreadPoolExecutor(max_workers=threads) as pool:
-        for number, view in enumerate(whole.blocks(block_rows)):
-            columns: dict[str, np.ndarray] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
+        for view in views:
+            columns: dict[object, np.ndarray | ColumnsByValue] = {"start_ns": view.start_ns, "end_ns": view.end_ns}
             for name, result in zip(features, pool.map(lambda function: function(view), features.values())):
+                if isinstance(result, ColumnsByValue):
+                    columns[(ColumnsByValue, name)] = result
+                    continue
                 columns.update(result)
                 source.update(dict.fromkeys(result, name))
-            if number and list(columns) != list(parts):
-                raise ValueError(f"feature columns differ between blocks of learners ({sorted(set(columns) ^ set(parts))}); "
-                                 "a feature must choose its columns from view.window_totals, not from its block")
-            for name, values in columns.items():
-                parts.setdefault(name, []).append(values)
+            if layout is not None and list(columns) != layout:
+                raise ValueError(f"feature columns differ between blocks of learners ({sorted(map(str, set(columns) ^ set(layout)))}); "
+                                 "a feature whose values choose its columns returns view.counts_by_value")
+            layout = list(columns)
+            places.append(view.window_order)
+            for key, values in columns.items():
+                parts.setdefault(key, []).append(values)
             del view, columns
-    restored = {}
-    for name, values in parts.items():
-        joined = np.concatenate(values) if len(values) > 1 else values[0]
-        restored[name] = np.empty_like(joined)
-        restored[name][whole.window_order] = joined
-    frame = pd.DataFrame(restored, index=windows.index)
+    where = np.concatenate(places)
+    restored: dict[str, np.ndarray] = {}
+    for key in layout:
+        if isinstance(key, tuple):
+            chosen = _chosen_columns(parts[key], places, len(index))
+            restored.update(chosen)
+            source.update(dict.fromkeys(chosen, key[1]))
+            continue
+        joined = np.concatenate(parts[key]) if len(parts[key]) > 1 else parts[key][0]
+        restored[key] = np.empty_like(joined)
+        restored[key][where] = joined
+    frame = pd.DataFrame(restored, index=index)
     frame.attrs[FEATURE_OF_COLUMN] = source  # output column -> the feature function that made it
     return frame
+
+
+def _chosen_columns(parts: list[ColumnsByValue], places: list[np.ndarray], windows: int) -> dict[str, np.ndarray]:
+    """The columns of one ColumnsByValue feature over every view: values chosen from their
+    sums over all windows, counts at the caller's window positions (``places`` per view)."""
+    value = np.concatenate([part.value for part in parts]).astype(object)
+    count = np.concatenate([part.count for part in parts])
+    window = np.concatenate([place[part.window] for part, place in zip(parts, places)])
+    totals = pd.Series(count, dtype=np.int64).groupby(pd.Index(value, dtype=object), sort=False).sum()
+    chosen = parts[0].choose(totals)
+    table = np.zeros((windows, len(chosen)))
+    slot = pd.Index(chosen, dtype=object).get_indexer(pd.Index(value, dtype=object)) if len(chosen) else np.full(len(value), -1)
+    keep = slot >= 0
+    table[window[keep], slot[keep]] = count[keep]
+    names = column_names(parts[0].prefix, [str(chosen_value) for chosen_value in chosen])
+    return {name: table[:, column] for column, name in enumerate(names)}

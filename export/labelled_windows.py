@@ -15,7 +15,8 @@ import pandas as pd
 import pyarrow as pa
 
 from export.column_descriptions import describe_columns, feature_description
-from export.features import FEATURE_OF_COLUMN, FEATURES, FeatureFunction, FeatureSettings, compute_features
+from export.features import (FEATURE_OF_COLUMN, FEATURES, FeatureFunction, FeatureSettings, compute_features,
+                             compute_features_from_blocks)
 from export.label_confidence import label_confidences
 from export.labels import REPRESENTATIVE, resolve_labels, unit_keys
 from export.pseudonyms import pseudonymise
@@ -23,6 +24,7 @@ from export.attributes import attribute_names, check_attributes
 from export.tables import (
     CODERS, GROUP, LABEL_SOURCE_PREFIX, LEARNER, LOG_ID, MODE, END, START, UNIT, WINDOW_ID,
 )
+from sync.sorted_parquet import LearnerBlocks
 
 
 @dataclass(frozen=True)
@@ -62,7 +64,7 @@ class LabelledWindows:
 
 
 def label_windows(
-    events: pd.DataFrame | pa.Table,
+    events: pd.DataFrame | pa.Table | LearnerBlocks,
     windows: pd.DataFrame,
     roster: pd.DataFrame,
     dimensions: Sequence[str],
@@ -74,7 +76,8 @@ def label_windows(
 ) -> LabelledWindows:
     """The EXPORTED WINDOWS table (export/tables.py) for ``windows`` over ``events``.
 
-    ``key`` is the study's secret key; it may be None only with ``settings.keep_ids``.
+    ``events``: EVENTS, or blocks of whole learners read one at a time.  ``key`` is the
+    study's secret key; it may be None only with ``settings.keep_ids``.
     """
     if key is None and not settings.keep_ids:
         raise ValueError("a secret key is needed unless keep_ids is set")
@@ -82,7 +85,8 @@ def label_windows(
         windows, dimensions, could_not_observe, adjudications, settings.policy, settings.keep_could_not_observe,
     )
     chosen = windows.loc[labels[REPRESENTATIVE].to_numpy()].reset_index(drop=True)
-    computed = compute_features(events, chosen, settings.features, features)
+    computed = (compute_features_from_blocks(events.blocks(), chosen, settings.features, features)
+                if isinstance(events, LearnerBlocks) else compute_features(events, chosen, settings.features, features))
     label_part = labels[[column for dimension in dimensions for column in (dimension, LABEL_SOURCE_PREFIX + dimension)]]
     posterior, confidence_columns, confidence = label_confidences(
         windows.assign(**{UNIT: unit_keys(windows)}), list(dimensions), dict(could_not_observe))

@@ -14,6 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+
+from sync.sorted_parquet import LearnerBlocks, learner_runs
 
 SHOWN_IDS = 3
 COVERAGE_COLUMNS: tuple[str, ...] = ("learner", "log_id", "windows", "windows_without_events",
@@ -50,34 +53,51 @@ class Coverage:
         }
 
 
-def learner_coverage(events: pd.DataFrame, windows: pd.DataFrame) -> Coverage:
+def learner_coverage(events: pd.DataFrame | LearnerBlocks, windows: pd.DataFrame) -> Coverage:
     """Coverage of ``windows`` (learner, log_id, start_ns, end_ns on the log's clock: the
-    WINDOWS table of sync/tables.py) by ``events`` (EVENTS, sorted by learner and time)."""
-    learner = events["learner"]
-    codes, names = ((learner.cat.codes.to_numpy(), learner.cat.categories.astype(str).to_numpy())
-                    if isinstance(learner.dtype, pd.CategoricalDtype) else pd.factorize(learner.astype(str)))
-    times = events["time_ns"].to_numpy(dtype=np.int64)
-    change = np.flatnonzero(codes[1:] != codes[:-1]) + 1  # events come in runs of one learner
-    run_starts = np.r_[0, change] if len(codes) else np.array([], dtype=np.int64)
-    run_ends = np.r_[change, len(codes)] if len(codes) else np.array([], dtype=np.int64)
-    run_names = np.asarray(names, dtype=object)[codes[run_starts]].astype(str) if len(codes) else np.array([], str)
-    runs = dict(zip(run_names, zip(run_starts, run_ends)))
+    WINDOWS table of sync/tables.py) by ``events`` (EVENTS, sorted by learner and time, or
+    the same as blocks of whole learners: only their learner and time columns are read)."""
     log_id = windows["log_id"].astype(str).to_numpy()
     start_ns = windows["start_ns"].to_numpy(dtype=np.int64)
     end_ns = windows["end_ns"].to_numpy(dtype=np.int64)
+    windows_of = pd.Series(log_id).groupby(log_id).indices
     in_window = np.zeros(len(windows), dtype=np.int64)
-    for value, rows in pd.Series(log_id).groupby(log_id).indices.items():  # per learner, vectorised within
-        begin, stop = runs.get(value, (0, 0))
-        own = times[begin:stop]
-        in_window[rows] = np.searchsorted(own, end_ns[rows], "left") - np.searchsorted(own, start_ns[rows], "left")
+    names, lengths = [], []
+    blocks = (events,) if isinstance(events, pd.DataFrame) else events.blocks(["learner", "time_ns"])
+    for block in blocks:
+        run_starts, run_names, times = _learner_runs(block)
+        run_ends = np.append(run_starts[1:], len(times))
+        runs = dict(zip(run_names, zip(run_starts, run_ends)))
+        for value in windows_of.keys() & runs.keys():  # per learner, vectorised within
+            rows, (begin, stop) = windows_of[value], runs[value]
+            own = times[begin:stop]
+            in_window[rows] = np.searchsorted(own, end_ns[rows], "left") - np.searchsorted(own, start_ns[rows], "left")
+        names.append(run_names)
+        lengths.append(run_ends - run_starts)
+    run_names = np.concatenate(names) if names else np.array([], str)
     per_window = pd.DataFrame({"learner": windows["learner"].astype(str).to_numpy(), "log_id": log_id,
                                "events": in_window})
     table = per_window.groupby(["learner", "log_id"], sort=True).agg(
         windows=("events", "size"), windows_without_events=("events", lambda counts: int((counts == 0).sum())),
         events_in_windows=("events", "sum")).reset_index()
-    in_logs = pd.Series(run_ends - run_starts, index=run_names, dtype="int64")
+    in_logs = pd.Series(np.concatenate(lengths) if lengths else [], index=run_names, dtype="int64")
     table["events_in_logs"] = table["log_id"].map(in_logs).fillna(0).astype("int64")
     return Coverage(learners=table[list(COVERAGE_COLUMNS)], log_ids_in_logs=tuple(sorted(run_names.tolist())))
+
+
+def _learner_runs(events: pd.DataFrame | pa.Table) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(first row of each learner's run, the run's learner id as text, every row's time_ns)."""
+    times = np.asarray(events["time_ns"], dtype=np.int64)
+    if isinstance(events, pa.Table):
+        starts, learners = learner_runs(events.column("learner"))
+        return starts, learners.astype(str), times
+    learner = events["learner"]
+    codes, names = ((learner.cat.codes.to_numpy(), learner.cat.categories.astype(str).to_numpy())
+                    if isinstance(learner.dtype, pd.CategoricalDtype) else pd.factorize(learner.astype(str)))
+    if not len(codes):
+        return np.zeros(0, dtype=np.int64), np.array([], str), times
+    starts = np.r_[0, np.flatnonzero(codes[1:] != codes[:-1]) + 1]  # events come in runs of one learner
+    return starts, np.asarray(names, dtype=object)[codes[starts]].astype(str), times
 
 
 def _close(missing: str, present: list[str]) -> tuple[str, str] | None:

@@ -6,7 +6,10 @@ the learner filter): a changed file or setting misses and is parsed afresh, and 
 stale entry of that file is removed.  Entries hold learners' log events, like logs/
 itself: the folder and files are owner-only (0o700 / 0o600) and export never lists them.
 Each entry is a Parquet table plus a JSON sidecar (counts, warnings, rows read), written
-to a temporary name and renamed, so a crash leaves no half entry.
+to a temporary name and renamed, so a crash leaves no half entry.  A CSV or Parquet
+file's entry holds its events sorted by learner, then time, in row groups of at most
+``ROW_GROUP_ROWS``, and its sidecar lists each learner's event count: export reads such an
+entry as blocks of whole learners (sync/sorted_parquet.py) without loading it whole.
 """
 from __future__ import annotations
 
@@ -25,7 +28,8 @@ from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
 from sync.xapi_reader import StatementPart
 
-CACHE_VERSION = 1  # bump when what a reader produces changes
+CACHE_VERSION = 2  # bump when what a reader produces changes (2: events sorted, learners listed)
+ROW_GROUP_ROWS = 1_000_000  # what one block read from an entry holds, at most (and one learner carried)
 
 
 class LogCache:
@@ -34,24 +38,37 @@ class LogCache:
     def __init__(self, folder: Path) -> None:
         self.folder = Path(folder)
 
-    def key(self, spec: LogSpec, path: Path, only: frozenset[str] | None) -> tuple[str, str, str]:
+    def key(self, spec: LogSpec, path: Path, only: frozenset[str] | None,
+            content: str | None = None) -> tuple[str, str, str]:
         """(the file's entry prefix, the full entry name, the file's SHA-256 in hex: the one
-        time it is hashed, so an export's manifest takes it from the read report)."""
-        with open(path, "rb") as handle:
-            content = hashlib.file_digest(handle, "sha256").hexdigest()
+        time it is hashed, so an export's manifest takes it from the read report).
+        ``content``: the digest when this run already hashed the file."""
+        if content is None:
+            with open(path, "rb") as handle:
+                content = hashlib.file_digest(handle, "sha256").hexdigest()
         settings = json.dumps([CACHE_VERSION, spec.format, spec.timezone, spec.encoding, spec.delimiter,
                                spec.time_format, sorted(spec.columns.items()), sorted(only) if only else None])
         prefix = hashlib.sha256(str(Path(path).resolve()).encode()).hexdigest()[:16]
         return prefix, f"{prefix}-{content[:32]}-{hashlib.sha256(settings.encode()).hexdigest()[:16]}", content
 
     def load(self, entry: str) -> tuple[pa.Table, dict] | None:
+        found = self.find(entry)
+        if found is None:
+            return None
+        try:
+            return pq.read_table(found[0]), found[1]
+        except (OSError, ValueError, pa.ArrowInvalid):
+            return None  # unreadable entry: parse again (and overwrite it)
+
+    def find(self, entry: str) -> tuple[Path, dict] | None:
+        """The entry's table file and sidecar, without reading the table (None when absent or unreadable)."""
         table_path, meta_path = self.folder / f"{entry}.parquet", self.folder / f"{entry}.json"
         if not (table_path.exists() and meta_path.exists()):
             return None
         try:
-            return pq.read_table(table_path), json.loads(meta_path.read_text())
-        except (OSError, ValueError, pa.ArrowInvalid):
-            return None  # unreadable entry: parse again (and overwrite it)
+            return table_path, json.loads(meta_path.read_text())
+        except (OSError, ValueError):
+            return None
 
     def store(self, prefix: str, entry: str, table: pa.Table, meta: dict) -> None:
         self.folder.mkdir(mode=0o700, parents=True, exist_ok=True)
@@ -59,7 +76,7 @@ class LogCache:
         for stale in self.folder.glob(f"{prefix}-*"):
             if not stale.name.startswith(entry):
                 stale.unlink(missing_ok=True)
-        for suffix, write in ((".parquet", lambda path: pq.write_table(table, path)),
+        for suffix, write in ((".parquet", lambda path: pq.write_table(table, path, row_group_size=ROW_GROUP_ROWS)),
                               (".json", lambda path: path.write_text(json.dumps(meta)))):
             # a name of this write's own: the app and a verb (or two app windows) may parse the
             # same file at once, and must not rename each other's half-written entry
@@ -73,9 +90,12 @@ class LogCache:
 
 def events_to_entry(events: pd.DataFrame | None, counts: LocalTimeCounts, warnings: list[str],
                     rows_read: int) -> tuple[pa.Table, dict]:
-    """A CSV/Parquet reader's result as (table, sidecar)."""
+    """A CSV/Parquet reader's result, its events sorted by learner then time (as
+    sync.event_table.combine_events sorts them), as (table, sidecar)."""
     table = pa.Table.from_pandas(events, preserve_index=False) if events is not None else pa.table({})
-    return table, {"counts": asdict(counts), "warnings": warnings, "rows_read": rows_read, "empty": events is None}
+    learners = {} if events is None else events["learner"].value_counts(sort=False)
+    return table, {"counts": asdict(counts), "warnings": warnings, "rows_read": rows_read, "empty": events is None,
+                   "learners": {str(learner): int(n) for learner, n in sorted(learners.items()) if n}}
 
 
 def events_from_entry(table: pa.Table, meta: dict) -> tuple[pd.DataFrame | None, LocalTimeCounts, list[str], int]:

@@ -1,7 +1,7 @@
 """All of a study's logs -> one EVENTS table and a report of what reading decided."""
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -15,6 +15,7 @@ from sync.local_time import LocalTimeCounts
 from sync.log_cache import LogCache, events_from_entry, events_to_entry, part_from_entry, part_to_entry
 from sync.log_spec import LogSpec
 from sync.parquet_reader import read_parquet_log
+from sync.sorted_parquet import LearnerBlocks
 from sync.xapi_reader import read_xapi_log, resolve_statements
 
 READERS = {"csv": read_csv_log, "parquet": read_parquet_log}
@@ -45,7 +46,8 @@ class ReadReport:
 
 
 def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = None,
-              only_log_ids: Iterable[str] | None = None, cache_dir: Path | None = None) -> tuple[pd.DataFrame, ReadReport]:
+              only_log_ids: Iterable[str] | None = None, cache_dir: Path | None = None,
+              digests: Mapping[str, str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
     """Read every file of every spec into one EVENTS table (sync/tables.py).
 
     ``known_log_ids`` (the roster's log_id column) lets the report name learners the
@@ -53,20 +55,17 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
     ``only_log_ids`` keeps just those learners' events, filtered while reading (each
     learner's whole log is kept, so history figures are unchanged); the report counts
     rows read and rows kept.  ``cache_dir`` keeps each parsed file there (sync/log_cache.py),
-    keyed by its digest, so an unchanged file is not parsed again.  Raises ``InputError``
-    for a missing file or any malformed input.
+    keyed by its digest, so an unchanged file is not parsed again (``digests``: files this
+    run already hashed, path -> SHA-256 hex).  Raises ``InputError`` for a missing file or
+    any malformed input.
     """
-    report = ReadReport()
+    report = ReadReport(digests=dict(digests or {}))
     counts = LocalTimeCounts()
     only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
     parts, statement_parts = [], []
     cache = LogCache(cache_dir) if cache_dir is not None else None
     for spec in specs:
-        if not spec.path.exists():
-            raise InputError(spec.path, None, "does not exist; fix the path of its [[logs]] entry in study.toml")
-        files = spec.files()
-        if not files:
-            raise InputError(spec.path, None, f"is a folder with no {spec.format} files")
+        files = _files(spec)
         if spec.format == "xapi":
             for path in files:
                 part = _through_cache(cache, spec, path, only, lambda: read_xapi_log(spec, path, only),
@@ -79,7 +78,7 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
             continue
 
         def read_one(path: Path, spec: LogSpec = spec):
-            return _through_cache(cache, spec, path, only, lambda: READERS[spec.format](spec, path, only),
+            return _through_cache(cache, spec, path, only, lambda: _in_log_order(READERS[spec.format](spec, path, only)),
                                   lambda result: events_to_entry(*result), events_from_entry, report.digests)
 
         # Files of a folder (a partitioned dataset) two at a time: Arrow reads without
@@ -101,6 +100,67 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
         if statements is not None:
             parts.append(statements)
     events = combine_events(parts)
+    _finish_report(report, counts, known_log_ids, lambda: events["learner"].value_counts(sort=False).items())
+    return events, report
+
+
+def cached_learner_blocks(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None,
+                          only_log_ids: Iterable[str] | None, cache_dir: Path) -> tuple[LearnerBlocks | None, ReadReport]:
+    """The logs as blocks of whole learners read from their cache entries (sorted by learner,
+    then time), with the report ``read_logs`` would give, when every file is CSV or Parquet,
+    has an entry for these settings and filter, and shares no learner with another file.
+    Otherwise (None, a report holding only the digests, to pass to ``read_logs``).
+    Nothing is parsed and no entry is loaded whole.  Raises ``InputError`` for a missing file.
+    """
+    specs = list(specs)
+    report, found = ReadReport(), []
+    only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
+    cache = LogCache(cache_dir)
+    for spec in specs:
+        for path in _files(spec):
+            prefix, entry, report.digests[str(path)] = cache.key(spec, path, only)
+            found.append((path, None if spec.format == "xapi" else cache.find(entry)))
+    if any(entry is None for _, entry in found):
+        return None, ReadReport(digests=report.digests)
+    learners: dict[str, int] = {}
+    counts = LocalTimeCounts()
+    tables = []
+    for path, (table_path, meta) in found:
+        file_learners = meta["learners"]
+        if learners.keys() & file_learners.keys():  # a learner in two files: not blocks of one file each
+            return None, ReadReport(digests=report.digests)
+        learners.update(file_learners)
+        rows = sum(file_learners.values())
+        if rows:
+            tables.append(table_path)
+        counts = counts + LocalTimeCounts(**meta["counts"])
+        report.rows_per_file[str(path)] = rows
+        report.rows_read_per_file[str(path)] = int(meta["rows_read"])
+        report.warnings.extend(meta["warnings"])
+    _finish_report(report, counts, known_log_ids, lambda: learners.items())
+    return LearnerBlocks(paths=tuple(tables), rows=report.rows, learners=frozenset(learners)), report
+
+
+def _files(spec: LogSpec) -> list[Path]:
+    """The spec's files; InputError when its path is missing or holds none."""
+    if not spec.path.exists():
+        raise InputError(spec.path, None, "does not exist; fix the path of its [[logs]] entry in study.toml")
+    files = spec.files()
+    if not files:
+        raise InputError(spec.path, None, f"is a folder with no {spec.format} files")
+    return files
+
+
+def _in_log_order(result: tuple[pd.DataFrame | None, LocalTimeCounts, list[str], int]):
+    """A reader's result with its events sorted as EVENTS is (what the cache keeps)."""
+    events, *rest = result
+    return (None if events is None else combine_events([events]), *rest)
+
+
+def _finish_report(report: ReadReport, counts: LocalTimeCounts, known_log_ids: Iterable[str] | None,
+                   per_learner) -> None:
+    """The DST counts and their warning; learners the roster does not know (``per_learner()``:
+    (learner, events) pairs), with their warning."""
     report.ambiguous_local_times = counts.ambiguous
     report.nonexistent_local_times = counts.nonexistent
     if counts.ambiguous or counts.nonexistent:
@@ -109,14 +169,12 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
             f"{counts.nonexistent} in a skipped hour (moved forward by the gap)")
     if known_log_ids is not None:
         known = set(map(str, known_log_ids))
-        per_learner = events["learner"].value_counts(sort=False)
-        unknown = {str(learner): int(n) for learner, n in per_learner.items() if n and str(learner) not in known}
+        unknown = {str(learner): int(n) for learner, n in per_learner() if n and str(learner) not in known}
         report.unknown_learners = dict(sorted(unknown.items()))
         if unknown:
             shown = ", ".join(list(report.unknown_learners)[:5])
             report.warnings.append(f"{len(unknown)} learners in the logs are not in the roster's log_id column "
                                    f"(e.g. {shown}); their events are kept but no observation will use them")
-    return events, report
 
 
 def _through_cache(cache: LogCache | None, spec: LogSpec, path: Path, only: frozenset[str] | None,
@@ -125,7 +183,7 @@ def _through_cache(cache: LogCache | None, spec: LogSpec, path: Path, only: froz
     the file's digest goes into ``digests``."""
     if cache is None:
         return read()
-    prefix, entry, digests[str(path)] = cache.key(spec, path, only)
+    prefix, entry, digests[str(path)] = cache.key(spec, path, only, digests.get(str(path)))
     found = cache.load(entry)
     if found is not None:
         return from_entry(*found)

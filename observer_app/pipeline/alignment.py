@@ -28,7 +28,7 @@ states another; otherwise align refuses (nothing stored) unless the user accepts
 """
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 
 import json
 import math
@@ -49,7 +49,8 @@ from sync.clock_scan import scan_offset
 from sync.clock_sessions import clock_key, model_for, session_model, sessions_apart
 from sync.errors import InputError
 from sync.event_table import empty_events
-from sync.logs import ReadReport, read_logs
+from sync.logs import ReadReport, cached_learner_blocks, read_logs
+from sync.sorted_parquet import LearnerBlocks
 from sync.time_column import datetime_column_ns
 from sync.json_numbers import finite_or_none
 
@@ -466,20 +467,25 @@ NO_LOGS_FOR_ALIGN = ("no logs declared; add a [[logs]] entry, "
 
 
 def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
-                    only_log_ids: Iterable[str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
+                    only_log_ids: Iterable[str] | None = None,
+                    digests: Mapping[str, str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
     """The study's [[logs]] as one EVENTS table (sync/tables.py), learners checked against the roster.
 
     ``if_missing`` is what to tell the user when study.toml declares no logs;
     ``only_log_ids`` keeps just those learners' (whole) logs, filtered while reading.  When
     one of them has no events the logs are read whole after all: the coverage check can
     then show the ids the logs do use, and every row is checked as without the filter.
+    ``digests``: the log files' SHA-256 when this run already hashed them.
     """
     if not study.logs:
         raise InputError(study.dir / "study.toml", "[[logs]]", if_missing)
+    known = dict(digests or {})
 
     def read(only: Iterable[str] | None) -> tuple[pd.DataFrame, ReadReport]:
-        return read_logs(study.logs, known_log_ids=study.roster["log_id"].dropna().astype(str),
-                         only_log_ids=only, cache_dir=study.dir / PARSED_LOGS_DIR)
+        events, report = read_logs(study.logs, known_log_ids=study.roster["log_id"].dropna().astype(str),
+                                   only_log_ids=only, cache_dir=study.dir / PARSED_LOGS_DIR, digests=known)
+        known.update(report.digests)
+        return events, report
 
     if only_log_ids is None:
         return read(None)
@@ -488,6 +494,22 @@ def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
     if not wanted <= set(events["learner"].astype(str).unique()):
         return read(None)
     return events, report
+
+
+def stream_study_logs(study: Study, if_missing: str,
+                      only_log_ids: Iterable[str]) -> tuple[pd.DataFrame | LearnerBlocks, ReadReport]:
+    """``read_study_logs``, as blocks of whole learners (sync.logs.cached_learner_blocks) when
+    the parsed-log cache holds every log file for this filter and every wanted id has events
+    there: then no log is loaded whole.  Otherwise the EVENTS table of ``read_study_logs``.
+    The report is the same either way."""
+    if not study.logs:
+        raise InputError(study.dir / "study.toml", "[[logs]]", if_missing)
+    wanted = set(map(str, only_log_ids))
+    blocks, report = cached_learner_blocks(study.logs, study.roster["log_id"].dropna().astype(str), wanted,
+                                           study.dir / PARSED_LOGS_DIR)
+    if blocks is not None and wanted <= blocks.learners:
+        return blocks, report
+    return read_study_logs(study, if_missing, wanted, digests=report.digests)
 
 
 def observed_log_ids(study: Study, learners: Iterable[str]) -> list[str]:

@@ -21,8 +21,8 @@ from export.pseudonyms import pseudonym, read_secret_key
 from export.tables import UNIT
 from export.writer import build_manifest, file_digests, write_windows
 from observer_app import __version__
-from observer_app.pipeline.alignment import (models_in_effect, observed_log_ids, read_study_logs,
-                                            require_clock_models, stored_clock_decisions)
+from observer_app.pipeline.alignment import (models_in_effect, observed_log_ids, require_clock_models,
+                                            stored_clock_decisions, stream_study_logs)
 from observer_app.pipeline.coverage import coverage_report
 from observer_app.study.roster import shared_log_id_problem
 from observer_app.pipeline.units import require_placed, shift_warning, study_units
@@ -103,10 +103,11 @@ def export_study(
         bar.update()
 
         bar.set_postfix_str(STEPS[1])
-        # Only the observed learners' logs are read (each whole: history features need it).
+        # Only the observed learners' logs are read (each whole: history features need it);
+        # from the parsed-log cache block by block when it holds them, else loaded whole.
         observed = observed_log_ids(study, observations["learner"])
-        events, read_report = read_study_logs(study, "no [[logs]] entries; export needs the learning logs",
-                                              only_log_ids=observed)
+        events, read_report = stream_study_logs(study, "no [[logs]] entries; export needs the learning logs",
+                                                only_log_ids=observed)
         bar.update()
 
         bar.set_postfix_str(STEPS[2])

@@ -91,3 +91,32 @@ def test_two_processes_storing_the_same_entry_at_once_both_succeed(tmp_path):
     loaded, meta = cache.load("prefix-entry")
     assert loaded.equals(table) and meta == {"rows_read": 1000}
     assert not list((tmp_path / "parsed_logs").glob("*.partial"))
+
+
+def test_cached_learner_blocks_hold_the_events_and_report_of_the_whole_read(tmp_path):
+    """What export streams from the cache: the same rows in the same order, the same report
+    (DST counts and warning, unknown learners, rows per file, digests), without parsing."""
+    import hashlib
+
+    import pandas as pd
+
+    from sync.logs import cached_learner_blocks
+
+    rows = [f"n-{n % 4},2026-10-25T02:{n % 60:02d}:{n // 60:02d},wire" for n in range(150)]  # Berlin's repeated hour
+    (tmp_path / "log.csv").write_text("trainee,at,event\n" + "\n".join(reversed(rows)) + "\n")
+    spec = log_spec_from_toml({**CSV_ENTRY, "timezone": "Europe/Berlin"}, tmp_path, 1)
+    cache, known = tmp_path / "parsed_logs", ["n-0", "n-1", "n-2"]
+    assert cached_learner_blocks([spec], known, None, cache)[0] is None  # nothing cached yet
+    events, report = read_logs([spec], known_log_ids=known, cache_dir=cache)
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setitem(logs.READERS, "csv", lambda *arguments: pytest.fail("parsed again"))
+        blocks, streamed_report = cached_learner_blocks([spec], known, None, cache)
+    assert streamed_report == report and report.ambiguous_local_times == 150
+    assert report.unknown_learners == {"n-3": 37} and len(report.warnings) == 2
+    # Outside reference: hashlib over the file's bytes.
+    assert report.digests[str(tmp_path / "log.csv")] == hashlib.sha256((tmp_path / "log.csv").read_bytes()).hexdigest()
+    parts = list(blocks.blocks())
+    assert len(blocks) == len(events) == 150 and blocks.learners == {"n-0", "n-1", "n-2", "n-3"}
+    streamed = pd.concat([part.to_pandas() for part in parts], ignore_index=True)
+    for column in events.columns:
+        assert streamed[column].astype(str).tolist() == events[column].astype(str).tolist(), column

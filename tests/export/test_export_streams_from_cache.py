@@ -1,0 +1,136 @@
+"""`fieldmark export` reads the parsed-log cache block by block when it holds every log file
+(sorted by learner, then time): the windows file, its manifest and the summary are those of
+the whole read, bit for bit, and no cached log is loaded whole."""
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+import pyarrow.parquet as pq
+import pytest
+
+import sync.log_cache
+import sync.sorted_parquet
+from export.writer import manifest_path
+from observer_app.pipeline.alignment import PARSED_LOGS_DIR
+from sync.log_cache import LogCache
+from tests.conftest import call_cli
+from tests.export.small_studies import LOG_COLUMNS, START, solo_laptops_study
+
+ACTIONS = ["connect_wire", "strip_insulation", "measure_voltage", "test_circuit", "hint", "label_terminal",
+           "check_breaker", "open_manual", "reset_panel", "select_tool", "submit_step", "undo", "help_request"]
+ROW_GROUP_ROWS = 40  # cache entries in row groups this small: blocks are cut inside learners' logs
+
+
+def write_logs(study, files: dict[str, list[str]], seed: int = 11) -> None:
+    """One CSV per file name with those learners' events (rows shuffled): ten minutes of history
+    before the observed windows, varied actions (one rare action only in one learner's rows),
+    outcomes written as a lab writes them, items and skills."""
+    rng = np.random.default_rng(seed)
+    entries = []
+    for name, log_ids in files.items():
+        lines = []
+        for log_id in log_ids:
+            seconds = np.cumsum(rng.integers(1, 5, 340)) - 600
+            actions = rng.choice(ACTIONS[:-1], len(seconds))
+            if log_id == "n-0003":
+                actions[::7] = "rare_probe"
+            for second, action in zip(seconds, actions):
+                moment = (START + pd.Timedelta(seconds=int(second))).isoformat()
+                result = rng.choice(["correct", "wrong", "", "Right", "done"])
+                lines.append(f"{log_id},{moment},{action},{result},step-{rng.integers(1, 6)},"
+                             f"{rng.choice(['breaker', 'terminal', ''])},{rng.integers(1, 9)}")
+        rng.shuffle(lines)
+        (study / "logs" / name).write_text("\n".join([LOG_COLUMNS, *lines]) + "\n")
+        entries.append(name)
+    toml = (study / "study.toml").read_text()
+    first = toml.index("\n[[logs]]") + 1
+    last = toml.index("\n\n", first) + 1
+    entry = toml[first:last]
+    toml = toml[:first] + "".join(entry.replace('"logs/centre_north.csv"', f'"logs/{name}"') for name in entries) \
+        + toml[last:]
+    (study / "study.toml").write_text(toml)
+
+
+def export(study, out, *extra) -> dict:
+    result = call_cli("export", study, "--out", out, "--json", "--help-actions", "hint,help_request",
+                      "--top-actions", "20", *extra)
+    assert result.returncode == 0, result.stderr
+    return json.loads(result.stdout)
+
+
+def assert_same_export(streamed, whole, streamed_summary: dict, whole_summary: dict) -> None:
+    first, second = pq.read_table(streamed), pq.read_table(whole)
+    assert first.schema == second.schema  # column names, types and descriptions
+    for name in first.column_names:  # bit for bit, NaN where NaN
+        left, right = first.column(name).to_pandas().to_numpy(), second.column(name).to_pandas().to_numpy()
+        assert left.dtype == right.dtype and pd.isna(left).tolist() == pd.isna(right).tolist(), name
+        assert (left[~pd.isna(left)] == right[~pd.isna(right)]).all(), name
+    assert json.loads(manifest_path(streamed).read_text()) == json.loads(manifest_path(whole).read_text())
+    ignored = ("out", "manifest")
+    assert {k: v for k, v in streamed_summary.items() if k not in ignored} == \
+        {k: v for k, v in whole_summary.items() if k not in ignored}
+
+
+@pytest.fixture
+def study(tmp_path, monkeypatch):
+    monkeypatch.setattr(sync.log_cache, "ROW_GROUP_ROWS", ROW_GROUP_ROWS)
+    return solo_laptops_study(tmp_path)
+
+
+def counting_blocks(monkeypatch) -> list[int]:
+    """Rows of every block the export reads from a sorted file (the learner/time pass and the features' pass)."""
+    rows: list[int] = []
+    real = sync.sorted_parquet.parquet_learner_blocks
+
+    def counted(path, columns=None):
+        for block in real(path, columns):
+            rows.append(block.num_rows)
+            yield block
+
+    monkeypatch.setattr(sync.sorted_parquet, "parquet_learner_blocks", counted)
+    return rows
+
+
+def test_export_from_the_cache_streams_learner_blocks_and_matches_the_whole_read(study, tmp_path, monkeypatch):
+    write_logs(study, {"centre_north.csv": ["n-0001", "n-0002", "n-0003", "n-0004", "n-0100"],
+                       "centre_south.csv": ["n-0005", "n-0006"]})
+    whole_summary = export(study, tmp_path / "whole.parquet")  # no entry for these learners yet: parsed, cached
+    assert "n-0100" not in (tmp_path / "whole.parquet").read_text(errors="ignore")
+    entries = sorted((study / PARSED_LOGS_DIR).glob("*.parquet"))
+    for entry in entries:  # the cache keeps each file sorted by learner, then time
+        table = pq.read_table(entry).to_pandas()
+        if len(table):
+            order = np.lexsort((table["time_ns"].to_numpy(), table["learner"].astype(str).to_numpy()))
+            assert (order == np.arange(len(table))).all()  # (each learner's times are distinct here)
+    assert max(pq.ParquetFile(entry).num_row_groups for entry in entries) > 5
+
+    blocks = counting_blocks(monkeypatch)
+    with monkeypatch.context() as patch:
+        patch.setattr(LogCache, "load", lambda *arguments: pytest.fail("a cached log was loaded whole"))
+        streamed_summary = export(study, tmp_path / "streamed.parquet")
+    assert len(blocks) == 2 * 6  # two passes (coverage, features), one block per observed learner
+    assert max(blocks) < 400 and sum(blocks) == 2 * whole_summary["events"] == 2 * 6 * 340
+    assert_same_export(tmp_path / "streamed.parquet", tmp_path / "whole.parquet", streamed_summary, whole_summary)
+    windows = pd.read_parquet(tmp_path / "streamed.parquet")
+    assert windows["action_rare_probe"].sum() > 0 and windows["history_attempts"].min() > 0
+    assert windows["outcome_correct"].sum() > 0 and "outcome_right" not in windows  # "Right" read as correct
+
+
+def test_a_learner_in_two_log_files_is_read_whole_with_the_same_result(study, tmp_path, monkeypatch):
+    write_logs(study, {"centre_north.csv": ["n-0001", "n-0002", "n-0003", "n-0004"],
+                       "centre_south.csv": ["n-0004", "n-0005", "n-0006"]}, seed=12)
+    first = export(study, tmp_path / "first.parquet")
+    blocks = counting_blocks(monkeypatch)
+    second = export(study, tmp_path / "second.parquet")
+    assert blocks == []  # n-0004's events are in both files: not blocks of one file each
+    assert_same_export(tmp_path / "second.parquet", tmp_path / "first.parquet", second, first)
+
+
+def test_an_observed_id_without_events_is_refused_alike_with_the_cache(study, tmp_path) -> None:
+    write_logs(study, {"centre_north.csv": ["n-0001", "n-0002", "n-0003", "n-0004", "n-0005"]})
+    results = [call_cli("export", study, "--out", tmp_path / f"{run}.parquet") for run in range(2)]
+    assert [result.returncode for result in results] == [2, 2]
+    assert results[0].stderr == results[1].stderr and "n-0006" in results[0].stderr
+    assert not list(tmp_path.glob("*.parquet"))
