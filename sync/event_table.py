@@ -36,8 +36,13 @@ def _category(values, length: int) -> pd.Categorical:
     if isinstance(series.dtype, pd.CategoricalDtype):
         # Codes and categories directly: pandas' own add_categories walks Arrow-backed
         # categories one by one, which costs seconds for a platform's 20,000 learner ids.
-        categories = series.cat.categories.to_numpy(dtype=object)
+        # Words trimmed as plain text is (" n-007 " is learner n-007); words that become equal merge.
+        trimmed = np.array([str(word).strip() for word in series.cat.categories], dtype=object)
         codes = series.cat.codes.to_numpy()
+        categories = trimmed
+        if len(trimmed):
+            categories, merged = np.unique(trimmed, return_inverse=True)
+            codes = np.where(codes >= 0, merged.reshape(-1)[np.maximum(codes, 0)], -1)
         blank = np.flatnonzero(categories == "")
         if blank.size == 0:
             categories = np.append(categories, "")

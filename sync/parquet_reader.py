@@ -104,10 +104,13 @@ def _drop_unused_words(table: pa.Table) -> pa.Table:
         column = table.column(name).combine_chunks() if table.num_rows else table.column(name)
         if isinstance(column, pa.DictionaryArray):
             indices = pc.fill_null(column.indices, -1).to_numpy(zero_copy_only=False)
-            used = np.unique(indices[indices >= 0])
-            remapped = np.searchsorted(used, indices).astype(np.int32)
+            # which words are used, by a mark per word (linear; np.unique would sort every row)
+            present = np.zeros(len(column.dictionary) + 1, dtype=bool)
+            present[indices] = True  # -1 (null) marks the extra last slot
+            present = present[:-1]
+            remapped = (np.cumsum(present, dtype=np.int32) - 1)[indices]
             column = pa.DictionaryArray.from_arrays(
-                pa.array(remapped, mask=indices < 0), column.dictionary.take(pa.array(used, pa.int64())))
+                pa.array(remapped, mask=indices < 0), column.dictionary.take(pa.array(np.flatnonzero(present))))
         columns[name] = column
     return pa.table(columns)
 
@@ -146,8 +149,10 @@ def _in(values: pa.ChunkedArray, wanted: frozenset[str]) -> np.ndarray:
     for chunk in values.chunks:
         if pa.types.is_dictionary(chunk.type):
             hit = pc.is_in(pc.utf8_trim_whitespace(pc.cast(chunk.dictionary, pa.string())), wanted_array)
-            codes = pc.fill_null(chunk.indices, -1).to_numpy(zero_copy_only=False)
-            parts.append(np.append(hit.to_numpy(zero_copy_only=False), False)[codes])
+            hit = np.append(hit.to_numpy(zero_copy_only=False), False)  # the extra slot answers a null
+            codes = (chunk.indices.to_numpy() if chunk.null_count == 0  # zero-copy when nothing is null
+                     else pc.fill_null(chunk.indices, -1).to_numpy(zero_copy_only=False))
+            parts.append(hit.take(codes))
         else:
             text = pc.utf8_trim_whitespace(pc.cast(chunk, pa.string()))
             parts.append(pc.fill_null(pc.is_in(text, wanted_array), False).to_numpy(zero_copy_only=False))

@@ -130,3 +130,38 @@ def test_align_reads_only_the_observed_learners_and_stores_the_same_models(tmp_p
         assert stored[key].to_json() == model.to_json(), key
     text = call_cli("align", folder, "--method", method, "--accept-uncertain")
     assert f"read {len(log) + len(others)} log rows" in text.stdout and f"kept {len(log)} events" in text.stdout
+
+
+def test_dictionary_learners_with_nulls_and_unused_words_are_filtered_like_pandas(tmp_path):
+    """The filtered Parquet read decides on dictionaries (indices taken zero-copy when none is
+    null, a mark per used word): checked against plain pandas on the same file, with null
+    learners, learner ids padded with spaces (" n-007 " is learner n-007, as in a CSV: its events
+    had kept the spaces and missed the learner's windows), and words no kept row uses."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from sync.log_spec import log_spec_from_toml
+    from sync.parquet_reader import read_parquet_log
+
+    rng = np.random.default_rng(5)
+    ids = np.array([f"n-{n:03d}" for n in range(40)] + [" n-007 "], dtype=object)
+    codes = rng.integers(0, len(ids), 3000)
+    learner = pa.DictionaryArray.from_arrays(pa.array(codes.astype(np.int32), mask=rng.random(3000) < 0.05),
+                                             pa.array(ids.tolist()))
+    action = pa.DictionaryArray.from_arrays(pa.array(rng.integers(0, 6, 3000).astype(np.int32)),
+                                            pa.array([f"a{k}" for k in range(6)]))
+    time = pa.array(1_780_000_000_000_000_000 + np.sort(rng.integers(0, 10**12, 3000)), pa.timestamp("ns", tz="UTC"))
+    path = tmp_path / "log.parquet"
+    pq.write_table(pa.table({"learner": learner, "time": time, "action": action}), path, row_group_size=700)
+    spec = log_spec_from_toml({"path": str(path), "format": "parquet",
+                               "columns": {"learner": "learner", "time": "time", "action": "action"}}, tmp_path, 1)
+    wanted = frozenset({"n-007", "n-011", "n-030"})
+    events, _, _, rows_read = read_parquet_log(spec, path, wanted)
+    plain = pq.read_table(path).to_pandas()
+    plain["learner"] = plain["learner"].astype("string").str.strip()
+    expected = plain[plain["learner"].isin(wanted)]
+    assert rows_read == 3000
+    assert len(events) == len(expected) > 0
+    assert sorted(events["learner"].astype(str)) == sorted(expected["learner"].astype(str))
+    assert set(events["learner"].cat.categories.astype(str)) - {""} <= wanted  # unused words dropped, " n-007 " merged
+    assert sorted(events["action"].astype(str)) == sorted(expected["action"].astype(str))
