@@ -103,7 +103,10 @@ class DimensionPad(QFrame):
         self.title = QLabel(dimension_title(dimension.name).upper())
         self.state = QLabel("")
         self.state.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-        self.title.setSizePolicy(QSizePolicy.Policy.Minimum, QSizePolicy.Policy.Preferred)
+        # Fixed height: the heading keeps its own height whatever room the tiles leave, so the
+        # headings of pads with different numbers of codes stand on one line.
+        self.title.setSizePolicy(QSizePolicy.Policy.Minimum, QSizePolicy.Policy.Fixed)
+        self.state.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Fixed)
         header.addWidget(self.title)
         header.addWidget(self.state, 1)
         layout.addLayout(header)
