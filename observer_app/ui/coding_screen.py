@@ -92,9 +92,6 @@ class FitLabel(QLabel):
         self._full = text
         self._fit()
 
-    def full_text(self) -> str:
-        return self._full
-
     def _font(self, points: float) -> QFont:
         font = QFont(self.font())
         font.setPointSizeF(points)
