@@ -123,6 +123,9 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "run", None):
         parser.print_help()
         return 2
+    from sync.arrow_memory import prefer_jemalloc  # here, not at the top: --help need not load Arrow
+
+    prefer_jemalloc()
     try:
         return _run_with_notes(args)
     except InputError as error:

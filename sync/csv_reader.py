@@ -183,21 +183,17 @@ def _first_bad_byte(path: Path) -> str:
     return f"byte {offset}"
 
 
-def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str, rows: np.ndarray,
-                        only: frozenset[str] | None = None) -> tuple[pd.DataFrame, LocalTimeCounts, list[str], int]:
+def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str,
+                        rows: np.ndarray) -> tuple[pd.DataFrame, LocalTimeCounts, list[str], int]:
     """A table holding the mapped columns -> (EVENTS rows, DST counts, warnings, rows read).
 
     Shared by the CSV and Parquet readers: it decides what an empty learner or a
-    non-numeric duration means.  ``only`` keeps just those learners (before any time is
-    parsed, so the rest cost nothing more).
+    non-numeric duration means.  The readers have already cut the rows to the wanted
+    learners (on the dictionary, before any time is parsed).
     """
     columns = spec.columns
     warnings: list[str] = []
     rows_read = len(table)
-    if only is not None:
-        learner = table[columns["learner"]]
-        keep = learner.astype("str").str.strip().isin(only).to_numpy(dtype=bool)
-        table, rows = table.loc[keep], rows[keep]
     time_ns, counts = parse_time_column(table[columns["time"]], spec.time_format, spec.timezone,
                                         name, columns["time"], rows)
     duration = None

@@ -2,9 +2,12 @@
 from __future__ import annotations
 
 import os
-import sys
 import shutil
 import subprocess
+import sys
+from pathlib import Path
+
+import pytest
 
 from observer_app import __version__
 from tests.conftest import assert_user_error, call_cli, run_cli
@@ -62,3 +65,24 @@ def test_a_reader_that_stops_early_ends_the_command_quietly(tmp_path):
     errors = process.stderr.read()
     assert process.wait(timeout=120) == 141  # 128 + SIGPIPE, as a shell reports a tool ended by a closed pipe
     assert errors == ""
+
+
+@pytest.mark.parametrize("chosen", ["", "system"])
+def test_verbs_read_logs_with_jemalloc_unless_the_environment_chose_a_pool(tmp_path: Path, chosen: str) -> None:
+    """A verb makes jemalloc Arrow's pool (sync/arrow_memory.py: freed pages are reused by the
+    next row group of a dataset) but respects ARROW_DEFAULT_MEMORY_POOL, Arrow's own setting
+    (pyarrow documentation, "Memory and IO interfaces", default memory pool; from memory)."""
+    import pyarrow as pa
+
+    try:
+        pa.jemalloc_memory_pool()
+        expected = chosen or "jemalloc"
+    except NotImplementedError:  # a build without jemalloc keeps its default
+        expected = chosen or pa.default_memory_pool().backend_name
+    program = ("import sys, pyarrow as pa; from observer_app.cli import main; "
+               f"code = main(['agree', {str(tmp_path / 'no-study')!r}]); "
+               "print(code, pa.default_memory_pool().backend_name)")
+    env = {key: value for key, value in os.environ.items() if key != "ARROW_DEFAULT_MEMORY_POOL"}
+    env.update(PYTHONPATH=str(Path(__file__).resolve().parents[2]), **({"ARROW_DEFAULT_MEMORY_POOL": chosen} if chosen else {}))
+    result = subprocess.run([sys.executable, "-c", program], capture_output=True, text=True, env=env, timeout=120)
+    assert result.stdout.split() == ["2", expected], result.stderr

@@ -5,7 +5,8 @@
 The dataset: FIELDMARK_DATASET_EVENTS events (default 100M) of 20,000 apprentices over
 ten days, written as pyarrow.dataset writes it (``day=.../part-N.parquet``), each file
 sorted by learner then time.  The study observed 500 of them, 50 windows of 20 s each.
-Contenders, each in a fresh process (peak resident memory is its own):
+Contenders, each in a fresh process (peak resident memory is its own), Arrow allocating from
+jemalloc as the fieldmark command does (sync/arrow_memory.py):
   ours    sync.logs.read_logs with the observed learners' ids (filtered while reading)
           + every built-in window feature (export/features.py)
   duckdb  the filtered range join: read_parquet(hive) WHERE learner IN (observed), joined
@@ -85,6 +86,10 @@ def generate() -> None:
 
 def contender(name: str) -> dict:
     import pandas as pd
+
+    from sync.arrow_memory import prefer_jemalloc
+
+    prefer_jemalloc()  # Arrow allocates as the fieldmark command's does (sync/arrow_memory.py)
 
     windows = pd.read_parquet(WINDOWS)
     observed = sorted(set(windows["log_id"]))

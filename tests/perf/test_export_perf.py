@@ -116,6 +116,9 @@ def contender(name: str, once: bool = False) -> dict:
     import pandas as pd
     import pyarrow.parquet as pq
 
+    from sync.arrow_memory import prefer_jemalloc
+
+    prefer_jemalloc()  # every contender's Arrow allocates as the fieldmark command's does
     windows = pd.read_parquet(WINDOWS)
     extra: dict = {}
     if name in ("read_counts", "read_all"):

@@ -113,9 +113,11 @@ def contender(name: str) -> dict:
     import duckdb
     import pyarrow  # noqa: F401  (both sides return Arrow-backed tables)
 
+    from sync.arrow_memory import prefer_jemalloc
     from sync.log_spec import log_spec_from_toml
     from sync.logs import read_logs
 
+    prefer_jemalloc()  # as the fieldmark command runs
     started = time.perf_counter()
     if name in ("xapi_ours", "csv_ours"):
         if name == "xapi_ours":
