@@ -65,7 +65,9 @@ def parquet_learner_blocks(path: Path, columns: Sequence[str] | None = None) -> 
             previous = learners[-2]
             yield table.slice(0, cut)
         # A copy of the last learner's rows: a slice would keep the whole row group alive.
-        carried = table.take(pa.array(np.arange(cut, table.num_rows)))
+        # (Taken from the slice: a take on the whole table first joins all its chunks.)
+        tail = table.slice(cut)
+        carried = tail.take(pa.array(np.arange(tail.num_rows)))
         del table
     if carried is not None and carried.num_rows:
         yield carried
