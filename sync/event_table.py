@@ -87,17 +87,17 @@ def combine_events(parts: list[pd.DataFrame]) -> pd.DataFrame:
                 columns[name] = np.concatenate([part[name].to_numpy() for part in parts])
         combined = pd.DataFrame(columns)
     time_ns = combined["time_ns"].to_numpy()
-    key = _learner_sort_key(combined["learner"])
+    key = learner_sort_key(combined["learner"])
     if _in_order(key, time_ns):  # a cached log comes sorted: no sort at all
         return combined.reset_index(drop=True)
-    order = _learner_time_order(key, time_ns)
+    order = learner_time_order(key, time_ns)
     if np.all(order[1:] > order[:-1]):
         return combined.reset_index(drop=True)
     return combined.take(order).reset_index(drop=True)
 
 
-def _learner_time_order(key: np.ndarray, time_ns: np.ndarray) -> np.ndarray:
-    """The stable row order by (learner, time).
+def learner_time_order(key: np.ndarray, time_ns: np.ndarray) -> np.ndarray:
+    """The stable row order by (learner, time); ``key`` ranks the learners (as their text sorts).
 
     One stable sort of a single int64 key (learner rank in the high bits, time since the
     earliest event in the low ones) when both fit: numpy's timsort then merges the runs that
@@ -121,7 +121,7 @@ def _in_order(key: np.ndarray, time_ns: np.ndarray) -> bool:
     return bool((step >= 0).all() and (np.diff(time_ns)[step == 0] >= 0).all())
 
 
-def _learner_sort_key(learner: pd.Series) -> np.ndarray:
+def learner_sort_key(learner: pd.Series) -> np.ndarray:
     """Sort key for learner ids by their text, computed on the categories only."""
     categories = learner.cat.categories
     rank = np.argsort(np.argsort(categories.astype(str).to_numpy())).astype(

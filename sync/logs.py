@@ -105,31 +105,33 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
 
 
 def cached_learner_blocks(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None,
-                          only_log_ids: Iterable[str] | None, cache_dir: Path) -> tuple[LearnerBlocks | None, ReadReport]:
+                          only_log_ids: Iterable[str] | None, cache_dir: Path,
+                          digests: Mapping[str, str] | None = None) -> tuple[LearnerBlocks | None, ReadReport]:
     """The logs as blocks of whole learners read from their cache entries (sorted by learner,
-    then time), with the report ``read_logs`` would give, when every file is CSV or Parquet,
-    has an entry for these settings and filter, and shares no learner with another file.
-    Otherwise (None, a report holding only the digests, to pass to ``read_logs``).
-    Nothing is parsed and no entry is loaded whole.  Raises ``InputError`` for a missing file.
+    then time; files that share learners merged), with the report ``read_logs`` would give,
+    when every file is CSV or Parquet and has an entry for these settings and filter.
+    Otherwise (None, a report holding only the digests, to pass on).  Nothing is parsed and
+    no entry is loaded whole.  ``digests`` as for ``read_logs``.  Raises ``InputError`` for
+    a missing file.
     """
     specs = list(specs)
-    report, found = ReadReport(), []
+    report, found = ReadReport(digests=dict(digests or {})), []
     only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
     cache = LogCache(cache_dir)
     for spec in specs:
         for path in _files(spec):
-            prefix, entry, report.digests[str(path)] = cache.key(spec, path, only)
+            prefix, entry, report.digests[str(path)] = cache.key(spec, path, only, report.digests.get(str(path)))
             found.append((path, None if spec.format == "xapi" else cache.find(entry)))
     if any(entry is None for _, entry in found):
         return None, ReadReport(digests=report.digests)
     learners: dict[str, int] = {}
     counts = LocalTimeCounts()
-    tables = []
+    tables, shared = [], False
     for path, (table_path, meta) in found:
         file_learners = meta["learners"]
-        if learners.keys() & file_learners.keys():  # a learner in two files: not blocks of one file each
-            return None, ReadReport(digests=report.digests)
-        learners.update(file_learners)
+        shared = shared or bool(learners.keys() & file_learners.keys())
+        for learner, rows in file_learners.items():
+            learners[learner] = learners.get(learner, 0) + rows
         rows = sum(file_learners.values())
         if rows:
             tables.append(table_path)
@@ -138,7 +140,37 @@ def cached_learner_blocks(specs: Iterable[LogSpec], known_log_ids: Iterable[str]
         report.rows_read_per_file[str(path)] = int(meta["rows_read"])
         report.warnings.extend(meta["warnings"])
     _finish_report(report, counts, known_log_ids, lambda: learners.items())
-    return LearnerBlocks(paths=tuple(tables), rows=report.rows, learners=frozenset(learners)), report
+    return LearnerBlocks(paths=tuple(tables), rows=report.rows, learners=frozenset(learners), shared=shared), report
+
+
+def fill_log_cache(specs: Iterable[LogSpec], only_log_ids: Iterable[str] | None, cache_dir: Path,
+                   digests: dict[str, str]) -> bool:
+    """Parse every CSV or Parquet file that has no cache entry for this filter and store it,
+    two files at a time, keeping none in memory after its entry is written, so that
+    ``cached_learner_blocks`` then finds them all (a first export streams too).  False,
+    parsing nothing, when a log is xAPI (its statements are resolved across files and read
+    whole).  ``digests``: files already hashed (path -> SHA-256 hex), updated.  Raises
+    ``InputError`` for a missing file or any malformed input, as ``read_logs`` does.
+    """
+    specs = list(specs)
+    if any(spec.format == "xapi" for spec in specs):
+        return False
+    only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
+    cache = LogCache(cache_dir)
+    missing = []
+    for spec in specs:
+        for path in _files(spec):
+            prefix, entry, digests[str(path)] = cache.key(spec, path, only, digests.get(str(path)))
+            if cache.find(entry) is None:
+                missing.append((spec, path, prefix, entry))
+
+    def store(job: tuple[LogSpec, Path, str, str]) -> None:
+        spec, path, prefix, entry = job
+        cache.store(prefix, entry, *events_to_entry(*_in_log_order(READERS[spec.format](spec, path, only))))
+
+    with ThreadPoolExecutor(max_workers=FILE_THREADS) as pool:
+        list(pool.map(store, missing))
+    return True
 
 
 def _files(spec: LogSpec) -> list[Path]:

@@ -6,11 +6,13 @@ where the last learner read so far begins, and that learner's rows travel on int
 next block.  Memory: one row group and the learner carried over (a learner whose events
 span several row groups is carried until their last row).  The order is checked as the
 blocks go (learners strictly increasing, each in one run): a file out of order is
-refused rather than cut through a learner.
+refused rather than cut through a learner.  Files that share learners (a log cut by day)
+are merged: one block of every file at a time, each learner's rows of all files in one
+block, in the order one sort of all the files' rows would give.
 """
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -19,25 +21,70 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
-LEARNER = "learner"
+from sync.event_table import learner_sort_key, learner_time_order
+
+LEARNER, TIME = "learner", "time_ns"
 
 
 @dataclass(frozen=True)
 class LearnerBlocks:
-    """Sorted Parquet files no two of which hold the same learner, read as blocks of whole
-    learners; ``rows`` events in all (also ``len()``) of ``learners``."""
+    """Sorted Parquet files read as blocks of whole learners; ``rows`` events in all (also
+    ``len()``) of ``learners``.  ``shared``: some learner has rows in more than one file."""
 
     paths: tuple[Path, ...]
     rows: int
     learners: frozenset[str]
+    shared: bool = False
 
     def __len__(self) -> int:
         return self.rows
 
     def blocks(self, columns: Sequence[str] | None = None) -> Iterator[pa.Table]:
-        """``columns`` (learner among them; None: all) of every file, block by block."""
+        """``columns`` (learner among them, and time_ns when files share learners; None: all)
+        of every file, block by block."""
+        if self.shared:
+            yield from merged_learner_blocks([parquet_learner_blocks(path, columns) for path in self.paths])
+            return
         for path in self.paths:
             yield from parquet_learner_blocks(path, columns)
+
+
+def merged_learner_blocks(sources: Sequence[Iterable[pa.Table]]) -> Iterator[pa.Table]:
+    """Blocks of whole learners drawn from several sources of such blocks (each sorted by
+    learner, then time) that may share learners: a learner's rows from every source in one
+    block, sorted by learner, then time, ties in source order (as one stable sort of all the
+    sources' rows, in order, leaves them).  Holds one block of every source at a time.
+
+    Every source's rows up to the smallest last learner among the held blocks are all held
+    (a source's block holds its learners whole), so those rows make the next block.
+    """
+    iterators = [iter(source) for source in sources]
+    held = [next(iterator, None) for iterator in iterators]
+    while any(table is not None for table in held):
+        live = [number for number, table in enumerate(held) if table is not None]
+        runs = {number: learner_runs(held[number].column(LEARNER)) for number in live}
+        last = min(runs[number][1][-1] for number in live)
+        pieces = []
+        for number in live:
+            starts, learners = runs[number]
+            after = int(np.searchsorted(learners, last, side="right"))
+            cut = held[number].num_rows if after == len(starts) else int(starts[after])
+            if cut:
+                pieces.append(held[number].slice(0, cut))
+            held[number] = next(iterators[number], None) if cut == held[number].num_rows else held[number].slice(cut)
+        yield _in_learner_time_order(pa.concat_tables(pieces).unify_dictionaries().combine_chunks())
+
+
+def _in_learner_time_order(table: pa.Table) -> pa.Table:
+    """The table sorted as EVENTS is (sync.event_table: learner as text, then time, stable)."""
+    if TIME not in table.column_names:
+        raise ValueError(f"merging files that share learners needs the {TIME!r} column")
+    learner = table.column(LEARNER)
+    if not pa.types.is_dictionary(learner.type):
+        learner = pc.dictionary_encode(learner)
+    key = learner_sort_key(learner.to_pandas())
+    order = learner_time_order(key, table.column(TIME).to_numpy())
+    return table if bool((order[1:] > order[:-1]).all()) else table.take(pa.array(order))
 
 
 def parquet_learner_blocks(path: Path, columns: Sequence[str] | None = None) -> Iterator[pa.Table]:

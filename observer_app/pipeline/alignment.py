@@ -49,7 +49,7 @@ from sync.clock_scan import scan_offset
 from sync.clock_sessions import clock_key, model_for, session_model, sessions_apart
 from sync.errors import InputError
 from sync.event_table import empty_events
-from sync.logs import ReadReport, cached_learner_blocks, read_logs
+from sync.logs import ReadReport, cached_learner_blocks, fill_log_cache, read_logs
 from sync.sorted_parquet import LearnerBlocks
 from sync.time_column import datetime_column_ns
 from sync.json_numbers import finite_or_none
@@ -499,14 +499,16 @@ def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
 def stream_study_logs(study: Study, if_missing: str,
                       only_log_ids: Iterable[str]) -> tuple[pd.DataFrame | LearnerBlocks, ReadReport]:
     """``read_study_logs``, as blocks of whole learners (sync.logs.cached_learner_blocks) when
-    the parsed-log cache holds every log file for this filter and every wanted id has events
-    there: then no log is loaded whole.  Otherwise the EVENTS table of ``read_study_logs``.
-    The report is the same either way."""
+    the logs are CSV or Parquet and every wanted id has events: files the parsed-log cache
+    lacks are parsed into it first, one at a time, so no log is loaded whole.  Otherwise
+    the EVENTS table of ``read_study_logs``.  The report is the same either way."""
     if not study.logs:
         raise InputError(study.dir / "study.toml", "[[logs]]", if_missing)
     wanted = set(map(str, only_log_ids))
-    blocks, report = cached_learner_blocks(study.logs, study.roster["log_id"].dropna().astype(str), wanted,
-                                           study.dir / PARSED_LOGS_DIR)
+    known, cache = study.roster["log_id"].dropna().astype(str), study.dir / PARSED_LOGS_DIR
+    blocks, report = cached_learner_blocks(study.logs, known, wanted, cache)
+    if blocks is None and fill_log_cache(study.logs, wanted, cache, report.digests):
+        blocks, report = cached_learner_blocks(study.logs, known, wanted, cache, report.digests)
     if blocks is not None and wanted <= blocks.learners:
         return blocks, report
     return read_study_logs(study, if_missing, wanted, digests=report.digests)

@@ -1,6 +1,7 @@
-"""`fieldmark export` reads the parsed-log cache block by block when it holds every log file
-(sorted by learner, then time): the windows file, its manifest and the summary are those of
-the whole read, bit for bit, and no cached log is loaded whole."""
+"""`fieldmark export` reads CSV and Parquet logs through the parsed-log cache block by block
+(each file parsed into it first when it has no entry; entries sorted by learner, then time;
+files that share learners merged): the windows file, its manifest and the summary are those
+of the whole read, bit for bit, and no cached log is loaded whole."""
 from __future__ import annotations
 
 import json
@@ -10,11 +11,13 @@ import pandas as pd
 import pyarrow.parquet as pq
 import pytest
 
+import observer_app.pipeline.alignment
 import sync.log_cache
 import sync.sorted_parquet
 from export.writer import manifest_path
 from observer_app.pipeline.alignment import PARSED_LOGS_DIR
 from sync.log_cache import LogCache
+from sync.logs import ReadReport
 from tests.conftest import call_cli
 from tests.export.small_studies import LOG_COLUMNS, START, solo_laptops_study
 
@@ -93,11 +96,28 @@ def counting_blocks(monkeypatch) -> list[int]:
     return rows
 
 
-def test_export_from_the_cache_streams_learner_blocks_and_matches_the_whole_read(study, tmp_path, monkeypatch):
+def whole_read_export(study, out, monkeypatch) -> dict:
+    """The export as it runs without blocks: the logs read whole into one EVENTS table."""
+    with monkeypatch.context() as patch:
+        patch.setattr(observer_app.pipeline.alignment, "cached_learner_blocks",
+                      lambda *arguments, **options: (None, ReadReport()))
+        return export(study, out)
+
+
+def never_loaded_whole(patch) -> None:
+    patch.setattr(LogCache, "load", lambda *arguments: pytest.fail("a cached log was loaded whole"))
+
+
+def test_export_streams_learner_blocks_from_its_first_run_and_matches_the_whole_read(study, tmp_path, monkeypatch):
     write_logs(study, {"centre_north.csv": ["n-0001", "n-0002", "n-0003", "n-0004", "n-0100"],
                        "centre_south.csv": ["n-0005", "n-0006"]})
-    whole_summary = export(study, tmp_path / "whole.parquet")  # no entry for these learners yet: parsed, cached
-    assert "n-0100" not in (tmp_path / "whole.parquet").read_text(errors="ignore")
+    blocks = counting_blocks(monkeypatch)
+    with monkeypatch.context() as patch:  # no entry yet: each file parsed into the cache, then streamed
+        never_loaded_whole(patch)
+        first_summary = export(study, tmp_path / "first.parquet")
+    assert len(blocks) == 2 * 6  # two passes (coverage, features), one block per observed learner
+    assert max(blocks) < 400 and sum(blocks) == 2 * first_summary["events"] == 2 * 6 * 340
+    assert "n-0100" not in (tmp_path / "first.parquet").read_text(errors="ignore")
     entries = sorted((study / PARSED_LOGS_DIR).glob("*.parquet"))
     for entry in entries:  # the cache keeps each file sorted by learner, then time
         table = pq.read_table(entry).to_pandas()
@@ -106,26 +126,32 @@ def test_export_from_the_cache_streams_learner_blocks_and_matches_the_whole_read
             assert (order == np.arange(len(table))).all()  # (each learner's times are distinct here)
     assert max(pq.ParquetFile(entry).num_row_groups for entry in entries) > 5
 
-    blocks = counting_blocks(monkeypatch)
-    with monkeypatch.context() as patch:
-        patch.setattr(LogCache, "load", lambda *arguments: pytest.fail("a cached log was loaded whole"))
+    blocks.clear()
+    with monkeypatch.context() as patch:  # the next run: straight from the cache
+        never_loaded_whole(patch)
         streamed_summary = export(study, tmp_path / "streamed.parquet")
-    assert len(blocks) == 2 * 6  # two passes (coverage, features), one block per observed learner
-    assert max(blocks) < 400 and sum(blocks) == 2 * whole_summary["events"] == 2 * 6 * 340
+    assert len(blocks) == 2 * 6
+    whole_summary = whole_read_export(study, tmp_path / "whole.parquet", monkeypatch)
+    assert_same_export(tmp_path / "first.parquet", tmp_path / "whole.parquet", first_summary, whole_summary)
     assert_same_export(tmp_path / "streamed.parquet", tmp_path / "whole.parquet", streamed_summary, whole_summary)
     windows = pd.read_parquet(tmp_path / "streamed.parquet")
     assert windows["action_rare_probe"].sum() > 0 and windows["history_attempts"].min() > 0
     assert windows["outcome_correct"].sum() > 0 and "outcome_right" not in windows  # "Right" read as correct
 
 
-def test_a_learner_in_two_log_files_is_read_whole_with_the_same_result(study, tmp_path, monkeypatch):
+def test_learners_in_several_log_files_stream_merged_with_the_same_result(study, tmp_path, monkeypatch):
+    """A log cut by day: the same learners in every file (and one learner in two files only)."""
     write_logs(study, {"centre_north.csv": ["n-0001", "n-0002", "n-0003", "n-0004"],
-                       "centre_south.csv": ["n-0004", "n-0005", "n-0006"]}, seed=12)
-    first = export(study, tmp_path / "first.parquet")
+                       "centre_south.csv": ["n-0004", "n-0005", "n-0006", "n-0001"],
+                       "day_three.csv": ["n-0002", "n-0003", "n-0005", "n-0006", "n-0001"]}, seed=12)
     blocks = counting_blocks(monkeypatch)
-    second = export(study, tmp_path / "second.parquet")
-    assert blocks == []  # n-0004's events are in both files: not blocks of one file each
-    assert_same_export(tmp_path / "second.parquet", tmp_path / "first.parquet", second, first)
+    with monkeypatch.context() as patch:
+        never_loaded_whole(patch)
+        streamed = export(study, tmp_path / "streamed.parquet")
+    assert blocks and max(blocks) < 400  # read block by block from the three sorted entries
+    assert sum(blocks) == 2 * streamed["events"] == 2 * 13 * 340
+    whole = whole_read_export(study, tmp_path / "whole.parquet", monkeypatch)
+    assert_same_export(tmp_path / "streamed.parquet", tmp_path / "whole.parquet", streamed, whole)
 
 
 def test_an_observed_id_without_events_is_refused_alike_with_the_cache(study, tmp_path) -> None:
