@@ -27,6 +27,11 @@ NOT_IMPORTED = ("Paired run: once your partner's observations are imported (fiel
 FAILED = "The agreement could not be computed here; fieldmark agree gives the full report."
 
 
+def counted(number: int, plural: str) -> str:
+    """"1 window", "2 windows", "0 sync marks": a count with its noun (an English plural in -s)."""
+    return f"{number} {plural[:-1] if number == 1 else plural}"
+
+
 class EndScreen(QWidget):
     done = Signal()
     failed = Signal(object, object)  # the exception computing the agreement raised, its traceback (MainWindow.show_error)
@@ -40,9 +45,9 @@ class EndScreen(QWidget):
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
         layout = titled_column(self, "Session ended", (48, 24, 48, 16))
         self.figures = QLabel(
-            f"{summary.windows} {unit}  ·  {summary.coded_windows} coded  ·  {summary.missed_windows} "
+            f"{counted(summary.windows, unit)}  ·  {summary.coded_windows} coded  ·  {summary.missed_windows} "
             + ("skipped (no code)" if unit == "clips" else
-               f"missed (ended with no code)  ·  {summary.sync_marks} sync marks"))
+               f"missed (ended with no code)  ·  {counted(summary.sync_marks, 'sync marks')}"))
         self.figures.setStyleSheet("font-size: 16pt;")
         self.figures.setWordWrap(True)
         layout.addWidget(self.figures)
@@ -78,8 +83,8 @@ class EndScreen(QWidget):
             return
         figures = "  ·  ".join(f"{name}: kappa {estimate_text(kappa)} ({agreement.band[name]})"
                                for name, kappa in agreement.kappa.items())
-        self.agreement.setText(f"Agreement with {', '.join(agreement.partners)} over {agreement.units} "
-                               f"windows:  {figures}")
+        self.agreement.setText(f"Agreement with {', '.join(agreement.partners)} over "
+                               f"{counted(agreement.units, 'windows')}:  {figures}")
 
     def _agreement_failed(self, error: BaseException) -> None:
         self.busy.hide()

@@ -134,6 +134,23 @@ def test_a_whole_session_coded_with_the_keyboard_alone(qtbot, window):
         assert connection.execute("SELECT count(*) FROM session_ends").fetchone() == (1,)
 
 
+def test_the_end_screen_counts_one_window_and_one_sync_mark_in_the_singular(qtbot, window):
+    press(qtbot, window, Qt.Key.Key_S)
+    press(qtbot, window, None, "ana")
+    press(qtbot, window, Qt.Key.Key_Return)
+    assert isinstance(window.page, ClockCheck)
+    press(qtbot, window, Qt.Key.Key_M)
+    press(qtbot, window, Qt.Key.Key_Return)
+    assert isinstance(window.page, ObservingScreen)
+    press(qtbot, window, None, "1")
+    press(qtbot, window, None, "q")  # Bench 1 coded in both dimensions: the first window closes
+    press(qtbot, window, Qt.Key.Key_F10)
+    press(qtbot, window, Qt.Key.Key_F10)
+    assert isinstance(window.page, EndScreen)
+    text = window.page.figures.text()
+    assert text.startswith("1 window  ·  1 coded  ·  0 missed") and text.endswith("·  1 sync mark"), text
+
+
 def _paired_form(qtbot, window, downs: int):
     press(qtbot, window, Qt.Key.Key_S)
     form = window.page
