@@ -99,19 +99,20 @@ def combine_events(parts: list[pd.DataFrame]) -> pd.DataFrame:
 def learner_time_order(key: np.ndarray, time_ns: np.ndarray) -> np.ndarray:
     """The stable row order by (learner, time); ``key`` ranks the learners (as their text sorts).
 
-    One stable sort of a single int64 key (learner rank in the high bits, time since the
-    earliest event in the low ones) when both fit: numpy's timsort then merges the runs that
-    are already in order (files of a dataset, each sorted by learner then time) instead of
-    sorting every row.  Otherwise two stable passes (time, then learner) instead of lexsort:
-    logs usually arrive in time order, so the first pass is mostly skipped, and the learner
-    pass sorts small integers, which numpy does by radix sort.
+    Rows in time order (a log as most systems write it) need one stable pass over the
+    learner key, small integers that numpy sorts by radix.  Otherwise one stable sort of
+    a single int64 key (learner rank in the high bits, time since the earliest event in the
+    low ones) when both fit: numpy's timsort then merges the runs that are already in order
+    (files of a dataset, each sorted by learner then time) instead of sorting every row.
+    Failing both, two stable passes (time, then learner).
     """
-    if len(time_ns):
-        low = int(time_ns.min())
-        time_bits = (int(time_ns.max()) - low).bit_length()
-        if time_bits + int(key.max()).bit_length() <= 62:
-            return np.argsort((key.astype(np.int64) << time_bits) | (time_ns - np.int64(low)), kind="stable")
-    order = np.arange(len(time_ns)) if np.all(time_ns[1:] >= time_ns[:-1]) else np.argsort(time_ns, kind="stable")
+    if np.all(time_ns[1:] >= time_ns[:-1]):
+        return np.argsort(key, kind="stable")
+    low = int(time_ns.min())
+    time_bits = (int(time_ns.max()) - low).bit_length()
+    if time_bits + int(key.max()).bit_length() <= 62:
+        return np.argsort((key.astype(np.int64) << time_bits) | (time_ns - np.int64(low)), kind="stable")
+    order = np.argsort(time_ns, kind="stable")
     return order[np.argsort(key[order], kind="stable")]
 
 

@@ -3,7 +3,9 @@
     FIELDMARK_PERF=1 /work/venv/bin/python -m pytest tests/perf/test_log_readers_perf.py -s
 
 Each contender runs in a fresh process (so its peak resident memory is its own) on the
-same generated file:
+same generated file, three times, alternating with the other; the fastest run of each is
+compared (the shared machine's noise moved single-run ratios by a third), with the highest
+peak of its runs:
   xapi_ours    sync.logs.read_logs on 1M statements, JSON lines (~650 MB): the EVENTS
                table, sorted by (learner, time)
   xapi_duckdb  read_json of the same file, the same fields (actor account name, verb id,
@@ -34,6 +36,7 @@ STATEMENTS = int(1_000_000 * SCALE)
 CSV_ROWS = int(5_000_000 * SCALE)
 LEARNERS = 2_000
 SECOND = 1_000_000_000
+RUNS = 3
 XAPI = CACHE / f"statements_{STATEMENTS}.jsonl"
 CSV = CACHE / f"log_{CSV_ROWS}.csv"
 VERBS = ["attempted", "answered", "completed", "experienced", "interacted", "progressed"]
@@ -159,10 +162,22 @@ def run_contender(name: str) -> dict:
     return json.loads(output.stdout.strip().splitlines()[-1])
 
 
+def best_of_alternating(ours_name: str, reference_name: str) -> tuple[dict, dict]:
+    """RUNS fresh-process runs of each, alternating: the fastest of each (the run the shared
+    machine disturbed least) with the highest peak of its runs, and every run's time."""
+    runs: dict[str, list[dict]] = {ours_name: [], reference_name: []}
+    for _ in range(RUNS):
+        for name in runs:
+            runs[name].append(run_contender(name))
+    return tuple({**min(results, key=lambda r: r["seconds"]), "peak_mb": max(r["peak_mb"] for r in results),
+                  "runs": " ".join(f"{r['seconds']:.2f}" for r in results)} for results in runs.values())
+
+
 def _print(title: str, ours: dict, duckdb_result: dict, time_target: float, memory_target: float | None) -> None:
-    print(f"\n{title} (load average {os.getloadavg()[0]:.1f})")
+    print(f"\n{title} (load average {os.getloadavg()[0]:.1f}; best of {RUNS} alternating runs)")
     for label, result in (("fieldmark", ours), ("duckdb", duckdb_result)):
-        print(f"  {label:<10} {result['seconds']:7.2f} s   peak {result['peak_mb']:7.0f} MB   rows {result['rows']}")
+        print(f"  {label:<10} {result['seconds']:7.2f} s   peak {result['peak_mb']:7.0f} MB   rows {result['rows']}"
+              f"   (runs: {result['runs']} s)")
     print(f"  time ratio   {ours['seconds'] / duckdb_result['seconds']:.2f}   (target <= {time_target})")
     memory = f"(target <= {memory_target})" if memory_target else ""
     print(f"  memory ratio {ours['peak_mb'] / duckdb_result['peak_mb']:.2f}   {memory}")
@@ -170,7 +185,7 @@ def _print(title: str, ours: dict, duckdb_result: dict, time_target: float, memo
 
 def test_xapi_reading_beside_duckdb() -> None:
     generate_xapi()
-    ours, reference = run_contender("xapi_ours"), run_contender("xapi_duckdb")
+    ours, reference = best_of_alternating("xapi_ours", "xapi_duckdb")
     _print(f"xAPI, {STATEMENTS} statements, JSON lines ({XAPI.stat().st_size / 1e6:.0f} MB)", ours, reference, 2, 2)
     assert ours["rows"] == reference["rows"] == STATEMENTS
     assert ours["seconds"] <= 2 * reference["seconds"]
@@ -179,7 +194,7 @@ def test_xapi_reading_beside_duckdb() -> None:
 
 def test_csv_reading_beside_duckdb() -> None:
     generate_csv()
-    ours, reference = run_contender("csv_ours"), run_contender("csv_duckdb")
+    ours, reference = best_of_alternating("csv_ours", "csv_duckdb")
     _print(f"CSV, {CSV_ROWS} rows, naive local times ({CSV.stat().st_size / 1e6:.0f} MB)", ours, reference, 1.5, None)
     assert ours["rows"] == reference["rows"] == CSV_ROWS
     assert ours["seconds"] <= 1.5 * reference["seconds"]
