@@ -71,7 +71,7 @@ def read_csv_log(spec: LogSpec, path: Path,
                          "so it is clear which one to read")
     table, rows, rows_read = _read_arrow(spec, path, header, delimiter, only)
     if rows_read == 0:
-        raise InputError(name, None, "has a header but no rows; export the log again or remove its [[logs]] entry")
+        return empty_file(spec, name, "has a header but no rows")
     frame = pd.DataFrame({column: table.column(column).to_pandas() for column in table.column_names})
     del table
     events, counts, warnings, _ = events_from_columns(frame, spec, name, rows)
@@ -181,6 +181,14 @@ def _first_bad_byte(path: Path) -> str:
             offset += len(block)
             lines += block.count(b"\n")
     return f"byte {offset}"
+
+
+def empty_file(spec: LogSpec, name: str, what: str) -> tuple[None, LocalTimeCounts, list[str], int]:
+    """A file without rows: one part of a folder entry is skipped with a warning (engines
+    write empty parts of a dataset); a file named alone is refused."""
+    if not spec.path.is_dir():
+        raise InputError(name, None, f"{what}; export the log again or remove its [[logs]] entry")
+    return None, LocalTimeCounts(), [f"{name} {what} (an empty part of {spec.path}); skipped"], 0
 
 
 def events_from_columns(table: pd.DataFrame, spec: LogSpec, name: str,

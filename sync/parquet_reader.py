@@ -18,7 +18,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
-from sync.csv_reader import events_from_columns
+from sync.csv_reader import empty_file, events_from_columns
 from sync.errors import InputError
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
@@ -56,7 +56,7 @@ def read_parquet_log(spec: LogSpec, path: Path,
         raise InputError(name, "schema", f"has no column for {', '.join(missing)}; the file has "
                          f"{', '.join(schema.names)} -- fix [logs.columns] in study.toml")
     if parquet.metadata.num_rows == 0:
-        raise InputError(name, None, "has no rows; export the log again or remove its [[logs]] entry")
+        return empty_file(spec, name, "has no rows")
     wanted = sorted(set(spec.columns.values()) - set(partition))
     nested = [column for column in wanted if pa.types.is_nested(schema.field(column).type)]
     if nested:

@@ -13,6 +13,7 @@ import pyarrow.dataset as ds
 import pytest
 
 from export.features import FEATURES, compute_features
+from sync.errors import InputError
 from sync.log_spec import log_spec_from_toml
 from sync.logs import read_logs
 
@@ -165,3 +166,28 @@ def test_dictionary_learners_with_nulls_and_unused_words_are_filtered_like_panda
     assert sorted(events["learner"].astype(str)) == sorted(expected["learner"].astype(str))
     assert set(events["learner"].cat.categories.astype(str)) - {""} <= wanted  # unused words dropped, " n-007 " merged
     assert sorted(events["action"].astype(str)) == sorted(expected["action"].astype(str))
+
+
+@pytest.mark.parametrize("log_format", ["parquet", "csv"])
+def test_an_empty_part_of_a_folder_entry_is_skipped_with_a_warning(tmp_path, log_format):
+    """Engines write empty parts into a dataset (common practice: a partition with no rows
+    left after a filter); one such file must not refuse the whole log, and must be said."""
+    log = simulator_log()
+    folder = tmp_path / "events"
+    for number, part in enumerate((log.iloc[:2000], log.iloc[2000:], log.iloc[:0])):
+        target = folder / f"part-{number}.{log_format}"
+        folder.mkdir(exist_ok=True)
+        if log_format == "parquet":
+            part.to_parquet(target, index=False)
+        else:
+            part.to_csv(target, index=False)
+    extra = {"timezone": "UTC"}
+    events, report = read_logs([spec(tmp_path, "events", log_format, **extra)], only_log_ids=OBSERVED)
+    reference, _ = read_logs([spec(tmp_path, f"events/part-{number}.{log_format}", log_format, **extra)
+                              for number in (0, 1)], only_log_ids=OBSERVED)
+    assert events[["learner", "time_ns", "action"]].astype(str).equals(reference[["learner", "time_ns", "action"]].astype(str))
+    assert len(events) == int(log["trainee"].isin(OBSERVED).sum())  # every kept row, counted by pandas
+    empty = str(folder / f"part-2.{log_format}")
+    assert [warning for warning in report.warnings if empty in warning and "skipped" in warning]
+    with pytest.raises(InputError, match="no rows; export the log again"):  # named alone, it is refused
+        read_logs([spec(tmp_path, f"events/part-2.{log_format}", log_format, **extra)])
