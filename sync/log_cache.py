@@ -48,8 +48,27 @@ class LogCache:
                 content = hashlib.file_digest(handle, "sha256").hexdigest()
         settings = json.dumps([CACHE_VERSION, spec.format, spec.timezone, spec.encoding, spec.delimiter,
                                spec.time_format, sorted(spec.columns.items()), sorted(only) if only else None])
-        prefix = hashlib.sha256(str(Path(path).resolve()).encode()).hexdigest()[:16]
+        prefix = self.prefix(path)
         return prefix, f"{prefix}-{content[:32]}-{hashlib.sha256(settings.encode()).hexdigest()[:16]}", content
+
+    @staticmethod
+    def prefix(path: Path) -> str:
+        """What every entry of this file's name starts with (its resolved path, hashed)."""
+        return hashlib.sha256(str(Path(path).resolve()).encode()).hexdigest()[:16]
+
+    def forget_all_but(self, files: list[Path]) -> int:
+        """Remove the entries of every file but ``files`` (the study's logs now): a log taken
+        out of the study, say because a learner withdrew consent, must not live on here.
+        Returns how many files were removed."""
+        if not self.folder.is_dir():
+            return 0
+        keep = {self.prefix(path) for path in files}
+        removed = 0
+        for item in self.folder.iterdir():
+            if item.is_file() and item.name.split("-", 1)[0] not in keep:
+                item.unlink(missing_ok=True)
+                removed += 1
+        return removed
 
     def load(self, entry: str) -> tuple[pa.Table, dict] | None:
         found = self.find(entry)

@@ -49,6 +49,7 @@ from sync.clock_scan import scan_offset
 from sync.clock_sessions import clock_key, model_for, session_model, sessions_apart
 from sync.errors import InputError
 from sync.event_table import empty_events
+from sync.log_cache import LogCache
 from sync.logs import ReadReport, cached_learner_blocks, fill_log_cache, read_logs
 from sync.sorted_parquet import LearnerBlocks
 from sync.time_column import datetime_column_ns
@@ -488,11 +489,18 @@ def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
         return events, report
 
     if only_log_ids is None:
-        return read(None)
+        return _forgetting_removed_logs(study, *read(None))
     wanted = set(map(str, only_log_ids))
     events, report = read(wanted)
     if not wanted <= set(events["learner"].astype(str).unique()):
-        return read(None)
+        events, report = read(None)
+    return _forgetting_removed_logs(study, events, report)
+
+
+def _forgetting_removed_logs(study: Study, events, report: ReadReport):
+    """(events, report), once the parsed-log cache has dropped every file no longer among the
+    study's logs (after a successful read, which found them all)."""
+    LogCache(study.dir / PARSED_LOGS_DIR).forget_all_but([path for spec in study.logs for path in spec.files()])
     return events, report
 
 
@@ -510,7 +518,7 @@ def stream_study_logs(study: Study, if_missing: str,
     if blocks is None and fill_log_cache(study.logs, wanted, cache, report.digests):
         blocks, report = cached_learner_blocks(study.logs, known, wanted, cache, report.digests)
     if blocks is not None and wanted <= blocks.learners:
-        return blocks, report
+        return _forgetting_removed_logs(study, blocks, report)
     return read_study_logs(study, if_missing, wanted, digests=report.digests)
 
 

@@ -160,3 +160,24 @@ def test_an_observed_id_without_events_is_refused_alike_with_the_cache(study, tm
     assert [result.returncode for result in results] == [2, 2]
     assert results[0].stderr == results[1].stderr and "n-0006" in results[0].stderr
     assert not list(tmp_path.glob("*.parquet"))
+
+
+def test_a_log_taken_out_of_the_study_leaves_no_parsed_copy(study, tmp_path):
+    """A lab deletes a log (a learner withdrew consent, common practice under data-protection
+    law): the next command must not keep that file's parsed events in parsed_logs/."""
+    write_logs(study, {"centre_north.csv": ["n-0001", "n-0002", "n-0003", "n-0004", "n-0005", "n-0006"],
+                       "withdrawn.csv": ["n-0001", "n-0099"]})
+    export(study, tmp_path / "before.parquet")
+    cache = study / PARSED_LOGS_DIR
+    withdrawn = LogCache.prefix(study / "logs" / "withdrawn.csv")
+    kept = LogCache.prefix(study / "logs" / "centre_north.csv")
+    assert {path.name.split("-", 1)[0] for path in cache.iterdir()} >= {withdrawn, kept}
+    (study / "logs" / "withdrawn.csv").unlink()
+    toml = (study / "study.toml").read_text()
+    first = toml.index("[[logs]]", toml.index("withdrawn.csv") - 200)
+    (study / "study.toml").write_text(toml[:first] + toml[toml.index("\n\n", first) + 2:])
+    assert "withdrawn.csv" not in (study / "study.toml").read_text()
+    export(study, tmp_path / "after.parquet")
+    prefixes = {path.name.split("-", 1)[0] for path in cache.iterdir()}
+    assert withdrawn not in prefixes and kept in prefixes
+    assert b"n-0099" not in b"".join(path.read_bytes() for path in cache.iterdir())
