@@ -3,7 +3,8 @@
 An entry is keyed by the file's content digest (SHA-256) together with everything that
 shapes the result (format, time zone, encoding, delimiter, time format, column mapping,
 the learner filter): a changed file or setting misses and is parsed afresh, and the
-stale entry of that file is removed.  Entries hold learners' log events, like logs/
+stale entry of that file is removed; entries of files no longer among a study's logs
+are removed too (``forget_all_but``, after the study's logs were read).  Entries hold learners' log events, like logs/
 itself: the folder and files are owner-only (0o700 / 0o600) and export never lists them.
 Each entry is a Parquet table plus a JSON sidecar (counts, warnings, rows read), written
 to a temporary name and renamed, so a crash leaves no half entry.  A CSV or Parquet
@@ -56,19 +57,15 @@ class LogCache:
         """What every entry of this file's name starts with (its resolved path, hashed)."""
         return hashlib.sha256(str(Path(path).resolve()).encode()).hexdigest()[:16]
 
-    def forget_all_but(self, files: list[Path]) -> int:
+    def forget_all_but(self, files: list[Path]) -> None:
         """Remove the entries of every file but ``files`` (the study's logs now): a log taken
-        out of the study, say because a learner withdrew consent, must not live on here.
-        Returns how many files were removed."""
+        out of the study, say because a learner withdrew consent, must not live on here."""
         if not self.folder.is_dir():
-            return 0
+            return
         keep = {self.prefix(path) for path in files}
-        removed = 0
         for item in self.folder.iterdir():
             if item.is_file() and item.name.split("-", 1)[0] not in keep:
                 item.unlink(missing_ok=True)
-                removed += 1
-        return removed
 
     def load(self, entry: str) -> tuple[pa.Table, dict] | None:
         found = self.find(entry)
