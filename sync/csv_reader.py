@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import codecs
 import csv
+import re
 from pathlib import Path
 
 import numpy as np
@@ -21,6 +22,7 @@ from sync.time_column import parse_time_column
 DELIMITER_CANDIDATES = ",;\t|"
 SNIFF_BYTES = 64 * 1024
 BLOCK_BYTES = 16 * 1024 * 1024
+DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d+")  # "1,5": a spreadsheet set to a decimal comma
 TEXT_ROLES: tuple[str, ...] = ("learner", "action", "outcome", "item", "skill")
 
 
@@ -183,6 +185,7 @@ def _first_bad_byte(path: Path) -> str:
     return f"byte {offset}"
 
 
+
 def empty_file(spec: LogSpec, name: str, what: str) -> tuple[None, LocalTimeCounts, list[str], int]:
     """A file without rows: one part of a folder entry is skipped with a warning (engines
     write empty parts of a dataset); a file named alone is refused."""
@@ -244,7 +247,9 @@ def _durations(values: pd.Series, name: str, column: str, rows: np.ndarray) -> n
     if bad.any():
         first = np.flatnonzero(bad)[0]
         raise InputError(name, f"column {column}, row {int(rows[first])}",
-                         f"{text.iloc[first][:40]!r} is not a number of seconds")
+                         f"{text.iloc[first][:40]!r} is not a number of seconds"
+                         + ("; it looks like a decimal comma: export the log with a decimal point (1.5)"
+                            if DECIMAL_COMMA.fullmatch(text.iloc[first]) else ""))
     seconds = numbers.to_numpy(dtype=np.float64, na_value=np.nan)
     check_durations(seconds, name, column, rows)
     return seconds

@@ -91,3 +91,17 @@ def test_bad_logs_entry_names_entry_and_key(entry, needle):
         log_spec_from_toml(entry, Path("."), 4)
     assert caught.value.file == "study.toml"
     assert f"[[logs]] #4 {needle}" in caught.value.line()
+
+
+@pytest.mark.parametrize(("value", "hinted"), [("1,5", True), ("-0,25", True), ("about five", False), ("1,500,000", False)])
+def test_a_decimal_comma_is_named_as_such(tmp_path, value, hinted):
+    """A spreadsheet set to a decimal comma writes ';' between cells and '1,5' for one and a
+    half (common practice in much of Europe): the message says so and how to fix it."""
+    (tmp_path / "log.csv").write_text(f"trainee;timestamp;event;seconds\nn-1;2026-03-02T08:00:00Z;hint;2\n"
+                                      f"n-1;2026-03-02T08:00:05Z;hint;{value}\n")
+    spec = log_spec_from_toml({"path": "log.csv", "format": "csv", "columns": CSV_COLUMNS}, tmp_path, 1)
+    with pytest.raises(InputError) as caught:
+        read_logs([spec])
+    line = caught.value.line()
+    assert "column seconds, row 2" in line and repr(value) in line
+    assert ("decimal comma" in line) == hinted
