@@ -29,7 +29,8 @@ from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
 from sync.xapi_reader import StatementPart
 
-CACHE_VERSION = 2  # bump when what a reader produces changes (2: events sorted, learners listed)
+CACHE_VERSION = 3  # bump when what a reader produces changes (2: events sorted, learners listed;
+                   # 3: an empty filter no longer shares the unfiltered key, so older entries may be wrong)
 ROW_GROUP_ROWS = 1_000_000  # what one block read from an entry holds, at most (and one learner carried)
 
 
@@ -48,7 +49,7 @@ class LogCache:
             with open(path, "rb") as handle:
                 content = hashlib.file_digest(handle, "sha256").hexdigest()
         settings = json.dumps([CACHE_VERSION, spec.format, spec.timezone, spec.encoding, spec.delimiter,
-                               spec.time_format, sorted(spec.columns.items()), sorted(only) if only else None])
+                               spec.time_format, sorted(spec.columns.items()), None if only is None else sorted(only)])
         prefix = self.prefix(path)
         return prefix, f"{prefix}-{content[:32]}-{hashlib.sha256(settings.encode()).hexdigest()[:16]}", content
 

@@ -120,3 +120,24 @@ def test_cached_learner_blocks_hold_the_events_and_report_of_the_whole_read(tmp_
     streamed = pd.concat([part.to_pandas() for part in parts], ignore_index=True)
     for column in events.columns:
         assert streamed[column].astype(str).tolist() == events[column].astype(str).tolist(), column
+
+
+def test_a_read_of_no_learners_never_stands_in_for_a_read_of_all(tmp_path):
+    """`fieldmark align` before any coding reads the logs for no learner (and is refused);
+    a later read of every learner (replay, coverage) must still get every event, not the
+    empty read's cached result."""
+    from observer_app.pipeline.alignment import read_study_logs
+    from observer_app.study.folder import load_study
+    from tests.conftest import call_cli
+    from tests.export.small_studies import LOG_IDS, write_log, write_roster
+
+    study = tmp_path / "study"
+    assert call_cli("init", study).returncode == 0
+    write_roster(study, LOG_IDS)
+    write_log(study, LOG_IDS)
+    refused = call_cli("align", study)
+    assert refused.returncode == 2 and "no coding sessions" in refused.stderr
+    events, report = read_study_logs(load_study(study))
+    written = sum(1 for _ in open(study / "logs" / "centre_north.csv")) - 1  # the file's own rows, header aside
+    assert len(events) == report.rows == written > 0
+    assert sorted(events["learner"].astype(str).unique()) == LOG_IDS
