@@ -59,20 +59,35 @@ def merged_learner_blocks(sources: Sequence[Iterable[pa.Table]]) -> Iterator[pa.
     (a source's block holds its learners whole), so those rows make the next block.
     """
     iterators = [iter(source) for source in sources]
-    held = [next(iterator, None) for iterator in iterators]
-    while any(table is not None for table in held):
-        live = [number for number, table in enumerate(held) if table is not None]
-        runs = {number: learner_runs(held[number].column(LEARNER)) for number in live}
-        last = min(runs[number][1][-1] for number in live)
+    held = [_with_runs(next(iterator, None)) for iterator in iterators]  # (block, run starts, run learners)
+    while any(item is not None for item in held):
+        live = [number for number, item in enumerate(held) if item is not None]
+        last = min(held[number][2][-1] for number in live)
         pieces = []
         for number in live:
-            starts, learners = runs[number]
+            table, starts, learners = held[number]
             after = int(np.searchsorted(learners, last, side="right"))
-            cut = held[number].num_rows if after == len(starts) else int(starts[after])
+            cut = table.num_rows if after == len(starts) else int(starts[after])
             if cut:
-                pieces.append(held[number].slice(0, cut))
-            held[number] = next(iterators[number], None) if cut == held[number].num_rows else held[number].slice(cut)
+                pieces.append(table.slice(0, cut))
+            held[number] = (_with_runs(next(iterators[number], None)) if cut == table.num_rows
+                            else (table.slice(cut), starts[after:] - cut, learners[after:]))
         yield _in_learner_time_order(pa.concat_tables(pieces).unify_dictionaries().combine_chunks())
+
+
+def _with_runs(table: pa.Table | None) -> tuple[pa.Table, np.ndarray, np.ndarray] | None:
+    """A block (dictionary indices widened, so blocks of any file can be joined) with its
+    learner runs (found once, then cut along with the block)."""
+    return None if table is None else (_with_int32_indices(table), *learner_runs(table.column(LEARNER)))
+
+
+def _with_int32_indices(table: pa.Table) -> pa.Table:
+    """Dictionary columns with 32-bit indices: files written from pandas carry 8- or 16-bit
+    ones as their own word counts need (a day with 200 learners, another with 40), and
+    tables of different index widths cannot be joined."""
+    fields = [pa.field(field.name, pa.dictionary(pa.int32(), field.type.value_type))
+              if pa.types.is_dictionary(field.type) else field for field in table.schema]
+    return table.cast(pa.schema(fields))
 
 
 def _in_learner_time_order(table: pa.Table) -> pa.Table:

@@ -59,3 +59,27 @@ def test_merged_files_need_the_time_column(tmp_path) -> None:
     with pytest.raises(ValueError, match="time_ns"):
         list(LearnerBlocks(paths=tuple(paths), rows=40, learners=frozenset({"n-1", "n-2"}), shared=True)
              .blocks(["learner", "source"]))
+
+
+def test_files_whose_words_need_wider_indices_merge(tmp_path) -> None:
+    """pandas writes a column's dictionary indices as narrow as its word count allows (8 bits
+    up to 127 words, then 16): a day with 200 items beside a day with 12 must still merge."""
+    rng = np.random.default_rng(5)
+    frames, paths = [], []
+    for day, (learners, items) in enumerate(((150, 200), (5, 12))):
+        names = [f"n-{number:04d}" for number in range(learners)]
+        frame = pd.DataFrame({"learner": rng.choice(names, 900), "time_ns": rng.integers(0, 10**12, 900),
+                              "item": rng.choice([f"step-{n}" for n in range(items)], 900)})
+        frame = frame.sort_values(["learner", "time_ns"], kind="stable").reset_index(drop=True)
+        paths.append(tmp_path / f"day-{day}.parquet")
+        pq.write_table(pa.Table.from_pandas(frame.astype({"learner": "category", "item": "category"}),
+                                            preserve_index=False), paths[-1], row_group_size=100)
+        frames.append(frame)
+    widths = {pq.read_schema(path).field("item").type.index_type for path in paths}
+    assert widths == {pa.int8(), pa.int16()}  # the files do differ
+    learners = frozenset(pd.concat(frames)["learner"])
+    merged = pa.concat_tables(LearnerBlocks(paths=tuple(paths), rows=1800, learners=learners, shared=True).blocks())
+    reference = pd.concat(frames, ignore_index=True).sort_values(["learner", "time_ns"], kind="stable")
+    frame = merged.to_pandas()
+    assert frame["learner"].astype(str).tolist() == reference["learner"].tolist()
+    assert frame["item"].astype(str).tolist() == reference["item"].tolist()
