@@ -4,10 +4,12 @@ An entry is keyed by the file's content digest (SHA-256) together with everythin
 shapes the result (format, time zone, encoding, delimiter, time format, column mapping,
 the learner filter): a changed file or setting misses and is parsed afresh, and the
 stale entry of that file is removed; entries of files no longer among a study's logs
-are removed too (``forget_all_but``, after the study's logs were read).  Entries hold learners' log events, like logs/
-itself: the folder and files are owner-only (0o700 / 0o600) and export never lists them.
-Each entry is a Parquet table plus a JSON sidecar (counts, warnings, rows read), written
-to a temporary name and renamed, so a crash leaves no half entry.  A CSV or Parquet
+are removed too (``forget_all_but``, after the study's logs were read).  Entries hold
+learners' log events, like logs/ itself: the folder and files are owner-only (0o700 /
+0o600) and export never lists them.  Each entry is a Parquet table plus a JSON sidecar
+(counts, warnings, rows read, the table's SHA-256), written to temporary names and
+renamed, so a crash leaves no half entry; a table that is not the one stored (damaged,
+half copied) is a miss and parsed again, never read.  A CSV or Parquet
 file's entry holds its events sorted by learner, then time, in row groups of at most
 ``ROW_GROUP_ROWS``, and its sidecar lists each learner's event count: export reads such an
 entry as blocks of whole learners (sync/sorted_parquet.py) without loading it whole.
@@ -46,8 +48,7 @@ class LogCache:
         time it is hashed, so an export's manifest takes it from the read report).
         ``content``: the digest when this run already hashed the file."""
         if content is None:
-            with open(path, "rb") as handle:
-                content = hashlib.file_digest(handle, "sha256").hexdigest()
+            content = _sha256(path)
         settings = json.dumps([CACHE_VERSION, spec.format, spec.timezone, spec.encoding, spec.delimiter,
                                spec.time_format, sorted(spec.columns.items()), None if only is None else sorted(only)])
         prefix = self.prefix(path)
@@ -78,13 +79,16 @@ class LogCache:
             return None  # unreadable entry: parse again (and overwrite it)
 
     def find(self, entry: str) -> tuple[Path, dict] | None:
-        """The entry's table file and sidecar, without reading the table (None when absent or unreadable)."""
+        """The entry's table file and sidecar, without parsing the table; None when absent,
+        unreadable or not the table stored (its SHA-256 differs from the sidecar's: a damaged
+        or half-copied study folder, a sync tool's conflict copy), so it is parsed again."""
         table_path, meta_path = self.folder / f"{entry}.parquet", self.folder / f"{entry}.json"
         if not (table_path.exists() and meta_path.exists()):
             return None
         try:
-            return table_path, json.loads(meta_path.read_text())
-        except (OSError, ValueError):
+            meta = json.loads(meta_path.read_text())
+            return (table_path, meta) if meta.get("table_sha256") == _sha256(table_path) else None
+        except (OSError, ValueError, AttributeError):
             return None
 
     def store(self, prefix: str, entry: str, table: pa.Table, meta: dict) -> None:
@@ -93,16 +97,26 @@ class LogCache:
         for stale in self.folder.glob(f"{prefix}-*"):
             if not stale.name.startswith(entry):
                 stale.unlink(missing_ok=True)
-        for suffix, write in ((".parquet", lambda path: pq.write_table(table, path, row_group_size=ROW_GROUP_ROWS)),
-                              (".json", lambda path: path.write_text(json.dumps(meta)))):
-            # a name of this write's own: the app and a verb (or two app windows) may parse the
-            # same file at once, and must not rename each other's half-written entry
-            temporary = self.folder / f"{entry}{suffix}.{os.getpid()}.{uuid.uuid4().hex[:8]}.partial"
-            descriptor = os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
-            os.close(descriptor)
-            write(temporary)
+        table_file = self._owner_only_temporary(entry, ".parquet")
+        pq.write_table(table, table_file, row_group_size=ROW_GROUP_ROWS)
+        meta_file = self._owner_only_temporary(entry, ".json")
+        meta_file.write_text(json.dumps({**meta, "table_sha256": _sha256(table_file)}))
+        for temporary, suffix in ((table_file, ".parquet"), (meta_file, ".json")):
             os.chmod(temporary, 0o600)
             os.replace(temporary, self.folder / f"{entry}{suffix}")
+
+    def _owner_only_temporary(self, entry: str, suffix: str) -> Path:
+        """An empty owner-only file with a name of this write's own: the app and a verb (or two
+        app windows) may parse the same file at once, and must not rename each other's
+        half-written entry."""
+        temporary = self.folder / f"{entry}{suffix}.{os.getpid()}.{uuid.uuid4().hex[:8]}.partial"
+        os.close(os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600))
+        return temporary
+
+
+def _sha256(path: Path) -> str:
+    with open(path, "rb") as handle:
+        return hashlib.file_digest(handle, "sha256").hexdigest()
 
 
 def events_to_entry(events: pd.DataFrame | None, counts: LocalTimeCounts, warnings: list[str],

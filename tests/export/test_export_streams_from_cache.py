@@ -181,3 +181,26 @@ def test_a_log_taken_out_of_the_study_leaves_no_parsed_copy(study, tmp_path):
     prefixes = {path.name.split("-", 1)[0] for path in cache.iterdir()}
     assert withdrawn not in prefixes and kept in prefixes
     assert b"n-0099" not in b"".join(path.read_bytes() for path in cache.iterdir())
+
+
+@pytest.mark.parametrize("damage", ["flipped byte", "cut short", "sidecar of another table"])
+def test_a_damaged_parsed_copy_is_parsed_again_never_read(study, tmp_path, damage):
+    """A study folder copied in half, or a sync tool's conflict copy, leaves parsed_logs/
+    entries that are not what was stored: the export parses the log again (same windows
+    file, bit for bit), never a traceback and never a silently wrong time."""
+    write_logs(study, {"centre_north.csv": ["n-0001", "n-0002", "n-0003"],
+                       "centre_south.csv": ["n-0004", "n-0005", "n-0006"]})
+    first = export(study, tmp_path / "first.parquet")
+    tables = sorted((study / PARSED_LOGS_DIR).glob("*.parquet"))
+    table = tables[0]
+    data = bytearray(table.read_bytes())
+    if damage == "flipped byte":
+        data[len(data) // 3] ^= 0x01
+        table.write_bytes(bytes(data))
+    elif damage == "cut short":
+        table.write_bytes(bytes(data[: len(data) // 2]))
+    else:
+        table.write_bytes(tables[1].read_bytes())
+    second = export(study, tmp_path / "second.parquet")
+    assert second["events"] == first["events"] == 6 * 340
+    assert pd.read_parquet(tmp_path / "second.parquet").equals(pd.read_parquet(tmp_path / "first.parquet"))
