@@ -80,9 +80,11 @@ def run(args: argparse.Namespace) -> int:
     reference = clock_reference_ns(study)
     # read once, for the fits and the coverage, and only the learners they use; hand-set
     # offsets need no logs, so logs not yet on disk stop align only when a fit needs them
-    # (align_study reads them then)
+    # (align_study reads them then); with nothing observed and no sync mark there is nothing
+    # to read for, and align_study says what is missing without parsing a log
     present = bool(study.logs) and all(Path(spec.path).exists() for spec in study.logs)
-    logs = read_study_logs(study, only_log_ids=clock_log_ids(study)) if present else None
+    wanted = clock_log_ids(study) if present else []
+    logs = read_study_logs(study, only_log_ids=wanted) if wanted else None
     try:
         alignment = align_study(study, args.method, offsets, progress=not args.json, logs=logs,
                                 refit=tuple(args.refit), max_standard_error_s=args.max_standard_error,

@@ -123,10 +123,19 @@ def test_cached_learner_blocks_hold_the_events_and_report_of_the_whole_read(tmp_
 
 
 def test_a_read_of_no_learners_never_stands_in_for_a_read_of_all(tmp_path):
-    """`fieldmark align` before any coding reads the logs for no learner (and is refused);
-    a later read of every learner (replay, coverage) must still get every event, not the
-    empty read's cached result."""
-    from observer_app.pipeline.alignment import read_study_logs
+    """A read filtered to no learner keeps nothing; a later read of every learner (replay,
+    coverage) must still get every event, not the empty read's cached result."""
+    write_csv(tmp_path, 12)
+    spec, cache = log_spec_from_toml(CSV_ENTRY, tmp_path, 1), tmp_path / "parsed_logs"
+    nothing, _ = read_logs([spec], only_log_ids=[], cache_dir=cache)
+    everything, report = read_logs([spec], cache_dir=cache)
+    assert len(nothing) == 0 and len(everything) == report.rows == 12
+
+
+def test_align_before_any_coding_parses_no_log(tmp_path):
+    """`fieldmark align` run before observations are imported says so without parsing the
+    logs (a platform's dataset can take minutes) and leaves no parsed copy behind."""
+    from observer_app.pipeline.alignment import PARSED_LOGS_DIR, read_study_logs
     from observer_app.study.folder import load_study
     from tests.conftest import call_cli
     from tests.export.small_studies import LOG_IDS, write_log, write_roster
@@ -137,7 +146,7 @@ def test_a_read_of_no_learners_never_stands_in_for_a_read_of_all(tmp_path):
     write_log(study, LOG_IDS)
     refused = call_cli("align", study)
     assert refused.returncode == 2 and "no coding sessions" in refused.stderr
+    assert not (study / PARSED_LOGS_DIR).exists()
     events, report = read_study_logs(load_study(study))
     written = sum(1 for _ in open(study / "logs" / "centre_north.csv")) - 1  # the file's own rows, header aside
     assert len(events) == report.rows == written > 0
-    assert sorted(events["learner"].astype(str).unique()) == LOG_IDS
