@@ -42,7 +42,7 @@ import numpy as np
 import pandas as pd
 
 from observer_app.coding.replay_plan import ReplayRule, assign_clips, clips_digest, plan_id
-from observer_app.pipeline.alignment import read_study_logs
+from observer_app.pipeline.alignment import roster_logs
 from observer_app.coding.clock import Clock
 from observer_app.coding.coding_session import CodedUnit, CodingSession, UndoEntry
 from observer_app.study.scheme_binding import scheme_fits_store
@@ -202,7 +202,7 @@ class ReplaySession(CodingSession):
         chosen = set(roster_ids if learners is None else learners)
         learners = [learner for learner in roster_ids if learner in chosen]
         seed = study.seed if seed is None else seed
-        events, _ = read_study_logs(study)
+        events = roster_logs(study)
         if rule is not None:
             identity, clips = planned_clips(study, store, events, rule, coder)
             order, seed, learners = f"{PLAN_PREFIX}{identity}", rule.seed, list(rule.learners)
@@ -226,7 +226,7 @@ class ReplaySession(CodingSession):
         order = str(row["order"])
         sample = int(order.removeprefix(SAMPLE_PREFIX)) if order.startswith(SAMPLE_PREFIX) else None
         learners = [learner for learner in str(row["present"]).split("\n") if learner]
-        events, _ = read_study_logs(study)
+        events = roster_logs(study)
         if order.startswith(PLAN_PREFIX):
             identity = order.removeprefix(PLAN_PREFIX)
             stored = store.replay_plan(identity)

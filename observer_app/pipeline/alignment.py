@@ -469,13 +469,15 @@ NO_LOGS_FOR_ALIGN = ("no logs declared; add a [[logs]] entry, "
 
 def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
                     only_log_ids: Iterable[str] | None = None,
-                    digests: Mapping[str, str] | None = None) -> tuple[pd.DataFrame, ReadReport]:
+                    digests: Mapping[str, str] | None = None,
+                    whole_when_missing: bool = True) -> tuple[pd.DataFrame, ReadReport]:
     """The study's [[logs]] as one EVENTS table (sync/tables.py), learners checked against the roster.
 
     ``if_missing`` is what to tell the user when study.toml declares no logs;
     ``only_log_ids`` keeps just those learners' (whole) logs, filtered while reading.  When
-    one of them has no events the logs are read whole after all: the coverage check can
-    then show the ids the logs do use, and every row is checked as without the filter.
+    one of them has no events the logs are read whole after all (unless
+    ``whole_when_missing`` is False): the coverage check can then show the ids the logs do
+    use, and every row is checked as without the filter.
     ``digests``: the log files' SHA-256 when this run already hashed them.
     """
     if not study.logs:
@@ -492,9 +494,16 @@ def read_study_logs(study: Study, if_missing: str = NO_LOGS_FOR_ALIGN,
         return _forgetting_removed_logs(study, *read(None))
     wanted = set(map(str, only_log_ids))
     events, report = read(wanted)
-    if not wanted <= set(events["learner"].astype(str).unique()):
+    if whole_when_missing and not wanted <= set(events["learner"].astype(str).unique()):
         events, report = read(None)
     return _forgetting_removed_logs(study, events, report)
+
+
+def roster_logs(study: Study) -> pd.DataFrame:
+    """The events of the roster's learners only (their whole logs): what replay can cut clips
+    from, without a platform's other learners (a dataset of millions of events)."""
+    return read_study_logs(study, only_log_ids=observed_log_ids(study, study.roster["learner"]),
+                           whole_when_missing=False)[0]
 
 
 def _forgetting_removed_logs(study: Study, events, report: ReadReport):

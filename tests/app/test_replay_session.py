@@ -151,3 +151,33 @@ def test_undo_into_an_earlier_clip_goes_back_to_it_then_on_to_the_furthest_clip(
         assert session.state().position == 2 and session.state().missing == ("activity", "affect")
         current = store.observations(demo.scheme.dimension_names).set_index("clip")
     assert current.loc[session.clips["clip"][1], ["activity", "affect"]].tolist() == ["task_discussion", "frustrated"]
+
+
+def test_replay_reads_only_the_roster_learners_and_cuts_the_same_clips(demo, monkeypatch):
+    """A platform's log holds many learners the study never enrolled: replay reads only the
+    roster's (whole) logs, so opening a session does not load the platform, and the clips and
+    their events are those cut from the whole read."""
+    import observer_app.pipeline.alignment as alignment
+    from observer_app.coding.replay import cut_clips
+
+    log = demo.dir / "logs" / "centre_north.csv"
+    lines = log.read_text().splitlines()
+    strangers = [line.replace("n-", "x-", 1) for line in lines[1:2000]]  # other learners on the platform
+    log.write_text("\n".join(lines + strangers) + "\n")
+    whole, _ = read_study_logs(demo)
+    assert whole["learner"].astype(str).str.startswith("x-").sum() == len(strangers)
+    wanted = []
+    real = alignment.read_study_logs
+
+    def spying(study, *arguments, **options):
+        wanted.append(options.get("only_log_ids"))
+        return real(study, *arguments, **options)
+
+    monkeypatch.setattr(alignment, "read_study_logs", spying)
+    learners = ["L01", "L08", "L12"]
+    with Store(demo.store_path) as store:
+        session = ReplaySession.start(demo, store, FakeClock(), coder="ann", device="laptop-r", learners=learners)
+    assert wanted and set(wanted[0]) == set(demo.roster["log_id"].dropna().astype(str))
+    assert not session.events["learner"].astype(str).str.startswith("x-").any()
+    reference = cut_clips(whole, demo.roster, learners, demo.window_seconds)
+    pd.testing.assert_frame_equal(session.clips.reset_index(drop=True), reference)
