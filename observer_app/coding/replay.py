@@ -196,13 +196,16 @@ class ReplaySession(CodingSession):
     @classmethod
     def start(cls, study: Study, store: Store, clock: Clock, *, coder: str, device: str,
               learners: Iterable[str] | None = None, sample: int | None = None,
-              seed: int | None = None, rule: ReplayRule | None = None) -> ReplaySession:
-        """Read the logs, cut (or plan) the clips and write the session row (see the module docstring)."""
+              seed: int | None = None, rule: ReplayRule | None = None,
+              events: pd.DataFrame | None = None) -> ReplaySession:
+        """Read the logs (unless ``events``, the roster's logs as ``roster_logs`` reads them, came
+        from a background read), cut (or plan) the clips and write the session row (see the
+        module docstring)."""
         roster_ids = list(study.roster["learner"].astype(str))
         chosen = set(roster_ids if learners is None else learners)
         learners = [learner for learner in roster_ids if learner in chosen]
         seed = study.seed if seed is None else seed
-        events = roster_logs(study)
+        events = roster_logs(study) if events is None else events
         if rule is not None:
             identity, clips = planned_clips(study, store, events, rule, coder)
             order, seed, learners = f"{PLAN_PREFIX}{identity}", rule.seed, list(rule.learners)
@@ -219,14 +222,15 @@ class ReplaySession(CodingSession):
         return session
 
     @classmethod
-    def reopen(cls, study: Study, store: Store, clock: Clock, session_id: str) -> ReplaySession:
-        """Continue a replay session after its last coded clip."""
+    def reopen(cls, study: Study, store: Store, clock: Clock, session_id: str,
+               events: pd.DataFrame | None = None) -> ReplaySession:
+        """Continue a replay session after its last coded clip (``events`` as for ``start``)."""
         sessions = store.sessions()
         row = sessions[sessions["session_id"] == session_id].iloc[0]
         order = str(row["order"])
         sample = int(order.removeprefix(SAMPLE_PREFIX)) if order.startswith(SAMPLE_PREFIX) else None
         learners = [learner for learner in str(row["present"]).split("\n") if learner]
-        events = roster_logs(study)
+        events = roster_logs(study) if events is None else events
         if order.startswith(PLAN_PREFIX):
             identity = order.removeprefix(PLAN_PREFIX)
             stored = store.replay_plan(identity)

@@ -20,13 +20,14 @@ from PySide6.QtWidgets import QFileDialog, QLabel, QMainWindow, QStackedWidget, 
 
 from observer_app.coding.live import LiveSession, SessionSummary, summarise_session
 from observer_app.coding.replay import ReplaySession, find_open_replay
+from observer_app.pipeline.alignment import roster_logs
 from observer_app.coding.end_agreement import partner_agreement
 from observer_app.coding.clock import Clock, SystemClock
 from observer_app.study.store import Store
 from observer_app.study.folder import Study, load_study
 from observer_app.study.creation import create_study
 from observer_app.ui import theme as looks
-from observer_app.ui.background import wait_for_background_work
+from observer_app.ui.background import BackgroundJob, wait_for_background_work
 from observer_app.ui.cautions import cautions_html
 from observer_app.ui.clock_check import ClockCheck
 from observer_app.ui.end_screen import EndScreen
@@ -219,13 +220,43 @@ class MainWindow(QMainWindow):
         self.show_observing()
 
     def start_replay(self, choice: StartChoice) -> None:
+        """Read the roster's logs off the UI thread (a platform's log can take seconds), the start
+        form showing it is busy; then open the replay screen, unless the coder went back meanwhile."""
+        form = self.page
+        if isinstance(form, StartForm):
+            form.set_busy("Reading the learners' logs ...")
+        job = BackgroundJob(partial(roster_logs, self.study))
+        job.finished.connect(partial(self._open_replay, form, choice))
+        job.failed.connect(partial(self._replay_logs_failed, form))
+        job.start()
+
+    def _replay_logs_failed(self, form: QWidget, error: BaseException) -> None:
+        if self.page is not form:
+            return
+        if isinstance(form, StartForm):
+            form.set_busy("")
+        self._refused_replay(form, error)
+
+    def _refused_replay(self, form: QWidget, error: BaseException) -> None:
+        """The user's mistake as one line on the start form; anything else in the error bar."""
+        if isinstance(error, InputError) and isinstance(form, StartForm):
+            form.error.setText(error.line())
+        else:
+            self.show_error(error, error.__traceback__)
+
+    def _open_replay(self, form: QWidget, choice: StartChoice, events) -> None:
+        if self.page is not form:  # the coder went back while the logs were read
+            return
+        if isinstance(form, StartForm):
+            form.set_busy("")
         open_session = find_open_replay(self.study, self.store, choice.coder, choice.device)
         try:
-            replay = (ReplaySession.reopen(self.study, self.store, self.clock, open_session) if open_session else
-                      ReplaySession.start(self.study, self.store, self.clock, coder=choice.coder,
-                                          device=choice.device, learners=choice.present, rule=choice.rule))
+            replay = (ReplaySession.reopen(self.study, self.store, self.clock, open_session, events=events)
+                      if open_session else
+                      ReplaySession.start(self.study, self.store, self.clock, coder=choice.coder, device=choice.device,
+                                          learners=choice.present, rule=choice.rule, events=events))
         except InputError as error:
-            self.page.error.setText(error.line())
+            self._refused_replay(form, error)
             return
         screen = ReplayScreen(replay, self.theme)
         screen.ended.connect(self.show_replay_end)

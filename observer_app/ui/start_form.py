@@ -17,7 +17,7 @@ from datetime import datetime
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import (QComboBox, QFormLayout, QGridLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
-                               QSpinBox, QWidget)
+                               QProgressBar, QSpinBox, QWidget)
 
 from observer_app.coding.clock import Clock
 from observer_app.coding.replay_plan import ReplayRule, parse_sample
@@ -88,6 +88,13 @@ class StartForm(QWidget):
         self.error = QLabel("")
         self.error.setProperty("role", "warning")
         layout.addWidget(self.error)
+        self.busy_label = QLabel("")
+        self.busy = QProgressBar()
+        self.busy.setRange(0, 0)  # no known end: Qt shows it as moving
+        self.busy.setTextVisible(False)
+        for widget in (self.busy_label, self.busy):
+            widget.hide()
+            layout.addWidget(widget)
         hint = QLabel("Tab next field  ·  Enter start  ·  Esc back")
         hint.setProperty("role", "caption")
         layout.addWidget(hint)
@@ -151,7 +158,18 @@ class StartForm(QWidget):
         else:
             super().keyPressEvent(event)
 
+    def set_busy(self, text: str) -> None:
+        """Show that the start is under way (``text``), or, with "", that it is not; Enter is
+        ignored meanwhile (a second start), Esc still goes back."""
+        self.busy_label.setText(text)
+        for widget in (self.busy_label, self.busy):
+            widget.setVisible(bool(text))
+        if text:
+            self.error.setText("")
+
     def submit(self) -> None:
+        if self.busy.isVisible():
+            return
         coder = self.coder.text().strip()
         if not coder:
             self.error.setText("Type the coder's name or initials.")

@@ -30,6 +30,7 @@ from PySide6.QtWidgets import QAbstractScrollArea, QApplication, QLabel, QWidget
 from demo_sessions import committed_copy  # noqa: E402
 from observer_app.coding.clock import FakeClock  # noqa: E402
 from observer_app.ui.main_window import MainWindow  # noqa: E402
+from observer_app.ui.replay import ReplayScreen  # noqa: E402
 from observer_app.ui.start_form import REPLAY, StartChoice  # noqa: E402
 
 # 40 characters each with the learner's number, Latin with diacritics, Cyrillic and Greek
@@ -176,6 +177,11 @@ def walk(study: Path, sizes: list[tuple[int, int]], scale: float) -> dict[str, d
         key(Qt.Key.Key_Return)
         window.start_replay(StartChoice(coder="rhea", device="walk-laptop", paired_start=None,
                                         present=("L01", "L02", "L03"), replay=True))
+        for _ in range(2000):  # the logs are read off the UI thread
+            if isinstance(window.page, ReplayScreen):
+                break
+            app.processEvents()
+            time.sleep(0.01)
         settle(app)
         look("replay")
         window.show_overview()

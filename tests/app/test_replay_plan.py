@@ -146,6 +146,7 @@ def test_f10_shows_a_replay_end_summary_and_the_overview_says_replay(qtbot, demo
     form.mode.setCurrentText(REPLAY)
     form.sample.setText("2")
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
+    qtbot.waitUntil(lambda: isinstance(window.page, ReplayScreen), timeout=20_000)  # logs read off the UI thread
     screen = window.page
     assert isinstance(screen, ReplayScreen) and len(screen.session.clips) == 24
     for key in "1q":

@@ -2,11 +2,12 @@
 from __future__ import annotations
 
 import shutil
+import threading
 import zoneinfo
 from pathlib import Path
 
 import pytest
-from PySide6.QtCore import Qt
+from PySide6.QtCore import QThreadPool, Qt
 from PySide6.QtWidgets import QApplication
 
 from demo_sessions import committed_copy
@@ -15,6 +16,7 @@ from observer_app.coding.clock import FakeClock
 from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from observer_app.ui.main_window import MainWindow
+from observer_app.ui.overview import StudyOverview
 from observer_app.ui.start_form import REPLAY
 from observer_app.ui.replay import ReplayScreen
 
@@ -126,7 +128,7 @@ def test_the_start_form_replay_choice_opens_the_replay_screen_and_resumes(qtbot,
         for _ in range(3):  # solo -> paired (countdown) -> paired (typed time) -> replay
             qtbot.keyClick(form.mode, Qt.Key.Key_Down)
         qtbot.keyClick(QApplication.focusWidget() or form, Qt.Key.Key_Return)
-        assert isinstance(window.page, ReplayScreen)
+        qtbot.waitUntil(lambda: isinstance(window.page, ReplayScreen), timeout=20_000)  # logs read off the UI thread
         return window.page
 
     replay = start_replay()
@@ -161,6 +163,62 @@ def test_a_log_that_cannot_be_read_is_one_line_on_the_start_form(qtbot, tmp_path
     qtbot.keyClicks(form.coder, "rhea")
     form.mode.setCurrentText(REPLAY)
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
-    assert window.page is form and "centre_north.csv" in form.error.text() and "\n" not in form.error.text()
+    qtbot.waitUntil(lambda: "centre_north.csv" in form.error.text(), timeout=20_000)
+    assert window.page is form and "\n" not in form.error.text() and not form.busy.isVisible()
     with Store(load_study(folder).store_path) as store:
         assert store.sessions().empty  # nothing half-written
+
+
+class GatedRead:
+    """The real roster read, held until ``gate`` opens; notes the threads it ran on."""
+
+    def __init__(self, real) -> None:
+        self.real, self.gate, self.threads = real, threading.Event(), []
+
+    def __call__(self, study):
+        self.threads.append(threading.get_ident())
+        assert self.gate.wait(20)
+        return self.real(study)
+
+
+def _replay_form_submitted(qtbot, tmp_path, monkeypatch):
+    from observer_app.ui import main_window as main_window_module
+
+    read = GatedRead(main_window_module.roster_logs)
+    monkeypatch.setattr(main_window_module, "roster_logs", read)
+    folder = shutil.copytree(committed_copy(), tmp_path / "study")
+    window = MainWindow(folder, clock=FakeClock(), device="laptop-r")
+    qtbot.addWidget(window)
+    window.show()
+    qtbot.waitExposed(window)
+    qtbot.keyClick(window.page, Qt.Key.Key_S)
+    form = window.page
+    qtbot.keyClicks(form.coder, "rhea")
+    form.mode.setCurrentText(REPLAY)
+    qtbot.keyClick(form.coder, Qt.Key.Key_Return)
+    return window, form, read
+
+
+def test_the_start_form_shows_it_is_busy_while_replay_reads_the_logs(qtbot, tmp_path, monkeypatch):
+    window, form, read = _replay_form_submitted(qtbot, tmp_path, monkeypatch)
+    qtbot.waitUntil(lambda: len(read.threads) == 1)
+    assert window.page is form and form.busy.isVisible() and "Reading" in form.busy_label.text()
+    assert read.threads[0] != threading.get_ident()  # not on the UI thread
+    qtbot.keyClick(form.coder, Qt.Key.Key_Return)  # a second Enter starts nothing more
+    read.gate.set()
+    qtbot.waitUntil(lambda: isinstance(window.page, ReplayScreen), timeout=20_000)
+    assert len(read.threads) == 1
+    sessions = window.page.session.store.sessions()
+    assert (sessions["mode"] == "replay").sum() == 1
+
+
+def test_going_back_while_the_logs_are_read_starts_no_replay(qtbot, tmp_path, monkeypatch):
+    window, form, read = _replay_form_submitted(qtbot, tmp_path, monkeypatch)
+    qtbot.waitUntil(lambda: len(read.threads) == 1)
+    qtbot.keyClick(form.coder, Qt.Key.Key_Escape)
+    assert isinstance(window.page, StudyOverview)
+    read.gate.set()
+    QThreadPool.globalInstance().waitForDone()
+    qtbot.wait(50)  # the late answer's delivery
+    assert isinstance(window.page, StudyOverview)
+    assert (window.store.sessions()["mode"] == "replay").sum() == 0  # nothing written for the abandoned start
