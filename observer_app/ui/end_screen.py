@@ -20,16 +20,12 @@ from observer_app.study.folder import Study
 from observer_app.ui.background import BackgroundJob
 from observer_app.ui.overview import TABLE_KEYS_HINT, count_table, scroll_table
 from observer_app.ui.theme import titled_column
+from observer_app.ui.wording import counted
 
 COMPUTING = "Computing agreement with your partner…"
 NOT_IMPORTED = ("Paired run: once your partner's observations are imported (fieldmark import), "
                 "your agreement shows here and in fieldmark agree.")
 FAILED = "The agreement could not be computed here; fieldmark agree gives the full report."
-
-
-def counted(number: int, plural: str) -> str:
-    """"1 window", "2 windows", "0 sync marks": a count with its noun (an English plural in -s)."""
-    return f"{number} {plural[:-1] if number == 1 else plural}"
 
 
 class EndScreen(QWidget):

@@ -19,6 +19,7 @@ from observer_app.ui.code_pads import dimension_title
 from observer_app.ui.coding_screen import CodingScreen, command_keys
 from observer_app.ui.overview import scroll_table
 from observer_app.ui.theme import Theme
+from observer_app.ui.wording import counted
 
 REPLAY_KEYS = command_keys("clip", "undo the last code or skip (goes back to its clip)", (
     (Qt.Key.Key_PageDown, "PgDn", "skip this clip (stored as a clip with no code)", "skip clip"),
@@ -93,7 +94,7 @@ class ReplayScreen(CodingScreen):
         self._render_coding(state.coded, state.message, state.error)
         missing = ", ".join(dimension_title(d) for d in state.missing) or "nothing"
         self.status_label.setText(f"Clips coded: <b>{state.coded_clips}</b> · skipped {state.skipped_clips} · "
-                                  f"clip {min(state.position + 1, state.clips)} of {state.clips} · {len(events)} events"
+                                  f"clip {min(state.position + 1, state.clips)} of {state.clips} · {counted(len(events), 'events')}"
                                   f" · still to code: {missing}")
 
     def _fill_events(self, events) -> None:

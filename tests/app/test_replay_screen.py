@@ -6,6 +6,7 @@ import threading
 import zoneinfo
 from pathlib import Path
 
+import numpy as np
 import pytest
 from PySide6.QtCore import QThreadPool, Qt
 from PySide6.QtWidgets import QApplication
@@ -222,3 +223,22 @@ def test_going_back_while_the_logs_are_read_starts_no_replay(qtbot, tmp_path, mo
     qtbot.wait(50)  # the late answer's delivery
     assert isinstance(window.page, StudyOverview)
     assert (window.store.sessions()["mode"] == "replay").sum() == 0  # nothing written for the abandoned start
+
+
+def test_the_status_line_counts_a_clip_of_one_event_in_the_singular(qtbot, demo):
+    with Store(demo.store_path) as store:
+        session = ReplaySession.start(demo, store, FakeClock(), coder="rhea", device="laptop-r", learners=["L07"])
+        clips = session.clips
+        single = int(np.flatnonzero(clips["events"].to_numpy() == 1)[0])  # the first clip of one event
+        widget = ReplayScreen(session)
+        qtbot.addWidget(widget)
+        widget.show()
+        widget.setFocus()
+        for _ in range(single):
+            qtbot.keyClick(widget, Qt.Key.Key_PageDown)  # skip to it
+        assert session.state().position == single
+        assert "· 1 event ·" in widget.status_label.text()
+        qtbot.keyClick(widget, Qt.Key.Key_PageDown)
+        many = int(clips["events"].iloc[single + 1])
+        assert f"· {many} event{'' if many == 1 else 's'} ·" in widget.status_label.text()
+        widget.close()
