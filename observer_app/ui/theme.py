@@ -77,6 +77,9 @@ def stylesheet(theme: Theme) -> str:
         background: {theme.surface}; color: {theme.text}; border: 1px solid {theme.quiet_text};
         border-radius: 4px; padding: 4px; }}
     QLineEdit:focus, QComboBox:focus, QListWidget:focus, QTableWidget:focus {{ border: 2px solid {theme.accent}; }}
+    QLineEdit:disabled, QComboBox:disabled {{ background: {theme.background}; color: {theme.quiet_text};
+        border: 1px dashed {theme.quiet_text}; }}
+    QLabel:disabled {{ color: {theme.quiet_text}; }}
     QHeaderView::section {{ background: {theme.background}; color: {theme.quiet_text}; border: none;
         border-bottom: 1px solid {theme.quiet_text}; padding: 4px; font-weight: bold; }}
     QPushButton {{ background: {theme.surface}; color: {theme.text}; border: 1px solid {theme.quiet_text};

@@ -130,3 +130,30 @@ def test_f6_reaches_the_window_even_without_an_active_window_and_is_no_unknown_k
         qtbot.keyClick(screen, Qt.Key.Key_F6)  # straight to the widget, as when no shortcut fires
         assert window.theme is not before and "not a key" not in screen.message_label.text()
         screen.timer.stop()
+
+
+def test_fields_the_chosen_mode_does_not_use_look_unavailable(qtbot, tmp_path):
+    """Solo mode needs no pairing code and no shared start: those fields are disabled and must
+    look it (the app's style sheet painted disabled fields like live ones), and look live again
+    in the mode that uses them."""
+    from PySide6.QtGui import QColor
+
+    from observer_app.ui.start_form import PAIRED_TYPED
+    from observer_app.ui.theme import LIGHT
+
+    window = MainWindow(make_study(tmp_path / "study"), clock=FakeClock(), device="laptop-1")
+    qtbot.addWidget(window)
+    window.resize(1280, 800)
+    window.show()
+    qtbot.waitExposed(window)
+    qtbot.keyClick(window.page, Qt.Key.Key_S)
+    form = window.page
+
+    def field_colour(widget) -> str:
+        image = widget.grab().toImage()
+        return QColor(image.pixel(image.width() - 12, image.height() // 2)).name().upper()
+
+    assert not form.pairing.isEnabled() and not form.shared_start.isEnabled()  # solo
+    assert field_colour(form.pairing) == LIGHT.background.upper() != LIGHT.surface.upper()
+    form.mode.setCurrentText(PAIRED_TYPED)
+    assert form.pairing.isEnabled() and field_colour(form.pairing) == LIGHT.surface.upper()
