@@ -39,3 +39,20 @@ def store(study):
 @pytest.fixture
 def clock():
     return FakeClock()
+
+
+def replay_start_form(qtbot, folder: Path, coder: str = "rhea"):
+    """A MainWindow on ``folder`` showing the start form, the coder typed and replay chosen
+    (not yet submitted): (window, form)."""
+    from observer_app.ui.main_window import MainWindow
+    from observer_app.ui.start_form import REPLAY
+
+    window = MainWindow(folder, clock=FakeClock(), device="laptop-r")
+    qtbot.addWidget(window)
+    window.show()
+    qtbot.waitExposed(window)
+    qtbot.keyClick(window.page, "s")
+    form = window.page
+    qtbot.keyClicks(form.coder, coder)
+    form.mode.setCurrentText(REPLAY)
+    return window, form

@@ -15,10 +15,9 @@ from observer_app.pipeline.alignment import read_study_logs
 from observer_app.study.folder import load_study
 from observer_app.study.store import Store
 from observer_app.ui.end_screen import EndScreen
-from observer_app.ui.main_window import MainWindow
 from observer_app.ui.overview import StudyOverview
 from observer_app.ui.replay import ReplayScreen
-from observer_app.ui.start_form import REPLAY
+from tests.app.conftest import replay_start_form
 from sync.errors import InputError
 from tests.conftest import call_cli
 
@@ -136,14 +135,7 @@ def test_backspace_after_a_skip_undoes_the_skip(demo):
 
 
 def test_f10_shows_a_replay_end_summary_and_the_overview_says_replay(qtbot, demo):
-    window = MainWindow(demo.dir, clock=FakeClock(), device="laptop-r")
-    qtbot.addWidget(window)
-    window.show()
-    qtbot.waitExposed(window)
-    qtbot.keyClick(window.page, Qt.Key.Key_S)
-    form = window.page
-    qtbot.keyClicks(form.coder, "rhea")
-    form.mode.setCurrentText(REPLAY)
+    window, form = replay_start_form(qtbot, demo.dir)
     form.sample.setText("2")
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
     qtbot.waitUntil(lambda: isinstance(window.page, ReplayScreen), timeout=20_000)  # logs read off the UI thread
@@ -165,13 +157,7 @@ def test_f10_shows_a_replay_end_summary_and_the_overview_says_replay(qtbot, demo
 
 
 def test_a_bad_sample_is_one_line_on_the_start_form(qtbot, demo):
-    window = MainWindow(demo.dir, clock=FakeClock(), device="laptop-r")
-    qtbot.addWidget(window)
-    window.show()
-    qtbot.keyClick(window.page, Qt.Key.Key_S)
-    form = window.page
-    qtbot.keyClicks(form.coder, "rhea")
-    form.mode.setCurrentText(REPLAY)
+    window, form = replay_start_form(qtbot, demo.dir)
     form.sample.setText("lots")
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
     assert window.page is form and "'lots' is not a sample" in form.error.text()

@@ -18,8 +18,8 @@ from observer_app.study.store import Store
 from observer_app.study.folder import load_study
 from observer_app.ui.main_window import MainWindow
 from observer_app.ui.overview import StudyOverview
-from observer_app.ui.start_form import REPLAY
 from observer_app.ui.replay import ReplayScreen
+from tests.app.conftest import replay_start_form
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
 
@@ -155,14 +155,7 @@ def test_a_log_that_cannot_be_read_is_one_line_on_the_start_form(qtbot, tmp_path
     from tests.app.conftest import make_study
 
     folder = make_study(tmp_path / "study")  # declares logs/centre_north.csv, which is not there
-    window = MainWindow(folder, clock=FakeClock(), device="laptop-r")
-    qtbot.addWidget(window)
-    window.show()
-    qtbot.waitExposed(window)
-    qtbot.keyClick(window.page, Qt.Key.Key_S)
-    form = window.page
-    qtbot.keyClicks(form.coder, "rhea")
-    form.mode.setCurrentText(REPLAY)
+    window, form = replay_start_form(qtbot, folder)
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
     qtbot.waitUntil(lambda: "centre_north.csv" in form.error.text(), timeout=20_000)
     assert window.page is form and "\n" not in form.error.text() and not form.busy.isVisible()
@@ -187,15 +180,7 @@ def _replay_form_submitted(qtbot, tmp_path, monkeypatch):
 
     read = GatedRead(main_window_module.roster_logs)
     monkeypatch.setattr(main_window_module, "roster_logs", read)
-    folder = shutil.copytree(committed_copy(), tmp_path / "study")
-    window = MainWindow(folder, clock=FakeClock(), device="laptop-r")
-    qtbot.addWidget(window)
-    window.show()
-    qtbot.waitExposed(window)
-    qtbot.keyClick(window.page, Qt.Key.Key_S)
-    form = window.page
-    qtbot.keyClicks(form.coder, "rhea")
-    form.mode.setCurrentText(REPLAY)
+    window, form = replay_start_form(qtbot, shutil.copytree(committed_copy(), tmp_path / "study"))
     qtbot.keyClick(form.coder, Qt.Key.Key_Return)
     return window, form, read
 
