@@ -14,7 +14,7 @@ from sync.event_table import combine_events
 from sync.local_time import LocalTimeCounts
 from sync.log_cache import LogCache, events_from_entry, events_to_entry, part_from_entry, part_to_entry
 from sync.log_spec import LogSpec
-from sync.parquet_reader import read_parquet_log
+from sync.parquet_reader import hive_partition_values, read_parquet_log
 from sync.sorted_parquet import LearnerBlocks
 from sync.xapi_reader import read_xapi_log, resolve_statements
 
@@ -59,6 +59,8 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
     run already hashed, path -> SHA-256 hex).  Raises ``InputError`` for a missing file or
     any malformed input.
     """
+    specs = list(specs)
+    _no_file_twice(specs)
     report = ReadReport(digests=dict(digests or {}))
     counts = LocalTimeCounts()
     only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
@@ -99,6 +101,7 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
             report.rows_per_file[part.source] = int(kept.get(part.source, 0))
         if statements is not None:
             parts.append(statements)
+    _no_copies(report, specs)
     events = combine_events(parts)
     _finish_report(report, counts, known_log_ids, lambda: events["learner"].value_counts(sort=False).items())
     return events, report
@@ -115,6 +118,7 @@ def cached_learner_blocks(specs: Iterable[LogSpec], known_log_ids: Iterable[str]
     a missing file.
     """
     specs = list(specs)
+    _no_file_twice(specs)
     report, found = ReadReport(digests=dict(digests or {})), []
     only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
     cache = LogCache(cache_dir)
@@ -139,6 +143,7 @@ def cached_learner_blocks(specs: Iterable[LogSpec], known_log_ids: Iterable[str]
         report.rows_per_file[str(path)] = rows
         report.rows_read_per_file[str(path)] = int(meta["rows_read"])
         report.warnings.extend(meta["warnings"])
+    _no_copies(report, specs)
     _finish_report(report, counts, known_log_ids, lambda: learners.items())
     return LearnerBlocks(paths=tuple(tables), rows=report.rows, learners=frozenset(learners), shared=shared), report
 
@@ -155,6 +160,7 @@ def fill_log_cache(specs: Iterable[LogSpec], only_log_ids: Iterable[str] | None,
     specs = list(specs)
     if any(spec.format == "xapi" for spec in specs):
         return False
+    _no_file_twice(specs)
     only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
     cache = LogCache(cache_dir)
     missing = []
@@ -171,6 +177,42 @@ def fill_log_cache(specs: Iterable[LogSpec], only_log_ids: Iterable[str] | None,
     with ThreadPoolExecutor(max_workers=FILE_THREADS) as pool:
         list(pool.map(store, missing))
     return True
+
+
+def _no_file_twice(specs: list[LogSpec]) -> None:
+    """InputError when one file is read by two [[logs]] entries (a folder and a file in it, an
+    entry pasted twice): every event of it would count twice."""
+    seen: dict[Path, int] = {}
+    for number, spec in enumerate(specs, 1):
+        for path in _files(spec):
+            where = path.resolve()
+            if where in seen:
+                raise InputError(path, None, f"is read by [[logs]] entries #{seen[where]} and #{number} of study.toml; "
+                                 "every event in it would count twice -- remove it from one of them")
+            seen[where] = number
+
+
+def _no_copies(report: ReadReport, specs: list[LogSpec]) -> None:
+    """InputError when two CSV or Parquet files with rows hold the same bytes (a download saved
+    twice, a day exported twice): every event would count twice.  The same bytes under other
+    mapped partition folders (``learner=n-1/`` and ``learner=n-2/``) are other events; xAPI
+    copies are not refused either: a statement id seen twice already counts once.  Needs the
+    digests, so only reads through the cache (every command's) are checked."""
+    first: dict[tuple, Path] = {}
+    for spec in specs:
+        if spec.format == "xapi":
+            continue
+        for path in _files(spec):
+            digest = report.digests.get(str(path))
+            if digest is None or not report.rows_per_file.get(str(path)):
+                continue
+            mapped = {key: value for key, value in hive_partition_values(spec, path).items()
+                      if key in spec.columns.values()}
+            key = (digest, tuple(sorted(mapped.items())))
+            if key in first:
+                raise InputError(path, None, f"holds exactly the same bytes as {first[key]} (SHA-256 "
+                                 f"{digest[:12]}...); every event would count twice -- remove the copy from the logs")
+            first[key] = path
 
 
 def _files(spec: LogSpec) -> list[Path]:
