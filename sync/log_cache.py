@@ -2,8 +2,9 @@
 
 An entry is keyed by the file's content digest (SHA-256) together with everything that
 shapes the result (format, time zone, encoding, delimiter, time format, column mapping,
-the learner filter): a changed file or setting misses and is parsed afresh, and the
-stale entry of that file is removed; entries of files no longer among a study's logs
+the learner filter): a changed file or setting misses and is parsed afresh; entries of
+a file's older bytes are removed, and of its current bytes the newest ``SETTINGS_KEPT``
+settings are kept; entries of files no longer among a study's logs
 are removed too (``forget_all_but``, after the study's logs were read).  Entries hold
 learners' log events, like logs/ itself: the folder and files are owner-only (0o700 /
 0o600) and export never lists them.  Each entry is a Parquet table plus a JSON sidecar
@@ -33,6 +34,7 @@ from sync.xapi_reader import StatementPart
 
 CACHE_VERSION = 3  # bump when what a reader produces changes (2: events sorted, learners listed;
                    # 3: an empty filter no longer shares the unfiltered key, so older entries may be wrong)
+SETTINGS_KEPT = 4  # entries of one file's current bytes under different settings (learner filters) kept at once
 ROW_GROUP_ROWS = 1_000_000  # what one block read from an entry holds, at most (and one learner carried)
 
 
@@ -94,9 +96,19 @@ class LogCache:
     def store(self, prefix: str, entry: str, table: pa.Table, meta: dict) -> None:
         self.folder.mkdir(mode=0o700, parents=True, exist_ok=True)
         os.chmod(self.folder, 0o700)
+        # Entries of this file's older bytes go; entries of its current bytes under other settings
+        # stay (align, export and replay read different learners of the same file), the newest
+        # SETTINGS_KEPT of them, so the verbs do not evict each other's entries on every run.
+        current = entry.rsplit("-", 1)[0]
+        others = []
         for stale in self.folder.glob(f"{prefix}-*"):
-            if not stale.name.startswith(entry):
+            if not stale.name.startswith(current):
                 stale.unlink(missing_ok=True)
+            elif stale.suffix == ".json" and not stale.name.startswith(entry):
+                others.append(stale)
+        for sidecar in sorted(others, key=lambda path: path.stat().st_mtime, reverse=True)[SETTINGS_KEPT - 1:]:
+            sidecar.with_suffix(".parquet").unlink(missing_ok=True)
+            sidecar.unlink(missing_ok=True)
         table_file = self._owner_only_temporary(entry, ".parquet")
         pq.write_table(table, table_file, row_group_size=ROW_GROUP_ROWS)
         meta_file = self._owner_only_temporary(entry, ".json")

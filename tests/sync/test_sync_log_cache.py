@@ -150,3 +150,23 @@ def test_align_before_any_coding_parses_no_log(tmp_path):
     events, report = read_study_logs(load_study(study))
     written = sum(1 for _ in open(study / "logs" / "centre_north.csv")) - 1  # the file's own rows, header aside
     assert len(events) == report.rows == written > 0
+
+
+def test_reads_for_different_learners_do_not_evict_each_other(tmp_path, monkeypatch):
+    """align, export and replay read different learners of one file: each keeps its entry (the
+    newest few settings of the file's current bytes), so none parses the file again."""
+    write_csv(tmp_path, 12)
+    spec, cache = log_spec_from_toml(CSV_ENTRY, tmp_path, 1), tmp_path / "parsed_logs"
+    filters = [None, ["n-1"], ["n-0", "n-2"]]
+    first = [read_logs([spec], only_log_ids=only, cache_dir=cache)[0] for only in filters]
+
+    def refuse(*arguments):
+        raise AssertionError("parsed again")
+
+    with monkeypatch.context() as patch:
+        patch.setitem(logs.READERS, "csv", refuse)
+        again = [read_logs([spec], only_log_ids=only, cache_dir=cache)[0] for only in filters]
+    assert all(left.equals(right) for left, right in zip(first, again))
+    for only in (["n-1", "n-2"], ["n-0"]):  # more settings than are kept: the oldest go
+        read_logs([spec], only_log_ids=only, cache_dir=cache)
+    assert len(modes(cache)) == 2 * 4
