@@ -528,7 +528,8 @@ def stream_study_logs(study: Study, if_missing: str,
         blocks, report = cached_learner_blocks(study.logs, known, wanted, cache, report.digests)
     if blocks is not None and wanted <= blocks.learners:
         return _forgetting_removed_logs(study, blocks, report)
-    return read_study_logs(study, if_missing, wanted, digests=report.digests)
+    # blocks that lack a wanted id: the filtered read would lack it too and read everything after
+    return read_study_logs(study, if_missing, None if blocks is not None else wanted, digests=report.digests)
 
 
 def observed_log_ids(study: Study, learners: Iterable[str]) -> list[str]:
