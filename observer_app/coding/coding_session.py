@@ -182,7 +182,9 @@ class CodingSession:
         return True
 
     def code_remaining_not_observed(self) -> bool:
-        """Every dimension still missing in the current unit gets its could-not-observe code."""
+        """Every dimension still missing in the current unit gets its could-not-observe code
+        (the unit as it stands now: a window that ran out since the last tick is closed first)."""
+        self._catch_up()
         unit = self._current()
         done = True
         for dimension in self.missing:

@@ -141,6 +141,18 @@ def test_could_not_observe_key_codes_every_remaining_dimension(study, store, clo
         ("activity", "rapid_guessing"), ("affect", "unclear")]  # "unclear": scheme.toml's could_not_observe for affect
 
 
+def test_could_not_observe_after_a_window_ran_out_codes_one_window_whole(study, store, clock):
+    """F8 pressed after L01's window ran out but before the screen's next tick: L01's window is
+    closed as missed and F8 codes every dimension of L02's (it coded L02's first dimension only)."""
+    session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1")
+    clock.advance(20.5)  # no tick
+    assert session.code_remaining_not_observed()
+    assert raw(study, "SELECT learner, no_code FROM observations ORDER BY rowid") == [("L01", 1), ("L02", 0)]
+    assert raw(study, "SELECT o.learner, c.dimension, c.code FROM codes c JOIN observations o USING (observation_id) "
+                      "ORDER BY c.rowid") == [("L02", "activity", "not_visible"), ("L02", "affect", "unclear")]  # scheme.toml's could_not_observe codes
+    assert session.state().learner == "L03"
+
+
 def test_absent_learner_is_skipped_and_returned_learner_is_picked_up(study, store, clock):
     session = LiveSession.start(study, store, clock, coder="ana", device="laptop-1")
     session.mark_absent("L03")
