@@ -86,17 +86,18 @@ def combine_events(parts: list[pd.DataFrame]) -> pd.DataFrame:
             else:
                 columns[name] = np.concatenate([part[name].to_numpy() for part in parts])
         combined = pd.DataFrame(columns)
-    time_ns = combined["time_ns"].to_numpy()
-    key = learner_sort_key(combined["learner"])
-    if _in_order(key, time_ns):  # a cached log comes sorted: no sort at all
-        return combined.reset_index(drop=True)
-    order = learner_time_order(key, time_ns)
-    if np.all(order[1:] > order[:-1]):
-        return combined.reset_index(drop=True)
-    return combined.take(order).reset_index(drop=True)
+    order = order_by_learner_and_time(combined["learner"], combined["time_ns"].to_numpy())
+    return (combined if order is None else combined.take(order)).reset_index(drop=True)
 
 
-def learner_time_order(key: np.ndarray, time_ns: np.ndarray) -> np.ndarray:
+def order_by_learner_and_time(learner: pd.Series, time_ns: np.ndarray) -> np.ndarray | None:
+    """The stable row order by learner (as text), then time; None when the rows are in it
+    already (a cached log comes sorted: no sort at all).  ``learner`` is categorical."""
+    key = _learner_sort_key(learner)
+    return None if _in_order(key, time_ns) else _learner_time_order(key, time_ns)
+
+
+def _learner_time_order(key: np.ndarray, time_ns: np.ndarray) -> np.ndarray:
     """The stable row order by (learner, time); ``key`` ranks the learners (as their text sorts).
 
     Rows in time order (a log as most systems write it) need one stable pass over the
@@ -122,7 +123,7 @@ def _in_order(key: np.ndarray, time_ns: np.ndarray) -> bool:
     return bool((step >= 0).all() and (np.diff(time_ns)[step == 0] >= 0).all())
 
 
-def learner_sort_key(learner: pd.Series) -> np.ndarray:
+def _learner_sort_key(learner: pd.Series) -> np.ndarray:
     """Sort key for learner ids by their text, computed on the categories only."""
     categories = learner.cat.categories
     rank = np.argsort(np.argsort(categories.astype(str).to_numpy())).astype(

@@ -83,11 +83,11 @@ def whole_lines(read: Callable[[], bytes], buffer: bytes = b"") -> Iterator[byte
         yield rest
 
 
-def plain_line_blocks(path: Path, block_bytes: int | None = None) -> Iterator[memoryview]:
+def plain_line_blocks(path: Path) -> Iterator[memoryview]:
     """Blocks of whole lines of a plain UTF-8 file (see ``plain_json_lines``), byte order
     mark dropped.  The file is mapped, not read: no copy is made, and a block's memory
     goes back to the system as soon as its last user lets it go."""
-    block_bytes = block_bytes or BLOCK_BYTES
+    block_bytes = BLOCK_BYTES  # read here, not bound at import: tests make blocks small
     size = path.stat().st_size
     with open(path, "rb") as handle:
         start = len(_BOM) if handle.read(len(_BOM)) == _BOM else 0

@@ -21,7 +21,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
-from sync.event_table import learner_sort_key, learner_time_order
+from sync.event_table import order_by_learner_and_time
 
 LEARNER, TIME = "learner", "time_ns"
 
@@ -97,9 +97,8 @@ def _in_learner_time_order(table: pa.Table) -> pa.Table:
     learner = table.column(LEARNER)
     if not pa.types.is_dictionary(learner.type):
         learner = pc.dictionary_encode(learner)
-    key = learner_sort_key(learner.to_pandas())
-    order = learner_time_order(key, table.column(TIME).to_numpy())
-    return table if bool((order[1:] > order[:-1]).all()) else table.take(pa.array(order))
+    order = order_by_learner_and_time(learner.to_pandas(), table.column(TIME).to_numpy())
+    return table if order is None else table.take(pa.array(order))
 
 
 def parquet_learner_blocks(path: Path, columns: Sequence[str] | None = None) -> Iterator[pa.Table]:
