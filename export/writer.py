@@ -13,7 +13,6 @@ left by a killed export are removed by the next export to the same folder.
 """
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 from collections.abc import Iterable, Mapping
@@ -26,6 +25,7 @@ from tqdm import tqdm
 
 from export.labelled_windows import LabelledWindows
 from export.tables import GROUP, METADATA_KEY
+from sync.file_digest import file_sha256  # re-exported: export.reader and imports call it from here
 
 FORMATS: tuple[str, ...] = ("parquet", "csv")
 DATA_DIGEST_KEY = "data_sha256"
@@ -36,15 +36,6 @@ ROWS_PER_BATCH = 65_536
 def manifest_path(path: Path) -> Path:
     """``windows.parquet`` -> ``windows.manifest.json`` in the same folder."""
     return Path(path).with_suffix(".manifest.json")
-
-
-def file_sha256(path: Path) -> str:
-    """Hex SHA-256 of a file's bytes, read in 1 MiB blocks (logs can be large)."""
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
 
 
 def file_digests(paths: Iterable[Path], names: Iterable[str], known: Mapping[str, str] | None = None) -> dict[str, str]:

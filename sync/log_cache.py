@@ -28,6 +28,7 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 
+from sync.file_digest import file_sha256
 from sync.local_time import LocalTimeCounts
 from sync.log_spec import LogSpec
 from sync.xapi_reader import StatementPart
@@ -50,7 +51,7 @@ class LogCache:
         time it is hashed, so an export's manifest takes it from the read report).
         ``content``: the digest when this run already hashed the file."""
         if content is None:
-            content = _sha256(path)
+            content = file_sha256(path)
         settings = json.dumps([CACHE_VERSION, spec.format, spec.timezone, spec.encoding, spec.delimiter,
                                spec.time_format, sorted(spec.columns.items()), None if only is None else sorted(only)])
         prefix = self.prefix(path)
@@ -89,7 +90,7 @@ class LogCache:
             return None
         try:
             meta = json.loads(meta_path.read_text())
-            return (table_path, meta) if meta.get("table_sha256") == _sha256(table_path) else None
+            return (table_path, meta) if meta.get("table_sha256") == file_sha256(table_path) else None
         except (OSError, ValueError, AttributeError):
             return None
 
@@ -112,7 +113,7 @@ class LogCache:
         table_file = self._owner_only_temporary(entry, ".parquet")
         pq.write_table(table, table_file, row_group_size=ROW_GROUP_ROWS)
         meta_file = self._owner_only_temporary(entry, ".json")
-        meta_file.write_text(json.dumps({**meta, "table_sha256": _sha256(table_file)}))
+        meta_file.write_text(json.dumps({**meta, "table_sha256": file_sha256(table_file)}))
         for temporary, suffix in ((table_file, ".parquet"), (meta_file, ".json")):
             os.chmod(temporary, 0o600)
             os.replace(temporary, self.folder / f"{entry}{suffix}")
@@ -124,11 +125,6 @@ class LogCache:
         temporary = self.folder / f"{entry}{suffix}.{os.getpid()}.{uuid.uuid4().hex[:8]}.partial"
         os.close(os.open(temporary, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600))
         return temporary
-
-
-def _sha256(path: Path) -> str:
-    with open(path, "rb") as handle:
-        return hashlib.file_digest(handle, "sha256").hexdigest()
 
 
 def events_to_entry(events: pd.DataFrame | None, counts: LocalTimeCounts, warnings: list[str],
