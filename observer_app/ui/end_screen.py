@@ -11,7 +11,7 @@ from collections.abc import Callable
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
-from PySide6.QtWidgets import QLabel, QProgressBar, QWidget
+from PySide6.QtWidgets import QLabel, QWidget
 
 from agreement.statistics import estimate_text
 from observer_app.coding.live import SessionSummary
@@ -19,7 +19,7 @@ from observer_app.coding.end_agreement import PartnerAgreement
 from observer_app.study.folder import Study
 from observer_app.ui.background import BackgroundJob
 from observer_app.ui.overview import TABLE_KEYS_HINT, count_table, scroll_table
-from observer_app.ui.theme import titled_column
+from observer_app.ui.theme import busy_bar, titled_column
 from observer_app.ui.wording import counted
 
 COMPUTING = "Computing agreement with your partner…"
@@ -52,9 +52,7 @@ class EndScreen(QWidget):
         self.agreement.setWordWrap(True)
         self.agreement.setStyleSheet("font-size: 14pt;")
         layout.addWidget(self.agreement)
-        self.busy = QProgressBar()
-        self.busy.setRange(0, 0)  # no known end: Qt shows it as moving
-        self.busy.setTextVisible(False)
+        self.busy = busy_bar()
         self.busy.setVisible(agreement is not None)
         layout.addWidget(self.busy)
         self.table = count_table(study, summary.counts, summary.per_learner, only_counted=True)

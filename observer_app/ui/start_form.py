@@ -17,7 +17,7 @@ from datetime import datetime
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import (QComboBox, QFormLayout, QGridLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
-                               QProgressBar, QSpinBox, QWidget)
+                               QSpinBox, QWidget)
 
 from observer_app.coding.clock import Clock
 from observer_app.coding.replay_plan import ReplayRule, parse_sample
@@ -25,7 +25,7 @@ from observer_app.coding.shared_start import (
     TYPED_START_BOUND_S, new_pairing_code, parse_shared_start, read_pairing_code, suggested_start_times,
 )
 from observer_app.study.folder import Study
-from observer_app.ui.theme import titled_column
+from observer_app.ui.theme import busy_bar, titled_column
 from sync.errors import InputError
 
 SOLO, PAIRED = "Solo - I code alone", "Paired - start together on a spoken countdown"
@@ -89,9 +89,7 @@ class StartForm(QWidget):
         self.error.setProperty("role", "warning")
         layout.addWidget(self.error)
         self.busy_label = QLabel("")
-        self.busy = QProgressBar()
-        self.busy.setRange(0, 0)  # no known end: Qt shows it as moving
-        self.busy.setTextVisible(False)
+        self.busy = busy_bar()
         for widget in (self.busy_label, self.busy):
             widget.hide()
             layout.addWidget(widget)

@@ -9,7 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from PySide6.QtGui import QColor
-from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QLabel, QProgressBar, QVBoxLayout, QWidget
 
 
 @dataclass(frozen=True)
@@ -67,6 +67,14 @@ def titled_column(page: QWidget, title: str, margins: tuple[int, int, int, int])
     heading.setProperty("role", "title")
     layout.addWidget(heading)
     return layout
+
+
+def busy_bar() -> QProgressBar:
+    """A thin moving bar for work of no known length (the style sheet below draws it)."""
+    bar = QProgressBar()
+    bar.setRange(0, 0)  # no known end: Qt shows it as moving
+    bar.setTextVisible(False)
+    return bar
 
 
 def stylesheet(theme: Theme) -> str:
