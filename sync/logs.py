@@ -59,15 +59,13 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
     run already hashed, path -> SHA-256 hex).  Raises ``InputError`` for a missing file or
     any malformed input.
     """
-    specs = list(specs)
-    _no_file_twice(specs)
+    listed = _log_files(specs)
     report = ReadReport(digests=dict(digests or {}))
     counts = LocalTimeCounts()
     only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
     parts, statement_parts = [], []
     cache = LogCache(cache_dir) if cache_dir is not None else None
-    for spec in specs:
-        files = _files(spec)
+    for spec, files in listed:
         if spec.format == "xapi":
             for path in files:
                 part = _through_cache(cache, spec, path, only, lambda: read_xapi_log(spec, path, only),
@@ -101,7 +99,7 @@ def read_logs(specs: Iterable[LogSpec], known_log_ids: Iterable[str] | None = No
             report.rows_per_file[part.source] = int(kept.get(part.source, 0))
         if statements is not None:
             parts.append(statements)
-    _no_copies(report, specs)
+    _no_copies(report, listed)
     events = combine_events(parts)
     _finish_report(report, counts, known_log_ids, lambda: events["learner"].value_counts(sort=False).items())
     return events, report
@@ -117,15 +115,15 @@ def cached_learner_blocks(specs: Iterable[LogSpec], known_log_ids: Iterable[str]
     no entry is loaded whole.  ``digests`` as for ``read_logs``.  Raises ``InputError`` for
     a missing file.
     """
-    specs = list(specs)
-    _no_file_twice(specs)
+    listed = _log_files(specs)
     report, found = ReadReport(digests=dict(digests or {})), []
     only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
     cache = LogCache(cache_dir)
-    for spec in specs:
-        for path in _files(spec):
+    streamable = all(spec.format != "xapi" for spec, _ in listed)  # else no entry is looked up (nor verified)
+    for spec, files in listed:
+        for path in files:
             prefix, entry, report.digests[str(path)] = cache.key(spec, path, only, report.digests.get(str(path)))
-            found.append((path, None if spec.format == "xapi" else cache.find(entry)))
+            found.append((path, cache.find(entry) if streamable else None))
     if any(entry is None for _, entry in found):
         return None, ReadReport(digests=report.digests)
     learners: dict[str, int] = {}
@@ -143,7 +141,7 @@ def cached_learner_blocks(specs: Iterable[LogSpec], known_log_ids: Iterable[str]
         report.rows_per_file[str(path)] = rows
         report.rows_read_per_file[str(path)] = int(meta["rows_read"])
         report.warnings.extend(meta["warnings"])
-    _no_copies(report, specs)
+    _no_copies(report, listed)
     _finish_report(report, counts, known_log_ids, lambda: learners.items())
     return LearnerBlocks(paths=tuple(tables), rows=report.rows, learners=frozenset(learners), shared=shared), report
 
@@ -160,12 +158,11 @@ def fill_log_cache(specs: Iterable[LogSpec], only_log_ids: Iterable[str] | None,
     specs = list(specs)
     if any(spec.format == "xapi" for spec in specs):
         return False
-    _no_file_twice(specs)
     only = None if only_log_ids is None else frozenset(map(str, only_log_ids))
     cache = LogCache(cache_dir)
     missing = []
-    for spec in specs:
-        for path in _files(spec):
+    for spec, files in _log_files(specs):
+        for path in files:
             prefix, entry, digests[str(path)] = cache.key(spec, path, only, digests.get(str(path)))
             if cache.find(entry) is None:
                 missing.append((spec, path, prefix, entry))
@@ -179,30 +176,33 @@ def fill_log_cache(specs: Iterable[LogSpec], only_log_ids: Iterable[str] | None,
     return True
 
 
-def _no_file_twice(specs: list[LogSpec]) -> None:
-    """InputError when one file is read by two [[logs]] entries (a folder and a file in it, an
-    entry pasted twice): every event of it would count twice."""
+def _log_files(specs: Iterable[LogSpec]) -> list[tuple[LogSpec, list[Path]]]:
+    """Each spec with its files, listed once; InputError when one file is read by two [[logs]]
+    entries (a folder and a file in it, an entry pasted twice): every event of it would count
+    twice."""
+    listed = [(spec, _files(spec)) for spec in specs]
     seen: dict[Path, int] = {}
-    for number, spec in enumerate(specs, 1):
-        for path in _files(spec):
+    for number, (spec, files) in enumerate(listed, 1):
+        for path in files:
             where = path.resolve()
             if where in seen:
                 raise InputError(path, None, f"is read by [[logs]] entries #{seen[where]} and #{number} of study.toml; "
                                  "every event in it would count twice -- remove it from one of them")
             seen[where] = number
+    return listed
 
 
-def _no_copies(report: ReadReport, specs: list[LogSpec]) -> None:
+def _no_copies(report: ReadReport, listed: list[tuple[LogSpec, list[Path]]]) -> None:
     """InputError when two CSV or Parquet files with rows hold the same bytes (a download saved
     twice, a day exported twice): every event would count twice.  The same bytes under other
     mapped partition folders (``learner=n-1/`` and ``learner=n-2/``) are other events; xAPI
     copies are not refused either: a statement id seen twice already counts once.  Needs the
     digests, so only reads through the cache (every command's) are checked."""
     first: dict[tuple, Path] = {}
-    for spec in specs:
+    for spec, files in listed:
         if spec.format == "xapi":
             continue
-        for path in _files(spec):
+        for path in files:
             digest = report.digests.get(str(path))
             if digest is None or not report.rows_per_file.get(str(path)):
                 continue

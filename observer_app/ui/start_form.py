@@ -166,7 +166,7 @@ class StartForm(QWidget):
             self.error.setText("")
 
     def submit(self) -> None:
-        if self.busy.isVisible():
+        if not self.busy.isHidden():  # (not isVisible: that also depends on the window being shown)
             return
         coder = self.coder.text().strip()
         if not coder:
